@@ -1,0 +1,5 @@
+"""``python -m partpick``: the same as the ``partpick`` command."""
+
+from partpick.cli import main
+
+main()

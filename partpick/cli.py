@@ -1,0 +1,194 @@
+"""The ``partpick`` command line. The only module that imports click.
+
+Results go to stdout, diagnostics to stderr. Exit codes: 0 done, 1 no design meets
+the spec (with the reason), 2 bad input (one line naming file, line and field).
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import math
+import sys
+from pathlib import Path
+
+import click
+
+from partpick import __version__, units
+from partpick.catalog import KINDS, Catalog, default_catalog_dir, load_catalog
+from partpick.errors import PartpickError
+from partpick.export.table import render_table
+from partpick.fileio import write_atomic
+from partpick.spec import Spec, check_parts
+from partpick.starter import STARTER_SPEC
+from partpick.stock import load_stock
+
+__all__ = ["main"]
+
+
+def _guarded(func):
+    """Turn partpick's errors into one line on stderr and the matching exit code."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except PartpickError as exc:
+            click.echo(f"error: {exc}", err=True)
+            sys.exit(exc.exit_code)
+
+    return wrapper
+
+
+_catalog_option = click.option(
+    "--catalog", "catalog_paths", multiple=True, type=click.Path(path_type=Path),
+    help="Catalog folder or file (repeatable). Default: the spec's 'catalogs', "
+         "$PARTPICK_CATALOGS, ./catalogs, or the shipped demo catalog.")
+
+
+def _load_catalog(paths, spec: Spec | None = None) -> Catalog:
+    if paths:
+        return load_catalog(list(paths))
+    if spec is not None and spec.catalogs:
+        return load_catalog(list(spec.catalogs))
+    return load_catalog([default_catalog_dir()])
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, "--version", prog_name="partpick")
+def main() -> None:
+    """partpick: standard-value parts for a sine oscillator, from a YAML spec,
+    verified by circuit physics and ranked as bills of materials."""
+
+
+# -- catalog ------------------------------------------------------------------------------
+
+@main.group()
+def catalog() -> None:
+    """Show or check part catalogs."""
+
+
+def _fmt(value: float, dim: str, digits: int | None = None) -> str:
+    if value is None or (isinstance(value, float) and math.isinf(value)):
+        return "-"
+    return units.format_quantity(value, dim, digits)
+
+
+def _price(*values: float) -> str:
+    return " .. ".join(f"{v:.3f}" for v in values)
+
+
+def _catalog_tables(cat: Catalog, kinds: tuple[str, ...]) -> str:
+    parts = []
+    if "resistors" in kinds and cat.resistors:
+        parts.append("Resistor families\n" + render_table(
+            ["id", "technology", "series", "tol", "tempco", "range", "power", "unit price"],
+            [[f.id, f.technology, f.series, _fmt(f.tolerance_frac, "fraction"), _fmt(f.tempco_per_k, "tempco"),
+              f"{_fmt(f.min_ohm, 'resistance')} .. {_fmt(f.max_ohm, 'resistance')}", _fmt(f.power_w, "power"),
+              _price(f.price_unit)] for f in cat.resistors]))
+    if "capacitors" in kinds and cat.capacitors:
+        def temp(f):
+            if f.has_band:
+                return (f"+/-{_fmt(f.band_frac, 'fraction')} over {_fmt(f.band_min_k, 'temperature')}"
+                        f"..{_fmt(f.band_max_k, 'temperature')}")
+            return f"{_fmt(f.tempco_per_k, 'tempco')} +/- {_fmt(f.tempco_spread_per_k, 'tempco')}"
+        parts.append("Capacitor families\n" + render_table(
+            ["id", "dielectric", "series", "tol", "temperature", "range", "rating", "unit price"],
+            [[f.id, f.dielectric, f.series, _fmt(f.tolerance_frac, "fraction"), temp(f),
+              f"{_fmt(f.min_f, 'capacitance')} .. {_fmt(f.max_f, 'capacitance')}", _fmt(f.voltage_v, "voltage"),
+              _price(f.price_at_min, f.price_at_max)] for f in cat.capacitors]))
+    if "opamps" in kinds and cat.opamps:
+        parts.append("Op-amps\n" + render_table(
+            ["id", "GBW", "slew", "supply (total)", "headroom +/-", "I out", "RRIO", "unit price"],
+            [[f.id, _fmt(f.gbw_hz, "frequency"), _fmt(f.slew_v_per_s, "slew_rate"),
+              f"{_fmt(f.supply_min_v, 'voltage')} .. {_fmt(f.supply_max_v, 'voltage')}",
+              f"{_fmt(f.headroom_high_v, 'voltage')} / {_fmt(f.headroom_low_v, 'voltage')}",
+              _fmt(f.output_current_a, "current"),
+              ("in " if f.rail_to_rail_in else "") + ("out" if f.rail_to_rail_out else "") or "-",
+              _price(f.price_unit)] for f in cat.opamps]))
+    if "limiters" in kinds and cat.limiters:
+        parts.append("Limiter elements\n" + render_table(
+            ["id", "kind", "Is", "n", "Rs", "Vz", "unit price"],
+            [[f.id, f.kind, _fmt(f.is_a, "current"), f"{f.n:g}", _fmt(f.rs_ohm, "resistance"),
+              _fmt(f.vz_v, "voltage") if f.kind == "zener-pair" else "-", _price(f.price_unit)]
+             for f in cat.limiters]))
+    return "\n\n".join(parts)
+
+
+@catalog.command("list")
+@_catalog_option
+@click.option("--kind", type=click.Choice(KINDS), help="Show one kind only.")
+@_guarded
+def catalog_list(catalog_paths, kind) -> None:
+    """List the part families of the catalog."""
+    cat = _load_catalog(catalog_paths)
+    if cat.demo:
+        click.echo("Demo catalog: invented parts for trying partpick out; use your own approved parts.\n")
+    click.echo(_catalog_tables(cat, (kind,) if kind else KINDS))
+    click.echo(f"\nPrices in {cat.currency}. Read {len(cat.sources)} file(s).")
+
+
+@catalog.command("validate")
+@click.argument("paths", nargs=-1, type=click.Path(path_type=Path))
+@_guarded
+def catalog_validate(paths) -> None:
+    """Check catalog files (default: the default catalog folder)."""
+    cat = load_catalog(list(paths) if paths else [default_catalog_dir()])
+    counts = ", ".join(f"{len(cat.of_kind(k))} {k}" for k in KINDS)
+    click.echo(f"ok: {len(cat.sources)} file(s), {counts}")
+
+
+# -- spec ------------------------------------------------------------------------------------
+
+@main.group("spec")
+def spec_group() -> None:
+    """Work with spec files."""
+
+
+_SI_DIM = {"Hz": "frequency", "V": "voltage", "ohm": "resistance", "F": "capacitance", "K": "temperature"}
+
+
+@spec_group.command("check")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@_catalog_option
+@click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text", show_default=True)
+@_guarded
+def spec_check(spec_path, catalog_paths, fmt) -> None:
+    """Print SPEC as partpick understands it, normalised to SI units."""
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    check_parts(spec, cat)
+    stock = load_stock(spec.stock.path, cat) if spec.stock else None
+    rows = spec.normalised()
+    if fmt == "json":
+        def plain(v):
+            return None if isinstance(v, float) and math.isinf(v) else v
+        click.echo(json.dumps({"source": str(spec_path), "fields": {k: {"value": plain(v), "unit": u}
+                                                                    for k, v, u in rows}}, indent=2))
+        return
+    table = []
+    for key, value, unit in rows:
+        if isinstance(value, float):
+            dim = _SI_DIM.get(unit.split(" per ")[0]) or ("fraction" if unit == "1" else None)
+            shown = _fmt(value, dim) if dim else ""
+            if key == "amplitude.target":
+                peak = units.Amplitude(float(f"{spec.amplitude.peak_v:.4g}"), "pk")
+                shown = units.format_amplitude(peak)
+            table.append([key, f"{value:.6g}", unit, shown])
+        else:
+            table.append([key, str(value), unit, ""])
+    stocked = f", stock list of {len(stock.items)} line(s)" if stock else ""
+    click.echo(f"spec {spec_path}: ok ({len(cat.sources)} catalog file(s){stocked})")
+    click.echo(render_table(["field", "SI value", "SI unit", "reads as"], table))
+
+
+# -- init --------------------------------------------------------------------------------------
+
+@main.command("init")
+@click.argument("path", required=False, default="spec.yaml", type=click.Path(path_type=Path))
+@click.option("--force", is_flag=True, help="Overwrite PATH if it exists.")
+@_guarded
+def init(path, force) -> None:
+    """Write a commented starter spec to PATH (default spec.yaml)."""
+    write_atomic(path, STARTER_SPEC, force=force)
+    click.echo(f"wrote {path}; edit it, then run: partpick spec check {path}")
