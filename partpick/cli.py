@@ -192,3 +192,118 @@ def init(path, force) -> None:
     """Write a commented starter spec to PATH (default spec.yaml)."""
     write_atomic(path, STARTER_SPEC, force=force)
     click.echo(f"wrote {path}; edit it, then run: partpick spec check {path}")
+
+
+# -- check -----------------------------------------------------------------------------------
+
+def _failure_line(c) -> str:
+    from partpick.export.verdict import _fmt
+
+    if c.low is not None and c.value < c.low:
+        return f"{c.name}: {_fmt(c.value, c.dim)} is below {_fmt(c.low, c.dim)} by {_fmt(c.low - c.value, c.dim)}"
+    if c.high is not None and c.value > c.high:
+        return f"{c.name}: {_fmt(c.value, c.dim)} is above {_fmt(c.high, c.dim)} by {_fmt(c.value - c.high, c.dim)}"
+    return f"{c.name}: no prediction"
+
+
+@main.command("check")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@click.argument("bom_path", metavar="BOM", type=click.Path(path_type=Path))
+@_catalog_option
+@click.option("--transient", is_flag=True, help="Also simulate the nominal circuit from a small kick to its "
+                                                 "settled state and report what it shows.")
+@click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text", show_default=True)
+@_guarded
+def check(spec_path, bom_path, catalog_paths, transient, fmt) -> None:
+    """Verify the design in BOM against SPEC: each requirement with its predicted value,
+    limit, verdict and margin. Exit 1 when a requirement fails."""
+    from partpick.bom import load_bom, part_data
+    from partpick.export.verdict import render_point, render_verdict
+    from partpick.verify import verify
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    bom = load_bom(bom_path, cat)
+    circuit = bom.to_circuit(cat)
+    tol, tc, rating = part_data(bom, cat)
+    verdict = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating)
+    if fmt == "json":
+        data = {"spec": str(spec_path), "bom": str(bom_path), "passed": verdict.passed,
+                "checks": [{"name": c.name, "field": c.field, "value": c.value, "low": c.low, "high": c.high,
+                            "passed": c.passed, "margin": c.margin, "note": c.note} for c in verdict.checks],
+                "cautions": list(verdict.cautions)}
+        click.echo(json.dumps(data, indent=2, default=lambda x: None))
+    else:
+        status = "PASS" if verdict.passed else f"FAIL ({len(verdict.failed())} of {len(verdict.checks)} requirements)"
+        click.echo(f"{bom_path} against {spec_path}: {status}")
+        click.echo(f"textbook f0 {circuit.f0_hz:.6g} Hz, gain {circuit.gain:.4g} (needs {circuit.required_gain:.4g})")
+        for name, point in verdict.corners.items():
+            click.echo(render_point(name, point))
+        click.echo("")
+        click.echo(render_verdict(verdict))
+        for c in verdict.failed():
+            click.echo(f"fails: {_failure_line(c)}")
+        for caution in verdict.cautions:
+            click.echo(f"caution: {caution}")
+        if transient:
+            click.echo("")
+            click.echo(_transient_report(circuit, verdict.nominal.cond))
+    if not verdict.passed:
+        sys.exit(1)
+
+
+def _transient_report(circuit, cond) -> str:
+    from partpick.physics.transient import simulate
+    from partpick.physics.waveform import settle_time
+    from partpick.topologies.wien import build_netlist
+    from partpick.verify import transient_cycles_for, predict
+
+    point = predict(circuit, cond)
+    if not point.starts:
+        return "transient: the circuit does not start (the kick dies away)"
+    net = build_netlist(circuit, cond)
+    cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3))
+    res = simulate(net, cycles=cycles, record=("osc", "load"))
+    st = res.stats("load")
+    if st is None:
+        return "transient: no oscillation within the simulated time"
+    t_settle = settle_time(res.t_s, res.v["load"], st.peak_v)
+    settle = f"{t_settle * 1e3:.4g} ms" if t_settle is not None else "not within the run"
+    return (f"transient ({cycles:.0f} cycles from a 10 mV kick): {st.freq_hz:.6g} Hz, {st.vpp_v:.4g} Vpp at the load, "
+            f"THD {st.thd_frac * 100:.3g} %, settles (2 %) after {settle}"
+            + ("" if st.settled else "; still changing at the end"))
+
+
+# -- netlist ---------------------------------------------------------------------------------
+
+@main.command("netlist")
+@click.argument("bom_path", metavar="BOM", type=click.Path(path_type=Path))
+@click.option("--spec", "spec_path", type=click.Path(path_type=Path), required=True,
+              help="Spec giving the supply, load and temperature to simulate at (its nominal point).")
+@_catalog_option
+@click.option("-o", "--out", "out", type=click.Path(path_type=Path), default="-", show_default=True,
+              help="Output file; '-' is stdout.")
+@click.option("--force", is_flag=True, help="Overwrite --out if it exists.")
+@click.option("--cycles", type=float, default=None, help="Cycles in the .tran line (default: enough to settle).")
+@_guarded
+def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
+    """Write a SPICE netlist of the design in BOM, ready to run (.tran), with a
+    behavioural op-amp subcircuit from the catalog data."""
+    from partpick.bom import load_bom
+    from partpick.export.spice import to_spice
+    from partpick.topologies.wien import build_netlist
+    from partpick.verify import operating_conditions, predict, transient_cycles_for
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    circuit = load_bom(bom_path, cat).to_circuit(cat)
+    cond = operating_conditions(spec)["nominal"]
+    if cycles is None:
+        point = predict(circuit, cond)
+        cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
+    text = to_spice(build_netlist(circuit, cond), cycles=cycles)
+    if str(out) == "-":
+        click.echo(text, nl=False)
+    else:
+        write_atomic(out, text, force=force)
+        click.echo(f"wrote {out}")

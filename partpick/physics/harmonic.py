@@ -1,0 +1,243 @@
+"""Steady oscillation by harmonic balance: amplitude, frequency (with the limiter's
+harmonic pull) and distortion.
+
+Unknowns are the odd harmonics of the voltage across Rf, Vf_k (k = 1, 3, ..., K),
+and the angular frequency; the fundamental's phase is the reference (Im Vf_1 = 0).
+For each harmonic the loop equation alpha(jkw) Vf_k + gamma(jkw) Ilim_k = 0 must hold,
+where Ilim_k are the Fourier coefficients of the limiter current i(vf(t)) computed
+by FFT of the sampled waveform (the harmonic-balance method: K. S. Kundert and A.
+Sangiovanni-Vincentelli, "Simulation of nonlinear circuits in the frequency domain",
+IEEE Trans. CAD 5(4), 1986). Newton's method with the analytic Jacobian (the
+conductance waveform di/dv mapped through the same transforms) converges in a few
+steps from the describing-function solution (the single-harmonic balance, which
+predicts the amplitude well but no frequency shift for a memoryless limiter; the
+higher harmonics carry that shift). Only odd harmonics appear: the limiter is odd
+and the circuit is symmetric about the signal reference.
+
+The op-amp is linear here (A0, GBW, second pole, Ro). When the solution shows the
+op-amp's output leaving its swing, slewing near its limit or running near its current
+limit, the result says so (``regime``) and the caller integrates the full nonlinear
+circuit instead (:mod:`partpick.physics.transient`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from partpick.physics.junction import limiter_table
+from partpick.physics.linear import LinearResult
+from partpick.topologies.wien import Conditions, Loop, WienCircuit, build_loop
+
+__all__ = ["BalanceResult", "harmonic_balance"]
+
+
+@dataclass(frozen=True, slots=True)
+class BalanceResult:
+    """The settled oscillation as harmonic balance finds it.
+
+    freq_hz: Hz; osc_peak_v / load_peak_v: half the peak-to-peak voltage at the op-amp
+    output and at the load, V; osc_thd / load_thd: THD over harmonics 2..9, fraction;
+    osc_harmonics / load_harmonics: complex amplitudes of harmonics 1..K (odd only
+    non-zero), V; x_min_v / x_max_v: extremes of the op-amp's internal output voltage
+    (before Ro) relative to the signal reference, V; slew_v_per_s: its largest rate of
+    change, V/s; iout_peak_a: the op-amp's largest output current, A; ilim_peak_a:
+    largest limiter current, A; regime: 'limiter' when the linear op-amp assumption
+    holds, else 'swing', 'slew' or 'current'; converged: Newton met its tolerance.
+    """
+
+    freq_hz: float
+    osc_peak_v: float
+    load_peak_v: float
+    osc_thd: float
+    load_thd: float
+    osc_harmonics: tuple[complex, ...]
+    load_harmonics: tuple[complex, ...]
+    x_min_v: float
+    x_max_v: float
+    slew_v_per_s: float
+    iout_peak_a: float
+    ilim_peak_a: float
+    iout_rms_a: float
+    regime: str
+    converged: bool
+    harmonics: int
+
+
+def _thd(h: np.ndarray) -> float:
+    """sqrt(sum |H_k|^2, k = 2..9) / |H_1| (IEC 60268-3 style THD, relative to the fundamental)."""
+    fund = abs(h[0])
+    return float(np.sqrt(np.sum(np.abs(h[1:9]) ** 2)) / fund) if fund > 0 else math.nan
+
+
+class _Balance:
+    """The transforms and the loop of one harmonic-balance problem."""
+
+    def __init__(self, loop: Loop, table, kmax: int, nt: int) -> None:
+        self.loop, self.table = loop, table
+        self.ks = np.arange(1, kmax + 1, 2)
+        self.nt = nt
+        theta = 2 * np.pi * np.arange(nt) / nt
+        kt = np.outer(theta, self.ks)
+        # columns: re_k, im_k for each odd k; v(theta) = sum Re(V_k e^{j k theta})
+        self.synth = np.empty((nt, 2 * self.ks.size))
+        self.synth[:, 0::2] = np.cos(kt)
+        self.synth[:, 1::2] = -np.sin(kt)
+        self.anal = self.synth.T * (2.0 / nt)
+
+    def coeffs(self, w: float) -> tuple[np.ndarray, np.ndarray]:
+        return self.loop.coefficients(1j * w * self.ks)
+
+    def residual(self, vk: np.ndarray, w: float, coeffs=None):
+        v_t = self.synth @ _ri(vk)
+        i_t = self.table.current(v_t)
+        ik = _cx(self.anal @ i_t)
+        al, ga = coeffs if coeffs is not None else self.coeffs(w)
+        return al * vk + ga * ik, ik, v_t, i_t
+
+    def solve(self, a0: float, w0: float, iters: int = 60):
+        vk = np.zeros(self.ks.size, dtype=complex)
+        vk[0] = a0
+        w = w0
+        n = self.ks.size
+        converged = False
+        for _ in range(iters):
+            al, ga = self.coeffs(w)
+            r, ik, v_t, _ = self.residual(vk, w, (al, ga))
+            scale = max(abs(vk[0]), 1e-12)
+            if np.max(np.abs(r)) < 1e-10 * scale * max(1.0, np.max(np.abs(al))):
+                converged = True
+                break
+            g_t = self.table.conductance(v_t)
+            dI = self.anal @ (g_t[:, None] * self.synth)  # d(re,im I)/d(re,im V)
+            J = _cmul_block(ga) @ dI + _cmul_block(al)
+            h = 1e-7 * w
+            al2, ga2 = self.coeffs(w + h)
+            dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h)
+            # unknowns: re V1, (re, im) V3.., w  (im V1 fixed at 0 as the phase reference)
+            Jr = np.column_stack([J[:, 0], J[:, 2:], dw])
+            step = np.linalg.solve(Jr, -_ri(r))
+            # damp: keep the fundamental positive and the frequency step small
+            lam = 1.0
+            if vk[0].real + step[0] <= 0.2 * vk[0].real:
+                lam = min(lam, 0.8 * vk[0].real / abs(step[0]))
+            if abs(step[-1]) > 0.05 * w:
+                lam = min(lam, 0.05 * w / abs(step[-1]))
+            step *= lam
+            vk[0] += step[0]
+            vk[1:] += step[1:-1:2] + 1j * step[2:-1:2]
+            w += step[-1]
+        return vk, w, converged
+
+
+def _ri(z: np.ndarray) -> np.ndarray:
+    out = np.empty(2 * z.size)
+    out[0::2], out[1::2] = z.real, z.imag
+    return out
+
+
+def _cx(x: np.ndarray) -> np.ndarray:
+    return x[0::2] + 1j * x[1::2]
+
+
+def _cmul_block(c: np.ndarray) -> np.ndarray:
+    """Real 2x2 blocks for multiplication by complex c, as a block-diagonal matrix."""
+    n = c.size
+    m = np.zeros((2 * n, 2 * n))
+    idx = np.arange(n) * 2
+    m[idx, idx] = c.real
+    m[idx, idx + 1] = -c.imag
+    m[idx + 1, idx] = c.imag
+    m[idx + 1, idx + 1] = c.real
+    return m
+
+
+def _df_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -> float | None:
+    """Amplitude of vf (V) at which the limiter's describing-function conductance
+    (fundamental current / amplitude, S) equals g_target; None if it never does."""
+    theta = 2 * np.pi * (np.arange(64) + 0.5) / 64
+    amps = np.geomspace(lo, hi, 90)
+    i = table.current(np.outer(amps, np.cos(theta)))
+    n_df = (i @ np.cos(theta)) * (2 / 64) / amps
+    above = np.nonzero(n_df >= g_target)[0]
+    if above.size == 0 or above[0] == 0:
+        return None
+    j = above[0]
+    # log-linear interpolation between the bracketing samples
+    x0, x1, y0, y1 = math.log(amps[j - 1]), math.log(amps[j]), n_df[j - 1], n_df[j]
+    return math.exp(x0 + (g_target - y0) * (x1 - x0) / (y1 - y0))
+
+
+def harmonic_balance(c: WienCircuit, cond: Conditions, lin: LinearResult, *, kmax: int = 21,
+                     loop: Loop | None = None) -> BalanceResult | None:
+    """Settled oscillation of ``c`` at ``cond`` with a limiter; None when the circuit
+    does not start or the limiter cannot bring the loop gain down (then the op-amp's
+    swing sets the amplitude and the transient simulation must answer)."""
+    if c.limiter is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
+        return None
+    loop = loop or build_loop(c, cond)
+    table = limiter_table(c.limiter, c.rd_ohm, cond.temp_k)
+    a_df = _df_amplitude(table, lin.marginal_g_s)
+    if a_df is None:
+        return None
+    w0 = 2 * math.pi * lin.marginal_hz / loop.w_ref
+    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
+        hb = _Balance(loop, table, k, max(64, 8 * (k + 1)))
+        vk, w, ok = hb.solve(a_df, w0)
+        tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
+        if ok and tail < 3e-4:
+            break
+    return _result(c, cond, loop, hb, vk, w, ok)
+
+
+def _result(c: WienCircuit, cond: Conditions, loop: Loop, hb: _Balance, vk, w, ok) -> BalanceResult:
+    _, ik, v_t, i_t = hb.residual(vk, w)
+    p = 1j * w * hb.ks
+    vo = loop.vo_per_vf(p, vk, ik)
+    i_f = loop.yf(p) * vk + ik
+    iout = loop.yx(p) * vo + i_f
+    x = vo + loop.ro_ohm * iout
+    vl = loop.to_load(p) * vo
+    kmax = int(hb.ks[-1])
+    full = lambda z: _full(z, hb.ks, kmax)  # noqa: E731
+    vo_t = hb.synth @ _ri(vo)
+    x_t = hb.synth @ _ri(x)
+    vl_t = hb.synth @ _ri(vl)
+    io_t = hb.synth @ _ri(iout)
+    slew = float(np.max(np.abs(hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * x))))
+    op = c.opamp
+    vcc, vee, ref = cond.rails(c.supply_kind)
+    hi, lo = vcc - op.headroom_high_v - ref, vee + op.headroom_low_v - ref
+    regime = "limiter"
+    if x_t.max() > hi or x_t.min() < lo:
+        regime = "swing"
+    elif slew > 0.2 * op.slew_v_per_s:
+        regime = "slew"
+    elif np.max(np.abs(io_t)) > 0.7 * op.output_current_a:
+        regime = "current"
+    return BalanceResult(
+        freq_hz=w * loop.w_ref / (2 * math.pi),
+        osc_peak_v=float((vo_t.max() - vo_t.min()) / 2),
+        load_peak_v=float((vl_t.max() - vl_t.min()) / 2),
+        osc_thd=_thd(full(vo)),
+        load_thd=_thd(full(vl)),
+        osc_harmonics=tuple(full(vo)),
+        load_harmonics=tuple(full(vl)),
+        x_min_v=float(x_t.min()),
+        x_max_v=float(x_t.max()),
+        slew_v_per_s=slew,
+        iout_peak_a=float(np.max(np.abs(io_t))),
+        ilim_peak_a=float(np.max(np.abs(i_t))),
+        iout_rms_a=float(np.sqrt(np.mean(io_t ** 2))),
+        regime=regime,
+        converged=bool(ok),
+        harmonics=kmax,
+    )
+
+
+def _full(z: np.ndarray, ks: np.ndarray, kmax: int) -> np.ndarray:
+    out = np.zeros(max(kmax, 9), dtype=complex)
+    out[ks - 1] = z
+    return out

@@ -1,0 +1,140 @@
+"""Linear loop analysis of the oscillator: closed-loop poles, startup, the frequency
+with the op-amp's pull, and the startup margin.
+
+The loop equation alpha(s) Vf + gamma(s) Ilim = 0 (:class:`partpick.topologies.wien.Loop`)
+with the limiter linearised at zero amplitude (Ilim = g0 Vf) gives the characteristic
+equation alpha + g0 gamma = 0; its numerator polynomial's roots are the circuit's
+natural frequencies. A complex pair in the right half-plane means the circuit starts
+(Barkhausen criterion exceeded); its real part is the envelope's growth rate.
+The startup margin is |L| - 1 at the frequency where the loop gain L (broken at the
+non-inverting input) has zero phase; with an ideal op-amp it is (1 + Rf/Rg) / (1 + Rs/Rp
++ Cp/Cs) - 1.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.polynomial import polynomial as P
+from scipy import optimize
+
+from partpick.physics.junction import limiter_table
+from partpick.topologies.wien import Conditions, Loop, WienCircuit, build_loop
+
+__all__ = ["LinearResult", "analyse_linear", "loop_gain", "limiter_g0"]
+
+
+@dataclass(frozen=True, slots=True)
+class LinearResult:
+    """Small-signal facts of one candidate at one operating point.
+
+    poles_rad_s: closed-loop natural frequencies, rad/s; starts: a natural frequency lies
+    in the right half-plane; growth_per_s: real part of the dominant one, 1/s (negative:
+    the kick dies away); startup_hz: its imaginary part / 2 pi, Hz (0 when real); margin: |L| - 1 at the
+    loop's phase-zero frequency phase_zero_hz (Hz); marginal_hz: frequency at which the
+    loop oscillates once the limiter has brought the gain down to exactly 1, with the
+    op-amp's pull but no harmonic pull, Hz; marginal_g_s: the extra conductance across
+    Rf the limiter must add on average for that, S.
+    """
+
+    poles_rad_s: tuple[complex, ...]
+    starts: bool
+    growth_per_s: float
+    startup_hz: float
+    margin: float
+    phase_zero_hz: float
+    marginal_hz: float
+    marginal_g_s: float
+
+    def buildup_time_s(self, start_v: float, final_v: float) -> float:
+        """Time for the envelope to grow from start_v to final_v (V) at the small-signal
+        growth rate, s; inf when it does not start."""
+        if not self.starts or self.growth_per_s <= 0:
+            return math.inf
+        return math.log(final_v / start_v) / self.growth_per_s
+
+
+def limiter_g0(c: WienCircuit, temp_k: float) -> float:
+    """Small-signal conductance of the limiter branch at zero volts, S."""
+    if c.limiter is None:
+        return 0.0
+    table = limiter_table(c.limiter, c.rd_ohm, temp_k)
+    return float(table.conductance(np.array([0.0]))[0])
+
+
+def loop_gain(loop: Loop, p: np.ndarray, g0: float = 0.0) -> np.ndarray:
+    """Loop gain broken at the non-inverting input, L = beta (1 + Rg y) A / D1,
+    D1 = (1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y, y = yf + g0."""
+    a = loop.a(p)
+    y = loop.yf(p) + g0
+    one = 1.0 + loop.rg_ohm * y
+    d1 = one * (1.0 + loop.ro_ohm * loop.yx(p)) + (loop.ro_ohm + a * loop.rg_ohm) * y
+    return loop.beta(p) * one * a / d1
+
+
+def _char_roots(loop: Loop, g0: float) -> np.ndarray:
+    """Roots (in p) of alpha + g0 gamma, built as one rational; roots shared with the
+    denominator are artefacts of cross-multiplying and are dropped."""
+    q = loop.alpha + loop.gamma.scale(g0)
+    num = q.num / np.max(np.abs(q.num))
+    roots = P.polyroots(num)
+    den_roots = P.polyroots(q.den) if q.den.size > 1 else np.array([])
+    keep = [r for r in roots if den_roots.size == 0 or np.min(np.abs(den_roots - r)) > 1e-7 * max(abs(r), 1e-9)]
+    return np.array(keep)
+
+
+def _phase_zero(f, lo: float, hi: float, centre: float) -> float | None:
+    """The zero of f(w) nearest ``centre`` on [lo, hi], by a log grid then Brent's method."""
+    grid = np.geomspace(lo, hi, 161)
+    vals = f(grid)
+    best = None
+    for i in np.nonzero(np.sign(vals[:-1]) != np.sign(vals[1:]))[0]:
+        root = optimize.brentq(lambda w: float(f(np.array([w]))[0]), grid[i], grid[i + 1], xtol=1e-12 * grid[i])
+        if best is None or abs(math.log(root / centre)) < abs(math.log(best / centre)):
+            best = root
+    return best
+
+
+def analyse_linear(c: WienCircuit, cond: Conditions, loop: Loop | None = None) -> LinearResult:
+    """Poles, startup, margin and marginal frequency of ``c`` at ``cond`` (``loop``:
+    the already-built equations, if the caller has them)."""
+    loop = loop or build_loop(c, cond)
+    w = loop.w_ref
+    g0 = limiter_g0(c, cond.temp_k)
+    roots = _char_roots(loop, g0) * w
+    # The dominant natural frequency: a complex pair normally; with a large gain excess
+    # the pair splits into two real roots, both in the right half-plane (it still starts,
+    # as a relaxation oscillation that the op-amp's swing then shapes).
+    dom = max(roots, key=lambda r: r.real) if roots.size else complex(-math.inf, 0.0)
+    starts = bool(roots.size) and dom.real > 0
+
+    wz = _phase_zero(lambda x: np.imag(loop_gain(loop, 1j * x, g0)), 0.2, 2.0, 1.0)
+    if wz is None:
+        margin, fz = -1.0, math.nan
+    else:
+        margin = float(np.real(loop_gain(loop, 1j * wz, g0))) - 1.0
+        fz = wz * w / (2 * math.pi)
+
+    # Marginal oscillation: alpha + g gamma = 0 with g real (the limiter's average conductance).
+    def im_ratio(x):
+        al, ga = loop.coefficients(1j * x)
+        return np.imag(-al / ga)
+
+    wm = _phase_zero(im_ratio, 0.2, 2.0, 1.0)
+    if wm is None:
+        fm, gm = math.nan, math.nan
+    else:
+        al, ga = loop.coefficients(np.array([1j * wm]))
+        fm, gm = wm * w / (2 * math.pi), float(np.real(-al / ga)[0])
+    return LinearResult(
+        poles_rad_s=tuple(complex(r) for r in sorted(roots, key=lambda r: -r.real)),
+        starts=starts,
+        growth_per_s=float(dom.real),
+        startup_hz=float(abs(dom.imag) / (2 * math.pi)),
+        margin=margin,
+        phase_zero_hz=fz,
+        marginal_hz=fm,
+        marginal_g_s=gm,
+    )

@@ -1,0 +1,1 @@
+"""Oscillator topologies, one module each: slots, equations and netlist."""

@@ -1,0 +1,344 @@
+"""Verification of one candidate against a spec: predictions at the operating points
+that matter, and every requirement as a check with its margin.
+
+Operating points: nominal (mid supply, nominal temperature), the supply ends at the
+nominal temperature (the swing is judged at the minimum supply) and the temperature
+ends at mid supply. Each point is solved by harmonic balance when a limiter sets the
+amplitude and the op-amp stays linear; otherwise (no limiter, clipping, slewing, current
+limit) by transient simulation of the full nonlinear circuit to its settled state.
+Part tolerances enter here only as the worst-case corner of the startup margin
+(the tolerance Monte Carlo is :mod:`partpick.tolerance`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from partpick.catalog import Catalog
+from partpick.physics.harmonic import BalanceResult, harmonic_balance
+from partpick.physics.linear import LinearResult, analyse_linear
+from partpick.spec import Spec
+from partpick.topologies.wien import Conditions, WienCircuit, build_loop, build_netlist
+
+__all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin"]
+
+# Share of a resistor's rating it may dissipate (derating: common practice, no published source).
+RESISTOR_DERATING = 0.5
+# Dissipation a small op-amp package takes without a heatsink, W (common practice for
+# SOIC-8 class packages at 70 degC ambient, no published source).
+OPAMP_PACKAGE_W = 0.5
+
+
+@dataclass(frozen=True, slots=True)
+class OperatingPoint:
+    """What the physics predicts at one operating point.
+
+    freq_hz (Hz), osc_peak_v / load_peak_v (half peak-to-peak, V), osc_thd / load_thd
+    (fraction, harmonics 2..9); x_min_v / x_max_v: op-amp internal output swing
+    relative to the signal reference (V); swing_low_v / swing_high_v: the op-amp's
+    limits there (V); slew_v_per_s; iout_peak_a / iout_rms_a (A); method: 'harmonic
+    balance', 'transient' or 'none' (no oscillation); regime: 'limiter', 'swing',
+    'slew', 'current' or 'no startup'.
+    """
+
+    cond: Conditions
+    lin: LinearResult
+    starts: bool
+    freq_hz: float
+    osc_peak_v: float
+    load_peak_v: float
+    osc_thd: float
+    load_thd: float
+    x_min_v: float
+    x_max_v: float
+    swing_low_v: float
+    swing_high_v: float
+    slew_v_per_s: float
+    iout_peak_a: float
+    iout_rms_a: float
+    method: str
+    regime: str
+
+
+@dataclass(frozen=True, slots=True)
+class Check:
+    """One requirement: the predicted value, its limits, pass/fail and the margin
+    (distance to the nearest limit in the value's unit, positive when inside).
+    dim names the unit for formatting (see :mod:`partpick.units`)."""
+
+    name: str
+    field: str
+    value: float
+    low: float | None
+    high: float | None
+    dim: str
+    passed: bool
+    margin: float
+    note: str = ""
+
+
+@dataclass(frozen=True, slots=True)
+class Verdict:
+    """Everything verification says about one candidate."""
+
+    checks: tuple[Check, ...]
+    nominal: OperatingPoint
+    corners: dict = field(default_factory=dict, hash=False, compare=False)
+    cautions: tuple[str, ...] = ()
+    worst_margin: float = math.nan
+
+    @property
+    def passed(self) -> bool:
+        return all(c.passed for c in self.checks)
+
+    def failed(self) -> tuple[Check, ...]:
+        return tuple(c for c in self.checks if not c.passed)
+
+
+def _swing(c: WienCircuit, cond: Conditions) -> tuple[float, float]:
+    vcc, vee, ref = cond.rails(c.supply_kind)
+    return vee + c.opamp.headroom_low_v - ref, vcc - c.opamp.headroom_high_v - ref
+
+
+def predict(c: WienCircuit, cond: Conditions, *, transient_cycles: float | None = None) -> OperatingPoint:
+    """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring)."""
+    loop = build_loop(c, cond)
+    lin = analyse_linear(c, cond, loop)
+    lo, hi = _swing(c, cond)
+    if not lin.starts:
+        return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
+                              0.0, 0.0, 0.0, "none", "no startup")
+    hb = harmonic_balance(c, cond, lin, loop=loop)
+    if hb is not None and hb.converged and hb.regime == "limiter":
+        return _from_balance(cond, lin, hb, lo, hi)
+    return _from_transient(c, cond, lin, lo, hi, transient_cycles)
+
+
+def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
+    return OperatingPoint(cond, lin, True, hb.freq_hz, hb.osc_peak_v, hb.load_peak_v, hb.osc_thd, hb.load_thd,
+                          hb.x_min_v, hb.x_max_v, lo, hi, hb.slew_v_per_s, hb.iout_peak_a, hb.iout_rms_a,
+                          "harmonic balance", "limiter")
+
+
+def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, kick_v: float = 0.01) -> float:
+    """Cycles to simulate: build-up at the small-signal growth rate, time for the
+    amplitude to settle (about eight growth time constants) and 20 cycles to analyse."""
+    tau_cycles = 1.0 / (lin.growth_per_s / f_hz)
+    build = math.log(final_v / kick_v) * tau_cycles
+    return float(min(max(build + 8 * tau_cycles + 25, 60), 1500))
+
+
+def _from_transient(c, cond, lin, lo, hi, cycles) -> OperatingPoint:
+    from partpick.physics.transient import simulate
+
+    net = build_netlist(c, cond)
+    cycles = cycles or transient_cycles_for(lin, c.f0_hz)
+    res = simulate(net, cycles=cycles, points_per_cycle=200, record=("osc", "load", "nn"))
+    osc = res.stats("osc")
+    load = res.stats("load")
+    if osc is None or load is None:
+        return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
+                              0.0, 0.0, 0.0, "transient", "no startup")
+    ref = cond.rails(c.supply_kind)[2]
+    n = max(int(round(20 * 200 * 1.0)), 10)
+    t, vo, vn = res.t_s[-n:], res.v["osc"][-n:] - ref, res.v["nn"][-n:] - ref
+    slew = float(np.max(np.abs(np.gradient(vo, t))))
+    # output current: into the gain network (v- / Rg) plus the Wien network and load,
+    # whose share follows from the fundamental through the loop admittance.
+    loop = build_loop(c, cond)
+    p1 = 1j * 2 * math.pi * osc.freq_hz / loop.w_ref
+    i_x = abs(loop.yx(p1)) * osc.peak_v
+    i_g = float(np.max(np.abs(vn))) / c.rg_ohm
+    iout = i_x + i_g
+    # Within 3 % of the span from a swing limit counts as clipping (the output sits a
+    # little inside the internal clamp by the drop across Ro).
+    near = 0.03 * (hi - lo)
+    regime = "swing" if (vo.max() >= hi - near or vo.min() <= lo + near) else "limiter"
+    if regime == "limiter" and slew > 0.2 * c.opamp.slew_v_per_s:
+        regime = "slew"
+    return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
+                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, iout / math.sqrt(2),
+                          "transient", regime)
+
+
+def worst_case_margin(c: WienCircuit, tolerances: dict[str, float], pull: float = 0.0) -> float:
+    """Startup margin at the worst tolerance corner: Rf low, Rg high, Rs and Cp high, Rp
+    and Cs low (each by its family's tolerance), plus ``pull`` (the margin the op-amp
+    and limiter leakage cost, from the linear analysis)."""
+    t = lambda role: tolerances.get(role, 0.0)  # noqa: E731
+    gain = 1 + c.rf_ohm * (1 - t("rf")) / (c.rg_ohm * (1 + t("rg")))
+    need = 1 + c.rs_ohm * (1 + t("rs")) / (c.rp_ohm * (1 - t("rp"))) + c.cp_f * (1 + t("cp")) / (c.cs_f * (1 - t("cs")))
+    return gain / need - 1 + pull
+
+
+def _check(name, field_, value, low, high, dim, note="") -> Check:
+    inside = (low is None or value >= low) and (high is None or value <= high)
+    dists = [d for d in ((value - low) if low is not None else None, (high - value) if high is not None else None)
+             if d is not None]
+    margin = min(dists) if dists else math.inf
+    return Check(name, field_, float(value), low, high, dim, bool(inside) and math.isfinite(value), float(margin),
+                 note)
+
+
+def operating_conditions(spec: Spec) -> dict[str, Conditions]:
+    """The named operating points verification looks at."""
+    s, t, ld = spec.supply, spec.temperature, spec.load
+    mid = (s.min_v + s.max_v) / 2
+    pts = {"nominal": Conditions(mid, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)}
+    if s.min_v != s.max_v:
+        pts["supply min"] = Conditions(s.min_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["supply max"] = Conditions(s.max_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
+    if t.min_k != t.max_k:
+        pts["temp min"] = Conditions(mid, t.min_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["temp max"] = Conditions(mid, t.max_k, ld.resistance_ohm, ld.capacitance_f)
+    return pts
+
+
+def _tempco_drift(c: WienCircuit, tempcos: dict[str, tuple[float, float]], dt_k: float) -> tuple[float, float]:
+    """Range of the relative f0 change over a temperature step dt_k (K): f0 ~ (Rs Rp Cs
+    Cp)^(-1/2), each part drifting by its nominal tempco +/- its spread (1/K)."""
+    lo = hi = 0.0
+    for role in ("rs", "rp", "cs", "cp"):
+        nom, spread = tempcos.get(role, (0.0, 0.0))
+        a, b = -0.5 * (nom - spread) * dt_k, -0.5 * (nom + spread) * dt_k
+        lo += min(a, b)
+        hi += max(a, b)
+    return lo, hi
+
+
+def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = None,
+           tempcos: dict[str, tuple[float, float]] | None = None, ratings: dict[str, float] | None = None,
+           points: dict[str, OperatingPoint] | None = None) -> Verdict:
+    """Check ``c`` against every requirement of ``spec``.
+
+    tolerances: role -> value tolerance (fraction); tempcos: role -> (nominal, spread)
+    tempco (1/K); ratings: role -> power rating (W). ``points`` reuses predictions
+    already made (by name, see :func:`operating_conditions`).
+    """
+    tolerances, tempcos, ratings = tolerances or {}, tempcos or {}, ratings or {}
+    conds = operating_conditions(spec)
+    pts = dict(points or {})
+    for name, cond in conds.items():
+        if name not in pts:
+            pts[name] = predict(c, cond)
+    nom = pts["nominal"]
+    checks: list[Check] = []
+    cautions: list[str] = []
+    f, a = spec.frequency, spec.amplitude
+
+    pull = nom.lin.margin - c.ideal_margin
+    checks.append(_check("startup margin", "frequency", nom.lin.margin, 0.0, None, "fraction",
+                         "small-signal loop gain at the phase-zero frequency, minus 1"))
+    wc = worst_case_margin(c, tolerances, pull)
+    checks.append(_check("startup at worst tolerance corner", "frequency", wc, 0.0, None, "fraction",
+                         "Rf low, Rg high, arms skewed by their tolerances"))
+    if not nom.starts:
+        return Verdict(tuple(checks), nom, pts, ("the circuit does not start: no oscillation",), wc)
+
+    # Frequency: nominal, then over temperature with the limiter's change and the parts' tempcos.
+    err_nom = nom.freq_hz / f.target_hz - 1
+    checks.append(_check("frequency (nominal)", "frequency.target", nom.freq_hz, f.min_hz, f.max_hz, "frequency",
+                         f"error {err_nom * 100:+.3f} %, by {nom.method}"))
+    worst_f = [nom.freq_hz]
+    for name in ("temp min", "temp max"):
+        if name in pts and pts[name].starts:
+            dt = pts[name].cond.temp_k - spec.temperature.nominal_k
+            lo, hi = _tempco_drift(c, tempcos, dt)
+            worst_f += [pts[name].freq_hz * (1 + lo), pts[name].freq_hz * (1 + hi)]
+        elif name in pts:
+            worst_f.append(math.nan)
+    worst = max(worst_f, key=lambda x: abs(x / f.target_hz - 1) if math.isfinite(x) else math.inf)
+    checks.append(_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
+                         "worst of the temperature ends with the parts' tempcos"))
+
+    # Amplitude at the load over supply and temperature.
+    lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)
+    checks.append(_check("amplitude at load (nominal)", "amplitude.target", nom.load_peak_v, lo_a, hi_a, "voltage",
+                         f"{nom.load_peak_v * 2:.4g} Vpp, {nom.load_peak_v / math.sqrt(2):.4g} Vrms"))
+    amps = {n: p.load_peak_v if p.starts else 0.0 for n, p in pts.items()}
+    wname = max(amps, key=lambda n: abs(amps[n] / a.peak_v - 1))
+    checks.append(_check("amplitude over supply and temperature", "amplitude.tolerance", amps[wname], lo_a, hi_a,
+                         "voltage", f"worst at {wname}"))
+    thds = {n: p.load_thd for n, p in pts.items() if p.starts}
+    tname = max(thds, key=lambda n: thds[n])
+    checks.append(_check("THD at load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac, "fraction",
+                         f"worst at {tname}"))
+
+    # Op-amp limits at the minimum supply.
+    low_pt = pts.get("supply min", nom)
+    head = min(low_pt.swing_high_v - low_pt.x_max_v, low_pt.x_min_v - low_pt.swing_low_v)
+    checks.append(_check("output swing headroom at minimum supply", "supply.min", head, 0.0, None, "voltage",
+                         "clipping" if low_pt.regime == "swing" else ""))
+    sr = c.opamp.slew_v_per_s
+    need = max(p.slew_v_per_s for p in pts.values())
+    checks.append(_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",
+                         f"2 pi f Vpk = {2 * math.pi * nom.freq_hz * nom.osc_peak_v / 1e6:.3g} V/µs; "
+                         f"op-amp {sr / 1e6:.3g} V/µs"))
+    ipk = max(p.iout_peak_a for p in pts.values())
+    checks.append(_check("op-amp output current", "load.resistance", ipk, None, c.opamp.output_current_a, "current",
+                         "load, Wien network and gain network"))
+    span_lo, span_hi = spec.supply.span_min_v, spec.supply.span_max_v
+    op = c.opamp
+    sup_margin = min(span_lo - op.supply_min_v, op.supply_max_v - span_hi)
+    checks.append(_check("op-amp supply range", "supply", sup_margin, 0.0, None, "voltage",
+                         f"needs {span_lo:g}..{span_hi:g} V, part takes {op.supply_min_v:g}..{op.supply_max_v:g} V"))
+    # Inputs swing by about a third of the output around the reference (beta ~ 1/3 at f0).
+    vcc, vee, ref = low_pt.cond.rails(c.supply_kind)
+    vin = nom.osc_peak_v / c.required_gain
+    cm_head = min(vcc - op.input_cm_high_v - (ref + vin), (ref - vin) - (vee + op.input_cm_low_v))
+    checks.append(_check("input common-mode headroom", "supply.min", cm_head, 0.0, None, "voltage",
+                         "inputs at the reference +/- Vpk/3, at the minimum supply"))
+
+    # Dissipation (fundamental only; the harmonics carry little power).
+    vo = nom.osc_peak_v
+    powers = _resistor_powers(c, nom)
+    for role, p_w in powers.items():
+        rating = ratings.get(role)
+        if rating and p_w > RESISTOR_DERATING * rating:
+            cautions.append(f"{role} dissipates {p_w * 1e3:.3g} mW, over {RESISTOR_DERATING:.0%} of its "
+                            f"{rating * 1e3:.3g} mW rating")
+    span_max = spec.supply.span_max_v
+    p_op = span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, vo, nom.iout_peak_a)
+    if c.has_buffer:
+        p_op += span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, nom.load_peak_v,
+                                                                 nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9))
+    checks.append(_check("op-amp package dissipation", "supply.max", p_op, None, OPAMP_PACKAGE_W, "power",
+                         "quiescent plus output stage at the maximum supply"))
+    if p_op > 0.5 * OPAMP_PACKAGE_W:
+        cautions.append(f"the op-amp package dissipates about {p_op:.2g} W; check its thermal rating and copper")
+    if ipk > 0.7 * op.output_current_a:
+        cautions.append("the op-amp runs near its output current limit: the load is heavy for it; use a buffer "
+                        "or a higher-current part")
+    if span_hi > 0.9 * op.supply_max_v:
+        cautions.append("the maximum supply is within 10 % of the op-amp's absolute supply rating")
+    cautions.append("low-voltage signal circuit: for anything mains-connected or safety-related follow local "
+                    "codes and licensed practice")
+    return Verdict(tuple(checks), nom, pts, tuple(cautions), wc)
+
+
+def _class_b_loss(v_rail: float, v_pk: float, i_pk: float) -> float:
+    """Average output-stage loss for a sine of v_pk (V), i_pk (A) from rails +/- v_rail
+    (V) into a resistive load: 2 V I / pi - V_pk I / 2 (W), the class-B result of any
+    power-amplifier text."""
+    return max(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
+
+
+def _resistor_powers(c: WienCircuit, op: OperatingPoint) -> dict[str, float]:
+    """Average power in each oscillator resistor from the fundamental, W."""
+    loop = build_loop(c, op.cond)
+    p = 1j * 2 * math.pi * op.freq_hz / loop.w_ref
+    vo = op.osc_peak_v
+    vp = abs(loop.beta(p)) * vo
+    # The series arm carries the voltage difference Vo (1 - beta) across |Zs|.
+    zs_i = vo * abs((1 - loop.beta(p))) / math.hypot(c.rs_ohm, 1 / (2 * math.pi * op.freq_hz * c.cs_f))
+    vn = vo / c.gain
+    out = {
+        "rs": 0.5 * zs_i ** 2 * c.rs_ohm,
+        "rp": 0.5 * vp ** 2 / c.rp_ohm,
+        "rg": 0.5 * vn ** 2 / c.rg_ohm,
+        "rf": 0.5 * (vo - vn) ** 2 / c.rf_ohm,
+    }
+    return out
