@@ -23,7 +23,8 @@ from partpick.physics.linear import LinearResult, analyse_linear
 from partpick.spec import Spec
 from partpick.topologies.wien import Conditions, WienCircuit, build_loop, build_netlist
 
-__all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin"]
+__all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
+           "operating_conditions", "transient_cycles_for"]
 
 # Share of a resistor's rating it may dissipate (derating: common practice, no published source).
 RESISTOR_DERATING = 0.5
@@ -164,6 +165,13 @@ def _from_transient(c, cond, lin, lo, hi, cycles) -> OperatingPoint:
                           "transient", regime)
 
 
+def clipping_supply(c: WienCircuit, p: OperatingPoint) -> float:
+    """Supply (V; per rail when dual) below which the op-amp's swing no longer holds the
+    oscillation at ``p``: each excursion plus the headroom on its side."""
+    need = max(p.x_max_v + c.opamp.headroom_high_v, -p.x_min_v + c.opamp.headroom_low_v)
+    return need if c.supply_kind == "dual" else 2 * need
+
+
 def worst_case_margin(c: WienCircuit, tolerances: dict[str, float], pull: float = 0.0) -> float:
     """Startup margin at the worst tolerance corner: Rf low, Rg high, Rs and Cp high, Rp
     and Cs low (each by its family's tolerance), plus ``pull`` (the margin the op-amp
@@ -270,8 +278,11 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
     # Op-amp limits at the minimum supply.
     low_pt = pts.get("supply min", nom)
     head = min(low_pt.swing_high_v - low_pt.x_max_v, low_pt.x_min_v - low_pt.swing_low_v)
+    clip_at = clipping_supply(c, nom)
+    clip_note = ("clipping" if low_pt.regime == "swing" else
+                 f"clipping starts below {'+/-' if c.supply_kind == 'dual' else ''}{clip_at:.3g} V")
     checks.append(_check("output swing headroom at minimum supply", "supply.min", head, 0.0, None, "voltage",
-                         "clipping" if low_pt.regime == "swing" else ""))
+                         clip_note))
     sr = c.opamp.slew_v_per_s
     need = max(p.slew_v_per_s for p in pts.values())
     checks.append(_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",

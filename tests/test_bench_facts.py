@@ -115,3 +115,15 @@ def test_distortion_against_startup_margin(demo_catalog):
     assert thd == sorted(thd)
     assert thd[0] < 0.01 < thd[1]
     assert points[1].lin.margin < 0.02  # under 1 % THD needs under ~2 % gain excess
+
+
+def test_clipping_supply_reported(demo_catalog):
+    # The supply at which clipping starts: the excursion plus the catalog headroom.
+    from partpick.verify import clipping_supply
+
+    c = _circuit(demo_catalog, 33e3, "d-si-signal", 22e3, opamp="oa-gp-bip")
+    p = predict(c, COND)
+    v_clip = clipping_supply(c, p)
+    assert v_clip == pytest.approx(p.osc_peak_v + 1.5, rel=0.02)  # oa-gp-bip: 1.5 V to the positive rail
+    assert predict(c, Conditions(v_clip * 1.05, 298.15, 10e3)).regime == "limiter"
+    assert predict(c, Conditions(v_clip * 0.9, 298.15, 10e3)).regime == "swing"
