@@ -307,3 +307,116 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
     else:
         write_atomic(out, text, force=force)
         click.echo(f"wrote {out}")
+
+
+# -- design ---------------------------------------------------------------------------------
+
+def _bom_rows(r, catalog):
+    from partpick.bom import ROLES
+
+    rows = []
+    for ln in r.bom.lines:
+        kind, dim = ROLES[ln.role]
+        fam = catalog.find(kind, ln.family)
+        value = units.format_quantity(ln.value, dim, 3) if dim else ""
+        if kind == "resistors" or kind == "capacitors":
+            unit = fam.unit_price(ln.value)
+        else:
+            unit = fam.price_unit * (fam.parts if kind == "limiters" else 1)
+        rows.append([ln.ref, ln.role, value, ln.family, f"{unit:.3f}"])
+    return rows
+
+
+def _summary(r) -> dict:
+    v = r.verdict
+    p = v.nominal
+    return {
+        "passed": v.passed,
+        "frequency_hz": p.freq_hz, "frequency_error": r.freq_error,
+        "amplitude_load_peak_v": p.load_peak_v, "amplitude_error": r.amp_error,
+        "thd": r.thd, "startup_margin": p.lin.margin, "worst_corner_margin": v.worst_margin,
+        "cost": r.cost, "parts": r.parts, "stage": r.bom.stage,
+        "failed": [c.name for c in v.failed()],
+    }
+
+
+def _design_table(d, catalog, spec) -> str:
+    lines = []
+    rows = []
+    for i, r in enumerate(d.ranked, 1):
+        s = _summary(r)
+        lim = r.bom.line("limiter").family
+        rows.append([i, "pass" if s["passed"] else "FAIL", f"{s['frequency_hz']:.6g} Hz", f"{s['frequency_error'] * 100:+.3f} %",
+                     f"{s['amplitude_load_peak_v'] * 2:.4g} Vpp", f"{s['thd'] * 100:.2f} %",
+                     f"{s['startup_margin'] * 100:.2f} %", f"{s['worst_corner_margin'] * 100:.2f} %",
+                     f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim, r.bom.stage])
+    lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "worst corner",
+                               f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
+                              right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
+    best = d.ranked[0]
+    lines.append("")
+    lines.append(f"#1 bill of materials (textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g}, "
+                 f"needs {best.circuit.required_gain:.4g}):")
+    lines.append(render_table(["ref", "role", "value", "family", f"unit {catalog.currency}"], _bom_rows(best, catalog),
+                              right=(4,), indent="  "))
+    for caution in best.verdict.cautions:
+        lines.append(f"caution: {caution}")
+    return "\n".join(lines)
+
+
+@main.command("design")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@_catalog_option
+@click.option("--results", "-n", type=click.IntRange(1, 100), default=None, help="How many ranked BOMs (default: the spec's).")
+@click.option("--rank-by", "rank_by", default=None,
+              help="Comma-separated ranking keys (yield, frequency_error, amplitude_error, thd, startup_margin, cost, parts).")
+@click.option("--format", "fmt", type=click.Choice(["text", "json", "csv", "yaml"]), default="text", show_default=True)
+@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
+              help="Write one BOM file per candidate (YAML) into this folder.")
+@click.option("--force", is_flag=True, help="Overwrite BOM files in --out.")
+@click.option("--time-limit", type=float, default=10.0, show_default=True, help="Solver time limit per round, s.")
+@click.option("--workers", type=click.IntRange(1, 64), default=2, show_default=True, help="Solver threads.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Solver random seed (results are deterministic).")
+@click.option("--explain", is_flag=True, help="Also say which op-amps and limiters were dropped, and why.")
+@_guarded
+def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain):
+    """Search standard values for SPEC and print ranked, verified bills of materials."""
+    from partpick.bom import bom_to_csv, bom_to_yaml
+    from partpick.design import design
+    from partpick.spec import RANK_KEYS
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    keys = None
+    if rank_by:
+        keys = tuple(k.strip() for k in rank_by.split(",") if k.strip())
+        bad = [k for k in keys if k not in RANK_KEYS]
+        if bad:
+            raise click.BadParameter(f"unknown key(s) {', '.join(bad)}; expected {', '.join(RANK_KEYS)}",
+                                     param_hint="--rank-by")
+    d = design(spec, cat, results=results, time_limit_s=time_limit, workers=workers, seed=seed, rank_by=keys)
+    if fmt == "json":
+        click.echo(json.dumps({"spec": str(spec_path), "candidates": [
+            {"rank": i, **_summary(r), "bom": [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value}
+                                               for ln in r.bom.lines]} for i, r in enumerate(d.ranked, 1)],
+            "timings_s": d.timings}, indent=2, default=lambda x: None))
+    elif fmt == "csv":
+        out = ["rank,ref,role,family,value"]
+        for i, r in enumerate(d.ranked, 1):
+            out += [f"{i},{row}" for row in bom_to_csv(r.bom).splitlines()[3:]]
+        click.echo("\n".join(out))
+    elif fmt == "yaml":
+        click.echo("\n".join(bom_to_yaml(r.bom, header=f"rank {i} for {spec_path}") for i, r in enumerate(d.ranked, 1)))
+    else:
+        click.echo(f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
+                   f"(ranked by {', '.join(keys or spec.rank_by)})")
+        click.echo(_design_table(d, cat, spec))
+    if explain:
+        click.echo("\nnot considered:", err=fmt != "text")
+        for line in d.space.explain:
+            click.echo(f"  {line}", err=fmt != "text")
+    if out_dir is not None:
+        for i, r in enumerate(d.ranked, 1):
+            path = Path(out_dir) / f"{spec.name}-{i:02d}.yaml"
+            write_atomic(path, bom_to_yaml(r.bom, header=f"partpick design {spec_path}, rank {i}"), force=force)
+        click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=fmt != "text")

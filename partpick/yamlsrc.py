@@ -342,9 +342,7 @@ class Fields:
                 if not isinstance(item, Scalar) or not item.text.strip() or item.is_null:
                     raise self.error(key, f"must list names, got {_kind_name(item)}", line=item.line)
                 out.append((item.text.strip(), item.line))
-            if not out:
-                self._names_error(key)
-            return tuple(out)
+            return tuple(out)  # an empty list allows nothing of this kind (the search says so)
         return self._names_error(key)
 
     def _names_error(self, key: str):

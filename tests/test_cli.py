@@ -64,9 +64,9 @@ def test_spec_check_prints_si():
     data = json.loads(result.output)["fields"]
     assert data["frequency.target"] == {"value": 5000.0, "unit": "Hz"}
     assert data["amplitude.target"]["value"] == pytest.approx(4.242640687)
-    assert data["temperature.min"]["value"] == pytest.approx(263.15)
+    assert data["temperature.min"]["value"] == pytest.approx(273.15)
     text = run("spec", "check", str(SPECS / "lvdt-exciter.yaml"), "--catalog", str(CATALOGS)).output
-    assert "5 kHz" in text and "-10 degC" in text and "3 Vrms" in text
+    assert "5 kHz" in text and "0 degC" in text and "3 Vrms" in text
 
 
 def test_init_writes_valid_spec_and_refuses_overwrite(tmp_path):

@@ -1,10 +1,11 @@
 """Steady oscillation by harmonic balance: amplitude, frequency (with the limiter's
 harmonic pull) and distortion.
 
-Unknowns are the odd harmonics of the voltage across Rf, Vf_k (k = 1, 3, ..., K),
-and the angular frequency; the fundamental's phase is the reference (Im Vf_1 = 0).
-For each harmonic the loop equation alpha(jkw) Vf_k + gamma(jkw) Ilim_k = 0 must hold,
-where Ilim_k are the Fourier coefficients of the limiter current i(vf(t)) computed
+Unknowns are the odd harmonics of the voltage across the limiter pair, Vp_k (k = 1, 3,
+..., K), and the angular frequency; the fundamental's phase is the reference (Im Vp_1
+= 0). For each harmonic the loop equation (see ``Loop.pair_coefficients``: the pair's
+capacitance and Rd are linear and enter the coefficients exactly) must hold,
+where Ip_k are the Fourier coefficients of the pair current i(vp(t)) computed
 by FFT of the sampled waveform (the harmonic-balance method: K. S. Kundert and A.
 Sangiovanni-Vincentelli, "Simulation of nonlinear circuits in the frequency domain",
 IEEE Trans. CAD 5(4), 1986). Newton's method with the analytic Jacobian (the
@@ -64,6 +65,7 @@ class BalanceResult:
     regime: str
     converged: bool
     harmonics: int
+    state: tuple = ()  # (pair harmonics, scaled angular frequency): a warm start for a nearby problem
 
 
 def _thd(h: np.ndarray) -> float:
@@ -88,7 +90,8 @@ class _Balance:
         self.anal = self.synth.T * (2.0 / nt)
 
     def coeffs(self, w: float) -> tuple[np.ndarray, np.ndarray]:
-        return self.loop.coefficients(1j * w * self.ks)
+        # unknowns are the harmonics of the voltage across the limiter pair itself
+        return self.loop.pair_coefficients(1j * w * self.ks)
 
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
         v_t = self.synth @ _ri(vk)
@@ -97,9 +100,12 @@ class _Balance:
         al, ga = coeffs if coeffs is not None else self.coeffs(w)
         return al * vk + ga * ik, ik, v_t, i_t
 
-    def solve(self, a0: float, w0: float, iters: int = 60):
+    def solve(self, a0: float, w0: float, iters: int = 60, start: np.ndarray | None = None):
         vk = np.zeros(self.ks.size, dtype=complex)
         vk[0] = a0
+        if start is not None:
+            n = min(start.size, vk.size)
+            vk[:n] = start[:n]
         w = w0
         n = self.ks.size
         converged = False
@@ -171,21 +177,30 @@ def _df_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -
 
 
 def harmonic_balance(c: WienCircuit, cond: Conditions, lin: LinearResult, *, kmax: int = 21,
-                     loop: Loop | None = None) -> BalanceResult | None:
+                     loop: Loop | None = None, start: BalanceResult | None = None) -> BalanceResult | None:
     """Settled oscillation of ``c`` at ``cond`` with a limiter; None when the circuit
     does not start or the limiter cannot bring the loop gain down (then the op-amp's
     swing sets the amplitude and the transient simulation must answer)."""
     if c.limiter is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
     loop = loop or build_loop(c, cond)
-    table = limiter_table(c.limiter, c.rd_ohm, cond.temp_k)
-    a_df = _df_amplitude(table, lin.marginal_g_s)
+    branch = limiter_table(c.limiter, c.rd_ohm, cond.temp_k)
+    table = limiter_table(c.limiter, 0.0, cond.temp_k)
+    a_df = _df_amplitude(branch, lin.marginal_g_s)
     if a_df is None:
         return None
+    # start from the describing-function amplitude of the whole branch, less the drop
+    # across Rd, as the pair's own amplitude
+    a_df = max(a_df - c.rd_ohm * lin.marginal_g_s * a_df, 0.2 * a_df)
     w0 = 2 * math.pi * lin.marginal_hz / loop.w_ref
+    warm = None
+    if start is not None and start.state:
+        # the same network a little changed (another Rf, temperature): same w_ref
+        warm, w0, kmax = start.state
+        warm = np.asarray(warm)
     for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
         hb = _Balance(loop, table, k, max(64, 8 * (k + 1)))
-        vk, w, ok = hb.solve(a_df, w0)
+        vk, w, ok = hb.solve(a_df, w0, start=warm)
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
         if ok and tail < 3e-4:
             break
@@ -193,10 +208,13 @@ def harmonic_balance(c: WienCircuit, cond: Conditions, lin: LinearResult, *, kma
 
 
 def _result(c: WienCircuit, cond: Conditions, loop: Loop, hb: _Balance, vk, w, ok) -> BalanceResult:
-    _, ik, v_t, i_t = hb.residual(vk, w)
+    _, ipk, _, _ = hb.residual(vk, w)
     p = 1j * w * hb.ks
-    vo = loop.vo_per_vf(p, vk, ik)
-    i_f = loop.yf(p) * vk + ik
+    ik = ipk + p * loop.w_ref * loop.cap_f * vk     # branch current: pair plus its capacitance
+    vf = vk + loop.rd_ohm * ik                      # voltage across Rf
+    i_t = hb.synth @ _ri(ik)
+    vo = loop.vo_per_vf(p, vf, ik)
+    i_f = loop.yf(p) * vf + ik
     iout = loop.yx(p) * vo + i_f
     x = vo + loop.ro_ohm * iout
     vl = loop.to_load(p) * vo
@@ -234,6 +252,7 @@ def _result(c: WienCircuit, cond: Conditions, loop: Loop, hb: _Balance, vk, w, o
         regime=regime,
         converged=bool(ok),
         harmonics=kmax,
+        state=(tuple(vk), w, kmax),
     )
 
 

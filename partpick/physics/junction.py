@@ -159,19 +159,25 @@ def _solve_zener_element(fwd: Junction, brk: Junction, i: np.ndarray) -> np.ndar
     return v
 
 
-@lru_cache(maxsize=512)
+@lru_cache(maxsize=256)
+def _pair_table(lim: Limiter, temp_k: float, points: int) -> tuple[np.ndarray, np.ndarray]:
+    """The pair alone, i >= 0: (i, v) on a log current grid from 1 pA to 1 A."""
+    i_pos = np.concatenate([[0.0], np.logspace(-12, 0, points)])
+    return i_pos, _pair_voltage(lim, temp_k, i_pos)
+
+
+@lru_cache(maxsize=2048)
 def limiter_table(lim: Limiter, rd_ohm: float, temp_k: float, points: int = 1200) -> LimiterTable:
     """Tabulate the branch (limiter pair + rd_ohm in series) from 1 pA to 1 A each way.
 
     The table is dense on a log current scale so linear interpolation errs by
     well under 0.1 % in current across the knee. Cached: the search and the Monte
-    Carlo ask for the same few tables many times.
+    Carlo ask for the same few tables many times; the pair's own table is shared by
+    every rd_ohm (the series resistor only adds i rd_ohm to the voltage).
     """
-    i_pos = np.concatenate([[0.0], np.logspace(-12, 0, points)])
-    v_pos = _pair_voltage(lim, temp_k, i_pos) + i_pos * rd_ohm
-    g_pos = np.empty_like(i_pos)
-    dv = np.gradient(v_pos, i_pos)
-    g_pos[:] = 1.0 / dv
+    i_pos, v_pair = _pair_table(lim, temp_k, points)
+    v_pos = v_pair + i_pos * rd_ohm
+    g_pos = 1.0 / np.gradient(v_pos, i_pos)
     v = np.concatenate([-v_pos[:0:-1], v_pos])
     i = np.concatenate([-i_pos[:0:-1], i_pos])
     g = np.concatenate([g_pos[:0:-1], g_pos])

@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.polynomial import polynomial as P
-from scipy import optimize
 
 from partpick.physics.junction import limiter_table
 from partpick.topologies.wien import Conditions, Loop, WienCircuit, build_loop
@@ -57,32 +56,57 @@ class LinearResult:
 
 
 def limiter_g0(c: WienCircuit, temp_k: float) -> float:
-    """Small-signal conductance of the limiter branch at zero volts, S."""
+    """Small-signal conductance of the limiter pair itself at zero volts, S."""
     if c.limiter is None:
         return 0.0
-    table = limiter_table(c.limiter, c.rd_ohm, temp_k)
+    table = limiter_table(c.limiter, 0.0, temp_k)
     return float(table.conductance(np.array([0.0]))[0])
 
 
 def loop_gain(loop: Loop, p: np.ndarray, g0: float = 0.0) -> np.ndarray:
     """Loop gain broken at the non-inverting input, L = beta (1 + Rg y) A / D1,
-    D1 = (1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y, y = yf + g0."""
+    D1 = (1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y, y = yf + the limiter branch's small-signal
+    admittance (pair conductance g0 with its capacitance, behind Rd)."""
     a = loop.a(p)
-    y = loop.yf(p) + g0
+    y = loop.yf(p) + (loop.branch_admittance(p, g0) if (g0 or loop.cap_f) else 0.0)
     one = 1.0 + loop.rg_ohm * y
     d1 = one * (1.0 + loop.ro_ohm * loop.yx(p)) + (loop.ro_ohm + a * loop.rg_ohm) * y
     return loop.beta(p) * one * a / d1
 
 
 def _char_roots(loop: Loop, g0: float) -> np.ndarray:
-    """Roots (in p) of alpha + g0 gamma, built as one rational; roots shared with the
+    """Roots (in p) of alpha + gamma Yb (Yb the limiter branch at zero amplitude), built
+    as one rational; roots shared with the
     denominator are artefacts of cross-multiplying and are dropped."""
-    q = loop.alpha + loop.gamma.scale(g0)
+    q = loop.alpha + loop.gamma * loop.branch_rational(g0) if (g0 or loop.cap_f) else loop.alpha
     num = q.num / np.max(np.abs(q.num))
     roots = P.polyroots(num)
     den_roots = P.polyroots(q.den) if q.den.size > 1 else np.array([])
     keep = [r for r in roots if den_roots.size == 0 or np.min(np.abs(den_roots - r)) > 1e-7 * max(abs(r), 1e-9)]
     return np.array(keep)
+
+
+def _illinois(f, a: float, b: float, fa: float, fb: float, rtol: float = 1e-13) -> float:
+    """A root of f bracketed by [a, b] by the Illinois variant of regula falsi
+    (Dowell and Jarratt, BIT 11, 1971): superlinear, and it never leaves the bracket.
+    Kept here so the loop analysis needs no scipy.optimize import."""
+    side = 0
+    for _ in range(100):
+        c = (a * fb - b * fa) / (fb - fa)
+        fc = f(c)
+        if fc == 0 or abs(b - a) < rtol * abs(c):
+            return c
+        if (fc > 0) == (fb > 0):
+            b, fb = c, fc
+            if side == -1:
+                fa /= 2
+            side = -1
+        else:
+            a, fa = c, fc
+            if side == 1:
+                fb /= 2
+            side = 1
+    return c
 
 
 def _phase_zero(f, lo: float, hi: float, centre: float) -> float | None:
@@ -91,7 +115,7 @@ def _phase_zero(f, lo: float, hi: float, centre: float) -> float | None:
     vals = f(grid)
     best = None
     for i in np.nonzero(np.sign(vals[:-1]) != np.sign(vals[1:]))[0]:
-        root = optimize.brentq(lambda w: float(f(np.array([w]))[0]), grid[i], grid[i + 1], xtol=1e-12 * grid[i])
+        root = _illinois(lambda w: float(f(np.array([w]))[0]), grid[i], grid[i + 1], vals[i], vals[i + 1])
         if best is None or abs(math.log(root / centre)) < abs(math.log(best / centre)):
             best = root
     return best

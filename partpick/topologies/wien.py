@@ -104,6 +104,14 @@ class WienCircuit:
     def has_buffer(self) -> bool:
         return self.stage in ("follower", "gain")
 
+    @property
+    def limiter_cap_f(self) -> float:
+        """Junction capacitance across the limiter pair, F: two diodes in parallel, or
+        two Zeners in series."""
+        if self.limiter is None:
+            return 0.0
+        return 2 * self.limiter.cj_f if self.limiter.kind != "zener-pair" else self.limiter.cj_f / 2
+
 
 @dataclass(frozen=True, slots=True)
 class Conditions:
@@ -154,8 +162,7 @@ def build_netlist(c: WienCircuit, cond: Conditions, *, kick_v: float = 0.01) -> 
         if c.rd_ohm > 0:
             els.append(Resistor(d["rd"], "out", "dl", c.rd_ohm))
             lim_a = "dl"
-        cap = 2 * c.limiter.cj_f if c.limiter.kind != "zener-pair" else c.limiter.cj_f / 2
-        els.append(LimiterX("D1", lim_a, "nn", c.limiter, cap))
+        els.append(LimiterX("D1", lim_a, "nn", c.limiter, c.limiter_cap_f))
     drive = "out"
     if c.stage == "follower":
         els.append(OpAmpX("U1B", "out", "so", "so", "vcc", neg, c.opamp))
@@ -242,9 +249,9 @@ class Loop:
     """The oscillator loop in p = s / w_ref (w_ref in rad/s).
 
     beta: Wien network transfer Zp / (Zs + Zp); yx: admittance loading the op-amp
-    output besides the gain network (Wien network + load path), S; yf: linear
-    admittance across Rf (1/Rf and the limiter's capacitance), S; a: op-amp open-loop
-    gain; ro_ohm, rg_ohm; to_load: op-amp output to load, V/V. With the feedback branch
+    output besides the gain network (Wien network + load path), S; yf: 1/Rf, S; a: op-amp open-loop
+    gain; ro_ohm, rg_ohm; to_load: op-amp output to load, V/V; rd_ohm and cap_f: the
+    limiter branch's series resistor and pair capacitance. With the feedback branch
     current If = yf Vf + Ilim(Vf) through Rg, the op-amp equation
     Vo (1 + Ro Yx) + Ro If = A (beta Vo - Rg If) with Vo = Vf + Rg If becomes, per
     harmonic, alpha Vf + gamma Ilim = 0 with
@@ -262,22 +269,45 @@ class Loop:
     to_load: Rational
     alpha: Rational
     gamma: Rational
+    rd_ohm: float = 0.0
+    cap_f: float = 0.0
 
     def coefficients(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(alpha, gamma) at p (complex arrays)."""
         return self.alpha(p), self.gamma(p)
+
+    def pair_coefficients(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The loop equation written for the voltage across the limiter pair, Vp, and
+        the pair's own current Ip: with Ilim = Ip + s C Vp through the branch and
+        Vf = Vp + Rd Ilim, alpha Vf + gamma Ilim = 0 becomes
+        (alpha + (alpha Rd + gamma) s C) Vp + (alpha Rd + gamma) Ip = 0. This keeps the
+        junction capacitance where it is, behind Rd."""
+        al, ga = self.alpha(p), self.gamma(p)
+        k = al * self.rd_ohm + ga
+        return al + k * (p * self.w_ref * self.cap_f), k
+
+    def branch_admittance(self, p: np.ndarray, g_pair: float) -> np.ndarray:
+        """Small-signal admittance of the limiter branch (pair conductance g_pair and its
+        capacitance, behind Rd), S."""
+        yp = g_pair + p * self.w_ref * self.cap_f
+        return yp / (1.0 + self.rd_ohm * yp)
+
+    def branch_rational(self, g_pair: float) -> Rational:
+        """:meth:`branch_admittance` as a rational function of p."""
+        return Rational(np.array([g_pair, self.w_ref * self.cap_f]),
+                        np.array([1.0 + self.rd_ohm * g_pair, self.rd_ohm * self.w_ref * self.cap_f]))
 
     def vo_per_vf(self, p: np.ndarray, vf: np.ndarray, ilim: np.ndarray) -> np.ndarray:
         """Op-amp output Vo = Vf + Rg (yf Vf + Ilim), V."""
         return vf + self.rg_ohm * (self.yf(p) * vf + ilim)
 
 
-def _loop(w, beta, yx, yf, a, ro, rg, to_load) -> Loop:
+def _loop(w, beta, yx, yf, a, ro, rg, to_load, rd=0.0, cap=0.0) -> Loop:
     q0 = const(1.0) + yx.scale(ro) - a * beta
     k = const(ro) + a.scale(rg)
     alpha = q0 * (const(1.0) + yf.scale(rg)) + k * yf
     gamma = q0.scale(rg) + k
-    return Loop(w, beta, yx, yf, a, ro, rg, to_load, alpha, gamma)
+    return Loop(w, beta, yx, yf, a, ro, rg, to_load, alpha, gamma, rd, cap)
 
 
 def build_loop(c: WienCircuit, cond: Conditions, w_ref: float | None = None) -> Loop:
@@ -296,16 +326,8 @@ def build_loop(c: WienCircuit, cond: Conditions, w_ref: float | None = None) -> 
         shunt = _res(c.stage_rb_ohm) if zd is None else parallel(_res(c.stage_rb_ohm), zd)
         yx = yx + (_res(c.stage_ra_ohm) + shunt).inv()
     yf = const(1.0 / c.rf_ohm)
-    if c.limiter is not None:
-        cap = 2 * c.limiter.cj_f if c.limiter.kind != "zener-pair" else c.limiter.cj_f / 2
-        if cap > 0:
-            yc = _adm_cap(cap, w)
-            if c.rd_ohm > 0:
-                # Junction capacitance sits behind Rd; as seen across Rf it is C in series with Rd.
-                yc = (yc.inv() + _res(c.rd_ohm)).inv()
-            yf = yf + yc
     return _loop(w, beta, yx, yf, opamp_gain(c.opamp, w), max(c.opamp.output_resistance_ohm, 1e-3),
-                 c.rg_ohm, _to_load(c, cond, w))
+                 c.rg_ohm, _to_load(c, cond, w), c.rd_ohm, c.limiter_cap_f)
 
 
 def _to_load(c: WienCircuit, cond: Conditions, w: float) -> Rational:

@@ -1,0 +1,151 @@
+"""`partpick design`: ranked, verified BOMs for every demo spec; the top candidate lands
+on target in ngspice; impossible specs say which requirement binds."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from click.testing import CliRunner
+
+from partpick.cli import main
+from partpick.design import design
+from partpick.physics.ngspice import ngspice_available, run_ngspice
+from partpick.physics.waveform import analyse
+from partpick.spec import Spec
+from partpick.topologies.wien import build_netlist
+from partpick.verify import operating_conditions, transient_cycles_for
+from tests.conftest import CATALOGS, SPECS
+
+DEMOS = sorted(SPECS.glob("*.yaml"))
+
+
+@pytest.fixture(scope="module")
+def designs(demo_catalog):
+    return {p.stem: design(Spec.from_yaml(p), demo_catalog) for p in DEMOS}
+
+
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_every_demo_spec_gets_passing_ranked_boms(designs, path):
+    d = designs[path.stem]
+    spec = Spec.from_yaml(path)
+    assert d.ranked and d.ranked[0].verdict.passed
+    assert len(d.ranked) <= spec.results
+    sigs = [tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines) for r in d.ranked]
+    assert len(sigs) == len(set(sigs))  # distinct in at least one part value or family
+    # every BOM value is a series value of its family, within its range (IEC 60063)
+    from partpick import series
+    from partpick.bom import ROLES
+    cat = d  # noqa: F841
+    for r in d.ranked:
+        for ln in r.bom.lines:
+            kind = ROLES[ln.role][0]
+            if kind in ("resistors", "capacitors"):
+                from partpick.catalog import load_catalog
+                fam = load_catalog(CATALOGS).find(kind, ln.family)
+                assert series.is_preferred(fam.series, ln.value), (ln, fam.series)
+
+
+@pytest.mark.ngspice
+@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+def test_top_candidate_lands_on_target_in_ngspice(designs, path):
+    # The built circuit (nominal parts, nominal supply and temperature) in the
+    # independent simulator: within 0.3 % of the target frequency, and within the
+    # amplitude tolerance at the load.
+    spec = Spec.from_yaml(path)
+    best = designs[path.stem].ranked[0]
+    cond = operating_conditions(spec)["nominal"]
+    point = best.verdict.nominal
+    cycles = transient_cycles_for(point.lin, best.circuit.f0_hz, point.osc_peak_v)
+    t, v = run_ngspice(build_netlist(best.circuit, cond), cycles=cycles)
+    st = analyse(t, v["load"])
+    assert st is not None and st.settled
+    assert st.freq_hz == pytest.approx(spec.frequency.target_hz, rel=0.003)
+    assert st.peak_v == pytest.approx(spec.amplitude.peak_v, rel=spec.amplitude.tolerance_frac)
+
+
+def test_deterministic(demo_catalog):
+    spec = Spec.from_yaml(SPECS / "seismic-cal-20hz.yaml")
+    a = design(spec, demo_catalog)
+    b = design(spec, demo_catalog)
+    assert [r.bom for r in a.ranked] == [r.bom for r in b.ranked]
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(x) for x in args])
+
+
+def test_design_cli_table_and_files(tmp_path):
+    out = tmp_path / "boms"
+    spec = SPECS / "carrier-50khz.yaml"
+    result = run("design", spec, "--catalog", CATALOGS, "--out", out, "--explain")
+    assert result.exit_code == 0, result.output
+    text = result.output
+    assert "ranked candidates meet every requirement" in text
+    assert "#1 bill of materials" in text and "R1" in text and "U1" in text
+    assert "not considered:" in text and "oa-micro-rr" in text
+    files = sorted(out.glob("*.yaml"))
+    assert files
+    # the files go back into check and netlist
+    chk = run("check", spec, files[0], "--catalog", CATALOGS)
+    assert chk.exit_code == 0, chk.output
+    net = run("netlist", files[0], "--spec", spec, "--catalog", CATALOGS, "--cycles", "10")
+    assert net.exit_code == 0 and ".tran" in net.output
+    again = run("design", spec, "--catalog", CATALOGS, "--out", out)
+    assert again.exit_code == 2 and "--force" in again.stderr
+
+
+@pytest.mark.parametrize("fmt", ["json", "csv", "yaml"])
+def test_design_formats(fmt):
+    result = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "--format", fmt, "-n", "3")
+    assert result.exit_code == 0, result.output
+    if fmt == "json":
+        data = json.loads(result.output)
+        assert len(data["candidates"]) == 3 and data["candidates"][0]["passed"]
+        assert {"frequency_hz", "cost", "bom"} <= set(data["candidates"][0])
+    elif fmt == "csv":
+        assert result.output.startswith("rank,ref,role,family,value\n1,R1,rs,")
+    else:
+        assert result.output.count("topology: wien-bridge") == 3
+
+
+def test_rank_by_option_reorders():
+    a = json.loads(run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "--format", "json",
+                       "--rank-by", "cost").output)["candidates"]
+    costs = [c["cost"] for c in a if c["passed"]]
+    assert costs == sorted(costs)
+    bad = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "--rank-by", "price")
+    assert bad.exit_code == 2
+
+
+INFEASIBLE = [
+    # (what, edits to the seismic demo spec, words the message must carry)
+    ("amplitude above the swing", {"amplitude: {target: 2 Vpk, tolerance: 15 %}":
+                                   "amplitude: {target: 20 Vpk, tolerance: 5 %}"},
+     ["amplitude.target binds", "V peak", "swings"]),
+    ("frequency out of every family's range", {"frequency: {target: 20 Hz, tolerance: 2 %}":
+                                               "frequency: {target: 0.005 Hz, tolerance: 2 %}"},
+     ["out of reach", "Hz"]),
+    ("load needing more current than any op-amp gives", {"load: {resistance: 100 kohm}":
+                                                         "load: {resistance: 5 ohm}"},
+     ["load.resistance binds", "mA"]),
+    ("THD limit below what the limiter reaches", {"distortion: {max_thd: 5 %}": "distortion: {max_thd: 0.1 %}"},
+     ["distortion.max_thd binds", "lowest THD"]),
+    ("empty family list", {"  opamps: all": "  opamps: []"}, ["allows no op-amp"]),
+]
+
+
+@pytest.mark.parametrize("what,edits,words", INFEASIBLE, ids=[c[0] for c in INFEASIBLE])
+def test_infeasible_specs_exit_1_naming_the_binding_requirement(tmp_path, what, edits, words):
+    text = (SPECS / "seismic-cal-20hz.yaml").read_text(encoding="utf-8")
+    for old, new in edits.items():
+        assert old in text, old
+        text = text.replace(old, new)
+    path = tmp_path / "impossible.yaml"
+    path.write_text(text, encoding="utf-8")
+    result = run("design", path, "--catalog", CATALOGS)
+    assert result.exit_code == 1, result.output
+    assert result.stderr.startswith("error: ")
+    for w in words:
+        assert w in result.stderr, result.stderr
