@@ -291,6 +291,19 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
     ipk = max(p.iout_peak_a for p in pts.values())
     checks.append(_check("op-amp output current", "load.resistance", ipk, None, c.opamp.output_current_a, "current",
                          "load, Wien network and gain network"))
+    if c.has_buffer:
+        # the output stage's own channel drives the load: its current and swing
+        z = spec.load
+        y_load = (0.0 if math.isinf(z.resistance_ohm) else 1 / z.resistance_ohm) + 2 * math.pi * nom.freq_hz * z.capacitance_f
+        if c.stage == "gain":
+            y_load += 1 / (c.stage_ra_ohm + c.stage_rb_ohm)
+        i_buf = max(p.load_peak_v for p in pts.values()) * y_load
+        checks.append(_check("output stage current", "load.resistance", i_buf, None, c.opamp.output_current_a,
+                             "current", "the buffer channel into the load"))
+        buf_head = min(low_pt.swing_high_v, -low_pt.swing_low_v) - low_pt.load_peak_v
+        checks.append(_check("output stage swing headroom", "supply.min", buf_head, 0.0, None, "voltage",
+                             "the buffer channel at the minimum supply"))
+        ipk = max(ipk, i_buf)
     span_lo, span_hi = spec.supply.span_min_v, spec.supply.span_max_v
     op = c.opamp
     sup_margin = min(span_lo - op.supply_min_v, op.supply_max_v - span_hi)
