@@ -982,6 +982,9 @@ def _no_opamp_message(spec: Spec, ops, dropped) -> str:
     amp = a.peak_v * (1 + a.tolerance_frac)
     tags = [w.split(" ")[0] for _, w in dropped]
     common = max(set(tags), key=tags.count)
+    # the best of those that at least take the supply
+    powered = {i for i, w in dropped if not w.startswith("supply")}
+    ops = [o for o in ops if o.id in powered] or ops
     if common == "output":
         best = max(ops, key=lambda o: o.output_current_a)
         i_load = amp / spec.load.resistance_ohm
