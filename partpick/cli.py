@@ -213,8 +213,11 @@ def _failure_line(c) -> str:
 @click.option("--transient", is_flag=True, help="Also simulate the nominal circuit from a small kick to its "
                                                  "settled state and report what it shows.")
 @click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text", show_default=True)
+@click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True,
+              help="Monte Carlo builds.")
+@click.option("--seed", type=int, default=1, show_default=True, help="Monte Carlo seed.")
 @_guarded
-def check(spec_path, bom_path, catalog_paths, transient, fmt) -> None:
+def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> None:
     """Verify the design in BOM against SPEC: each requirement with its predicted value,
     limit, verdict and margin. Exit 1 when a requirement fails."""
     from partpick.bom import load_bom, part_data
@@ -227,11 +230,19 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt) -> None:
     circuit = bom.to_circuit(cat)
     tol, tc, rating = part_data(bom, cat)
     verdict = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating)
+    mc = None
+    if verdict.nominal.starts:
+        from partpick.tolerance import with_yield
+
+        verdict, mc, worst = with_yield(verdict, circuit, bom, cat, spec, samples=samples, seed=seed)
     if fmt == "json":
         data = {"spec": str(spec_path), "bom": str(bom_path), "passed": verdict.passed,
                 "checks": [{"name": c.name, "field": c.field, "value": c.value, "low": c.low, "high": c.high,
                             "passed": c.passed, "margin": c.margin, "note": c.note} for c in verdict.checks],
-                "cautions": list(verdict.cautions)}
+                "cautions": list(verdict.cautions),
+                "monte_carlo": None if mc is None else {"samples": mc.samples, "seed": mc.seed, "yield": mc.yield_frac,
+                                                       "shares": mc.share, "stats": mc.stats,
+                                                       "samples_needed": mc.needed}}
         click.echo(json.dumps(data, indent=2, default=lambda x: None))
     else:
         status = "PASS" if verdict.passed else f"FAIL ({len(verdict.failed())} of {len(verdict.checks)} requirements)"
@@ -241,6 +252,12 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt) -> None:
             click.echo(render_point(name, point))
         click.echo("")
         click.echo(render_verdict(verdict))
+        if mc is not None:
+            st = mc.stats.get("frequency_hz")
+            if st:
+                click.echo(f"Monte Carlo ({mc.samples} builds, seed {mc.seed}): yield {mc.yield_frac:.1%}; frequency "
+                           f"mean {st['mean']:.6g} Hz, sd {st['std']:.3g} Hz, 0.1..99.9 % {st['q001']:.6g}.."
+                           f"{st['q999']:.6g} Hz; {mc.needed} builds give a +/-0.5 % yield")
         for c in verdict.failed():
             click.echo(f"fails: {_failure_line(c)}")
         for caution in verdict.cautions:
@@ -335,6 +352,9 @@ def _summary(r) -> dict:
         "frequency_hz": p.freq_hz, "frequency_error": r.freq_error,
         "amplitude_load_peak_v": p.load_peak_v, "amplitude_error": r.amp_error,
         "thd": r.thd, "startup_margin": p.lin.margin, "worst_corner_margin": v.worst_margin,
+        "yield": r.yield_frac, "yield_shares": r.mc.share if r.mc else None,
+        "monte_carlo": r.mc.stats if r.mc else None, "samples": r.mc.samples if r.mc else 0,
+        "worst_case": r.worst,
         "cost": r.cost, "parts": r.parts, "stage": r.bom.stage,
         "failed": [c.name for c in v.failed()],
     }
@@ -348,9 +368,9 @@ def _design_table(d, catalog, spec) -> str:
         lim = r.bom.line("limiter").family
         rows.append([i, "pass" if s["passed"] else "FAIL", f"{s['frequency_hz']:.6g} Hz", f"{s['frequency_error'] * 100:+.3f} %",
                      f"{s['amplitude_load_peak_v'] * 2:.4g} Vpp", f"{s['thd'] * 100:.2f} %",
-                     f"{s['startup_margin'] * 100:.2f} %", f"{s['worst_corner_margin'] * 100:.2f} %",
+                     f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
                      f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim, r.bom.stage])
-    lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "worst corner",
+    lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
                                f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
                               right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
     best = d.ranked[0]
@@ -378,8 +398,13 @@ def _design_table(d, catalog, spec) -> str:
 @click.option("--workers", type=click.IntRange(1, 64), default=2, show_default=True, help="Solver threads.")
 @click.option("--seed", type=int, default=0, show_default=True, help="Solver random seed (results are deterministic).")
 @click.option("--explain", is_flag=True, help="Also say which op-amps and limiters were dropped, and why.")
+@click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True,
+              help="Monte Carlo builds per candidate (seeded: reruns agree).")
+@click.option("--plots", "plots_dir", type=click.Path(path_type=Path), default=None,
+              help="Write frequency and amplitude histograms of the top candidate as PNG (needs the plot extra).")
 @_guarded
-def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain):
+def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain,
+               samples, plots_dir):
     """Search standard values for SPEC and print ranked, verified bills of materials."""
     from partpick.bom import bom_to_csv, bom_to_yaml
     from partpick.design import design
@@ -394,7 +419,8 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
         if bad:
             raise click.BadParameter(f"unknown key(s) {', '.join(bad)}; expected {', '.join(RANK_KEYS)}",
                                      param_hint="--rank-by")
-    d = design(spec, cat, results=results, time_limit_s=time_limit, workers=workers, seed=seed, rank_by=keys)
+    d = design(spec, cat, results=results, time_limit_s=time_limit, workers=workers, seed=seed, rank_by=keys,
+               samples=samples)
     if fmt == "json":
         click.echo(json.dumps({"spec": str(spec_path), "candidates": [
             {"rank": i, **_summary(r), "bom": [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value}
@@ -415,6 +441,11 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
         click.echo("\nnot considered:", err=fmt != "text")
         for line in d.space.explain:
             click.echo(f"  {line}", err=fmt != "text")
+    if plots_dir is not None and d.ranked[0].mc is not None:
+        from partpick.export.plots import histograms
+
+        path = histograms(d.ranked[0].mc, spec, Path(plots_dir) / f"{spec.name}-01-histograms.png", force=force)
+        click.echo(f"wrote {path}", err=fmt != "text")
     if out_dir is not None:
         for i, r in enumerate(d.ranked, 1):
             path = Path(out_dir) / f"{spec.name}-{i:02d}.yaml"

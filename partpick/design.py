@@ -18,6 +18,7 @@ from partpick.rank import Ranked, rank
 from partpick.search import BUFFERED, Pick, Space, build_space, retune_arms, solve
 from partpick.spec import Spec, check_parts
 from partpick.topologies.wien import DESIGNATORS, WienCircuit
+from partpick.tolerance import with_yield
 from partpick.verify import verify
 
 __all__ = ["Design", "design", "pick_to_bom", "bom_cost"]
@@ -83,7 +84,8 @@ def bom_cost(bom: Bom, catalog: Catalog) -> tuple[float, int]:
 
 
 def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_limit_s: float = 10.0,
-           workers: int = 2, seed: int = 0, rank_by: tuple[str, ...] | None = None) -> Design:
+           workers: int = 2, seed: int = 0, rank_by: tuple[str, ...] | None = None,
+           samples: int = 20_000) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog``.
 
     Raises :class:`InfeasibleError` when no candidate can meet the spec, naming the
@@ -103,7 +105,8 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     if not picks:
         raise InfeasibleError("the solver found no candidate within its time limit; raise it or relax the spec",
                               ("search",))
-    items = [_verified(p, spec, space, catalog) for p in picks]
+    verified = lambda p: _verified(p, spec, space, catalog, samples, seed + 1)  # noqa: E731
+    items = [verified(p) for p in picks]
     # The solver aimed with the surrogate's pull; verification measured the real one.
     # Retune the arms of the leading candidates with it (same families, same required
     # gain), so the built circuit lands closer still, and let verification judge again.
@@ -115,7 +118,7 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
         op = p.op
         arms = retune_arms(spec, catalog, p.arms, pull, (math.exp(op.ln_r_min), math.exp(op.ln_r_max)))
         if arms is not None:
-            items.append(_verified(dataclasses.replace(p, arms=arms), spec, space, catalog))
+            items.append(verified(dataclasses.replace(p, arms=arms)))
     t3 = time.perf_counter()
     timings["verify"] = t3 - t2
     ranked = rank(items, rank_by)[:n]
@@ -126,18 +129,21 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     return Design(tuple(ranked), space, timings)
 
 
-def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog) -> Ranked:
-    """Exact verification of one solver pick."""
+def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int) -> Ranked:
+    """Exact verification of one solver pick, with its Monte Carlo yield."""
     bom = pick_to_bom(p, spec, space)
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
     v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating)
+    mc = wc = None
+    if v.nominal.starts:
+        v, mc, wc = with_yield(v, circuit, bom, catalog, spec, samples=samples, seed=seed)
     nom = v.nominal
     cost, parts = bom_cost(bom, catalog)
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
     thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)
-    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, p.objective, p)
+    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, p.objective, p, mc, wc)
 
 
 def _verified_failure(ranked: list[Ranked]) -> str:

@@ -1,8 +1,7 @@
 """Ranking verified candidates by the spec's ``rank_by`` order.
 
 Candidates that meet every requirement come first. Within each group the keys apply
-in order: yield (until the tolerance analysis lands, the worst-tolerance-corner startup
-margin stands in for it, higher first), frequency error, amplitude error, THD, startup
+in order: yield (Monte Carlo, higher first), frequency error, amplitude error, THD, startup
 margin (higher first), cost, part count (lower first).
 """
 
@@ -36,12 +35,18 @@ class Ranked:
     parts: int
     surrogate: float
     pick: object = None  # the solver's choice it came from (partpick.search.Pick)
+    mc: object = None    # Monte Carlo result (partpick.tolerance.YieldResult)
+    worst: dict | None = None  # worst-case corners
+
+    @property
+    def yield_frac(self) -> float:
+        return self.mc.yield_frac if self.mc is not None else 0.0
 
 
 def _key(r: Ranked, rank_by: tuple[str, ...]) -> tuple:
     v = r.verdict
     values = {
-        "yield": -v.worst_margin if math.isfinite(v.worst_margin) else math.inf,
+        "yield": -r.yield_frac,
         "frequency_error": abs(r.freq_error) if math.isfinite(r.freq_error) else math.inf,
         "amplitude_error": abs(r.amp_error) if math.isfinite(r.amp_error) else math.inf,
         "thd": r.thd if math.isfinite(r.thd) else math.inf,
@@ -52,7 +57,7 @@ def _key(r: Ranked, rank_by: tuple[str, ...]) -> tuple:
     keys = list(rank_by) + [k for k in ("frequency_error", "cost", "parts") if k not in rank_by]
     # frequency error and yield are compared in coarse steps so that a cheaper part
     # is not passed over for an imperceptible gain (0.01 % and 0.1 % of margin).
-    coarse = {"frequency_error": 1e-4, "yield": 1e-3, "amplitude_error": 1e-3, "thd": 1e-4}
+    coarse = {"frequency_error": 1e-4, "yield": 2e-3, "amplitude_error": 1e-3, "thd": 1e-4}
     out = [0 if v.passed else 1]
     for k in keys:
         step = coarse.get(k)

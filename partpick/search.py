@@ -75,6 +75,8 @@ class Arms:
     r_min: float
     lines: tuple
     drift: float = 0.0
+    spread: float = 0.0      # frequency spread from the tolerances at the yield's z (nepers)
+    sigma_k: float = 0.0     # standard deviation of ln(required gain) from the tolerances
 
 
 @dataclass(frozen=True, slots=True)
@@ -100,6 +102,9 @@ class GainNet:
     lines: tuple
     ln_amp_tmin: float = 0.0
     ln_amp_tmax: float = 0.0
+    k_amp: float = 0.0       # |amplitude slope| times z: amplitude spread per unit of gain-excess sigma
+    sigma_g: float = 0.0     # standard deviation of ln(gain) from the tolerances
+    vf_spread: float = 0.0   # amplitude spread from the limiter's forward-voltage spread at the yield's z
 
 
 @dataclass(frozen=True, slots=True)
@@ -222,8 +227,9 @@ def evaluate(space: Space, a: Arms, g: GainNet, s: Stage, o: OpChoice) -> Pick |
     ln_load = ln_amp + s.ln_gain
     if not space.ln_amp_lo <= ln_load <= space.ln_amp_hi:
         return None
-    for ln_t in (g.ln_amp_tmin, g.ln_amp_tmax):
-        if not space.ln_amp_lo_t <= ln_t + g.s_amp * dm + s.ln_gain <= space.ln_amp_hi_t:
+    spread = g.k_amp * (a.sigma_k + g.sigma_g) + g.vf_spread
+    for ln_t in (g.ln_amp, g.ln_amp_tmin, g.ln_amp_tmax):
+        if not space.ln_amp_lo_t + spread <= ln_t + g.s_amp * dm + s.ln_gain <= space.ln_amp_hi_t - spread:
             return None
     if ln_amp > o.ln_amp_max or ln_load > o.ln_load_amp_max or ln_amp + s.ln_y > o.ln_i_max:
         return None
@@ -231,7 +237,7 @@ def evaluate(space: Space, a: Arms, g: GainNet, s: Stage, o: OpChoice) -> Pick |
         return None
     ln_f = a.ln_f0 + g.pull + g.s_pull * dm + o.pull
     err = abs(ln_f - space.ln_f_target)
-    if err > space.ln_f_tol or err + a.drift > space.ln_f_tol_t:
+    if err > space.ln_f_tol or err + a.drift + a.spread > space.ln_f_tol_t:
         return None
     cost, parts = _lines_cost(space, (a, g, s, o))
     if s.kind in BUFFERED:
@@ -318,7 +324,10 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
     ln_amp_lo_t = m.NewIntVar(-big, big, "ln_amp_tmin")
     ln_amp_hi_t = m.NewIntVar(-big, big, "ln_amp_tmax")
     drift = m.NewIntVar(-big, big, "drift")
-    m.Add(drift == sum(_i(a.drift) * x for a, x in zip(space.arms, xa)))
+    m.Add(drift == sum(_i(a.drift + a.spread) * x for a, x in zip(space.arms, xa)))
+    sig_k = m.NewIntVar(-big, big, "sigma_k")
+    m.Add(sig_k == sum(_i(a.sigma_k) * x for a, x in zip(space.arms, xa)))
+    spread = m.NewIntVar(-big, big, "amp_spread")
 
     # -- constraints, each gain network enforcing its own linearised surrogate
     for g, x in zip(space.gains, xg):
@@ -335,6 +344,10 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
         e = SLOPE * _i(g.ln_amp) + sa * dm
         m.Add(SLOPE * ln_amp >= e - SLOPE // 2).OnlyEnforceIf(x)
         m.Add(SLOPE * ln_amp <= e + SLOPE // 2).OnlyEnforceIf(x)
+        ka = int(round(g.k_amp * SLOPE))
+        e = ka * sig_k + SLOPE * _i(g.k_amp * g.sigma_g + g.vf_spread)
+        m.Add(SLOPE * spread >= e - SLOPE // 2).OnlyEnforceIf(x)
+        m.Add(SLOPE * spread <= e + SLOPE // 2).OnlyEnforceIf(x)
         for ln_t, var in ((g.ln_amp_tmin, ln_amp_lo_t), (g.ln_amp_tmax, ln_amp_hi_t)):
             e = SLOPE * _i(ln_t) + sa * dm
             m.Add(SLOPE * var >= e - SLOPE // 2).OnlyEnforceIf(x)
@@ -361,10 +374,10 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
     m.Add(ln_load == ln_amp + ln_gain_s)
     m.Add(ln_load >= _i(space.ln_amp_lo) - slack).OnlyEnforceIf(req["amplitude.target"])
     m.Add(ln_load <= _i(space.ln_amp_hi) + slack).OnlyEnforceIf(req["amplitude.target"])
-    for var in (ln_amp_lo_t, ln_amp_hi_t):
+    for var in (ln_amp, ln_amp_lo_t, ln_amp_hi_t):
         if math.isfinite(space.ln_amp_lo_t):
-            m.Add(var + ln_gain_s >= _i(space.ln_amp_lo_t) - slack).OnlyEnforceIf(req["amplitude.target"])
-            m.Add(var + ln_gain_s <= _i(space.ln_amp_hi_t) + slack).OnlyEnforceIf(req["amplitude.target"])
+            m.Add(var + ln_gain_s - spread >= _i(space.ln_amp_lo_t) - slack).OnlyEnforceIf(req["amplitude.target"])
+            m.Add(var + ln_gain_s + spread <= _i(space.ln_amp_hi_t) + slack).OnlyEnforceIf(req["amplitude.target"])
     # op-amp limits: swing and slew, load current, arm impedance bounds
     ln_rmax = sum(_i(math.log(a.r_max)) * x for a, x in zip(space.arms, xa))
     ln_rmin = sum(_i(math.log(a.r_min)) * x for a, x in zip(space.arms, xa))
@@ -656,15 +669,35 @@ def _arm_sets(spec: Spec, rf: ResistorFamily, cf: CapacitorFamily, ln_lo: float,
     # f0 ~ (Rs Rp Cs Cp)^(-1/2): each pair of parts drifts by its tempco bound over dt
     c_tc = (_cap_tc(cf) + abs(cf.tempco_per_k)) if not cf.has_band else _cap_tc(cf)
     drift = (rf.tempco_per_k + c_tc) * dt
+    u_r, u_c = _sigma(rf), _sigma(cf)
+    z = _z(spec)
+    # f0 ~ (Rs Rp Cs Cp)^(-1/2): first-order propagation (JCGM 100, the GUM)
+    f_spread = z * 0.5 * math.sqrt(2 * u_r ** 2 + 2 * u_c ** 2)
     out: list[Arms] = []
     for j in keep:
         rs_, rp_, cs_, cp_ = float(rs[j]), float(rp[j]), float(cs[j]), float(cp[j])
         kk = 1 + rs_ / rp_ + cp_ / cs_
-        loss = (rs_ / rp_ * 2 * (t_r + rf.tempco_per_k * dt) + cp_ / cs_ * 2 * (t_c + _cap_tc(cf) * dt)) / kk
+        # margin the arms can lose: the tolerance spread at the yield's z (the Monte Carlo
+        # confirms), plus the two parts of each ratio drifting apart over temperature
+        sigma_k = math.sqrt((rs_ / rp_) ** 2 * 2 * u_r ** 2 + (cp_ / cs_) ** 2 * 2 * u_c ** 2) / kk
+        loss = z * sigma_k + (rs_ / rp_ * 2 * rf.tempco_per_k * dt + cp_ / cs_ * 2 * _cap_tc(cf) * dt) / kk
         lines = _merge_lines([(rf.id, rs_, 1), (rf.id, rp_, 1), (cf.id, cs_, 1), (cf.id, cp_, 1)])
         out.append(Arms(rs_, cs_, rp_, cp_, rf.id, cf.id, float(ln_f0[j]), math.log(kk), loss, max(rs_, rp_),
-                        min(rs_, rp_), lines, drift))
+                        min(rs_, rp_), lines, drift, f_spread, sigma_k))
     return out
+
+
+def _sigma(fam) -> float:
+    """Standard deviation of a part's relative value: tolerance / sqrt 3 (uniform) or
+    tolerance / 3 (normal, tolerance at 3 sigma)."""
+    return fam.tolerance_frac / (3.0 if fam.distribution == "normal" else math.sqrt(3.0))
+
+
+def _z(spec: Spec) -> float:
+    """Two-sided normal quantile for the spec's yield: 2.58 for 99 %, 1.96 for 95 %."""
+    from statistics import NormalDist
+
+    return NormalDist().inv_cdf(0.5 + 0.5 * min(max(spec.yield_min_frac, 0.5), 0.9999))
 
 
 def _merge_lines(lines) -> tuple:
@@ -684,7 +717,7 @@ def _gain_nets(spec: Spec, rf: ResistorFamily, lims: list[Limiter], ideal: OpAmp
     excesses, Rd = 0 or bracketing the target amplitude; each with its surrogate from
     harmonic balance on a reference network (equal arms at f, an ideal op-amp)."""
     from partpick.physics.harmonic import _df_amplitude  # noqa: PLC2701 - same package
-    from partpick.physics.junction import limiter_table
+    from partpick.physics.junction import forward_voltage, limiter_table
 
     values = rf.values()
     rg = _nearest(values, 10e3)
@@ -692,7 +725,8 @@ def _gain_nets(spec: Spec, rf: ResistorFamily, lims: list[Limiter], ideal: OpAmp
     cref = 1 / (2 * math.pi * f_hz * rg)
     cond = Conditions(1e3, temp, math.inf)
     dt = _dt(spec)
-    loss_g = 2 * (rf.tolerance_frac + rf.tempco_per_k * dt)
+    # Rf/Rg: the tolerance spread at the yield's z, and the two drifting apart
+    loss_g = _z(spec) * math.sqrt(2) * _sigma(rf) + 2 * rf.tempco_per_k * dt
     out: list[GainNet] = []
     rfs = sorted({_nearest(values, rg * 2 * (1 + m)) for m in
                   (m_floor, 2 * m_floor, 4 * m_floor, 8 * m_floor)})
@@ -728,10 +762,16 @@ def _gain_nets(spec: Spec, rf: ResistorFamily, lims: list[Limiter], ideal: OpAmp
                 if net is None:
                     continue
                 ln_amp, thd, pull, s_amp, s_thd, s_pull, ends = net
+                z = _z(spec)
+                k_amp = _slope(abs(s_amp) * z)
+                sigma_g = (g - 1) / g * math.sqrt(2) * _sigma(rf)
+                vf = forward_voltage(lim, 20e-6, temp)
+                vf_spread = z * lim.vf_spread_v / 3 / max(vf, 1e-3)
                 lines = _merge_lines([(rf.id, rg, 1), (rf.id, rf_v, 1)] + ([(rf.id, rd, 1)] if rd else [])
                                      + [(lim.id, 0.0, 1)])
                 out.append(GainNet(rg, rf_v, rd, lim.id, rf.id, math.log(g), math.log(g / 3), ln_amp, s_amp, thd,
-                                   s_thd, pull, s_pull, (g - 1) / g * loss_g, lines, ends[0], ends[1]))
+                                   s_thd, pull, s_pull, (g - 1) / g * loss_g, lines, ends[0], ends[1], k_amp,
+                                   sigma_g, vf_spread))
     return out
 
 
@@ -859,7 +899,7 @@ def build_space(spec: Spec, catalog: Catalog, *, weights: tuple[tuple[str, float
                               "frequency-setting arms", ("parts",))
     ideal = _ideal_opamp(ops[0])
     dt = _dt(spec)
-    tol_loss = min(2 * (r.tolerance_frac + r.tempco_per_k * dt) for r in rfams) * 4 / 3
+    tol_loss = min(_z(spec) * 2 * _sigma(r) + 2 * r.tempco_per_k * dt for r in rfams)
     m_floor = MARGIN_FLOOR + tol_loss
     kinds = ("none", "follower", "gain", "attenuator") if spec.output_stage == "auto" else (spec.output_stage,)
     op_choices = [_op_choice(op, spec, f, 2 * m_floor) for op in ops]

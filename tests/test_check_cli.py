@@ -35,6 +35,7 @@ BENCH_SPEC = """\
 name: bench-source
 frequency: {target: 1.575 kHz, tolerance: 2 %}
 amplitude: {target: 1.25 Vpp, tolerance: 20 %}
+yield: {min: 90 %}
 supply: {kind: dual, min: 11 V, max: 13 V}
 load: {resistance: 10 kohm}
 temperature: {min: 20 degC, max: 30 degC}
@@ -61,7 +62,8 @@ def test_check_failing_design_exits_1_and_says_by_how_much():
     out = result.output
     assert "FAIL (" in out.splitlines()[0]
     assert "requirement" in out and "predicted" in out and "margin" in out
-    assert "fails: startup at worst tolerance corner:" in out and "is below 0 % by" in out
+    assert "fails: yield (Monte Carlo):" in out and "is below 95 % by" in out
+    assert "Monte Carlo (20000 builds, seed 1): yield" in out
     assert "fails: amplitude over supply and temperature:" in out and "is above" in out
     assert "caution: low-voltage signal circuit" in out
 

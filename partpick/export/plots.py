@@ -1,0 +1,46 @@
+"""Histograms of a candidate's Monte Carlo builds (needs the optional matplotlib extra)."""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+from partpick.errors import InputError
+
+__all__ = ["histograms"]
+
+
+def histograms(mc, spec, path: Path, *, force: bool = False) -> Path:
+    """Frequency (Hz) and amplitude at the load (V peak) of every build that starts,
+    with the spec's limits as lines, written atomically as PNG to ``path``."""
+    try:
+        import matplotlib
+
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+    except ImportError:
+        raise InputError("needs matplotlib: pip install 'partpick[plot]'", field="--plots") from None
+    fig, axes = plt.subplots(1, 2, figsize=(9, 3.4))
+    f = spec.frequency
+    a = spec.amplitude
+    for ax, data, lo, hi, label in ((axes[0], mc.freq_hz, f.min_hz, f.max_hz, "frequency, Hz"),
+                                    (axes[1], mc.amp_v, a.peak_v * (1 - a.tolerance_frac),
+                                     a.peak_v * (1 + a.tolerance_frac), "amplitude at the load, V peak")):
+        ax.hist(data, bins=60, color="#4a7bb7")
+        for x in (lo, hi):
+            ax.axvline(x, color="#c0392b", lw=1)
+        ax.set_xlabel(label)
+        ax.set_ylabel("builds")
+    fig.suptitle(f"{spec.name}: {mc.samples} builds, seed {mc.seed}, yield {mc.yield_frac:.1%}")
+    fig.tight_layout()
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=110)
+    plt.close(fig)
+    path = Path(path)
+    if path.exists() and not force:
+        raise InputError("already exists; pass --force to overwrite it", source=str(path))
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_suffix(".png.tmp")
+    tmp.write_bytes(buf.getvalue())
+    tmp.replace(path)
+    return path

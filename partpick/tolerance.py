@@ -1,0 +1,294 @@
+"""Tolerance, temperature and supply: worst case and Monte Carlo yield of one candidate.
+
+Variation model, per part from its catalog family: value tolerance as a uniform
+distribution, or a normal with the tolerance at 3 sigma truncated there; resistor
+tempco as a bound, drawn uniformly in +/- tempco; capacitor tempco as its nominal plus
+a uniform draw in +/- its spread, or for class-2 and electrolytic parts a uniform draw in
++/- the band scaled by the distance from 25 degC over half the band's span; op-amp GBW
+normal with its spread at 3 sigma; limiter forward voltage normal with its spread at 3
+sigma; temperature and supply uniform over the spec's ranges. Every build is one draw
+of all of these (numpy, vectorised, seeded: ``numpy.random.default_rng(seed)``).
+
+Per build, the physics is the candidate's verified operating point moved by exact and
+linearised terms: f0 and the required gain exactly from the drawn arm values; the
+gain excess from the drawn gain network with the op-amp's and the limiter's share of
+the margin scaled by the drawn GBW; the harmonic pull, amplitude and THD from their
+slopes in the gain excess (harmonic balance at Rf and Rf + 0.5 %) and their
+temperature dependence (harmonic balance at the temperature ends, interpolated);
+the op-amp's frequency pull inversely with the drawn GBW (single-pole). A build
+passes when it starts (gain excess > 0), its frequency and its amplitude at the load
+lie within their tolerances, its THD under the limit and its op-amp peak inside the
+swing at the drawn supply.
+
+The Monte Carlo follows JCGM 101:2008 practice: the result reports how many samples a
+stable two-digit yield needs (binomial standard error: N = (1.96 / 0.005)^2 p (1 - p)
+for a 95 % interval of +/- 0.5 %).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from partpick.bom import Bom, ROLES
+from partpick.catalog import Catalog
+from partpick.physics.harmonic import harmonic_balance
+from partpick.physics.linear import analyse_linear
+from partpick.spec import Spec
+from partpick.topologies.wien import WienCircuit
+from partpick.verify import Verdict
+
+__all__ = ["Model", "YieldResult", "model_for", "monte_carlo", "worst_case", "samples_needed", "with_yield"]
+
+T_REF = 298.15
+
+
+@dataclass(frozen=True, slots=True)
+class Model:
+    """Everything the vectorised builds need about one candidate (SI units; ln of
+    frequencies in ln Hz, amplitudes in ln V)."""
+
+    values: dict            # role -> nominal value (ohm, F)
+    tol: dict               # role -> tolerance (fraction)
+    normal: dict            # role -> True when normal (3 sigma), else uniform
+    tempco: dict            # role -> (nominal, spread) 1/K
+    band: dict              # role -> class-2 band fraction (0 if none) and half-span K
+    m_lin: float            # verified small-signal margin at nominal
+    m_ideal: float          # ideal-op-amp margin at nominal values
+    loss_op: float          # margin the op-amp and limiter leakage cost, nepers
+    pull_h: float           # harmonic pull (ln f - ln f_lin) at nominal
+    pull_op: float          # op-amp pull at nominal (ln of marginal over textbook frequency)
+    s_pull: float
+    ln_amp: float           # ln load amplitude at nominal
+    s_amp: float
+    thd: float
+    s_thd: float
+    temps: tuple            # temperatures with harmonic-balance points (K)
+    dln_amp_t: tuple        # ln amplitude change at those temperatures
+    dpull_t: tuple          # harmonic-pull change at those temperatures
+    osc_per_load: float     # op-amp peak per load peak
+    swing_head: tuple       # (high, low) headroom of the op-amp, V
+    gbw_spread: float
+    vf_spread_rel: float    # limiter forward-voltage spread (3 sigma) relative to the voltage it works at
+
+
+@dataclass(frozen=True, slots=True)
+class YieldResult:
+    """Monte Carlo over ``samples`` builds (seed ``seed``): the share of builds meeting each
+    requirement and all of them, statistics of frequency (Hz), amplitude at the load
+    (V peak) and THD, and the sample size a stable two-digit yield needs."""
+
+    samples: int
+    seed: int
+    yield_frac: float
+    share: dict
+    stats: dict
+    needed: int
+    freq_hz: np.ndarray
+    amp_v: np.ndarray
+
+
+def samples_needed(p: float, half_width: float = 0.005) -> int:
+    """Binomial sample size for a 95 % interval of +/- half_width on a yield p
+    (JCGM 101:2008, 7.9 adaptive procedure's stability target, normal approximation)."""
+    p = min(max(p, 1e-4), 1 - 1e-4)
+    return int(math.ceil((1.96 / half_width) ** 2 * p * (1 - p)))
+
+
+def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdict) -> Model:
+    """The candidate's model: slopes from one more harmonic-balance run at Rf + 0.5 %."""
+    nom = verdict.nominal
+    values, tol, normal, tempco, band = {}, {}, {}, {}, {}
+    for ln in bom.lines:
+        kind = ROLES[ln.role][0]
+        if kind not in ("resistors", "capacitors"):
+            continue
+        fam = catalog.find(kind, ln.family)
+        values[ln.role] = ln.value
+        tol[ln.role] = fam.tolerance_frac
+        normal[ln.role] = fam.distribution == "normal"
+        if kind == "resistors":
+            tempco[ln.role] = (0.0, fam.tempco_per_k)
+            band[ln.role] = (0.0, 1.0)
+        elif fam.has_band:
+            tempco[ln.role] = (0.0, 0.0)
+            band[ln.role] = (fam.band_frac, 0.5 * (fam.band_max_k - fam.band_min_k))
+        else:
+            tempco[ln.role] = (fam.tempco_per_k, fam.tempco_spread_per_k)
+            band[ln.role] = (0.0, 1.0)
+    cond = nom.cond
+    lin = nom.lin
+    up = WienCircuit(**{**_fields(c), "rf_ohm": c.rf_ohm * 1.005})
+    lin_up = analyse_linear(up, cond)
+    hb = harmonic_balance(c, cond, lin) if c.limiter is not None else None
+    hb_up = harmonic_balance(up, cond, lin_up, start=hb) if hb is not None else None
+    m_ideal = c.ideal_margin
+    if hb is not None and hb_up is not None:
+        d = math.log(1 + lin_up.margin) - math.log(1 + lin.margin)
+        s_amp = (math.log(hb_up.load_peak_v) - math.log(hb.load_peak_v)) / d
+        s_thd = (hb_up.load_thd - hb.load_thd) / d
+        s_pull = (math.log(hb_up.freq_hz / lin_up.marginal_hz) - math.log(hb.freq_hz / lin.marginal_hz)) / d
+    else:
+        s_amp = s_thd = s_pull = 0.0
+    pull_op = math.log(lin.marginal_hz / c.f0_hz) if math.isfinite(lin.marginal_hz) else 0.0
+    pull_h = math.log(nom.freq_hz / lin.marginal_hz) if nom.starts and math.isfinite(lin.marginal_hz) else 0.0
+    temps, damp, dpull = [cond.temp_k], [0.0], [0.0]
+    for name in ("temp min", "temp max"):
+        p = verdict.corners.get(name)
+        if p is not None and p.starts and nom.starts:
+            temps.append(p.cond.temp_k)
+            damp.append(math.log(p.load_peak_v / nom.load_peak_v))
+            dpull.append(math.log(p.freq_hz / p.lin.marginal_hz) - pull_h if math.isfinite(p.lin.marginal_hz) else 0.0)
+    order = np.argsort(temps)
+    lim = c.limiter
+    vf_rel = 0.0
+    if lim is not None and nom.starts and lim.vf_spread_v > 0:
+        from partpick.physics.junction import forward_voltage
+
+        # the limiter works near its forward voltage at tens of microamps (its knee)
+        vf_rel = lim.vf_spread_v / max(forward_voltage(lim, 20e-6, cond.temp_k), 1e-3)
+    return Model(values, tol, normal, tempco, band, lin.margin, m_ideal,
+                 math.log(1 + m_ideal) - math.log(max(1 + lin.margin, 1e-9)), pull_h, pull_op, s_pull,
+                 math.log(max(nom.load_peak_v, 1e-12)), s_amp, nom.load_thd if nom.starts else math.nan, s_thd,
+                 tuple(np.array(temps)[order]), tuple(np.array(damp)[order]), tuple(np.array(dpull)[order]),
+                 nom.osc_peak_v / nom.load_peak_v if nom.starts and nom.load_peak_v > 0 else 1.0,
+                 (c.opamp.headroom_high_v, c.opamp.headroom_low_v), c.opamp.gbw_spread_frac, vf_rel)
+
+
+def _fields(c: WienCircuit) -> dict:
+    return {f: getattr(c, f) for f in c.__dataclass_fields__}
+
+
+def _draw(rng, n: int, normal: bool) -> np.ndarray:
+    """n draws in [-1, 1]: uniform, or a normal with sigma 1/3 truncated at +/-1."""
+    if not normal:
+        return rng.uniform(-1.0, 1.0, n)
+    x = rng.normal(0.0, 1.0 / 3.0, n)
+    bad = np.abs(x) > 1
+    while np.any(bad):
+        x[bad] = rng.normal(0.0, 1.0 / 3.0, int(bad.sum()))
+        bad = np.abs(x) > 1
+    return x
+
+
+def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 1) -> YieldResult:
+    """Vectorised Monte Carlo yield of one candidate (see module docstring)."""
+    rng = np.random.default_rng(seed)
+    n = samples
+    t = rng.uniform(spec.temperature.min_k, spec.temperature.max_k, n)
+    vs = rng.uniform(spec.supply.min_v, spec.supply.max_v, n)
+    dt = t - T_REF
+    v = {}
+    for role, nominal in model.values.items():
+        x = nominal * (1 + model.tol[role] * _draw(rng, n, model.normal[role]))
+        tc_nom, tc_spread = model.tempco[role]
+        b, half = model.band[role]
+        drift = (tc_nom + tc_spread * rng.uniform(-1, 1, n)) * dt
+        if b > 0:
+            drift = drift + b * np.clip(np.abs(dt) / half, 0, 1) * rng.uniform(-1, 1, n)
+        v[role] = x * (1 + drift)
+    rs, rp, cs, cp, rg, rf = (v[r] for r in ("rs", "rp", "cs", "cp", "rg", "rf"))
+    f0 = 1.0 / (2 * np.pi * np.sqrt(rs * rp * cs * cp))
+    k = 1 + rs / rp + cp / cs
+    g = 1 + rf / rg
+    gbw_ratio = 1 + model.gbw_spread * _draw(rng, n, True)  # drawn GBW over nominal
+    ln_m = np.log(g / k) - model.loss_op / gbw_ratio
+    m = np.expm1(ln_m)
+    starts = m > 0
+    dlnm = ln_m - math.log(1 + model.m_lin)
+    ln_f = (np.log(f0) + model.pull_op / gbw_ratio + model.pull_h + model.s_pull * dlnm
+            + np.interp(t, model.temps, model.dpull_t))
+    freq = np.exp(ln_f)
+    ln_a = (model.ln_amp + model.s_amp * dlnm + np.interp(t, model.temps, model.dln_amp_t)
+            + np.log1p(model.vf_spread_rel * _draw(rng, n, True)))
+    amp = np.exp(ln_a)
+    thd = model.thd + model.s_thd * dlnm
+    vcc, vee, ref = _rails(spec, vs)
+    osc = amp * model.osc_per_load
+    swing_ok = (osc <= vcc - model.swing_head[0] - ref) & (osc <= ref - vee - model.swing_head[1])
+    f_ok = np.abs(freq / spec.frequency.target_hz - 1) <= spec.frequency.tolerance_frac
+    a_ok = np.abs(amp / spec.amplitude.peak_v - 1) <= spec.amplitude.tolerance_frac
+    thd_ok = thd <= spec.max_thd_frac
+    ok = starts & f_ok & a_ok & thd_ok & swing_ok
+    share = {"startup": float(starts.mean()), "frequency": float((starts & f_ok).mean()),
+             "amplitude": float((starts & a_ok).mean()), "thd": float((starts & thd_ok).mean()),
+             "swing": float((starts & swing_ok).mean())}
+    stats = {}
+    for name, arr in (("frequency_hz", freq), ("amplitude_v", amp), ("thd", thd), ("margin", m)):
+        a_ = arr[starts] if name != "margin" else arr
+        if a_.size:
+            stats[name] = {"mean": float(a_.mean()), "std": float(a_.std(ddof=1)) if a_.size > 1 else 0.0,
+                           "q001": float(np.quantile(a_, 0.001)), "q999": float(np.quantile(a_, 0.999))}
+    y = float(ok.mean())
+    return YieldResult(n, seed, y, share, stats, samples_needed(y), freq[starts], amp[starts])
+
+
+def _rails(spec: Spec, vs: np.ndarray):
+    if spec.supply.kind == "dual":
+        return vs, -vs, 0.0
+    return vs, 0.0, vs / 2
+
+
+def worst_case(model: Model, spec: Spec) -> dict:
+    """Corner analysis: each part at the end of its tolerance in the direction that
+    hurts (signs from the sensitivities: the margin falls with Rs, Cp, Rg up and Rp, Cs,
+    Rf down; f0 falls with every arm part up), at the temperature ends; returns the worst
+    margin, the lowest and highest frequency (Hz) and the amplitude range (V)."""
+    out = {}
+    t_ends = (spec.temperature.min_k, spec.temperature.max_k)
+    v, tol = model.values, model.tol
+
+    def tc(role, dt, sign):
+        nom, spread = model.tempco[role]
+        b, half = model.band[role]
+        return (nom + sign * spread) * dt + sign * b * min(abs(dt) / half, 1.0)
+
+    worst_m = math.inf
+    for t in t_ends:
+        dt = t - T_REF
+        r = lambda role, s: v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))  # noqa: E731
+        k = 1 + r("rs", +1) / r("rp", -1) + r("cp", +1) / r("cs", -1)
+        g = 1 + r("rf", -1) / r("rg", +1)
+        worst_m = min(worst_m, math.expm1(math.log(g / k) - model.loss_op / (1 - model.gbw_spread)))
+    out["margin"] = worst_m
+    fs = []
+    for t in t_ends:
+        dt = t - T_REF
+        for s in (+1, -1):
+            prod = 1.0
+            for role in ("rs", "rp", "cs", "cp"):
+                prod *= v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))
+            for gbw in (1 - model.gbw_spread, 1 + model.gbw_spread):
+                fs.append(math.exp(-math.log(2 * math.pi) - 0.5 * math.log(prod) + model.pull_op / gbw + model.pull_h
+                                   + float(np.interp(t, model.temps, model.dpull_t))))
+    out["frequency_hz"] = (min(fs), max(fs))
+    amps = [math.exp(model.ln_amp + float(np.interp(t, model.temps, model.dln_amp_t))) * (1 + s * model.vf_spread_rel)
+            for t in t_ends for s in (+1, -1)]
+    out["amplitude_v"] = (min(amps), max(amps))
+    return out
+
+
+def with_yield(verdict: Verdict, c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, *,
+               samples: int = 20_000, seed: int = 1) -> tuple[Verdict, YieldResult, dict]:
+    """The verdict with the Monte Carlo yield added as a requirement ('yield.min'), the
+    Monte Carlo result and the worst-case corners."""
+    import dataclasses
+
+    from partpick.verify import _check
+
+    model = model_for(c, bom, catalog, spec, verdict)
+    y = monte_carlo(model, spec, samples=samples, seed=seed)
+    wc = worst_case(model, spec)
+    checks = tuple(c for c in verdict.checks if c.name != "startup at worst tolerance corner")
+    # The worst corner stacks every tolerance at once; with the Monte Carlo the startup
+    # requirement is the share of builds that start, against the yield asked for.
+    checks += (
+        _check("startup yield (Monte Carlo)", "yield.min", y.share["startup"], spec.yield_min_frac, None, "fraction",
+               f"worst tolerance corner {wc['margin'] * 100:+.2f} % margin"),
+        _check("yield (Monte Carlo)", "yield.min", y.yield_frac, spec.yield_min_frac, None, "fraction",
+               f"{samples} builds, seed {seed}; frequency {y.share['frequency']:.1%}, amplitude "
+               f"{y.share['amplitude']:.1%}, THD {y.share['thd']:.1%}; {y.needed} builds give +/-0.5 %"),
+    )
+    return dataclasses.replace(verdict, checks=checks), y, wc
