@@ -419,8 +419,13 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
         if bad:
             raise click.BadParameter(f"unknown key(s) {', '.join(bad)}; expected {', '.join(RANK_KEYS)}",
                                      param_hint="--rank-by")
+    progress = None
+    if sys.stderr.isatty():
+        def progress(done, total):
+            click.echo(f"\rverifying candidates (physics + {samples} Monte Carlo builds each): {done}/{total}",
+                       err=True, nl=done >= total)
     d = design(spec, cat, results=results, time_limit_s=time_limit, workers=workers, seed=seed, rank_by=keys,
-               samples=samples)
+               samples=samples, progress=progress)
     if fmt == "json":
         click.echo(json.dumps({"spec": str(spec_path), "candidates": [
             {"rank": i, **_summary(r), "bom": [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value}

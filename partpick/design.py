@@ -85,11 +85,12 @@ def bom_cost(bom: Bom, catalog: Catalog) -> tuple[float, int]:
 
 def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_limit_s: float = 10.0,
            workers: int = 2, seed: int = 0, rank_by: tuple[str, ...] | None = None,
-           samples: int = 20_000) -> Design:
+           samples: int = 20_000, progress=None) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog``.
 
     Raises :class:`InfeasibleError` when no candidate can meet the spec, naming the
-    requirement that binds and what is achievable.
+    requirement that binds and what is achievable. ``progress(done, total)`` is called
+    as candidates are verified (physics and Monte Carlo).
     """
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
@@ -105,7 +106,16 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     if not picks:
         raise InfeasibleError("the solver found no candidate within its time limit; raise it or relax the spec",
                               ("search",))
-    verified = lambda p: _verified(p, spec, space, catalog, samples, seed + 1)  # noqa: E731
+    total = len(picks) + RETUNE
+    done = [0]
+
+    def verified(p: Pick) -> Ranked:
+        out = _verified(p, spec, space, catalog, samples, seed + 1)
+        done[0] += 1
+        if progress is not None:
+            progress(done[0], total)
+        return out
+
     items = [verified(p) for p in picks]
     # The solver aimed with the surrogate's pull; verification measured the real one.
     # Retune the arms of the leading candidates with it (same families, same required

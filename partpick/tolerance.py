@@ -40,7 +40,8 @@ from partpick.spec import Spec
 from partpick.topologies.wien import WienCircuit
 from partpick.verify import Verdict
 
-__all__ = ["Model", "YieldResult", "model_for", "monte_carlo", "worst_case", "samples_needed", "with_yield"]
+__all__ = ["Model", "YieldResult", "model_for", "monte_carlo", "worst_case", "samples_needed", "with_yield",
+           "draw_builds", "frequency_and_startup"]
 
 T_REF = 298.15
 
@@ -173,10 +174,9 @@ def _draw(rng, n: int, normal: bool) -> np.ndarray:
     return x
 
 
-def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 1) -> YieldResult:
-    """Vectorised Monte Carlo yield of one candidate (see module docstring)."""
-    rng = np.random.default_rng(seed)
-    n = samples
+def draw_builds(model: Model, spec: Spec, n: int, rng) -> dict:
+    """n builds: temperature (K), supply (V), each part's value at that temperature
+    (ohm, F) and the op-amp's GBW over its nominal."""
     t = rng.uniform(spec.temperature.min_k, spec.temperature.max_k, n)
     vs = rng.uniform(spec.supply.min_v, spec.supply.max_v, n)
     dt = t - T_REF
@@ -189,18 +189,30 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
         if b > 0:
             drift = drift + b * np.clip(np.abs(dt) / half, 0, 1) * rng.uniform(-1, 1, n)
         v[role] = x * (1 + drift)
+    return {"t": t, "vs": vs, "v": v, "gbw": 1 + model.gbw_spread * _draw(rng, n, True)}
+
+
+def frequency_and_startup(model: Model, b: dict) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per build: frequency (Hz), ln of (1 + gain excess) and whether it starts."""
+    v = b["v"]
     rs, rp, cs, cp, rg, rf = (v[r] for r in ("rs", "rp", "cs", "cp", "rg", "rf"))
     f0 = 1.0 / (2 * np.pi * np.sqrt(rs * rp * cs * cp))
-    k = 1 + rs / rp + cp / cs
-    g = 1 + rf / rg
-    gbw_ratio = 1 + model.gbw_spread * _draw(rng, n, True)  # drawn GBW over nominal
-    ln_m = np.log(g / k) - model.loss_op / gbw_ratio
-    m = np.expm1(ln_m)
-    starts = m > 0
+    ln_m = np.log((1 + rf / rg) / (1 + rs / rp + cp / cs)) - model.loss_op / b["gbw"]
     dlnm = ln_m - math.log(1 + model.m_lin)
-    ln_f = (np.log(f0) + model.pull_op / gbw_ratio + model.pull_h + model.s_pull * dlnm
-            + np.interp(t, model.temps, model.dpull_t))
-    freq = np.exp(ln_f)
+    ln_f = (np.log(f0) + model.pull_op / b["gbw"] + model.pull_h + model.s_pull * dlnm
+            + np.interp(b["t"], model.temps, model.dpull_t))
+    return np.exp(ln_f), ln_m, ln_m > 0
+
+
+def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 1) -> YieldResult:
+    """Vectorised Monte Carlo yield of one candidate (see module docstring)."""
+    rng = np.random.default_rng(seed)
+    n = samples
+    b = draw_builds(model, spec, n, rng)
+    t, vs = b["t"], b["vs"]
+    freq, ln_m, starts = frequency_and_startup(model, b)
+    m = np.expm1(ln_m)
+    dlnm = ln_m - math.log(1 + model.m_lin)
     ln_a = (model.ln_amp + model.s_amp * dlnm + np.interp(t, model.temps, model.dln_amp_t)
             + np.log1p(model.vf_spread_rel * _draw(rng, n, True)))
     amp = np.exp(ln_a)

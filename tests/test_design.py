@@ -149,3 +149,24 @@ def test_infeasible_specs_exit_1_naming_the_binding_requirement(tmp_path, what, 
     assert result.stderr.startswith("error: ")
     for w in words:
         assert w in result.stderr, result.stderr
+
+
+def test_yield_ranks_and_filters():
+    data = json.loads(run("design", SPECS / "lvdt-exciter.yaml", "--catalog", CATALOGS, "--format", "json",
+                          "--rank-by", "yield,cost", "--samples", "5000").output)["candidates"]
+    spec = Spec.from_yaml(SPECS / "lvdt-exciter.yaml")
+    passing = [c for c in data if c["passed"]]
+    assert passing
+    assert [c["yield"] for c in passing] == sorted((c["yield"] for c in passing), reverse=True)
+    for c in data:
+        assert c["samples"] == 5000
+        assert (c["yield"] >= spec.yield_min_frac) or not c["passed"]
+        assert 0 <= c["yield_shares"]["startup"] <= 1
+
+
+def test_histograms(tmp_path):
+    pytest.importorskip("matplotlib")
+    result = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "-n", "1", "--plots", tmp_path)
+    assert result.exit_code == 0, result.output
+    png = tmp_path / "seismic-cal-20hz-01-histograms.png"
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
