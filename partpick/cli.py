@@ -258,6 +258,7 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
                 click.echo(f"Monte Carlo ({mc.samples} builds, seed {mc.seed}): yield {mc.yield_frac:.1%}; frequency "
                            f"mean {st['mean']:.6g} Hz, sd {st['std']:.3g} Hz, 0.1..99.9 % {st['q001']:.6g}.."
                            f"{st['q999']:.6g} Hz; {mc.needed} builds give a +/-0.5 % yield")
+                click.echo(_worst_line(worst))
         for c in verdict.failed():
             click.echo(f"fails: {_failure_line(c)}")
         for caution in verdict.cautions:
@@ -267,6 +268,13 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
             click.echo(_transient_report(circuit, verdict.nominal.cond))
     if not verdict.passed:
         sys.exit(1)
+
+
+def _worst_line(wc: dict) -> str:
+    lo, hi = wc["frequency_hz"]
+    alo, ahi = wc["amplitude_v"]
+    return (f"worst case (tolerance and temperature corners): margin {wc['margin'] * 100:+.2f} %, frequency "
+            f"{lo:.6g}..{hi:.6g} Hz, amplitude {alo:.4g}..{ahi:.4g} V peak")
 
 
 def _transient_report(circuit, cond) -> str:
@@ -454,5 +462,12 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     if out_dir is not None:
         for i, r in enumerate(d.ranked, 1):
             path = Path(out_dir) / f"{spec.name}-{i:02d}.yaml"
-            write_atomic(path, bom_to_yaml(r.bom, header=f"partpick design {spec_path}, rank {i}"), force=force)
+            s_ = _summary(r)
+            note = (f"partpick design {spec_path}, rank {i}: {'meets' if s_['passed'] else 'misses'} the spec\n"
+                    f"predicted {s_['frequency_hz']:.6g} Hz ({s_['frequency_error'] * 100:+.3f} %), "
+                    f"{2 * s_['amplitude_load_peak_v']:.4g} Vpp at the load, THD {s_['thd'] * 100:.2f} %\n"
+                    f"yield {s_['yield']:.1%} ({s_['samples']} Monte Carlo builds)")
+            if r.worst:
+                note += "\n" + _worst_line(r.worst)
+            write_atomic(path, bom_to_yaml(r.bom, header=note), force=force)
         click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=fmt != "text")
