@@ -61,26 +61,23 @@ def pick_to_bom(p: Pick, spec: Spec, space: Space) -> Bom:
     return Bom(tuple(lines), spec.supply.kind, s.kind)
 
 
-def bom_cost(bom: Bom, catalog: Catalog) -> tuple[float, int]:
-    """Cost per board (unit prices plus one line price per distinct family and value;
-    a buffer on a single-channel op-amp takes a second package) and the part count."""
+def bom_cost(bom: Bom, catalog: Catalog, stock=None) -> tuple[float, int]:
+    """Cost per board (unit prices plus one line price per distinct family and value,
+    priced as the search prices them, stock list included; a buffer on a single-channel
+    op-amp takes a second package) and the physical part count."""
+    from partpick.search import _line_price, _pricer
+
+    price = _pricer(catalog, stock)
     qty: dict[tuple[str, float], int] = {}
     for ln in bom.lines:
-        kind = catalog.kind_of(ln.family)
-        fam = catalog.find(kind, ln.family)
-        n = fam.parts if kind == "limiters" else 1
-        qty[(ln.family, ln.value)] = qty.get((ln.family, ln.value), 0) + n
-    op_line = bom.line("opamp")
-    op = catalog.find("opamps", op_line.family)
+        qty[(ln.family, ln.value)] = qty.get((ln.family, ln.value), 0) + 1
+    op = catalog.find("opamps", bom.line("opamp").family)
     if bom.stage in BUFFERED and op.channels == 1:
         qty[(op.id, 0.0)] += 1
-    cost = 0.0
-    for (fam_id, value), n in qty.items():
-        kind = catalog.kind_of(fam_id)
-        fam = catalog.find(kind, fam_id)
-        unit = fam.unit_price(value) if kind in ("resistors", "capacitors") else fam.price_unit
-        cost += unit * (n if kind != "limiters" else n) + fam.price_line
-    return cost, sum(qty.values()) + (1 if bom.stage in BUFFERED and op.channels > 1 else 0)
+    cost = sum(price(f, v) * n + _line_price(catalog, (f, v), stock) for (f, v), n in qty.items())
+    parts = sum(n * (catalog.find("limiters", f).parts if catalog.kind_of(f) == "limiters" else 1)
+                for (f, _v), n in qty.items())
+    return cost, parts + (1 if bom.stage in BUFFERED and op.channels > 1 else 0)
 
 
 def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_limit_s: float = 10.0,
@@ -97,7 +94,12 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     check_parts(spec, catalog)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
-    space = build_space(spec, catalog)
+    stock = None
+    if spec.stock is not None:
+        from partpick.stock import load_stock
+
+        stock = load_stock(spec.stock.path, catalog)
+    space = build_space(spec, catalog, stock=stock)
     t1 = time.perf_counter()
     timings["enumerate"] = t1 - t0
     picks = solve(space, n + 2, time_limit_s=time_limit_s, workers=workers, seed=seed)
@@ -110,7 +112,7 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     done = [0]
 
     def verified(p: Pick) -> Ranked:
-        out = _verified(p, spec, space, catalog, samples, seed + 1)
+        out = _verified(p, spec, space, catalog, samples, seed + 1, stock)
         done[0] += 1
         if progress is not None:
             progress(done[0], total)
@@ -139,7 +141,7 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     return Design(tuple(ranked), space, timings)
 
 
-def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int) -> Ranked:
+def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int, stock=None) -> Ranked:
     """Exact verification of one solver pick, with its Monte Carlo yield."""
     bom = pick_to_bom(p, spec, space)
     circuit = bom.to_circuit(catalog)
@@ -149,7 +151,7 @@ def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int,
     if v.nominal.starts:
         v, mc, wc = with_yield(v, circuit, bom, catalog, spec, samples=samples, seed=seed)
     nom = v.nominal
-    cost, parts = bom_cost(bom, catalog)
+    cost, parts = bom_cost(bom, catalog, stock)
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
     thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)

@@ -164,6 +164,7 @@ class Space:
     line_price: dict = field(default_factory=dict, hash=False, compare=False)
     fixed_lines: tuple = ()
     explain: tuple[str, ...] = ()
+    capacity: dict = field(default_factory=dict, hash=False, compare=False)  # (family, value) -> parts per board on the shelf
 
 
 @dataclass(frozen=True, slots=True)
@@ -203,8 +204,10 @@ def _lines_cost(space: Space, items) -> tuple[float, int]:
             seen[(fam, value)] = seen.get((fam, value), 0) + qty
     for fam, value, qty in space.fixed_lines:
         seen[(fam, value)] = seen.get((fam, value), 0) + qty
+    if space.capacity and any(q > space.capacity.get(k, q) for k, q in seen.items()):
+        return None
     unit = sum(space.unit_price[k] * q for k, q in seen.items())
-    line = sum(space.line_price[k[0]] for k in seen)
+    line = sum(space.line_price[k] for k in seen)
     return unit + line, sum(seen.values())
 
 
@@ -239,7 +242,10 @@ def evaluate(space: Space, a: Arms, g: GainNet, s: Stage, o: OpChoice) -> Pick |
     err = abs(ln_f - space.ln_f_target)
     if err > space.ln_f_tol or err + a.drift + a.spread > space.ln_f_tol_t:
         return None
-    cost, parts = _lines_cost(space, (a, g, s, o))
+    lc = _lines_cost(space, (a, g, s, o))
+    if lc is None:
+        return None  # the shelf runs out
+    cost, parts = lc
     if s.kind in BUFFERED:
         parts += 1  # the buffer amplifier itself (second channel or its own package)
         if o.channels == 1:
@@ -267,7 +273,7 @@ def enumerate_best(space: Space, n: int) -> list[Pick]:
 
 SLOPE = 1000  # surrogate slopes are kept as multiples of 1/SLOPE
 REQUIREMENTS = ("frequency.tolerance", "amplitude.target", "distortion.max_thd",
-                "startup margin (worst tolerance corner)", "op-amp swing, slew and current")
+                "startup margin (worst tolerance corner)", "op-amp swing, slew and current", "stock quantities")
 
 
 def _i(x: float) -> int:
@@ -407,6 +413,14 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
             for f, v, q in item.lines:
                 users.setdefault((f, v), []).append(x)
     fixed_keys = {(f, v) for f, v, _ in space.fixed_lines}
+    # stock: mode only: no value may be used more often than the shelf holds per board
+    fixed_qty: dict = {}
+    for f, v, q in space.fixed_lines:
+        fixed_qty[(f, v)] = fixed_qty.get((f, v), 0) + q
+    for key, cap in space.capacity.items():
+        terms = [(q, x) for lst, xs_ in items for item, x in zip(lst, xs_) for f, v, q in item.lines if (f, v) == key]
+        if terms:
+            m.Add(sum(q * x for q, x in terms) <= cap - fixed_qty.get(key, 0)).OnlyEnforceIf(req["stock quantities"])
     line_lits = {}
     for key, xs_ in users.items():
         if key in fixed_keys:
@@ -432,7 +446,7 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
         int_terms.append((w["frequency_error"] / space.ln_f_tol / SCALE, err, space.ln_f_tol))
     if "cost" in w:
         bool_terms += [(w["cost"] * u, x) for u, x in unit_terms]
-        bool_terms += [(w["cost"] * space.line_price[k[0]], y) for k, y in line_lits.items()]
+        bool_terms += [(w["cost"] * space.line_price[k], y) for k, y in line_lits.items()]
     if "parts" in w:
         bool_terms += [(w["parts"] * q / 10.0, x) for q, x in parts_terms]
     if "thd" in w:
@@ -458,7 +472,7 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
     solver.parameters.log_search_progress = log
     # the fixed parts (single-supply bias and coupling) add the same to every choice
     fixed_cost = (sum(space.unit_price[(f, v)] * q for f, v, q in space.fixed_lines)
-                  + sum(space.line_price[f] for f, _v in {(f, v) for f, v, _ in space.fixed_lines}))
+                  + sum(space.line_price[k] for k in {(f, v) for f, v, _ in space.fixed_lines}))
     const_obj = w.get("cost", 0.0) * fixed_cost + w.get("parts", 0.0) * sum(q for *_, q in space.fixed_lines) / 10.0
     m.AddAssumptions(list(req.values()))
     found: dict[tuple, Pick] = {}
@@ -485,6 +499,27 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
         if len(found) > 6 * n + 20:
             break
     return sorted(found.values(), key=lambda p: p.objective)[:n]
+
+
+def _shelf_shortfall(space: Space, m, solver) -> str:
+    """Which values the best design without the quantity limits takes more of than the
+    shelf holds."""
+    # read the chosen items back through their literal names
+    chosen = []
+    names = {v.name: idx for idx, v in enumerate(m.Proto().variables)}
+    need: dict = {}
+    for lst, prefix in ((space.arms, "arm"), (space.gains, "gain"), (space.stages, "stage"), (space.ops, "op")):
+        for i, item in enumerate(lst):
+            idx = names.get(f"{prefix}{i}")
+            if idx is not None and solver.Value(m.GetBoolVarFromProtoIndex(idx)):
+                chosen.append(item)
+                for f, v, q in item.lines:
+                    need[(f, v)] = need.get((f, v), 0) + q
+    for f, v, q in space.fixed_lines:
+        need[(f, v)] = need.get((f, v), 0) + q
+    short = [f"{f} {v:g} (needs {q} per board, the shelf gives {space.capacity.get((f, v), 0)})"
+             for (f, v), q in sorted(need.items()) if q > space.capacity.get((f, v), q)]
+    return "the shelf runs out of " + (", ".join(short) if short else "a value the design needs")
 
 
 def _in(ln_load_units: int, space: Space) -> bool:
@@ -519,6 +554,8 @@ def _diagnose(space: Space, m, req: dict, solver, probes) -> tuple[str, tuple[st
         elif name == "frequency.tolerance":
             reached.append(f"the closest frequency is {solver.Value(err) / SCALE * 100:.3g} % off "
                            f"(allowed {space.ln_f_tol * 100:.3g} %)")
+        elif name == "stock quantities":
+            reached.append(_shelf_shortfall(space, m, solver))
         elif name == "op-amp swing, slew and current":
             reached.append(f"it needs {math.exp(solver.Value(ln_amp) / SCALE):.3g} V peak at the op-amp output, "
                            f"beyond what the allowed op-amps swing, slew or drive")
@@ -598,14 +635,20 @@ def _cap_tc(c: CapacitorFamily) -> float:
     return c.tempco_spread_per_k
 
 
+def _values(fam, shelf=None) -> tuple[float, ...]:
+    """The family's series values, only those on the shelf when ``shelf`` is given."""
+    vals = fam.values()
+    return vals if shelf is None else tuple(v for v in vals if shelf.quantity(fam.id, v) > 0)
+
+
 def _arm_sets(spec: Spec, rf: ResistorFamily, cf: CapacitorFamily, ln_lo: float, ln_hi: float,
               price, r_bounds: tuple[float, float] = ARM_R, centres: np.ndarray | None = None,
-              half_width: float = 0.0) -> list[Arms]:
+              half_width: float = 0.0, shelf=None) -> list[Arms]:
     """Arm sets of one family pair with ln f0 in [ln_lo, ln_hi]: a sorted
     meet-in-the-middle over ln(Rs Rp) and ln(Cs Cp), ratios kept near 1 so the
     required gain stays near 3."""
-    r = np.array([v for v in rf.values() if max(ARM_R[0], r_bounds[0]) <= v <= min(ARM_R[1], r_bounds[1])])
-    c = np.array([v for v in cf.values() if v >= ARM_C_MIN])
+    r = np.array([v for v in _values(rf, shelf) if max(ARM_R[0], r_bounds[0]) <= v <= min(ARM_R[1], r_bounds[1])])
+    c = np.array([v for v in _values(cf, shelf) if v >= ARM_C_MIN])
     if r.size == 0 or c.size == 0:
         return []
     ri, rj = np.meshgrid(np.arange(r.size), np.arange(r.size), indexing="ij")
@@ -712,14 +755,16 @@ def _nearest(values, target: float) -> float:
 
 
 def _gain_nets(spec: Spec, rf: ResistorFamily, lims: list[Limiter], ideal: OpAmp, f_hz: float,
-               amp_targets: list[float], m_floor: float) -> list[GainNet]:
+               amp_targets: list[float], m_floor: float, shelf=None) -> list[GainNet]:
     """Gain networks of one resistor family: Rg near 10 kohm, Rf for a ladder of gain
     excesses, Rd = 0 or bracketing the target amplitude; each with its surrogate from
     harmonic balance on a reference network (equal arms at f, an ideal op-amp)."""
     from partpick.physics.harmonic import _df_amplitude  # noqa: PLC2701 - same package
     from partpick.physics.junction import forward_voltage, limiter_table
 
-    values = rf.values()
+    values = _values(rf, shelf)
+    if not values:
+        return []
     rg = _nearest(values, 10e3)
     temp = spec.temperature.nominal_k
     cref = 1 / (2 * math.pi * f_hz * rg)
@@ -728,8 +773,9 @@ def _gain_nets(spec: Spec, rf: ResistorFamily, lims: list[Limiter], ideal: OpAmp
     # Rf/Rg: the tolerance spread at the yield's z, and the two drifting apart
     loss_g = _z(spec) * math.sqrt(2) * _sigma(rf) + 2 * rf.tempco_per_k * dt
     out: list[GainNet] = []
-    rfs = sorted({_nearest(values, rg * 2 * (1 + m)) for m in
-                  (m_floor, 2 * m_floor, 4 * m_floor, 8 * m_floor)})
+    ladder = (m_floor, 2 * m_floor, 4 * m_floor, 8 * m_floor)
+    rfs = sorted({_nearest(values, rg * 2 * (1 + m)) for m in ladder} if shelf is None else
+                 {v for v in values if 2 * (1 + m_floor / 2) <= v / rg <= 2 * (1 + 10 * m_floor)})
     for lim in lims:
         for rf_v in rfs:
             g = 1 + rf_v / rg
@@ -810,14 +856,16 @@ def _surrogate(lim, rg, rf, rd, cref, ideal, cond, temps):
             tuple(ends))
 
 
-def _stages(spec: Spec, rf: ResistorFamily, kinds: tuple[str, ...]) -> list[Stage]:
+def _stages(spec: Spec, rf: ResistorFamily, kinds: tuple[str, ...], shelf=None) -> list[Stage]:
     """Output stages of one resistor family, with their gain into the load."""
     r_load = spec.load.resistance_ohm
     y_load = (0.0 if math.isinf(r_load) else 1 / r_load) + 2 * math.pi * spec.frequency.target_hz * spec.load.capacitance_f
     ln_y = math.log(max(y_load, 1e-9))
-    values = [v for v in rf.values() if 1e3 <= v <= 1e6]
-    base = _nearest(values, 10e3)
+    values = [v for v in _values(rf, shelf) if 1e3 <= v <= 1e6]
     out = []
+    if not values:
+        kinds = tuple(k for k in kinds if k in ("none", "follower"))
+    base = _nearest(values, 10e3) if values else 0.0
     if "none" in kinds:
         out.append(Stage("none", 0.0, 0.0, rf.id, 0.0, ln_y, ()))
     if "follower" in kinds:
@@ -856,7 +904,8 @@ def _op_choice(op: OpAmp, spec: Spec, f_hz: float, m_typ: float) -> OpChoice:
                     math.log(max(20 * op.output_resistance_ohm, 1.0)), ((op.id, 0.0, 1),), op.channels)
 
 
-def build_space(spec: Spec, catalog: Catalog, *, weights: tuple[tuple[str, float], ...] | None = None) -> Space:
+def build_space(spec: Spec, catalog: Catalog, *, weights: tuple[tuple[str, float], ...] | None = None,
+                stock=None) -> Space:
     """The search space for ``spec`` over the catalog families it allows.
 
     Raises :class:`InfeasibleError` naming the binding requirement when no op-amp or no
@@ -906,9 +955,17 @@ def build_space(spec: Spec, catalog: Catalog, *, weights: tuple[tuple[str, float
 
     gains: list[GainNet] = []
     stages: list[Stage] = []
+    only = stock is not None and spec.stock is not None and spec.stock.mode == "only"
+    shelf = stock if only else None
+    if shelf is not None:
+        lims = [x for x in lims if shelf.quantity(x.id) > 0]
+        op_choices = [o for o in op_choices if shelf.quantity(o.opamp) > 0]
+        if not lims or not op_choices:
+            raise InfeasibleError(f"stock.mode only: the shelf ({shelf.source}) holds no qualifying "
+                                  f"{'limiter' if not lims else 'op-amp'}", ("stock",))
     for rf in rfams:
-        gains += _gain_nets(spec, rf, lims, ideal, f, [a.peak_v], m_floor)
-        stages += _stages(spec, rf, kinds)
+        gains += _gain_nets(spec, rf, lims, ideal, f, [a.peak_v], m_floor, shelf)
+        stages += _stages(spec, rf, kinds, shelf)
     stages = _useful_stages(stages, gains, rfams, a)
     if not gains:
         raise InfeasibleError("no gain network settles with the allowed limiters", ("amplitude",))
@@ -919,28 +976,44 @@ def build_space(spec: Spec, catalog: Catalog, *, weights: tuple[tuple[str, float
     ln_t = math.log(f)
     ln_lo = ln_t - FREQ_SHARE * tol - max(pulls) - max(opp) - 0.03
     ln_hi = ln_t + FREQ_SHARE * tol - min(pulls) - min(opp) + 0.03
-    price = _pricer(catalog)
-    aim = min(FREQ_SHARE * tol, FREQ_AIM)
+    price = _pricer(catalog, stock)
+    # aim close for a fresh design; from the shelf, take what the tolerance allows
+    aim = min(FREQ_SHARE * tol, FREQ_AIM) if shelf is None else FREQ_SHARE * tol
     centres = np.unique(np.round([ln_t - g.pull - o.pull for g in gains for o in op_choices], 4))
     arms: list[Arms] = []
     for rf in rfams:
         for cf in cfams:
             arms += _arm_sets(spec, rf, cf, ln_lo, ln_hi, lambda fam, v: price(fam, v),
                               (min(math.exp(o.ln_r_min) for o in op_choices),
-                               max(math.exp(o.ln_r_max) for o in op_choices)), centres, aim + 0.002)
+                               max(math.exp(o.ln_r_max) for o in op_choices)), centres, aim + 0.002, shelf)
     if not arms:
         raise InfeasibleError(_no_arms_message(spec, rfams, cfams), ("frequency",))
-    fixed = _fixed_lines(spec, catalog, rfams)
+    fixed = _fixed_lines(spec, catalog, rfams, price, shelf)
+    capacity: dict = {}
+    if only:
+        def stocked(item) -> bool:
+            return all(stock.quantity(f, v) > 0 for f, v, _ in item.lines)
+
+        arms = [x for x in arms if stocked(x)]
+        gains = [x for x in gains if stocked(x)]
+        stages = [x for x in stages if stocked(x)]
+        op_choices = [x for x in op_choices if stocked(x)]
+        for what, lst in (("arm set", arms), ("gain network and limiter", gains), ("output stage", stages),
+                          ("op-amp", op_choices)):
+            if not lst:
+                raise InfeasibleError(f"stock.mode only: no {what} can be built from the shelf "
+                                      f"({stock.source})", ("stock",))
+        capacity = {(it.family, it.value): it.quantity // spec.builds for it in stock.items}
     keys = {(fam, v) for item in itertools.chain(arms, gains, stages, op_choices) for fam, v, _ in item.lines}
     keys |= {(fam, v) for fam, v, _ in fixed}
     unit_price = {k: price(*k) for k in keys}
-    line_price = {k[0]: _line_price(catalog, k[0]) for k in keys}
+    line_price = {k: _line_price(catalog, k, stock) for k in keys}
     return Space(tuple(arms), tuple(gains), tuple(stages), tuple(op_choices), ln_t,
                  aim, math.log(a.peak_v * (1 - AMP_SHARE * a.tolerance_frac)),
                  math.log(a.peak_v * (1 + AMP_SHARE * a.tolerance_frac)), THD_SHARE * spec.max_thd_frac,
                  math.log(1 + MARGIN_FLOOR), weights or rank_weights(spec.rank_by),
                  math.log(a.peak_v * (1 - 0.9 * a.tolerance_frac)), math.log(a.peak_v * (1 + 0.9 * a.tolerance_frac)),
-                 0.9 * tol, unit_price, line_price, fixed, tuple(f"{i}: {w}" for i, w in dropped))
+                 0.9 * tol, unit_price, line_price, fixed, tuple(f"{i}: {w}" for i, w in dropped), capacity)
 
 
 def _useful_stages(stages: list[Stage], gains: list[GainNet], rfams, a) -> list[Stage]:
@@ -977,8 +1050,17 @@ def rank_weights(rank_by: tuple[str, ...]) -> tuple[tuple[str, float], ...]:
     return tuple((k, 0.05 ** i) for i, k in enumerate(known))
 
 
-def _pricer(catalog: Catalog):
+ORDER_LINE = 0.50  # ordering cost of a BOM line not on the shelf, in the catalog's currency (stock: prefer)
+
+
+def _pricer(catalog: Catalog, stock=None):
+    """Unit price of (family, value): from the shelf when the stock list has it (its
+    listed price, else nothing), else the catalog's."""
     def price(fam_id: str, value: float) -> float:
+        if stock is not None:
+            item = stock.find(fam_id, value)
+            if item is not None and item.quantity > 0:
+                return item.unit_price or 0.0
         kind = catalog.kind_of(fam_id)
         fam = catalog.find(kind, fam_id)
         return fam.unit_price(value) if kind in ("resistors", "capacitors") else fam.price_unit * (
@@ -986,17 +1068,30 @@ def _pricer(catalog: Catalog):
     return price
 
 
-def _line_price(catalog: Catalog, fam_id: str) -> float:
-    return catalog.find(catalog.kind_of(fam_id), fam_id).price_line
+def _line_price(catalog: Catalog, key: tuple[str, float], stock=None) -> float:
+    """Price of one BOM line: nothing for a stocked part, else the family's line price,
+    plus the ordering cost when a stock list is in use."""
+    fam_id, value = key
+    if stock is None:
+        return catalog.find(catalog.kind_of(fam_id), fam_id).price_line
+    item = stock.find(fam_id, value)
+    if item is not None and item.quantity > 0:
+        return 0.0
+    return catalog.find(catalog.kind_of(fam_id), fam_id).price_line + ORDER_LINE
 
 
-def _fixed_lines(spec: Spec, catalog: Catalog, rfams) -> tuple:
+def _fixed_lines(spec: Spec, catalog: Catalog, rfams, price, shelf=None) -> tuple:
     """Single supply: the mid-rail divider, its decoupling and the output coupling
     capacitor (the same for every candidate)."""
     if spec.supply.kind != "single":
         return ()
     fam = min(rfams, key=lambda r: r.price_unit)
     rb = _nearest(fam.values(), 47e3)
+    if shelf is not None:
+        on = [(r.id, v) for r in rfams for v in r.values() if shelf.quantity(r.id, v) >= 2 * spec.builds]
+        if on:
+            fid, rb = min(on, key=lambda k: abs(math.log(k[1] / 47e3)))
+            fam = catalog.find("resistors", fid)
     caps = [c for c in catalog.capacitors if spec.parts.capacitors is None or c.id in spec.parts.capacitors]
     f = spec.frequency.target_hz
     need_b = 100 / (2 * math.pi * f * rb / 2)       # bias corner a hundredth of f
@@ -1004,7 +1099,8 @@ def _fixed_lines(spec: Spec, catalog: Catalog, rfams) -> tuple:
     need_c = 10 / (2 * math.pi * f * r_load)        # coupling corner a tenth of f: under 0.5 % loss
     out = [(fam.id, rb, 2)]
     for need in (need_b, need_c):
-        options = [(c.unit_price(v), c.id, v) for c in caps for v in c.values() if v >= need and c.voltage_v >= spec.supply.max_v]
+        options = [(price(c.id, v), c.id, v) for c in caps for v in c.values() if v >= need
+                   and c.voltage_v >= spec.supply.max_v and (shelf is None or shelf.quantity(c.id, v) >= spec.builds)]
         if not options:
             raise InfeasibleError(f"no allowed capacitor reaches {need * 1e6:.3g} uF for the single-supply bias "
                                   f"and coupling at {f:g} Hz", ("parts",))
