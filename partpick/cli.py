@@ -471,3 +471,101 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
                 note += "\n" + _worst_line(r.worst)
             write_atomic(path, bom_to_yaml(r.bom, header=note), force=force)
         click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=fmt != "text")
+
+
+# -- swap -------------------------------------------------------------------------------------
+
+@main.command("swap")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@click.argument("bom_path", metavar="BOM", type=click.Path(path_type=Path))
+@click.option("--stock", "stock_path", type=click.Path(path_type=Path), required=True, help="Stock list (CSV).")
+@click.option("--all", "all_lines", is_flag=True, help="Refill every slot from the shelf, not only the missing ones.")
+@_catalog_option
+@click.option("--out", "out_path", type=click.Path(path_type=Path), default=None, help="Write the new BOM here.")
+@click.option("--force", is_flag=True, help="Overwrite --out.")
+@click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True)
+@_guarded
+def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path, force, samples) -> None:
+    """Replace the parts of BOM that are not on the shelf by stocked parts, re-verify, and
+    print old against new. Exit 1 when no substitution meets SPEC."""
+    from partpick.bom import ROLES, bom_to_yaml, load_bom
+    from partpick.stock import load_stock
+    from partpick.swap import swap
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    bom = load_bom(bom_path, cat)
+    stock = load_stock(stock_path, cat)
+    res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
+    if not res.changed:
+        click.echo(f"every part of {bom_path} is on the shelf ({stock_path}); nothing to swap")
+    rows = []
+    for old, new in zip(res.before.bom.lines, res.after.bom.lines):
+        dim = ROLES[old.role][1]
+        fmt_v = (lambda v: units.format_quantity(v, dim, 3)) if dim else (lambda v: "")
+        if (old.family, old.value) != (new.family, new.value):
+            rows.append([old.ref, old.role, f"{fmt_v(old.value)} {old.family}".strip(),
+                         f"{fmt_v(new.value)} {new.family}".strip(),
+                         "on shelf" if stock.quantity(new.family, new.value) else ""])
+    if rows:
+        click.echo(render_table(["ref", "role", "was", "now", ""], rows))
+        click.echo("")
+
+    def col(r):
+        p = r.verdict.nominal
+        return [f"{p.freq_hz:.6g} Hz" if p.starts else "-", f"{2 * p.load_peak_v:.4g} Vpp",
+                f"{p.lin.margin * 100:.2f} %", f"{r.yield_frac * 100:.1f} %", f"{r.cost:.3f}",
+                "meets the spec" if r.verdict.passed else "FAILS " + ", ".join(c.name for c in r.verdict.failed())]
+
+    names = ["frequency", "amplitude at load", "startup margin", "yield", f"cost {cat.currency}", "verdict"]
+    click.echo(render_table(["", "before", "after"], [[n, a, b] for n, a, b in zip(names, col(res.before), col(res.after))]))
+    if out_path is not None:
+        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}"),
+                     force=force)
+        click.echo(f"wrote {out_path}")
+
+
+# -- tradeoff ---------------------------------------------------------------------------------
+
+@main.command("tradeoff")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@_catalog_option
+@click.option("--plots", "plots_dir", type=click.Path(path_type=Path), default=None,
+              help="Draw the front as PNG (every design a dot, the front a line; needs the plot extra).")
+@click.option("--force", is_flag=True, help="Overwrite the plot.")
+@click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True)
+@click.option("--format", "fmt", type=click.Choice(["text", "json"]), default="text", show_default=True)
+@_guarded
+def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> None:
+    """Cost against accuracy: the designs no other is both cheaper and more accurate than."""
+    from partpick.tradeoff import tradeoff
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    progress = None
+    if sys.stderr.isatty():
+        def progress(done, total):
+            click.echo(f"\rdesign runs: {done}/{total}", err=True, nl=done >= total)
+    points, front = tradeoff(spec, cat, samples=samples, progress=progress)
+    if not front:
+        raise PartpickError("no design meets the spec with any allowed family pair; run `partpick design` for why")
+    if fmt == "json":
+        click.echo(json.dumps({"front": [{"cost": p.cost, "accuracy": p.accuracy, "yield": p.yield_frac,
+                                          "families": p.families, "source": p.source,
+                                          "bom": [{"ref": ln.ref, "role": ln.role, "family": ln.family,
+                                                   "value": ln.value} for ln in p.item.bom.lines]} for p in front],
+                               "evaluated": len(points)}, indent=2))
+    else:
+        click.echo(f"{spec.name}: {len(front)} designs on the cost-accuracy front, of {len(points)} that meet the spec")
+        click.echo(render_table(
+            [f"cost {cat.currency}", "accuracy", "yield", "arm families", "op-amp", "limiter", "from run"],
+            [[f"{p.cost:.3f}", f"+/-{p.accuracy * 100:.3f} %", f"{p.yield_frac * 100:.1f} %", p.families,
+              p.item.bom.line("opamp").family, p.item.bom.line("limiter").family, p.source] for p in front],
+            right=(0, 1, 2)))
+        click.echo(f"accuracy: frequency error the builds reach at the {spec.yield_min_frac:.0%} yield "
+                   f"({samples} Monte Carlo builds each)")
+    if plots_dir is not None:
+        from partpick.export.plots import front_plot
+
+        path = front_plot(points, front, spec, Path(plots_dir) / f"{spec.name}-tradeoff.png", force=force)
+        click.echo(f"wrote {path}", err=fmt != "text")

@@ -21,7 +21,7 @@ from partpick.topologies.wien import DESIGNATORS, WienCircuit
 from partpick.tolerance import with_yield
 from partpick.verify import verify
 
-__all__ = ["Design", "design", "pick_to_bom", "bom_cost"]
+__all__ = ["Design", "design", "pick_to_bom", "bom_cost", "evaluate_bom"]
 
 RETUNE = 3  # leading candidates whose arms are retuned with the verified pull
 
@@ -141,9 +141,10 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     return Design(tuple(ranked), space, timings)
 
 
-def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int, stock=None) -> Ranked:
-    """Exact verification of one solver pick, with its Monte Carlo yield."""
-    bom = pick_to_bom(p, spec, space)
+def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples: int = 20_000,
+                 seed: int = 1, pick: Pick | None = None) -> Ranked:
+    """Verify one BOM exactly (physics at every operating point, Monte Carlo yield) as a
+    ranked item."""
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
     v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating)
@@ -155,7 +156,12 @@ def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int,
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
     thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)
-    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, p.objective, p, mc, wc)
+    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, pick.objective if pick else 0.0, pick, mc, wc)
+
+
+def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int, stock=None) -> Ranked:
+    """Exact verification of one solver pick, with its Monte Carlo yield."""
+    return evaluate_bom(pick_to_bom(p, spec, space), spec, catalog, stock, samples=samples, seed=seed, pick=p)
 
 
 def _verified_failure(ranked: list[Ranked]) -> str:
