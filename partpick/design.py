@@ -17,7 +17,7 @@ from partpick.errors import InfeasibleError
 from partpick.rank import Ranked, rank
 from partpick.search import BUFFERED, Pick, Space, build_space, retune_arms, solve
 from partpick.spec import Spec, check_parts
-from partpick.topologies.wien import DESIGNATORS, WienCircuit
+from partpick.topologies.wien import DESIGNATORS
 from partpick.tolerance import with_yield
 from partpick.verify import verify
 

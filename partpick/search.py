@@ -13,7 +13,7 @@ Everything the solver sees is a *surrogate*: the limiter's amplitude, THD and ha
 frequency pull come from harmonic balance on a reference network and are linearised in
 the gain excess; the op-amp's pull from the linear loop analysis. In the log domain
 (ln f0 = -ln 2 pi - (ln Rs + ln Rp + ln Cs + ln Cp) / 2) every constraint is linear, and
-integer logs at a resolution of 1 ppm (``SCALE``) keep CP-SAT exact enough: the integer
+integer logs at a resolution of 0.01 ppm (``SCALE``) keep CP-SAT exact enough: the integer
 model is relaxed by its rounding bound, and every solution is re-evaluated in floats
 (:func:`evaluate`, the same function the exhaustive reference enumeration uses), so the
 solver proposes and exact arithmetic decides. Verification (:mod:`partpick.verify`)
@@ -696,7 +696,6 @@ def _arm_sets(spec: Spec, rf: ResistorFamily, cf: CapacitorFamily, ln_lo: float,
     # ... and in each third of a decade of impedance, since op-amps bound it differently
     b = b * 100 + np.floor(np.log10(np.maximum(rs, rp)) * 3).astype(int)
     pick = np.lexsort((distinct, cost, b))
-    first = np.ones(pick.size, dtype=bool)
     rank = np.zeros(pick.size, dtype=int)
     sb = b[pick]
     for i in range(1, pick.size):
@@ -706,9 +705,7 @@ def _arm_sets(spec: Spec, rf: ResistorFamily, cf: CapacitorFamily, ln_lo: float,
         # too many: keep the ones the pulls land closest to the target
         dist = np.min(np.abs(ln_f0[keep][:, None] - centres[None, :]), axis=1)
         keep = keep[np.argsort(dist, kind="stable")[:MAX_ARMS]]
-    del first
     dt = _dt(spec)
-    t_r, t_c = rf.tolerance_frac, cf.tolerance_frac
     # f0 ~ (Rs Rp Cs Cp)^(-1/2): each pair of parts drifts by its tempco bound over dt
     c_tc = (_cap_tc(cf) + abs(cf.tempco_per_k)) if not cf.has_band else _cap_tc(cf)
     drift = (rf.tempco_per_k + c_tc) * dt

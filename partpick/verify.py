@@ -17,7 +17,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from partpick.catalog import Catalog
 from partpick.physics.harmonic import BalanceResult, harmonic_balance
 from partpick.physics.linear import LinearResult, analyse_linear
 from partpick.spec import Spec

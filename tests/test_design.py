@@ -36,14 +36,17 @@ def test_every_demo_spec_gets_passing_ranked_boms(designs, path):
     # every BOM value is a series value of its family, within its range (IEC 60063)
     from partpick import series
     from partpick.bom import ROLES
-    cat = d  # noqa: F841
+    from partpick.catalog import load_catalog
+
+    cat = load_catalog(CATALOGS)
     for r in d.ranked:
         for ln in r.bom.lines:
             kind = ROLES[ln.role][0]
             if kind in ("resistors", "capacitors"):
-                from partpick.catalog import load_catalog
-                fam = load_catalog(CATALOGS).find(kind, ln.family)
+                fam = cat.find(kind, ln.family)
                 assert series.is_preferred(fam.series, ln.value), (ln, fam.series)
+                lo, hi = (fam.min_ohm, fam.max_ohm) if kind == "resistors" else (fam.min_f, fam.max_f)
+                assert lo * (1 - 1e-9) <= ln.value <= hi * (1 + 1e-9)
 
 
 @pytest.mark.ngspice

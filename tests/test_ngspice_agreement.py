@@ -10,7 +10,6 @@ prediction, amplitude at the load within 5 %, startup / no-startup agreeing (mar
 
 from __future__ import annotations
 
-import math
 
 import pytest
 
