@@ -27,7 +27,8 @@ from partpick.errors import InputError
 from partpick.topologies.wien import DESIGNATORS, STAGES, WienCircuit
 from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_text
 
-__all__ = ["ROLES", "BomLine", "Bom", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv", "bom_from_circuit"]
+__all__ = ["ROLES", "BomLine", "Bom", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv", "bom_from_circuit",
+           "bom_to_purchase_csv", "PURCHASE_COLUMNS"]
 
 # role -> (kind of family, value dimension or None)
 ROLES = {
@@ -142,7 +143,8 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
         raise BomError(f"'# supply:' must be dual or single and '# stage:' one of {', '.join(STAGES)}",
                        source=source, line=1)
     reader = list(csv.reader(io.StringIO("\n".join(r for _, r in rows))))
-    header = [h.strip().lower() for h in reader[0]]
+    # the purchasing form (bom_to_purchase_csv) names the designator column 'designator'
+    header = ["ref" if h.strip().lower() == "designator" else h.strip().lower() for h in reader[0]]
     for col in ("ref", "role", "family", "value"):
         if col not in header:
             raise BomError(f"missing column '{col}'", source=source, line=rows[0][0])
@@ -255,3 +257,54 @@ def part_data(bom: Bom, catalog: Catalog) -> tuple[dict[str, float], dict[str, t
             else:
                 tc[ln.role] = (fam.tempco_per_k, fam.tempco_spread_per_k)
     return tol, tc, rating
+
+
+PURCHASE_COLUMNS = ("designator", "role", "quantity", "value", "description", "family", "tolerance", "tempco",
+                    "rating", "package", "unit_cost", "line_cost", "stock")
+
+
+def bom_to_purchase_csv(bom: Bom, catalog: Catalog, *, stock=None, builds: int = 1) -> str:
+    """The CSV a purchasing or assembly flow expects: one row per designator, with the
+    part's description, tolerance, tempco, rating and package from its catalog family,
+    unit cost, the cost of its distinct BOM line (on the line's first row; parts of one
+    value across slots share a line) and whether the shelf holds enough for ``builds``
+    boards. `partpick check` reads it back (designator, role, family, value)."""
+    from partpick.search import _line_price, _pricer
+
+    price = _pricer(catalog, stock)
+    use: dict = {}
+    for ln in bom.lines:
+        use[(ln.family, ln.value)] = use.get((ln.family, ln.value), 0) + 1
+    buf = io.StringIO()
+    buf.write(f"# supply: {bom.supply_kind}\n# stage: {bom.stage}\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(PURCHASE_COLUMNS)
+    seen = set()
+    for ln in bom.lines:
+        kind, dim = ROLES[ln.role]
+        fam = catalog.find(kind, ln.family)
+        qty = fam.parts if kind == "limiters" else 1
+        if kind == "resistors":
+            tol, tc, rating = f"{fam.tolerance_frac * 100:g} %", f"{fam.tempco_per_k * 1e6:g} ppm/K", \
+                units.format_quantity(fam.power_w, "power")
+        elif kind == "capacitors":
+            tol = f"{fam.tolerance_frac * 100:g} %"
+            tc = (f"+/-{fam.band_frac * 100:g} % band" if fam.has_band
+                  else f"{fam.tempco_per_k * 1e6:g} +/- {fam.tempco_spread_per_k * 1e6:g} ppm/K")
+            rating = units.format_quantity(fam.voltage_v, "voltage")
+        elif kind == "opamps":
+            tol, tc, rating = "", "", f"{fam.supply_min_v:g}..{fam.supply_max_v:g} V"
+        else:
+            tol, tc, rating = "", "", ""
+        key = (ln.family, ln.value)
+        line_cost = ""
+        if key not in seen:
+            seen.add(key)
+            line_cost = f"{price(*key) * use[key] + _line_price(catalog, key, stock):.4f}"
+        on_shelf = ""
+        if stock is not None:
+            on_shelf = "yes" if stock.quantity(*key) >= use[key] * builds else "no"
+        w.writerow([ln.ref, ln.role, qty, _value_text(ln) if dim else "", fam.description, ln.family, tol, tc,
+                    rating, fam.package, f"{price(*key) / (qty if kind == 'limiters' else 1):.4f}", line_cost,
+                    on_shelf])
+    return buf.getvalue()

@@ -237,8 +237,7 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
         verdict, mc, worst = with_yield(verdict, circuit, bom, cat, spec, samples=samples, seed=seed)
     if fmt == "json":
         data = {"spec": str(spec_path), "bom": str(bom_path), "passed": verdict.passed,
-                "checks": [{"name": c.name, "field": c.field, "value": c.value, "low": c.low, "high": c.high,
-                            "passed": c.passed, "margin": c.margin, "note": c.note} for c in verdict.checks],
+                "checks": [_check_json(c) for c in verdict.checks],
                 "cautions": list(verdict.cautions),
                 "monte_carlo": None if mc is None else {"samples": mc.samples, "seed": mc.seed, "yield": mc.yield_frac,
                                                        "shares": mc.share, "stats": mc.stats,
@@ -368,6 +367,11 @@ def _summary(r) -> dict:
     }
 
 
+def _check_json(c) -> dict:
+    return {"name": c.name, "field": c.field, "value": c.value, "low": c.low, "high": c.high,
+            "passed": c.passed, "margin": c.margin, "note": c.note}
+
+
 def _design_table(d, catalog, spec) -> str:
     lines = []
     rows = []
@@ -410,11 +414,15 @@ def _design_table(d, catalog, spec) -> str:
               help="Monte Carlo builds per candidate (seeded: reruns agree).")
 @click.option("--plots", "plots_dir", type=click.Path(path_type=Path), default=None,
               help="Write frequency and amplitude histograms of the top candidate as PNG (needs the plot extra).")
+@click.option("--report", "report_path", type=click.Path(path_type=Path), default=None,
+              help="Write a self-contained HTML report of the run (needs the report extra).")
+@click.option("--quiet", "-q", is_flag=True, help="Only the summary line (and errors).")
+@click.option("--verbose", "-v", is_flag=True, help="Also the dropped parts and the time of each stage.")
 @_guarded
 def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain,
-               samples, plots_dir):
+               samples, plots_dir, report_path, quiet, verbose):
     """Search standard values for SPEC and print ranked, verified bills of materials."""
-    from partpick.bom import bom_to_csv, bom_to_yaml
+    from partpick.bom import bom_to_csv, bom_to_purchase_csv, bom_to_yaml
     from partpick.design import design
     from partpick.spec import RANK_KEYS
 
@@ -428,10 +436,11 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
             raise click.BadParameter(f"unknown key(s) {', '.join(bad)}; expected {', '.join(RANK_KEYS)}",
                                      param_hint="--rank-by")
     progress = None
-    if sys.stderr.isatty():
+    if sys.stderr.isatty() and not quiet:
         def progress(done, total):
             click.echo(f"\rverifying candidates (physics + {samples} Monte Carlo builds each): {done}/{total}",
                        err=True, nl=done >= total)
+    explain = explain or verbose
     d = design(spec, cat, results=results, time_limit_s=time_limit, workers=workers, seed=seed, rank_by=keys,
                samples=samples, progress=progress)
     if fmt == "json":
@@ -449,11 +458,23 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     else:
         click.echo(f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
                    f"(ranked by {', '.join(keys or spec.rank_by)})")
-        click.echo(_design_table(d, cat, spec))
+        if not quiet:
+            table = _design_table(d, cat, spec)
+            if sys.stdout.isatty():  # colour only on a terminal
+                table = table.replace(" pass ", " " + click.style("pass", fg="green") + " ").replace(
+                    " FAIL ", " " + click.style("FAIL", fg="red") + " ")
+            click.echo(table)
+        if verbose:
+            click.echo("time per stage: " + ", ".join(f"{k} {v:.2f} s" for k, v in d.timings.items()))
     if explain:
         click.echo("\nnot considered:", err=fmt != "text")
         for line in d.space.explain:
             click.echo(f"  {line}", err=fmt != "text")
+    if report_path is not None:
+        from partpick.export.report import render_report
+
+        write_atomic(report_path, render_report(spec, d, cat), force=force)
+        click.echo(f"wrote {report_path}", err=fmt != "text")
     if plots_dir is not None and d.ranked[0].mc is not None:
         from partpick.export.plots import histograms
 
@@ -470,6 +491,12 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
             if r.worst:
                 note += "\n" + _worst_line(r.worst)
             write_atomic(path, bom_to_yaml(r.bom, header=note), force=force)
+            write_atomic(path.with_suffix(".csv"), bom_to_purchase_csv(r.bom, cat, builds=spec.builds), force=force)
+            write_atomic(path.with_suffix(".json"), json.dumps(
+                {"rank": i, **_summary(r), "checks": [_check_json(c) for c in r.verdict.checks],
+                 "cautions": list(r.verdict.cautions),
+                 "bom": [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value}
+                         for ln in r.bom.lines]}, indent=2, default=lambda x: None), force=force)
         click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=fmt != "text")
 
 
@@ -569,3 +596,29 @@ def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> No
 
         path = front_plot(points, front, spec, Path(plots_dir) / f"{spec.name}-tradeoff.png", force=force)
         click.echo(f"wrote {path}", err=fmt != "text")
+
+
+
+# -- report -----------------------------------------------------------------------------------
+
+@main.command("report")
+@click.argument("spec_path", metavar="SPEC", type=click.Path(path_type=Path))
+@_catalog_option
+@click.option("-o", "--out", "out", type=click.Path(path_type=Path), default=None,
+              help="HTML file (default: NAME-report.html beside the working folder).")
+@click.option("--force", is_flag=True, help="Overwrite the report.")
+@click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True)
+@_guarded
+def report_cmd(spec_path, catalog_paths, out, force, samples) -> None:
+    """Design SPEC, compute its cost-accuracy front, and write one self-contained HTML page."""
+    from partpick.design import design
+    from partpick.export.report import render_report
+    from partpick.tradeoff import tradeoff
+
+    spec = Spec.from_yaml(spec_path)
+    cat = _load_catalog(catalog_paths, spec)
+    d = design(spec, cat, samples=samples)
+    points, front = tradeoff(spec, cat, samples=samples)
+    out = out or Path(f"{spec.name}-report.html")
+    write_atomic(out, render_report(spec, d, cat, points=points, front=front), force=force)
+    click.echo(f"wrote {out}")

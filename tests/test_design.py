@@ -173,3 +173,16 @@ def test_histograms(tmp_path):
     assert result.exit_code == 0, result.output
     png = tmp_path / "seismic-cal-20hz-01-histograms.png"
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_quiet_verbose_and_report_flag(tmp_path):
+    pytest.importorskip("schemdraw")
+    quiet = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "-q", "-n", "2", "--samples", "2000")
+    assert quiet.exit_code == 0 and len(quiet.output.strip().splitlines()) == 1
+    rep = tmp_path / "r.html"
+    loud = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "-v", "-n", "2", "--samples", "2000",
+               "--report", rep)
+    assert loud.exit_code == 0
+    assert "time per stage: enumerate" in loud.output and "not considered:" in loud.output
+    assert "\x1b[" not in loud.output  # no colour when not on a terminal
+    assert 'id="verdict"' in rep.read_text(encoding="utf-8")
