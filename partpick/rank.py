@@ -62,7 +62,8 @@ def _key(r: Ranked, rank_by: tuple[str, ...]) -> tuple:
     for k in keys:
         step = coarse.get(k)
         out.append(round(values[k] / step) if step and math.isfinite(values[k]) else values[k])
-    return tuple(out) + (r.surrogate,)
+    # last, the BOM itself: equal candidates come out in the same order on every run
+    return tuple(out) + (r.surrogate, tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines))
 
 
 def rank(items: list[Ranked], rank_by: tuple[str, ...]) -> list[Ranked]:

@@ -498,7 +498,10 @@ def solve(space: Space, n: int, *, time_limit_s: float = 10.0, workers: int = 2,
         m.AddBoolOr([xa[ia].Not(), xg[ig].Not(), xs[is_].Not(), xo[io].Not()])
         if len(found) > 6 * n + 20:
             break
-    return sorted(found.values(), key=lambda p: p.objective)[:n]
+    index = {id(x): i for lst in (space.arms, space.gains, space.stages, space.ops) for i, x in enumerate(lst)}
+    # ties in the objective go by the items' order, so the answer is the same on every run
+    return sorted(found.values(), key=lambda p: (p.objective, index[id(p.arms)], index[id(p.gain)],
+                                                 index[id(p.stage)], index[id(p.op)]))[:n]
 
 
 def _shelf_shortfall(space: Space, m, solver) -> str:
