@@ -73,6 +73,13 @@ class Bom:
                 return ln
         return None
 
+    def uses(self) -> dict[tuple[str, float], int]:
+        """How many slots use each (family, value): parts of one value share a BOM line."""
+        out: dict[tuple[str, float], int] = {}
+        for ln in self.lines:
+            out[(ln.family, ln.value)] = out.get((ln.family, ln.value), 0) + 1
+        return out
+
     def value(self, role: str, default: float = 0.0) -> float:
         ln = self.line(role)
         return ln.value if ln else default
@@ -272,9 +279,7 @@ def bom_to_purchase_csv(bom: Bom, catalog: Catalog, *, stock=None, builds: int =
     from partpick.search import _line_price, _pricer
 
     price = _pricer(catalog, stock)
-    use: dict = {}
-    for ln in bom.lines:
-        use[(ln.family, ln.value)] = use.get((ln.family, ln.value), 0) + 1
+    use = bom.uses()
     buf = io.StringIO()
     buf.write(f"# supply: {bom.supply_kind}\n# stage: {bom.stage}\n")
     w = csv.writer(buf, lineterminator="\n")

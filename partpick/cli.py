@@ -337,17 +337,14 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 
 def _bom_rows(r, catalog):
     from partpick.bom import ROLES
+    from partpick.search import _pricer
 
+    price = _pricer(catalog)  # the catalog price the search used (a limiter: its pair)
     rows = []
     for ln in r.bom.lines:
-        kind, dim = ROLES[ln.role]
-        fam = catalog.find(kind, ln.family)
+        dim = ROLES[ln.role][1]
         value = units.format_quantity(ln.value, dim, 3) if dim else ""
-        if kind == "resistors" or kind == "capacitors":
-            unit = fam.unit_price(ln.value)
-        else:
-            unit = fam.price_unit * (fam.parts if kind == "limiters" else 1)
-        rows.append([ln.ref, ln.role, value, ln.family, f"{unit:.3f}"])
+        rows.append([ln.ref, ln.role, value, ln.family, f"{price(ln.family, ln.value):.3f}"])
     return rows
 
 

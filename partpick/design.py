@@ -68,9 +68,7 @@ def bom_cost(bom: Bom, catalog: Catalog, stock=None) -> tuple[float, int]:
     from partpick.search import _line_price, _pricer
 
     price = _pricer(catalog, stock)
-    qty: dict[tuple[str, float], int] = {}
-    for ln in bom.lines:
-        qty[(ln.family, ln.value)] = qty.get((ln.family, ln.value), 0) + 1
+    qty = bom.uses()
     op = catalog.find("opamps", bom.line("opamp").family)
     if bom.stage in BUFFERED and op.channels == 1:
         qty[(op.id, 0.0)] += 1

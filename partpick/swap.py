@@ -41,9 +41,7 @@ class SwapResult:
 
 
 def _needs(bom: Bom, stock: Stock, builds: int) -> list[BomLine]:
-    use: dict = {}
-    for ln in bom.lines:
-        use[(ln.family, ln.value)] = use.get((ln.family, ln.value), 0) + 1
+    use = bom.uses()
     return [ln for ln in bom.lines if stock.quantity(ln.family, ln.value) < use[(ln.family, ln.value)] * builds]
 
 

@@ -27,6 +27,7 @@ for a 95 % interval of +/- 0.5 %).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -121,7 +122,7 @@ def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: V
             band[ln.role] = (0.0, 1.0)
     cond = nom.cond
     lin = nom.lin
-    up = WienCircuit(**{**_fields(c), "rf_ohm": c.rf_ohm * 1.005})
+    up = dataclasses.replace(c, rf_ohm=c.rf_ohm * 1.005)
     lin_up = analyse_linear(up, cond)
     hb = harmonic_balance(c, cond, lin) if c.limiter is not None else None
     hb_up = harmonic_balance(up, cond, lin_up, start=hb) if hb is not None else None
@@ -156,10 +157,6 @@ def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: V
                  tuple(np.array(temps)[order]), tuple(np.array(damp)[order]), tuple(np.array(dpull)[order]),
                  nom.osc_peak_v / nom.load_peak_v if nom.starts and nom.load_peak_v > 0 else 1.0,
                  (c.opamp.headroom_high_v, c.opamp.headroom_low_v), c.opamp.gbw_spread_frac, vf_rel)
-
-
-def _fields(c: WienCircuit) -> dict:
-    return {f: getattr(c, f) for f in c.__dataclass_fields__}
 
 
 def _draw(rng, n: int, normal: bool) -> np.ndarray:
@@ -286,8 +283,6 @@ def with_yield(verdict: Verdict, c: WienCircuit, bom: Bom, catalog: Catalog, spe
                samples: int = 20_000, seed: int = 1) -> tuple[Verdict, YieldResult, dict]:
     """The verdict with the Monte Carlo yield added as a requirement ('yield.min'), the
     Monte Carlo result and the worst-case corners."""
-    import dataclasses
-
     from partpick.verify import _check
 
     model = model_for(c, bom, catalog, spec, verdict)

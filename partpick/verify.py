@@ -114,7 +114,7 @@ def predict(c: WienCircuit, cond: Conditions, *, transient_cycles: float | None 
     hb = harmonic_balance(c, cond, lin, loop=loop)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
-    return _from_transient(c, cond, lin, lo, hi, transient_cycles)
+    return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 
 
 def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
@@ -131,24 +131,26 @@ def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, 
     return float(min(max(build + 8 * tau_cycles + 25, 60), 1500))
 
 
-def _from_transient(c, cond, lin, lo, hi, cycles) -> OperatingPoint:
+POINTS_PER_CYCLE = 200  # transient steps per period
+
+
+def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     from partpick.physics.transient import simulate
 
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
-    res = simulate(net, cycles=cycles, points_per_cycle=200, record=("osc", "load", "nn"))
+    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE, record=("osc", "load", "nn"))
     osc = res.stats("osc")
     load = res.stats("load")
     if osc is None or load is None:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "transient", "no startup")
     ref = cond.rails(c.supply_kind)[2]
-    n = max(int(round(20 * 200 * 1.0)), 10)
+    n = 20 * POINTS_PER_CYCLE  # the last 20 cycles, as the waveform analysis takes
     t, vo, vn = res.t_s[-n:], res.v["osc"][-n:] - ref, res.v["nn"][-n:] - ref
     slew = float(np.max(np.abs(np.gradient(vo, t))))
     # output current: into the gain network (v- / Rg) plus the Wien network and load,
     # whose share follows from the fundamental through the loop admittance.
-    loop = build_loop(c, cond)
     p1 = 1j * 2 * math.pi * osc.freq_hz / loop.w_ref
     i_x = abs(loop.yx(p1)) * osc.peak_v
     i_g = float(np.max(np.abs(vn))) / c.rg_ohm

@@ -107,7 +107,6 @@ class _Balance:
             n = min(start.size, vk.size)
             vk[:n] = start[:n]
         w = w0
-        n = self.ks.size
         converged = False
         for _ in range(iters):
             al, ga = self.coeffs(w)
