@@ -20,13 +20,12 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from partpick.catalog import load_catalog  # noqa: E402
-from partpick.design import design  # noqa: E402
-from partpick.handmethod import hand_design  # noqa: E402
-from partpick.physics.linear import analyse_linear  # noqa: E402
+from partpick.circuits import TOPOLOGIES, Conditions, build_netlist, linear  # noqa: E402
+from partpick.circuits.wien import circuit as wien_circuit  # noqa: E402
+from partpick.pipeline import design  # noqa: E402
 from partpick.physics.ngspice import ngspice_available, run_ngspice  # noqa: E402
 from partpick.physics.waveform import analyse  # noqa: E402
 from partpick.spec import Spec  # noqa: E402
-from partpick.topologies.wien import build_netlist  # noqa: E402
 from partpick.verify import operating_conditions, predict, transient_cycles_for  # noqa: E402
 
 
@@ -45,12 +44,10 @@ def main() -> None:
     t_load = time.perf_counter() - t0
     specs = sorted((ROOT / "specs").glob("*.yaml"))
     base_spec = Spec.from_yaml(specs[0])
-    from partpick.topologies.wien import Conditions, WienCircuit
-
-    c0 = WienCircuit(10e3, 10e-9, 10e3, 10e-9, 10e3, 22e3, cat.opamps[0])
+    c0 = wien_circuit(10e3, 10e-9, 10e3, 10e-9, 10e3, 22e3, cat.opamps[0])
     t = time.perf_counter()
     for _ in range(50):
-        analyse_linear(c0, Conditions(12, 298.15, 1e4))
+        linear(c0, Conditions(12, 298.15, 1e4))
     base = (time.perf_counter() - t) / 50
     del base_spec
     print(f"baseline: one linear loop analysis {base * 1e3:.3f} ms; catalog load {t_load * 1e3:.1f} ms\n")
@@ -66,7 +63,7 @@ def main() -> None:
         ours = hand = float("nan")
         if ngspice_available():
             ours = spice_error(best.circuit, spec)
-            hand = spice_error(hand_design(spec, cat, best.bom.line("opamp").family), spec)
+            hand = spice_error(TOPOLOGIES[spec.topology].hand_design(spec, cat, best.bom.line("opamp").family), spec)
         print(f"{spec.name:22s} {total:8.2f} {total / base:8.0f} {tm['enumerate']:9.2f} {tm['solve']:7.2f} "
               f"{tm['verify']:7.2f} {tm['rank']:6.3f} {ours * 100:11.3f}% {hand * 100:8.3f}% {hand / ours:6.1f}x")
 

@@ -23,7 +23,8 @@ sys.path.insert(0, str(ROOT))
 from partpick.catalog import load_catalog  # noqa: E402
 from partpick.physics.transient import simulate  # noqa: E402
 from partpick.spec import Spec  # noqa: E402
-from partpick.topologies.wien import Conditions, WienCircuit, build_netlist  # noqa: E402
+from partpick.circuits import Conditions, build_netlist  # noqa: E402
+from partpick.circuits.wien import circuit as WienCircuit  # noqa: E402
 from partpick.verify import predict, verify  # noqa: E402
 
 TARGET_VERIFY_S = 5e-3

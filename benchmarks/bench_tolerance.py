@@ -23,7 +23,7 @@ sys.path.insert(0, str(ROOT))
 import numpy as np  # noqa: E402
 
 from partpick.catalog import load_catalog  # noqa: E402
-from partpick.design import design  # noqa: E402
+from partpick.pipeline import design  # noqa: E402
 from partpick.spec import Spec  # noqa: E402
 from partpick.tolerance import draw_builds, frequency_and_startup, model_for, monte_carlo  # noqa: E402
 

@@ -1,9 +1,11 @@
 """Bills of materials: the parts of one candidate, read and written in partpick's own
-YAML and CSV forms, and turned into a circuit for the physics.
+YAML and CSV forms, and turned into a circuit for the physics. The roles a BOM may
+hold, their kinds and designators come from the circuit plug-ins' slots.
 
 YAML form::
 
     topology: wien-bridge
+    control: diode-limiter  # the amplitude control (default: what the roles hold)
     supply: dual            # dual | single
     stage: none             # none | follower | gain | attenuator
     parts:
@@ -11,7 +13,8 @@ YAML form::
       - {ref: U1, role: opamp, family: oa-jfet-4m}
 
 CSV form: a header ``ref,role,family,value`` (more columns are ignored) and comment
-lines ``# supply: dual`` / ``# stage: none`` before it.
+lines ``# supply: dual`` / ``# stage: none`` (and optionally ``# topology:``,
+``# control:``) before it.
 """
 
 from __future__ import annotations
@@ -23,24 +26,19 @@ from pathlib import Path
 
 from partpick import units
 from partpick.catalog import Catalog
+from partpick.circuits import (CONTROLS, STAGES, SUPPLY_KINDS, TOPOLOGIES, Circuit, all_slots, control_for_roles,
+                               designators, make_circuit, slots_for)
+from partpick.circuits.periphery import BUFFERED
 from partpick.errors import InputError
-from partpick.topologies.wien import DESIGNATORS, STAGES, WienCircuit
 from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_text
 
-__all__ = ["ROLES", "BomLine", "Bom", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv", "bom_from_circuit",
-           "bom_to_purchase_csv", "PURCHASE_COLUMNS"]
+__all__ = ["ROLES", "BomLine", "Bom", "BomError", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv",
+           "bom_from_circuit", "part_data", "value_text"]
 
-# role -> (kind of family, value dimension or None)
-ROLES = {
-    "rs": ("resistors", "resistance"), "cs": ("capacitors", "capacitance"),
-    "rp": ("resistors", "resistance"), "cp": ("capacitors", "capacitance"),
-    "rg": ("resistors", "resistance"), "rf": ("resistors", "resistance"),
-    "rd": ("resistors", "resistance"), "limiter": ("limiters", None), "opamp": ("opamps", None),
-    "stage_ra": ("resistors", "resistance"), "stage_rb": ("resistors", "resistance"),
-    "bias_top": ("resistors", "resistance"), "bias_bottom": ("resistors", "resistance"),
-    "bias_c": ("capacitors", "capacitance"), "coupling_c": ("capacitors", "capacitance"),
-}
-_REQUIRED = ("rs", "cs", "rp", "cp", "rg", "rf", "opamp")
+# role -> (kind of family, value dimension or None), from the plug-ins' slots
+ROLES = {role: (slot.kind, slot.dim) for role, slot in all_slots().items()}
+DESIGNATORS = designators()
+_DEFAULT_TOPOLOGY = "wien-bridge"
 
 
 class BomError(InputError):
@@ -60,12 +58,14 @@ class BomLine:
 
 @dataclass(frozen=True, slots=True)
 class Bom:
-    """A complete candidate: its lines, the supply kind and the output stage."""
+    """A complete candidate: its lines, the supply kind, the output stage, the topology
+    and the amplitude control (registry names)."""
 
     lines: tuple[BomLine, ...]
     supply_kind: str
     stage: str
-    topology: str = "wien-bridge"
+    topology: str = _DEFAULT_TOPOLOGY
+    control: str = "diode-limiter"
 
     def line(self, role: str) -> BomLine | None:
         for ln in self.lines:
@@ -84,18 +84,30 @@ class Bom:
         ln = self.line(role)
         return ln.value if ln else default
 
-    def to_circuit(self, catalog: Catalog) -> WienCircuit:
+    def control_part(self) -> BomLine | None:
+        """The line of the amplitude control's active part (the limiter pair, ...), or
+        None for a control without one."""
+        for slot in CONTROLS[self.control].slots:
+            if not slot.dim:
+                return self.line(slot.role)
+        return None
+
+    @property
+    def channels(self) -> int:
+        """Op-amp channels the circuit uses: the topology's and the output buffer's."""
+        return TOPOLOGIES[self.topology].channels + (1 if self.stage in BUFFERED else 0)
+
+    def to_circuit(self, catalog: Catalog) -> Circuit:
         """The circuit with exact catalog values (families must exist in ``catalog``)."""
-        op = catalog.find("opamps", self.line("opamp").family)
-        lim_line = self.line("limiter")
-        lim = catalog.find("limiters", lim_line.family) if lim_line else None
-        v = self.value
-        return WienCircuit(
-            rs_ohm=v("rs"), cs_f=v("cs"), rp_ohm=v("rp"), cp_f=v("cp"), rg_ohm=v("rg"), rf_ohm=v("rf"),
-            opamp=op, limiter=lim, rd_ohm=v("rd"), stage=self.stage,
-            stage_ra_ohm=v("stage_ra"), stage_rb_ohm=v("stage_rb"), supply_kind=self.supply_kind,
-            bias_r_ohm=v("bias_top"), bias_c_f=v("bias_c"), coupling_c_f=v("coupling_c"),
-        )
+        values, parts = {}, {}
+        for ln in self.lines:
+            kind, dim = ROLES[ln.role]
+            if dim:
+                values[ln.role] = ln.value
+            else:
+                parts[ln.role] = catalog.find(kind, ln.family)
+        return make_circuit(self.topology, self.control, values, parts, stage=self.stage,
+                            supply_kind=self.supply_kind)
 
 
 def load_bom(path: str | Path, catalog: Catalog) -> Bom:
@@ -108,9 +120,10 @@ def parse_bom(text: str, source: str, catalog: Catalog) -> Bom:
     if source.lower().endswith(".csv"):
         return _parse_csv(text, source, catalog)
     root = Fields(parse_yaml(text, source, BomError), source, BomError,
-                  allowed=("topology", "supply", "stage", "parts", "name", "verdict", "note"))
-    root.text("topology", choices=("wien-bridge",), default="wien-bridge")
-    supply = root.text("supply", choices=("dual", "single"), default="dual")
+                  allowed=("topology", "control", "supply", "stage", "parts", "name", "verdict", "note"))
+    topology = root.text("topology", choices=tuple(TOPOLOGIES), default=_DEFAULT_TOPOLOGY)
+    control = root.text("control", choices=tuple(CONTROLS), default="") or None
+    supply = root.text("supply", choices=SUPPLY_KINDS, default="dual")
     stage = root.text("stage", choices=STAGES, default="none")
     recs = root.records("parts", ("ref", "role", "family", "value", "quantity", "description", "cost"))
     if not recs:
@@ -123,7 +136,14 @@ def parse_bom(text: str, source: str, catalog: Catalog) -> Bom:
         _check_family(catalog, kind, family, lambda m: rec.error("family", m))
         value = rec.quantity("value", dim, positive=True) if dim else 0.0
         lines.append(BomLine(rec.text("ref", default=DESIGNATORS[role]), role, family, value))
-    return _complete(Bom(tuple(lines), supply, stage), lambda m: root.error("parts", m))
+    return _complete(_shaped(tuple(lines), supply, stage, topology, control), lambda m: root.error("parts", m))
+
+
+def _shaped(lines: tuple[BomLine, ...], supply: str, stage: str, topology: str, control: str | None) -> Bom:
+    """The BOM with its control named (inferred from the roles when not given)."""
+    if control is None:
+        control = control_for_roles(topology, (ln.role for ln in lines))
+    return Bom(lines, supply, stage, topology, control)
 
 
 def _check_family(catalog: Catalog, kind: str, family: str, fail) -> None:
@@ -132,7 +152,7 @@ def _check_family(catalog: Catalog, kind: str, family: str, fail) -> None:
 
 
 def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
-    meta = {"supply": "dual", "stage": "none"}
+    meta = {"supply": "dual", "stage": "none", "topology": _DEFAULT_TOPOLOGY, "control": ""}
     rows = []
     for lineno, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.strip()
@@ -146,9 +166,12 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
         rows.append((lineno, raw))
     if not rows:
         raise BomError("is empty; expected a header 'ref,role,family,value'", source=source, line=1)
-    if meta["supply"] not in ("dual", "single") or meta["stage"] not in STAGES:
+    if meta["supply"] not in SUPPLY_KINDS or meta["stage"] not in STAGES:
         raise BomError(f"'# supply:' must be dual or single and '# stage:' one of {', '.join(STAGES)}",
                        source=source, line=1)
+    if meta["topology"] not in TOPOLOGIES or (meta["control"] and meta["control"] not in CONTROLS):
+        raise BomError(f"'# topology:' must be one of {', '.join(TOPOLOGIES)} and '# control:' one of "
+                       f"{', '.join(CONTROLS)}", source=source, line=1)
     reader = list(csv.reader(io.StringIO("\n".join(r for _, r in rows))))
     # the purchasing form (bom_to_purchase_csv) names the designator column 'designator'
     header = ["ref" if h.strip().lower() == "designator" else h.strip().lower() for h in reader[0]]
@@ -177,46 +200,44 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             if value <= 0:
                 raise fail("must be > 0", "value")
         lines.append(BomLine(get("ref") or DESIGNATORS[role], role, get("family"), value))
-    return _complete(Bom(tuple(lines), meta["supply"], meta["stage"]),
+    return _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
                      lambda m: BomError(m, source=source, line=rows[0][0]))
 
 
 def _complete(bom: Bom, fail) -> Bom:
-    """Refuse a BOM with a missing or doubled slot, or parts its stage/supply do not use."""
+    """Refuse a BOM with a missing or doubled slot, or parts its circuit does not use."""
     roles = [ln.role for ln in bom.lines]
     for role in set(roles):
         if roles.count(role) > 1:
             raise fail(f"lists role '{role}' twice")
-    need = list(_REQUIRED)
-    if bom.stage in ("gain", "attenuator"):
-        need += ["stage_ra", "stage_rb"]
-    if bom.supply_kind == "single":
-        need += ["bias_top", "bias_bottom", "bias_c", "coupling_c"]
+    shape = slots_for(bom.topology, bom.control, bom.stage, bom.supply_kind)
+    need = [s.role for s in shape if not s.optional]
     missing = [r for r in need if r not in roles]
     if missing:
         raise fail(f"misses role(s) {', '.join(missing)} (supply {bom.supply_kind}, stage {bom.stage})")
-    if "rd" in roles and "limiter" not in roles:
-        raise fail("has 'rd' (in series with the limiter) but no limiter")
+    known = {s.role for s in shape}
+    for role in roles:
+        if role not in known:
+            slot = all_slots()[role]
+            raise fail(f"has '{role}' ({slot.description}), which a {bom.topology} circuit with control "
+                       f"{bom.control}, stage {bom.stage} and a {bom.supply_kind} supply does not use")
     if bom.supply_kind == "single" and abs(bom.value("bias_top") - bom.value("bias_bottom")) > 1e-9 * bom.value("bias_top"):
         raise fail("needs equal bias_top and bias_bottom resistors (mid-rail bias)")
     return bom
 
 
-def bom_from_circuit(c: WienCircuit, families: dict[str, str]) -> Bom:
+def bom_from_circuit(c: Circuit, families: dict[str, str]) -> Bom:
     """A BOM for circuit ``c``; ``families`` maps each role to its family id."""
-    vals = {"rs": c.rs_ohm, "cs": c.cs_f, "rp": c.rp_ohm, "cp": c.cp_f, "rg": c.rg_ohm, "rf": c.rf_ohm,
-            "rd": c.rd_ohm, "stage_ra": c.stage_ra_ohm, "stage_rb": c.stage_rb_ohm, "bias_top": c.bias_r_ohm,
-            "bias_bottom": c.bias_r_ohm, "bias_c": c.bias_c_f, "coupling_c": c.coupling_c_f}
     lines = []
-    for role in ROLES:
-        if role not in families:
+    for slot in slots_for(c.topology.name, c.control.name, c.stage, c.supply_kind):
+        if slot.role not in families:
             continue
-        value = vals.get(role, 0.0)
-        lines.append(BomLine(DESIGNATORS[role], role, families[role], value))
-    return Bom(tuple(lines), c.supply_kind, c.stage)
+        lines.append(BomLine(slot.designator, slot.role, families[slot.role], c.value(slot.role)))
+    return Bom(tuple(lines), c.supply_kind, c.stage, c.topology.name, c.control.name)
 
 
-def _value_text(line: BomLine) -> str:
+def value_text(line: BomLine) -> str:
+    """The line's value in the RKM code of IEC 60062 ('4k7', '2n2'); empty for active parts."""
     dim = ROLES[line.role][1]
     return units.format_rkm(line.value, dim) if dim else ""
 
@@ -224,9 +245,10 @@ def _value_text(line: BomLine) -> str:
 def bom_to_yaml(bom: Bom, *, header: str = "") -> str:
     """The YAML form (see module docstring); ``header`` goes in as comment lines."""
     out = [f"# {h}" for h in header.splitlines()] if header else []
-    out += [f"topology: {bom.topology}", f"supply: {bom.supply_kind}", f"stage: {bom.stage}", "parts:"]
+    out += [f"topology: {bom.topology}", f"control: {bom.control}", f"supply: {bom.supply_kind}",
+            f"stage: {bom.stage}", "parts:"]
     for ln in bom.lines:
-        value = _value_text(ln)
+        value = value_text(ln)
         tail = f", value: {value}" if value else ""
         out.append(f"  - {{ref: '{ln.ref}', role: {ln.role}, family: {ln.family}{tail}}}")
     return "\n".join(out) + "\n"
@@ -235,11 +257,12 @@ def bom_to_yaml(bom: Bom, *, header: str = "") -> str:
 def bom_to_csv(bom: Bom) -> str:
     """The CSV form (see module docstring)."""
     buf = io.StringIO()
-    buf.write(f"# supply: {bom.supply_kind}\n# stage: {bom.stage}\n")
+    buf.write(f"# topology: {bom.topology}\n# control: {bom.control}\n# supply: {bom.supply_kind}\n"
+              f"# stage: {bom.stage}\n")
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["ref", "role", "family", "value"])
     for ln in bom.lines:
-        w.writerow([ln.ref, ln.role, ln.family, _value_text(ln)])
+        w.writerow([ln.ref, ln.role, ln.family, value_text(ln)])
     return buf.getvalue()
 
 
@@ -264,52 +287,3 @@ def part_data(bom: Bom, catalog: Catalog) -> tuple[dict[str, float], dict[str, t
             else:
                 tc[ln.role] = (fam.tempco_per_k, fam.tempco_spread_per_k)
     return tol, tc, rating
-
-
-PURCHASE_COLUMNS = ("designator", "role", "quantity", "value", "description", "family", "tolerance", "tempco",
-                    "rating", "package", "unit_cost", "line_cost", "stock")
-
-
-def bom_to_purchase_csv(bom: Bom, catalog: Catalog, *, stock=None, builds: int = 1) -> str:
-    """The CSV a purchasing or assembly flow expects: one row per designator, with the
-    part's description, tolerance, tempco, rating and package from its catalog family,
-    unit cost, the cost of its distinct BOM line (on the line's first row; parts of one
-    value across slots share a line) and whether the shelf holds enough for ``builds``
-    boards. `partpick check` reads it back (designator, role, family, value)."""
-    from partpick.search import _line_price, _pricer
-
-    price = _pricer(catalog, stock)
-    use = bom.uses()
-    buf = io.StringIO()
-    buf.write(f"# supply: {bom.supply_kind}\n# stage: {bom.stage}\n")
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(PURCHASE_COLUMNS)
-    seen = set()
-    for ln in bom.lines:
-        kind, dim = ROLES[ln.role]
-        fam = catalog.find(kind, ln.family)
-        qty = fam.parts if kind == "limiters" else 1
-        if kind == "resistors":
-            tol, tc, rating = f"{fam.tolerance_frac * 100:g} %", f"{fam.tempco_per_k * 1e6:g} ppm/K", \
-                units.format_quantity(fam.power_w, "power")
-        elif kind == "capacitors":
-            tol = f"{fam.tolerance_frac * 100:g} %"
-            tc = (f"+/-{fam.band_frac * 100:g} % band" if fam.has_band
-                  else f"{fam.tempco_per_k * 1e6:g} +/- {fam.tempco_spread_per_k * 1e6:g} ppm/K")
-            rating = units.format_quantity(fam.voltage_v, "voltage")
-        elif kind == "opamps":
-            tol, tc, rating = "", "", f"{fam.supply_min_v:g}..{fam.supply_max_v:g} V"
-        else:
-            tol, tc, rating = "", "", ""
-        key = (ln.family, ln.value)
-        line_cost = ""
-        if key not in seen:
-            seen.add(key)
-            line_cost = f"{price(*key) * use[key] + _line_price(catalog, key, stock):.4f}"
-        on_shelf = ""
-        if stock is not None:
-            on_shelf = "yes" if stock.quantity(*key) >= use[key] * builds else "no"
-        w.writerow([ln.ref, ln.role, qty, _value_text(ln) if dim else "", fam.description, ln.family, tol, tc,
-                    rating, fam.package, f"{price(*key) / (qty if kind == 'limiters' else 1):.4f}", line_cost,
-                    on_shelf])
-    return buf.getvalue()

@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass
 
 from partpick.bom import Bom
-from partpick.topologies.wien import WienCircuit
+from partpick.circuits import Circuit
 from partpick.verify import Verdict
 
 __all__ = ["Ranked", "rank"]
@@ -26,7 +26,7 @@ class Ranked:
     (count); surrogate: the solver's objective for it."""
 
     bom: Bom
-    circuit: WienCircuit
+    circuit: Circuit
     verdict: Verdict
     freq_error: float
     amp_error: float
@@ -34,7 +34,7 @@ class Ranked:
     cost: float
     parts: int
     surrogate: float
-    pick: object = None  # the solver's choice it came from (partpick.search.Pick)
+    pick: object = None  # the solver's choice it came from (partpick.search.space.Pick)
     mc: object = None    # Monte Carlo result (partpick.tolerance.YieldResult)
     worst: dict | None = None  # worst-case corners
 

@@ -17,12 +17,12 @@ from partpick.errors import SpecError
 from partpick.yamlsrc import Fields, Mapping, did_you_mean, parse_yaml, read_text
 
 __all__ = [
-    "TOPOLOGIES", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES",
+    "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES",
     "FrequencyReq", "AmplitudeReq", "SupplyReq", "LoadReq", "TemperatureReq", "PartsChoice",
     "StockRef", "Spec", "check_parts",
 ]
 
-TOPOLOGIES = ("wien-bridge",)
+DEFAULT_TOPOLOGY = "wien-bridge"   # the name only: the circuit registry validates it (circuits.check_spec)
 SUPPLY_KINDS = ("dual", "single")
 RANK_KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")
 OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator")
@@ -233,7 +233,7 @@ def _read(root: Fields, source: str) -> Spec:
     base = Path(source).resolve().parent if source != "<spec>" else Path.cwd()
 
     name = root.text("name", default=Path(source).stem if source != "<spec>" else "spec")
-    topology = root.text("topology", choices=TOPOLOGIES, default="wien-bridge")
+    topology = root.text("topology", default=DEFAULT_TOPOLOGY)
 
     fr = root.sub("frequency", ("target", "tolerance"))
     frequency = FrequencyReq(fr.quantity("target", "frequency", positive=True),

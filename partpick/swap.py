@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 from partpick.bom import ROLES, Bom, BomLine
 from partpick.catalog import Catalog
-from partpick.design import evaluate_bom
+from partpick.pipeline import evaluate_bom
 from partpick.errors import InfeasibleError
 from partpick.rank import Ranked, rank
 from partpick.spec import Spec

@@ -13,7 +13,8 @@ Per build, the physics is the candidate's verified operating point moved by exac
 linearised terms: f0 and the required gain exactly from the drawn arm values; the
 gain excess from the drawn gain network with the op-amp's and the limiter's share of
 the margin scaled by the drawn GBW; the harmonic pull, amplitude and THD from their
-slopes in the gain excess (harmonic balance at Rf and Rf + 0.5 %) and their
+slopes in the gain excess (harmonic balance at the gain and at the gain raised by
+0.5 %) and their
 temperature dependence (harmonic balance at the temperature ends, interpolated);
 the op-amp's frequency pull inversely with the drawn GBW (single-pole). A build
 passes when it starts (gain excess > 0), its frequency and its amplitude at the load
@@ -33,13 +34,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from partpick.bom import Bom, ROLES
+from partpick.bom import Bom
 from partpick.catalog import Catalog
-from partpick.physics.harmonic import harmonic_balance
-from partpick.physics.linear import analyse_linear
+from partpick.circuits import Circuit, all_slots, balance, linear, log_sensitivities, margin_fn
 from partpick.spec import Spec
-from partpick.topologies.wien import WienCircuit
-from partpick.verify import Verdict
+from partpick.verify import Verdict, make_check
 
 __all__ = ["Model", "YieldResult", "model_for", "monte_carlo", "worst_case", "samples_needed", "with_yield",
            "draw_builds", "frequency_and_startup"]
@@ -52,6 +51,7 @@ class Model:
     """Everything the vectorised builds need about one candidate (SI units; ln of
     frequencies in ln Hz, amplitudes in ln V)."""
 
+    topology: object        # the topology plug-in, whose equations the builds evaluate
     values: dict            # role -> nominal value (ohm, F)
     tol: dict               # role -> tolerance (fraction)
     normal: dict            # role -> True when normal (3 sigma), else uniform
@@ -73,7 +73,7 @@ class Model:
     osc_per_load: float     # op-amp peak per load peak
     swing_head: tuple       # (high, low) headroom of the op-amp, V
     gbw_spread: float
-    vf_spread_rel: float    # limiter forward-voltage spread (3 sigma) relative to the voltage it works at
+    vf_spread_rel: float    # amplitude spread the control's parts give (3 sigma), relative
 
 
 @dataclass(frozen=True, slots=True)
@@ -99,12 +99,14 @@ def samples_needed(p: float, half_width: float = 0.005) -> int:
     return int(math.ceil((1.96 / half_width) ** 2 * p * (1 - p)))
 
 
-def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdict) -> Model:
-    """The candidate's model: slopes from one more harmonic-balance run at Rf + 0.5 %."""
+def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdict) -> Model:
+    """The candidate's model: slopes from one more harmonic-balance run with the gain
+    raised by 0.5 % (the topology's gain-setting part)."""
     nom = verdict.nominal
     values, tol, normal, tempco, band = {}, {}, {}, {}, {}
+    slots = all_slots()
     for ln in bom.lines:
-        kind = ROLES[ln.role][0]
+        kind = slots[ln.role].kind
         if kind not in ("resistors", "capacitors"):
             continue
         fam = catalog.find(kind, ln.family)
@@ -122,10 +124,10 @@ def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: V
             band[ln.role] = (0.0, 1.0)
     cond = nom.cond
     lin = nom.lin
-    up = dataclasses.replace(c, rf_ohm=c.rf_ohm * 1.005)
-    lin_up = analyse_linear(up, cond)
-    hb = harmonic_balance(c, cond, lin) if c.limiter is not None else None
-    hb_up = harmonic_balance(up, cond, lin_up, start=hb) if hb is not None else None
+    up = c.topology.nudge_gain(c, 0.005)
+    lin_up = linear(up, cond)
+    hb = balance(c, cond, lin)
+    hb_up = balance(up, cond, lin_up, start=hb) if hb is not None else None
     m_ideal = c.ideal_margin
     if hb is not None and hb_up is not None:
         d = math.log(1 + lin_up.margin) - math.log(1 + lin.margin)
@@ -144,14 +146,8 @@ def model_for(c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: V
             damp.append(math.log(p.load_peak_v / nom.load_peak_v))
             dpull.append(math.log(p.freq_hz / p.lin.marginal_hz) - pull_h if math.isfinite(p.lin.marginal_hz) else 0.0)
     order = np.argsort(temps)
-    lim = c.limiter
-    vf_rel = 0.0
-    if lim is not None and nom.starts and lim.vf_spread_v > 0:
-        from partpick.physics.junction import forward_voltage
-
-        # the limiter works near its forward voltage at tens of microamps (its knee)
-        vf_rel = lim.vf_spread_v / max(forward_voltage(lim, 20e-6, cond.temp_k), 1e-3)
-    return Model(values, tol, normal, tempco, band, lin.margin, m_ideal,
+    vf_rel = c.control.amplitude_spread(c, cond.temp_k) if nom.starts else 0.0
+    return Model(c.topology, values, tol, normal, tempco, band, lin.margin, m_ideal,
                  math.log(1 + m_ideal) - math.log(max(1 + lin.margin, 1e-9)), pull_h, pull_op, s_pull,
                  math.log(max(nom.load_peak_v, 1e-12)), s_amp, nom.load_thd if nom.starts else math.nan, s_thd,
                  tuple(np.array(temps)[order]), tuple(np.array(damp)[order]), tuple(np.array(dpull)[order]),
@@ -190,11 +186,12 @@ def draw_builds(model: Model, spec: Spec, n: int, rng) -> dict:
 
 
 def frequency_and_startup(model: Model, b: dict) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per build: frequency (Hz), ln of (1 + gain excess) and whether it starts."""
+    """Per build: frequency (Hz), ln of (1 + gain excess) and whether it starts, from
+    the topology's equations over the drawn values."""
     v = b["v"]
-    rs, rp, cs, cp, rg, rf = (v[r] for r in ("rs", "rp", "cs", "cp", "rg", "rf"))
-    f0 = 1.0 / (2 * np.pi * np.sqrt(rs * rp * cs * cp))
-    ln_m = np.log((1 + rf / rg) / (1 + rs / rp + cp / cs)) - model.loss_op / b["gbw"]
+    topo = model.topology
+    f0 = topo.f0_hz(v)
+    ln_m = np.log(topo.gain(v) / topo.required_gain(v)) - model.loss_op / b["gbw"]
     dlnm = ln_m - math.log(1 + model.m_lin)
     ln_f = (np.log(f0) + model.pull_op / b["gbw"] + model.pull_h + model.s_pull * dlnm
             + np.interp(b["t"], model.temps, model.dpull_t))
@@ -242,35 +239,41 @@ def _rails(spec: Spec, vs: np.ndarray):
 
 def worst_case(model: Model, spec: Spec) -> dict:
     """Corner analysis: each part at the end of its tolerance in the direction that
-    hurts (signs from the sensitivities: the margin falls with Rs, Cp, Rg up and Rp, Cs,
-    Rf down; f0 falls with every arm part up), at the temperature ends; returns the worst
-    margin, the lowest and highest frequency (Hz) and the amplitude range (V)."""
+    hurts (signs from the sensitivities of the topology's equations: the margin falls
+    with some parts up and others down; the frequency moves with every part it depends
+    on), at the temperature ends; returns the worst margin, the lowest and highest
+    frequency (Hz) and the amplitude range (V)."""
     out = {}
     t_ends = (spec.temperature.min_k, spec.temperature.max_k)
     v, tol = model.values, model.tol
+    topo = model.topology
 
     def tc(role, dt, sign):
         nom, spread = model.tempco[role]
         b, half = model.band[role]
         return (nom + sign * spread) * dt + sign * b * min(abs(dt) / half, 1.0)
 
+    def corner(dt: float, directions: dict[str, float]) -> dict:
+        vals = dict(v)
+        for role, s in directions.items():
+            vals[role] = v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))
+        return vals
+
+    m_fn = margin_fn(topo)
+    m_dirs = {r: -math.copysign(1.0, s) for r, s in log_sensitivities(v, m_fn).items() if r in tol}
+    f_dirs = {r: math.copysign(1.0, s) for r, s in log_sensitivities(v, topo.f0_hz).items() if r in tol}
     worst_m = math.inf
     for t in t_ends:
-        dt = t - T_REF
-        r = lambda role, s: v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))  # noqa: E731
-        k = 1 + r("rs", +1) / r("rp", -1) + r("cp", +1) / r("cs", -1)
-        g = 1 + r("rf", -1) / r("rg", +1)
-        worst_m = min(worst_m, math.expm1(math.log(g / k) - model.loss_op / (1 - model.gbw_spread)))
+        g_k = float(m_fn(corner(t - T_REF, m_dirs)))
+        worst_m = min(worst_m, math.expm1(math.log(g_k) - model.loss_op / (1 - model.gbw_spread)))
     out["margin"] = worst_m
     fs = []
     for t in t_ends:
         dt = t - T_REF
         for s in (+1, -1):
-            prod = 1.0
-            for role in ("rs", "rp", "cs", "cp"):
-                prod *= v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))
+            f0 = float(topo.f0_hz(corner(dt, {r: s * d for r, d in f_dirs.items()})))
             for gbw in (1 - model.gbw_spread, 1 + model.gbw_spread):
-                fs.append(math.exp(-math.log(2 * math.pi) - 0.5 * math.log(prod) + model.pull_op / gbw + model.pull_h
+                fs.append(math.exp(math.log(f0) + model.pull_op / gbw + model.pull_h
                                    + float(np.interp(t, model.temps, model.dpull_t))))
     out["frequency_hz"] = (min(fs), max(fs))
     amps = [math.exp(model.ln_amp + float(np.interp(t, model.temps, model.dln_amp_t))) * (1 + s * model.vf_spread_rel)
@@ -279,12 +282,10 @@ def worst_case(model: Model, spec: Spec) -> dict:
     return out
 
 
-def with_yield(verdict: Verdict, c: WienCircuit, bom: Bom, catalog: Catalog, spec: Spec, *,
+def with_yield(verdict: Verdict, c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, *,
                samples: int = 20_000, seed: int = 1) -> tuple[Verdict, YieldResult, dict]:
     """The verdict with the Monte Carlo yield added as a requirement ('yield.min'), the
     Monte Carlo result and the worst-case corners."""
-    from partpick.verify import _check
-
     model = model_for(c, bom, catalog, spec, verdict)
     y = monte_carlo(model, spec, samples=samples, seed=seed)
     wc = worst_case(model, spec)
@@ -292,9 +293,9 @@ def with_yield(verdict: Verdict, c: WienCircuit, bom: Bom, catalog: Catalog, spe
     # The worst corner stacks every tolerance at once; with the Monte Carlo the startup
     # requirement is the share of builds that start, against the yield asked for.
     checks += (
-        _check("startup yield (Monte Carlo)", "yield.min", y.share["startup"], spec.yield_min_frac, None, "fraction",
+        make_check("startup yield (Monte Carlo)", "yield.min", y.share["startup"], spec.yield_min_frac, None, "fraction",
                f"worst tolerance corner {wc['margin'] * 100:+.2f} % margin"),
-        _check("yield (Monte Carlo)", "yield.min", y.yield_frac, spec.yield_min_frac, None, "fraction",
+        make_check("yield (Monte Carlo)", "yield.min", y.yield_frac, spec.yield_min_frac, None, "fraction",
                f"{samples} builds, seed {seed}; frequency {y.share['frequency']:.1%}, amplitude "
                f"{y.share['amplitude']:.1%}, THD {y.share['thd']:.1%}; {y.needed} builds give +/-0.5 %"),
     )

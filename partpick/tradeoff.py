@@ -16,7 +16,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from partpick.catalog import Catalog
-from partpick.design import design
+from partpick.circuits import TOPOLOGIES
+from partpick.pipeline import design
 from partpick.errors import InfeasibleError
 from partpick.rank import Ranked
 from partpick.spec import Spec
@@ -59,7 +60,7 @@ def pareto(points: list[Point]) -> list[Point]:
     return sorted(front, key=lambda p: (p.cost, p.accuracy))
 
 
-def tradeoff(spec: Spec, catalog: Catalog, *, results: int = 3, samples: int = 20_000,
+def tradeoff(spec: Spec, catalog: Catalog, *, stock=None, results: int = 3, samples: int = 20_000,
              progress=None) -> tuple[list[Point], list[Point]]:
     """Every evaluated design and the front (see module docstring)."""
     rfams = [r.id for r in catalog.resistors if spec.parts.resistors is None or r.id in spec.parts.resistors]
@@ -74,13 +75,14 @@ def tradeoff(spec: Spec, catalog: Catalog, *, results: int = 3, samples: int = 2
     points: list[Point] = []
     for i, (label, sub, rank_by) in enumerate(runs, 1):
         try:
-            d = design(sub, catalog, results=results, rank_by=rank_by, samples=samples)
+            d = design(sub, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples)
         except InfeasibleError:
             continue
         finally:
             if progress is not None:
                 progress(i, len(runs))
         for r in d.passing:
-            fams = sorted({ln.family for ln in r.bom.lines if ln.role in ("rs", "rp", "cs", "cp")})
+            network = TOPOLOGIES[r.bom.topology].network_roles
+            fams = sorted({ln.family for ln in r.bom.lines if ln.role in network})
             points.append(Point(r.cost, accuracy(r, spec), r.yield_frac, " + ".join(fams), label, r))
     return points, pareto(points)

@@ -17,13 +17,16 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from partpick.physics.harmonic import BalanceResult, harmonic_balance
-from partpick.physics.linear import LinearResult, analyse_linear
+from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
+                               margin_fn, periphery)
+from partpick.physics.harmonic import BalanceResult
+from partpick.physics.linear import LinearResult
+from partpick.physics.opamp import regime as opamp_regime, swing_limits
 from partpick.spec import Spec
-from partpick.topologies.wien import Conditions, WienCircuit, build_loop, build_netlist
 
 __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
-           "operating_conditions", "transient_cycles_for"]
+           "operating_conditions", "transient_cycles_for", "make_check", "RESISTOR_DERATING", "OPAMP_PACKAGE_W",
+           "TransientSummary", "transient_check", "nominal_spectrum"]
 
 # Share of a resistor's rating it may dissipate (derating: common practice, no published source).
 RESISTOR_DERATING = 0.5
@@ -98,20 +101,19 @@ class Verdict:
         return tuple(c for c in self.checks if not c.passed)
 
 
-def _swing(c: WienCircuit, cond: Conditions) -> tuple[float, float]:
-    vcc, vee, ref = cond.rails(c.supply_kind)
-    return vee + c.opamp.headroom_low_v - ref, vcc - c.opamp.headroom_high_v - ref
+def _swing(c: Circuit, cond: Conditions) -> tuple[float, float]:
+    return swing_limits(c.opamp, cond.rails(c.supply_kind))
 
 
-def predict(c: WienCircuit, cond: Conditions, *, transient_cycles: float | None = None) -> OperatingPoint:
+def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None) -> OperatingPoint:
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring)."""
     loop = build_loop(c, cond)
-    lin = analyse_linear(c, cond, loop)
+    lin = linear(c, cond, loop)
     lo, hi = _swing(c, cond)
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
-    hb = harmonic_balance(c, cond, lin, loop=loop)
+    hb = balance(c, cond, lin, loop=loop)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
@@ -139,7 +141,8 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
 
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
-    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE, record=("osc", "load", "nn"))
+    main = loop.amps[0].name
+    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE, record=("osc", "load", f"iout:{main}"))
     osc = res.stats("osc")
     load = res.stats("load")
     if osc is None or load is None:
@@ -147,43 +150,41 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
                               0.0, 0.0, 0.0, "transient", "no startup")
     ref = cond.rails(c.supply_kind)[2]
     n = 20 * POINTS_PER_CYCLE  # the last 20 cycles, as the waveform analysis takes
-    t, vo, vn = res.t_s[-n:], res.v["osc"][-n:] - ref, res.v["nn"][-n:] - ref
+    t, vo = res.t_s[-n:], res.v["osc"][-n:] - ref
+    io = res.v[f"iout:{main}"][-n:]
     slew = float(np.max(np.abs(np.gradient(vo, t))))
-    # output current: into the gain network (v- / Rg) plus the Wien network and load,
-    # whose share follows from the fundamental through the loop admittance.
-    p1 = 1j * 2 * math.pi * osc.freq_hz / loop.w_ref
-    i_x = abs(loop.yx(p1)) * osc.peak_v
-    i_g = float(np.max(np.abs(vn))) / c.rg_ohm
-    iout = i_x + i_g
+    iout = float(np.max(np.abs(io)))
     # Within 3 % of the span from a swing limit counts as clipping (the output sits a
     # little inside the internal clamp by the drop across Ro).
-    near = 0.03 * (hi - lo)
-    regime = "swing" if (vo.max() >= hi - near or vo.min() <= lo + near) else "limiter"
-    if regime == "limiter" and slew > 0.2 * c.opamp.slew_v_per_s:
-        regime = "slew"
+    regime = opamp_regime(c.opamp, float(vo.min()), float(vo.max()), slew, (lo, hi), near_v=0.03 * (hi - lo))
     return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
-                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, iout / math.sqrt(2),
+                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, float(np.sqrt(np.mean(io ** 2))),
                           "transient", regime)
 
 
-def clipping_supply(c: WienCircuit, p: OperatingPoint) -> float:
+def clipping_supply(c: Circuit, p: OperatingPoint) -> float:
     """Supply (V; per rail when dual) below which the op-amp's swing no longer holds the
     oscillation at ``p``: each excursion plus the headroom on its side."""
     need = max(p.x_max_v + c.opamp.headroom_high_v, -p.x_min_v + c.opamp.headroom_low_v)
     return need if c.supply_kind == "dual" else 2 * need
 
 
-def worst_case_margin(c: WienCircuit, tolerances: dict[str, float], pull: float = 0.0) -> float:
-    """Startup margin at the worst tolerance corner: Rf low, Rg high, Rs and Cp high, Rp
-    and Cs low (each by its family's tolerance), plus ``pull`` (the margin the op-amp
-    and limiter leakage cost, from the linear analysis)."""
-    t = lambda role: tolerances.get(role, 0.0)  # noqa: E731
-    gain = 1 + c.rf_ohm * (1 - t("rf")) / (c.rg_ohm * (1 + t("rg")))
-    need = 1 + c.rs_ohm * (1 + t("rs")) / (c.rp_ohm * (1 - t("rp"))) + c.cp_f * (1 + t("cp")) / (c.cs_f * (1 - t("cs")))
-    return gain / need - 1 + pull
+def worst_case_margin(c: Circuit, tolerances: dict[str, float], pull: float = 0.0) -> float:
+    """Startup margin at the worst tolerance corner: every part the margin depends on at
+    the end of its tolerance that lowers it (the directions from the sign of its
+    sensitivity in the topology's own equations), plus ``pull`` (the margin the
+    op-amp and limiter leakage cost, from the linear analysis)."""
+    fn = margin_fn(c.topology)
+    sens = log_sensitivities(c.values, fn)
+    corner = dict(c.values)
+    for role, s in sens.items():
+        corner[role] = corner[role] * (1 - math.copysign(tolerances.get(role, 0.0), s))
+    return float(fn(corner)) - 1 + pull
 
 
-def _check(name, field_, value, low, high, dim, note="") -> Check:
+def make_check(name, field_, value, low, high, dim, note="") -> Check:
+    """A check of ``value`` against [low, high] (either may be None), its margin the
+    distance to the nearer limit."""
     inside = (low is None or value >= low) and (high is None or value <= high)
     dists = [d for d in ((value - low) if low is not None else None, (high - value) if high is not None else None)
              if d is not None]
@@ -206,19 +207,20 @@ def operating_conditions(spec: Spec) -> dict[str, Conditions]:
     return pts
 
 
-def _tempco_drift(c: WienCircuit, tempcos: dict[str, tuple[float, float]], dt_k: float) -> tuple[float, float]:
-    """Range of the relative f0 change over a temperature step dt_k (K): f0 ~ (Rs Rp Cs
-    Cp)^(-1/2), each part drifting by its nominal tempco +/- its spread (1/K)."""
+def _tempco_drift(c: Circuit, tempcos: dict[str, tuple[float, float]], dt_k: float) -> tuple[float, float]:
+    """Range of the relative f0 change over a temperature step dt_k (K): each part the
+    frequency depends on (exponent s = d ln f0 / d ln value, from the topology's
+    equation) drifting by its nominal tempco +/- its spread (1/K)."""
     lo = hi = 0.0
-    for role in ("rs", "rp", "cs", "cp"):
+    for role, s in log_sensitivities(c.values, c.topology.f0_hz).items():
         nom, spread = tempcos.get(role, (0.0, 0.0))
-        a, b = -0.5 * (nom - spread) * dt_k, -0.5 * (nom + spread) * dt_k
+        a, b = s * (nom - spread) * dt_k, s * (nom + spread) * dt_k
         lo += min(a, b)
         hi += max(a, b)
     return lo, hi
 
 
-def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = None,
+def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None,
            tempcos: dict[str, tuple[float, float]] | None = None, ratings: dict[str, float] | None = None,
            points: dict[str, OperatingPoint] | None = None) -> Verdict:
     """Check ``c`` against every requirement of ``spec``.
@@ -239,17 +241,17 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
     f, a = spec.frequency, spec.amplitude
 
     pull = nom.lin.margin - c.ideal_margin
-    checks.append(_check("startup margin", "frequency", nom.lin.margin, 0.0, None, "fraction",
+    checks.append(make_check("startup margin", "frequency", nom.lin.margin, 0.0, None, "fraction",
                          "small-signal loop gain at the phase-zero frequency, minus 1"))
     wc = worst_case_margin(c, tolerances, pull)
-    checks.append(_check("startup at worst tolerance corner", "frequency", wc, 0.0, None, "fraction",
-                         "Rf low, Rg high, arms skewed by their tolerances"))
+    checks.append(make_check("startup at worst tolerance corner", "frequency", wc, 0.0, None, "fraction",
+                         "each part at the end of its tolerance that lowers the margin"))
     if not nom.starts:
         return Verdict(tuple(checks), nom, pts, ("the circuit does not start: no oscillation",), wc)
 
     # Frequency: nominal, then over temperature with the limiter's change and the parts' tempcos.
     err_nom = nom.freq_hz / f.target_hz - 1
-    checks.append(_check("frequency (nominal)", "frequency.target", nom.freq_hz, f.min_hz, f.max_hz, "frequency",
+    checks.append(make_check("frequency (nominal)", "frequency.target", nom.freq_hz, f.min_hz, f.max_hz, "frequency",
                          f"error {err_nom * 100:+.3f} %, by {nom.method}"))
     worst_f = [nom.freq_hz]
     for name in ("temp min", "temp max"):
@@ -260,20 +262,20 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
         elif name in pts:
             worst_f.append(math.nan)
     worst = max(worst_f, key=lambda x: abs(x / f.target_hz - 1) if math.isfinite(x) else math.inf)
-    checks.append(_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
+    checks.append(make_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
                          "worst of the temperature ends with the parts' tempcos"))
 
     # Amplitude at the load over supply and temperature.
     lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)
-    checks.append(_check("amplitude at load (nominal)", "amplitude.target", nom.load_peak_v, lo_a, hi_a, "voltage",
+    checks.append(make_check("amplitude at load (nominal)", "amplitude.target", nom.load_peak_v, lo_a, hi_a, "voltage",
                          f"{nom.load_peak_v * 2:.4g} Vpp, {nom.load_peak_v / math.sqrt(2):.4g} Vrms"))
     amps = {n: p.load_peak_v if p.starts else 0.0 for n, p in pts.items()}
     wname = max(amps, key=lambda n: abs(amps[n] / a.peak_v - 1))
-    checks.append(_check("amplitude over supply and temperature", "amplitude.tolerance", amps[wname], lo_a, hi_a,
+    checks.append(make_check("amplitude over supply and temperature", "amplitude.tolerance", amps[wname], lo_a, hi_a,
                          "voltage", f"worst at {wname}"))
     thds = {n: p.load_thd for n, p in pts.items() if p.starts}
     tname = max(thds, key=lambda n: thds[n])
-    checks.append(_check("THD at load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac, "fraction",
+    checks.append(make_check("THD at load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac, "fraction",
                          f"worst at {tname}"))
 
     # Op-amp limits at the minimum supply.
@@ -282,44 +284,42 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
     clip_at = clipping_supply(c, nom)
     clip_note = ("clipping" if low_pt.regime == "swing" else
                  f"clipping starts below {'+/-' if c.supply_kind == 'dual' else ''}{clip_at:.3g} V")
-    checks.append(_check("output swing headroom at minimum supply", "supply.min", head, 0.0, None, "voltage",
+    checks.append(make_check("output swing headroom at minimum supply", "supply.min", head, 0.0, None, "voltage",
                          clip_note))
     sr = c.opamp.slew_v_per_s
     need = max(p.slew_v_per_s for p in pts.values())
-    checks.append(_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",
+    checks.append(make_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",
                          f"2 pi f Vpk = {2 * math.pi * nom.freq_hz * nom.osc_peak_v / 1e6:.3g} V/µs; "
                          f"op-amp {sr / 1e6:.3g} V/µs"))
     ipk = max(p.iout_peak_a for p in pts.values())
-    checks.append(_check("op-amp output current", "load.resistance", ipk, None, c.opamp.output_current_a, "current",
-                         "load, Wien network and gain network"))
-    if c.has_buffer:
+    checks.append(make_check("op-amp output current", "load.resistance", ipk, None, c.opamp.output_current_a, "current",
+                         f"load, {c.topology.network_name} and gain network"))
+    if periphery.has_buffer(c):
         # the output stage's own channel drives the load: its current and swing
         z = spec.load
-        y_load = (0.0 if math.isinf(z.resistance_ohm) else 1 / z.resistance_ohm) + 2 * math.pi * nom.freq_hz * z.capacitance_f
-        if c.stage == "gain":
-            y_load += 1 / (c.stage_ra_ohm + c.stage_rb_ohm)
+        y_load = periphery.stage_load_admittance(c, z.resistance_ohm, z.capacitance_f, nom.freq_hz)
         i_buf = max(p.load_peak_v for p in pts.values()) * y_load
-        checks.append(_check("output stage current", "load.resistance", i_buf, None, c.opamp.output_current_a,
+        checks.append(make_check("output stage current", "load.resistance", i_buf, None, c.opamp.output_current_a,
                              "current", "the buffer channel into the load"))
         buf_head = min(low_pt.swing_high_v, -low_pt.swing_low_v) - low_pt.load_peak_v
-        checks.append(_check("output stage swing headroom", "supply.min", buf_head, 0.0, None, "voltage",
+        checks.append(make_check("output stage swing headroom", "supply.min", buf_head, 0.0, None, "voltage",
                              "the buffer channel at the minimum supply"))
         ipk = max(ipk, i_buf)
     span_lo, span_hi = spec.supply.span_min_v, spec.supply.span_max_v
     op = c.opamp
     sup_margin = min(span_lo - op.supply_min_v, op.supply_max_v - span_hi)
-    checks.append(_check("op-amp supply range", "supply", sup_margin, 0.0, None, "voltage",
+    checks.append(make_check("op-amp supply range", "supply", sup_margin, 0.0, None, "voltage",
                          f"needs {span_lo:g}..{span_hi:g} V, part takes {op.supply_min_v:g}..{op.supply_max_v:g} V"))
-    # Inputs swing by about a third of the output around the reference (beta ~ 1/3 at f0).
+    # Inputs swing around the reference by the output over the network's required gain.
     vcc, vee, ref = low_pt.cond.rails(c.supply_kind)
-    vin = nom.osc_peak_v / c.required_gain
+    vin = c.topology.input_swing_v(c, nom.osc_peak_v)
     cm_head = min(vcc - op.input_cm_high_v - (ref + vin), (ref - vin) - (vee + op.input_cm_low_v))
-    checks.append(_check("input common-mode headroom", "supply.min", cm_head, 0.0, None, "voltage",
+    checks.append(make_check("input common-mode headroom", "supply.min", cm_head, 0.0, None, "voltage",
                          "inputs at the reference +/- Vpk/3, at the minimum supply"))
 
     # Dissipation (fundamental only; the harmonics carry little power).
     vo = nom.osc_peak_v
-    powers = _resistor_powers(c, nom)
+    powers = c.topology.dissipation(c, nom.freq_hz, vo)
     for role, p_w in powers.items():
         rating = ratings.get(role)
         if rating and p_w > RESISTOR_DERATING * rating:
@@ -327,10 +327,10 @@ def verify(c: WienCircuit, spec: Spec, *, tolerances: dict[str, float] | None = 
                             f"{rating * 1e3:.3g} mW rating")
     span_max = spec.supply.span_max_v
     p_op = span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, vo, nom.iout_peak_a)
-    if c.has_buffer:
+    if periphery.has_buffer(c):
         p_op += span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, nom.load_peak_v,
                                                                  nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9))
-    checks.append(_check("op-amp package dissipation", "supply.max", p_op, None, OPAMP_PACKAGE_W, "power",
+    checks.append(make_check("op-amp package dissipation", "supply.max", p_op, None, OPAMP_PACKAGE_W, "power",
                          "quiescent plus output stage at the maximum supply"))
     if p_op > 0.5 * OPAMP_PACKAGE_W:
         cautions.append(f"the op-amp package dissipates about {p_op:.2g} W; check its thermal rating and copper")
@@ -351,19 +351,37 @@ def _class_b_loss(v_rail: float, v_pk: float, i_pk: float) -> float:
     return max(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
 
 
-def _resistor_powers(c: WienCircuit, op: OperatingPoint) -> dict[str, float]:
-    """Average power in each oscillator resistor from the fundamental, W."""
-    loop = build_loop(c, op.cond)
-    p = 1j * 2 * math.pi * op.freq_hz / loop.w_ref
-    vo = op.osc_peak_v
-    vp = abs(loop.beta(p)) * vo
-    # The series arm carries the voltage difference Vo (1 - beta) across |Zs|.
-    zs_i = vo * abs((1 - loop.beta(p))) / math.hypot(c.rs_ohm, 1 / (2 * math.pi * op.freq_hz * c.cs_f))
-    vn = vo / c.gain
-    out = {
-        "rs": 0.5 * zs_i ** 2 * c.rs_ohm,
-        "rp": 0.5 * vp ** 2 / c.rp_ohm,
-        "rg": 0.5 * vn ** 2 / c.rg_ohm,
-        "rf": 0.5 * (vo - vn) ** 2 / c.rf_ohm,
-    }
-    return out
+@dataclass(frozen=True, slots=True)
+class TransientSummary:
+    """What a transient run of the nominal circuit shows: whether it starts, the cycles
+    simulated, the waveform statistics at the load (None when no oscillation shows) and
+    the time after which the amplitude stays within 2 % (s, None if not in the run)."""
+
+    starts: bool
+    cycles: float = 0.0
+    stats: object = None
+    settle_s: float | None = None
+
+
+def transient_check(c: Circuit, cond: Conditions) -> TransientSummary:
+    """Simulate ``c`` at ``cond`` from a small kick to its settled state."""
+    from partpick.physics.transient import simulate
+    from partpick.physics.waveform import settle_time
+
+    point = predict(c, cond)
+    if not point.starts:
+        return TransientSummary(False)
+    net = build_netlist(c, cond)
+    cycles = transient_cycles_for(point.lin, c.f0_hz, max(point.osc_peak_v, 1e-3))
+    res = simulate(net, cycles=cycles, record=("osc", "load"))
+    st = res.stats("load")
+    if st is None:
+        return TransientSummary(True, cycles)
+    return TransientSummary(True, cycles, st, settle_time(res.t_s, res.v["load"], st.peak_v))
+
+
+def nominal_spectrum(c: Circuit, cond: Conditions) -> tuple[float, tuple[complex, ...]] | None:
+    """(frequency in Hz, complex harmonics 1..K of the load voltage in V) of the steady
+    state at ``cond`` by harmonic balance; None when it does not apply."""
+    hb = balance(c, cond, linear(c, cond))
+    return None if hb is None else (hb.freq_hz, hb.load_harmonics)

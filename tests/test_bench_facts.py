@@ -16,7 +16,8 @@ import pytest
 
 from partpick.physics.transient import simulate
 from partpick.spec import Spec
-from partpick.topologies.wien import Conditions, WienCircuit, build_netlist
+from partpick.circuits import Conditions, build_netlist
+from partpick.circuits.wien import circuit as WienCircuit
 from partpick.verify import predict, verify
 from tests.conftest import VALID_SPEC
 

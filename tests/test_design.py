@@ -9,11 +9,11 @@ import pytest
 from click.testing import CliRunner
 
 from partpick.cli import main
-from partpick.design import design
+from partpick.pipeline import design
 from partpick.physics.ngspice import ngspice_available, run_ngspice
 from partpick.physics.waveform import analyse
 from partpick.spec import Spec
-from partpick.topologies.wien import build_netlist
+from partpick.circuits import build_netlist
 from partpick.verify import operating_conditions, transient_cycles_for
 from tests.conftest import CATALOGS, SPECS
 

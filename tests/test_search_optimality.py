@@ -1,7 +1,7 @@
 """The solver's answer is the optimum: on reduced joint spaces small enough to enumerate
 every complete BOM, partpick's best candidates equal the exhaustive optimum of the same
 objective exactly, after exact float re-evaluation (both sides score each choice with
-:func:`partpick.search.evaluate`), and the top-N lists are equal.
+:func:`partpick.search.space.evaluate`), and the top-N lists are equal.
 """
 
 from __future__ import annotations
@@ -10,7 +10,8 @@ import dataclasses
 
 import pytest
 
-from partpick.search import build_space, enumerate_best, rank_weights, solve
+from partpick.search.solver import solve
+from partpick.search.space import build_space, enumerate_best, rank_weights
 from partpick.spec import Spec
 from tests.conftest import SPECS
 
@@ -30,8 +31,8 @@ def _reduced(space, arms_every, gains_keep, stages_keep, ops_keep):
     best = solve(space, 6)
     return dataclasses.replace(
         space,
-        arms=keep(space.arms[::arms_every], [p.arms for p in best], 50),
-        gains=keep(space.gains, [p.gain for p in best], gains_keep),
+        nets=keep(space.nets[::arms_every], [p.net for p in best], 50),
+        ctls=keep(space.ctls, [p.ctl for p in best], gains_keep),
         stages=keep(space.stages, [p.stage for p in best], stages_keep),
         ops=keep(space.ops, [p.op for p in best], ops_keep),
     )
@@ -77,4 +78,4 @@ def test_spaces_are_large_enough_to_matter(spaces):
     """Each reduced space still holds thousands of complete BOMs."""
     for name, rank_by, every, ng, ns, no in CASES:
         s = _reduced(spaces[name], every, ng, ns, no)
-        assert len(s.arms) * len(s.gains) * len(s.stages) * len(s.ops) >= 1000
+        assert len(s.nets) * len(s.ctls) * len(s.stages) * len(s.ops) >= 1000

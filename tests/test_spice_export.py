@@ -1,4 +1,4 @@
-"""SPICE export (partpick.export.spice) and the ngspice batch runner (partpick.physics.ngspice).
+"""SPICE export (partpick.physics.spice) and the ngspice batch runner (partpick.physics.ngspice).
 
 The text tests need no simulator. The ngspice tests run real designs and check the
 physics: a Wien bridge with loop gain above 1 oscillates near f0 = 1/(2 pi R C) with
@@ -16,12 +16,13 @@ import re
 import numpy as np
 import pytest
 
-from partpick.export.spice import model_name, subckt_name, to_spice
-from partpick.physics.circuit import (Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource,
-                                      macro_params)
+from partpick.physics.spice import model_name, subckt_name, to_spice
+from partpick.physics.netlist import Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
+from partpick.physics.opamp import macro_params
 from partpick.physics.junction import forward_voltage, junctions_at
 from partpick.physics.ngspice import ngspice_available, run_ngspice
-from partpick.topologies.wien import Conditions, WienCircuit, build_netlist
+from partpick.circuits import Conditions, build_netlist
+from partpick.circuits.wien import circuit as WienCircuit
 
 needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice is not installed")
 
@@ -33,7 +34,7 @@ def num(x: float) -> str:
     return "%.12g" % x
 
 
-def wien(cat, *, rf=22e3, opamp="oa-jfet-4m", limiter="d-si-signal", **kw) -> WienCircuit:
+def wien(cat, *, rf=22e3, opamp="oa-jfet-4m", limiter="d-si-signal", **kw):
     """The test design: Rs = Rp = 10 kohm, Cs = Cp = 10 nF, Rg = 10 kohm."""
     return WienCircuit(rs_ohm=10e3, cs_f=10e-9, rp_ohm=10e3, cp_f=10e-9, rg_ohm=10e3, rf_ohm=rf,
                        opamp=cat.find("opamps", opamp),

@@ -7,7 +7,7 @@ import pytest
 from click.testing import CliRunner
 
 from partpick.cli import main
-from partpick.design import design
+from partpick.pipeline import design
 from partpick.spec import Spec
 from tests.conftest import CATALOGS, SPECS
 
@@ -74,14 +74,16 @@ def test_prefer_mode_makes_stocked_parts_cheaper(tmp_path, carrier, demo_catalog
     best = carrier.ranked[0]
     text, _ = _stock_text(best.bom)
     path = _spec_with_stock(tmp_path, text, "prefer")
-    d = design(Spec.from_yaml(path), demo_catalog, results=3, samples=2000)
+    from partpick.stock import load_stock
+
+    spec = Spec.from_yaml(path)
+    d = design(spec, demo_catalog, stock=load_stock(spec.stock.path, demo_catalog), results=3, samples=2000)
     shelf = {(ln.family, ln.value) for ln in best.bom.lines}
     top = d.ranked[0]
     stocked = sum((ln.family, ln.value) in shelf for ln in top.bom.lines)
     assert stocked >= len(top.bom.lines) - 2
     # parts on the shelf cost nothing: the same BOM costs less than from the catalog
-    from partpick.design import bom_cost
-    from partpick.stock import load_stock
+    from partpick.pricing import bom_cost
 
     shelf_stock = load_stock(tmp_path / "shelf.csv", demo_catalog)
     assert bom_cost(best.bom, demo_catalog, shelf_stock)[0] < bom_cost(best.bom, demo_catalog)[0]

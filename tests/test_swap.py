@@ -8,7 +8,7 @@ from click.testing import CliRunner
 from partpick import series
 from partpick.bom import bom_to_yaml
 from partpick.cli import main
-from partpick.design import design
+from partpick.pipeline import design
 from partpick.spec import Spec
 from tests.conftest import CATALOGS, SPECS
 

@@ -12,7 +12,7 @@ import pytest
 from partpick.bom import Bom, BomLine
 from partpick.spec import Spec
 from partpick.tolerance import model_for, monte_carlo, samples_needed, worst_case
-from partpick.topologies.wien import DESIGNATORS
+from partpick.bom import DESIGNATORS
 from partpick.verify import verify
 
 SPEC = """\

@@ -8,7 +8,7 @@ import json
 from click.testing import CliRunner
 
 from partpick.cli import main
-from partpick.design import design
+from partpick.pipeline import design
 from partpick.spec import Spec
 from partpick.tradeoff import accuracy, tradeoff
 from tests.conftest import CATALOGS, SPECS

@@ -9,11 +9,12 @@ import numpy as np
 import pytest
 
 from partpick.physics import transient
-from partpick.physics.circuit import Capacitor, Kick, Netlist, Resistor, VSource
+from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor, VSource
 from partpick.physics.junction import limiter_table
 from partpick.physics.transient import operating_point, simulate
 from partpick.physics.waveform import analyse, settle_time
-from partpick.topologies.wien import Conditions, WienCircuit, build_netlist
+from partpick.circuits import Conditions, build_netlist
+from partpick.circuits.wien import circuit as WienCircuit
 
 
 # --- waveform analysis --------------------------------------------------------------------
@@ -140,7 +141,7 @@ def test_unknown_probe_rejected():
 
 
 def test_scalar_limiter_table_matches_table(demo_catalog):
-    tab = limiter_table(demo_catalog.find("limiters", "d-si-signal"), rd_ohm=0.0, temp_k=298.15)
+    tab = limiter_table(demo_catalog.find("limiters", "d-si-signal"), series_ohm=0.0, temp_k=298.15)
     fast = transient._Table(tab)
     for v in np.concatenate([np.linspace(-2, 2, 401), [0.0, 1e-9, -1e-9, 5.0, -5.0]]):
         assert fast.current(v) == pytest.approx(float(tab.current(np.array([v]))[0]), rel=1e-12, abs=1e-18)

@@ -13,11 +13,9 @@ import math
 import numpy as np
 
 from partpick import __version__, units
-from partpick.bom import bom_to_purchase_csv
 from partpick.export import svgplot
-from partpick.export.schematic import wien_svg
-from partpick.physics.harmonic import harmonic_balance
-from partpick.physics.linear import analyse_linear
+from partpick.export.purchase import bom_to_purchase_csv
+from partpick.export.schematic import schematic_svg
 
 __all__ = ["render_report"]
 
@@ -48,22 +46,27 @@ def _fmt(v, dim):
     return units.format_quantity(float(f"{v:.4g}"), dim)
 
 
-def _waveform(r):
-    """Two periods of the predicted load voltage and its harmonic levels (dB re fundamental)."""
-    p = r.verdict.nominal
-    hb = harmonic_balance(r.circuit, p.cond, analyse_linear(r.circuit, p.cond)) if r.circuit.limiter else None
-    if hb is None:
+def _waveform(spectrum):
+    """Two periods of the predicted load voltage and its harmonic levels (dB re
+    fundamental), from ``spectrum`` = (frequency in Hz, complex load harmonics 1..9 in V)."""
+    if spectrum is None:
         return None
-    h = np.array(hb.load_harmonics[:9])
-    t = np.linspace(0, 2 / hb.freq_hz, 400)
-    v = sum(np.real(h[k] * np.exp(1j * 2 * np.pi * (k + 1) * hb.freq_hz * t)) for k in range(h.size))
+    freq_hz, harmonics = spectrum
+    h = np.array(harmonics[:9])
+    t = np.linspace(0, 2 / freq_hz, 400)
+    v = sum(np.real(h[k] * np.exp(1j * 2 * np.pi * (k + 1) * freq_hz * t)) for k in range(h.size))
     mag = np.abs(h)
     db = 20 * np.log10(np.maximum(mag / mag[0], 1e-6))
     return t * 1e3, v, db
 
 
-def render_report(spec, d, catalog, *, points=None, front=None, stock=None) -> str:
-    """The HTML page for design result ``d`` (see module docstring)."""
+def _family(line) -> str:
+    return line.family if line is not None else "-"
+
+
+def render_report(spec, d, catalog, *, points=None, front=None, stock=None, spectrum=None) -> str:
+    """The HTML page for design result ``d`` (see module docstring); ``spectrum``: the
+    nominal steady state of the #1 candidate at its load, (Hz, harmonics 1..9 in V)."""
     best = d.ranked[0]
     v = best.verdict
     parts = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>partpick report: "
@@ -81,7 +84,7 @@ def render_report(spec, d, catalog, *, points=None, front=None, stock=None) -> s
     parts += [f"<h2>Bill of materials (rank 1, {best.cost:.3f} {_e(catalog.currency)} per board)</h2>",
               _table(reader[0], [[_e(c) for c in row] for row in reader[1:]], "bom")]
     # circuit
-    parts += ['<h2>Circuit</h2>', f'<div id="schematic">{wien_svg(best.bom)}</div>',
+    parts += ['<h2>Circuit</h2>', f'<div id="schematic">{schematic_svg(best.bom)}</div>',
               f'<p class="note">textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g} '
               f'(needs {best.circuit.required_gain:.4g}); ground symbols are the signal reference.</p>']
     # verdict
@@ -94,7 +97,7 @@ def render_report(spec, d, catalog, *, points=None, front=None, stock=None) -> s
     parts += ['<h2>Verdict</h2>', _table(["requirement", "predicted", "limit", "verdict", "margin", "note"], vrows,
                                          "verdict")]
     # waveform and spectrum
-    wf = _waveform(best)
+    wf = _waveform(spectrum)
     parts.append('<h2>Predicted waveform and spectrum (nominal)</h2><div class="charts">')
     if wf is not None:
         t, y, db = wf
@@ -138,7 +141,7 @@ def render_report(spec, d, catalog, *, points=None, front=None, stock=None) -> s
         alt.append([str(i), '<span class="pass">pass</span>' if r.verdict.passed else '<span class="fail">FAIL</span>',
                     _e(f"{p.freq_hz:.6g} Hz"), _e(f"{r.freq_error * 100:+.3f} %"), _e(f"{2 * p.load_peak_v:.4g} Vpp"),
                     _e(f"{r.yield_frac:.1%}"), _e(f"{r.cost:.3f}"), _e(r.bom.line("opamp").family),
-                    _e(r.bom.line("limiter").family), _e(r.bom.stage)])
+                    _e(_family(r.bom.control_part())), _e(r.bom.stage)])
     parts += ['<h2>Alternatives</h2>', _table(["rank", "verdict", "frequency", "error", "at load", "yield", "cost",
                                                "op-amp", "limiter", "stage"], alt, "alternatives")]
     parts.append('<p class="note">Low-voltage signal circuits only; for anything mains-connected or safety-related '

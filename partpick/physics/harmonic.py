@@ -1,12 +1,14 @@
-"""Steady oscillation by harmonic balance: amplitude, frequency (with the limiter's
-harmonic pull) and distortion.
+"""Steady oscillation by harmonic balance: amplitude, frequency (with the control
+branch's harmonic pull) and distortion. Topology-free: it takes the loop at the control
+branch and the branch (:mod:`partpick.physics.loop`).
 
-Unknowns are the odd harmonics of the voltage across the limiter pair, Vp_k (k = 1, 3,
-..., K), and the angular frequency; the fundamental's phase is the reference (Im Vp_1
-= 0). For each harmonic the loop equation (see ``Loop.pair_coefficients``: the pair's
-capacitance and Rd are linear and enter the coefficients exactly) must hold,
-where Ip_k are the Fourier coefficients of the pair current i(vp(t)) computed
-by FFT of the sampled waveform (the harmonic-balance method: K. S. Kundert and A.
+Unknowns are the odd harmonics of the voltage across the branch's nonlinear element
+(the limiter pair), Vp_k (k = 1, 3, ..., K), and the angular frequency; the
+fundamental's phase is the reference (Im Vp_1 = 0). For each harmonic the loop equation
+(see ``Branch.element_coefficients``: the element's capacitance and the series
+resistance are linear and enter the coefficients exactly) must hold, where Ip_k are the
+Fourier coefficients of the element current i(vp(t)) computed by FFT of the sampled
+waveform (the harmonic-balance method: K. S. Kundert and A.
 Sangiovanni-Vincentelli, "Simulation of nonlinear circuits in the frequency domain",
 IEEE Trans. CAD 5(4), 1986). Newton's method with the analytic Jacobian (the
 conductance waveform di/dv mapped through the same transforms) converges in a few
@@ -15,10 +17,10 @@ predicts the amplitude well but no frequency shift for a memoryless limiter; the
 higher harmonics carry that shift). Only odd harmonics appear: the limiter is odd
 and the circuit is symmetric about the signal reference.
 
-The op-amp is linear here (A0, GBW, second pole, Ro). When the solution shows the
+The op-amps are linear here (A0, GBW, second pole, Ro). When the solution shows an
 op-amp's output leaving its swing, slewing near its limit or running near its current
-limit, the result says so (``regime``) and the caller integrates the full nonlinear
-circuit instead (:mod:`partpick.physics.transient`).
+limit (:func:`partpick.physics.opamp.regime`), the result says so (``regime``) and the
+caller integrates the full nonlinear circuit instead (:mod:`partpick.physics.transient`).
 """
 
 from __future__ import annotations
@@ -28,11 +30,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from partpick.physics.junction import limiter_table
 from partpick.physics.linear import LinearResult
-from partpick.topologies.wien import Conditions, Loop, WienCircuit, build_loop
+from partpick.physics.loop import Branch, Loop
+from partpick.physics.opamp import regime as opamp_regime, swing_limits
 
-__all__ = ["BalanceResult", "harmonic_balance"]
+__all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -65,7 +67,7 @@ class BalanceResult:
     regime: str
     converged: bool
     harmonics: int
-    state: tuple = ()  # (pair harmonics, scaled angular frequency): a warm start for a nearby problem
+    state: tuple = ()  # (element harmonics, scaled angular frequency): a warm start for a nearby problem
 
 
 def _thd(h: np.ndarray) -> float:
@@ -77,8 +79,8 @@ def _thd(h: np.ndarray) -> float:
 class _Balance:
     """The transforms and the loop of one harmonic-balance problem."""
 
-    def __init__(self, loop: Loop, table, kmax: int, nt: int) -> None:
-        self.loop, self.table = loop, table
+    def __init__(self, loop: Loop, branch: Branch, kmax: int, nt: int) -> None:
+        self.loop, self.branch, self.table = loop, branch, branch.table
         self.ks = np.arange(1, kmax + 1, 2)
         self.nt = nt
         theta = 2 * np.pi * np.arange(nt) / nt
@@ -90,8 +92,8 @@ class _Balance:
         self.anal = self.synth.T * (2.0 / nt)
 
     def coeffs(self, w: float) -> tuple[np.ndarray, np.ndarray]:
-        # unknowns are the harmonics of the voltage across the limiter pair itself
-        return self.loop.pair_coefficients(1j * w * self.ks)
+        # unknowns are the harmonics of the voltage across the nonlinear element itself
+        return self.branch.element_coefficients(self.loop, 1j * w * self.ks)
 
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
         v_t = self.synth @ _ri(vk)
@@ -159,9 +161,11 @@ def _cmul_block(c: np.ndarray) -> np.ndarray:
     return m
 
 
-def _df_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -> float | None:
-    """Amplitude of vf (V) at which the limiter's describing-function conductance
-    (fundamental current / amplitude, S) equals g_target; None if it never does."""
+def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -> float | None:
+    """Amplitude (V) of a sine across a memoryless element ``table`` at which its
+    describing-function conductance (fundamental current / amplitude, S) equals
+    g_target; None if it never does (Gelb and Vander Velde, Multiple-Input Describing
+    Functions and Nonlinear System Design, 1968, chapter 2)."""
     theta = 2 * np.pi * (np.arange(64) + 0.5) / 64
     amps = np.geomspace(lo, hi, 90)
     i = table.current(np.outer(amps, np.cos(theta)))
@@ -175,65 +179,63 @@ def _df_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -
     return math.exp(x0 + (g_target - y0) * (x1 - x0) / (y1 - y0))
 
 
-def harmonic_balance(c: WienCircuit, cond: Conditions, lin: LinearResult, *, kmax: int = 21,
-                     loop: Loop | None = None, start: BalanceResult | None = None) -> BalanceResult | None:
-    """Settled oscillation of ``c`` at ``cond`` with a limiter; None when the circuit
-    does not start or the limiter cannot bring the loop gain down (then the op-amp's
-    swing sets the amplitude and the transient simulation must answer)."""
-    if c.limiter is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
+def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
+                     kmax: int = 21, start: BalanceResult | None = None) -> BalanceResult | None:
+    """Settled oscillation of the loop closed through a nonlinear branch; rails (V) are
+    (positive rail, negative rail, signal reference) for the op-amps' swing. None when
+    the circuit does not start or the branch cannot bring the loop gain down (then the
+    op-amps' swing sets the amplitude and the transient simulation must answer)."""
+    if branch.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
-    loop = loop or build_loop(c, cond)
-    branch = limiter_table(c.limiter, c.rd_ohm, cond.temp_k)
-    table = limiter_table(c.limiter, 0.0, cond.temp_k)
-    a_df = _df_amplitude(branch, lin.marginal_g_s)
+    a_df = describing_amplitude(branch.series_table, lin.marginal_g_s)
     if a_df is None:
         return None
     # start from the describing-function amplitude of the whole branch, less the drop
-    # across Rd, as the pair's own amplitude
-    a_df = max(a_df - c.rd_ohm * lin.marginal_g_s * a_df, 0.2 * a_df)
+    # across the series resistance, as the element's own amplitude
+    a_df = max(a_df - branch.series_ohm * lin.marginal_g_s * a_df, 0.2 * a_df)
     w0 = 2 * math.pi * lin.marginal_hz / loop.w_ref
     warm = None
     if start is not None and start.state:
-        # the same network a little changed (another Rf, temperature): same w_ref
+        # the same network a little changed (another gain, temperature): same w_ref
         warm, w0, kmax = start.state
         warm = np.asarray(warm)
     for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
-        hb = _Balance(loop, table, k, max(64, 8 * (k + 1)))
+        hb = _Balance(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm)
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
         if ok and tail < 3e-4:
             break
-    return _result(c, cond, loop, hb, vk, w, ok)
+    return _result(loop, rails, hb, vk, w, ok)
 
 
-def _result(c: WienCircuit, cond: Conditions, loop: Loop, hb: _Balance, vk, w, ok) -> BalanceResult:
+def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
+    br = hb.branch
     _, ipk, _, _ = hb.residual(vk, w)
     p = 1j * w * hb.ks
-    ik = ipk + p * loop.w_ref * loop.cap_f * vk     # branch current: pair plus its capacitance
-    vf = vk + loop.rd_ohm * ik                      # voltage across Rf
+    ik = ipk + p * loop.w_ref * br.cap_f * vk       # branch current: element plus its capacitance
+    vf = vk + br.series_ohm * ik                        # voltage across the whole branch
     i_t = hb.synth @ _ri(ik)
-    vo = loop.vo_per_vf(p, vf, ik)
-    i_f = loop.yf(p) * vf + ik
-    iout = loop.yx(p) * vo + i_f
-    x = vo + loop.ro_ohm * iout
-    vl = loop.to_load(p) * vo
+    vo = loop.probe("osc", p, vf, ik)
+    vl = loop.probe("load", p, vf, ik)
     kmax = int(hb.ks[-1])
     full = lambda z: _full(z, hb.ks, kmax)  # noqa: E731
     vo_t = hb.synth @ _ri(vo)
-    x_t = hb.synth @ _ri(x)
     vl_t = hb.synth @ _ri(vl)
-    io_t = hb.synth @ _ri(iout)
-    slew = float(np.max(np.abs(hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * x))))
-    op = c.opamp
-    vcc, vee, ref = cond.rails(c.supply_kind)
-    hi, lo = vcc - op.headroom_high_v - ref, vee + op.headroom_low_v - ref
     regime = "limiter"
-    if x_t.max() > hi or x_t.min() < lo:
-        regime = "swing"
-    elif slew > 0.2 * op.slew_v_per_s:
-        regime = "slew"
-    elif np.max(np.abs(io_t)) > 0.7 * op.output_current_a:
-        regime = "current"
+    main = None
+    for amp in loop.amps:
+        x = loop.probe(amp.x, p, vf, ik)
+        x_t = hb.synth @ _ri(x)
+        io_t = hb.synth @ _ri(loop.probe(amp.iout, p, vf, ik))
+        slew = float(np.max(np.abs(hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * x))))
+        io_pk = float(np.max(np.abs(io_t)))
+        r = opamp_regime(amp.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(amp.opamp, rails),
+                         iout_peak_a=io_pk)
+        if regime == "limiter":
+            regime = r
+        if main is None:
+            main = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+    x_min, x_max, slew, io_pk, io_rms = main if main is not None else (0.0, 0.0, 0.0, 0.0, 0.0)
     return BalanceResult(
         freq_hz=w * loop.w_ref / (2 * math.pi),
         osc_peak_v=float((vo_t.max() - vo_t.min()) / 2),
@@ -242,12 +244,12 @@ def _result(c: WienCircuit, cond: Conditions, loop: Loop, hb: _Balance, vk, w, o
         load_thd=_thd(full(vl)),
         osc_harmonics=tuple(full(vo)),
         load_harmonics=tuple(full(vl)),
-        x_min_v=float(x_t.min()),
-        x_max_v=float(x_t.max()),
+        x_min_v=x_min,
+        x_max_v=x_max,
         slew_v_per_s=slew,
-        iout_peak_a=float(np.max(np.abs(io_t))),
+        iout_peak_a=io_pk,
         ilim_peak_a=float(np.max(np.abs(i_t))),
-        iout_rms_a=float(np.sqrt(np.mean(io_t ** 2))),
+        iout_rms_a=io_rms,
         regime=regime,
         converged=bool(ok),
         harmonics=kmax,

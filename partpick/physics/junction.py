@@ -80,12 +80,12 @@ def junctions_at(lim: Limiter, temp_k: float) -> tuple[Junction, Junction | None
 @dataclass(frozen=True, slots=True)
 class LimiterTable:
     """Tabulated branch characteristic i(v) (odd-symmetric): v_v (V, ascending),
-    i_a (A), g_s = di/dv (S). The branch is the limiter pair in series with rd_ohm."""
+    i_a (A), g_s = di/dv (S). The branch is the limiter pair in series with series_ohm (ohm)."""
 
     v_v: np.ndarray
     i_a: np.ndarray
     g_s: np.ndarray
-    rd_ohm: float
+    series_ohm: float
 
     def current(self, v: np.ndarray) -> np.ndarray:
         """Branch current at branch voltage v (V), A; linear beyond the table ends."""
@@ -167,21 +167,21 @@ def _pair_table(lim: Limiter, temp_k: float, points: int) -> tuple[np.ndarray, n
 
 
 @lru_cache(maxsize=2048)
-def limiter_table(lim: Limiter, rd_ohm: float, temp_k: float, points: int = 1200) -> LimiterTable:
-    """Tabulate the branch (limiter pair + rd_ohm in series) from 1 pA to 1 A each way.
+def limiter_table(lim: Limiter, series_ohm: float, temp_k: float, points: int = 1200) -> LimiterTable:
+    """Tabulate the branch (limiter pair + series_ohm in series) from 1 pA to 1 A each way.
 
     The table is dense on a log current scale so linear interpolation errs by
     well under 0.1 % in current across the knee. Cached: the search and the Monte
     Carlo ask for the same few tables many times; the pair's own table is shared by
-    every rd_ohm (the series resistor only adds i rd_ohm to the voltage).
+    every series_ohm (the series resistor only adds i series_ohm to the voltage).
     """
     i_pos, v_pair = _pair_table(lim, temp_k, points)
-    v_pos = v_pair + i_pos * rd_ohm
+    v_pos = v_pair + i_pos * series_ohm
     g_pos = 1.0 / np.gradient(v_pos, i_pos)
     v = np.concatenate([-v_pos[:0:-1], v_pos])
     i = np.concatenate([-i_pos[:0:-1], i_pos])
     g = np.concatenate([g_pos[:0:-1], g_pos])
-    return LimiterTable(v, i, g, rd_ohm)
+    return LimiterTable(v, i, g, series_ohm)
 
 
 def forward_voltage(lim: Limiter, current_a: float, temp_k: float = T0_K) -> float:

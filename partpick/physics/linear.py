@@ -1,14 +1,13 @@
 """Linear loop analysis of the oscillator: closed-loop poles, startup, the frequency
-with the op-amp's pull, and the startup margin.
+with the op-amp's pull, and the startup margin. Topology-free: it takes the loop at the
+control branch (:class:`partpick.physics.loop.Loop`) and the branch's small-signal form.
 
-The loop equation alpha(s) Vf + gamma(s) Ilim = 0 (:class:`partpick.topologies.wien.Loop`)
-with the limiter linearised at zero amplitude (Ilim = g0 Vf) gives the characteristic
-equation alpha + g0 gamma = 0; its numerator polynomial's roots are the circuit's
-natural frequencies. A complex pair in the right half-plane means the circuit starts
-(Barkhausen criterion exceeded); its real part is the envelope's growth rate.
-The startup margin is |L| - 1 at the frequency where the loop gain L (broken at the
-non-inverting input) has zero phase; with an ideal op-amp it is (1 + Rf/Rg) / (1 + Rs/Rp
-+ Cp/Cs) - 1.
+The loop equation alpha(s) V + gamma(s) I = 0 with the branch linearised at zero
+amplitude (I = Y0 V) gives the characteristic equation alpha + gamma Y0 = 0; its
+numerator polynomial's roots are the circuit's natural frequencies. A complex pair in
+the right half-plane means the circuit starts (Barkhausen criterion exceeded); its real
+part is the envelope's growth rate. The startup margin is |L| - 1 at the frequency
+where the loop gain L (broken where the topology puts it) has zero phase.
 """
 
 from __future__ import annotations
@@ -19,10 +18,11 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.polynomial import polynomial as P
 
-from partpick.physics.junction import limiter_table
-from partpick.topologies.wien import Conditions, Loop, WienCircuit, build_loop
+from partpick.physics.loop import Branch, Loop
 
-__all__ = ["LinearResult", "analyse_linear", "loop_gain", "limiter_g0"]
+__all__ = ["LinearResult", "analyse_linear", "loop_gain", "NO_BRANCH"]
+
+NO_BRANCH = Branch(None)  # a control that adds nothing at small signal
 
 
 @dataclass(frozen=True, slots=True)
@@ -34,8 +34,8 @@ class LinearResult:
     the kick dies away); startup_hz: its imaginary part / 2 pi, Hz (0 when real); margin: |L| - 1 at the
     loop's phase-zero frequency phase_zero_hz (Hz); marginal_hz: frequency at which the
     loop oscillates once the limiter has brought the gain down to exactly 1, with the
-    op-amp's pull but no harmonic pull, Hz; marginal_g_s: the extra conductance across
-    Rf the limiter must add on average for that, S.
+    op-amp's pull but no harmonic pull, Hz; marginal_g_s: the average conductance the
+    control branch must present for that, S.
     """
 
     poles_rad_s: tuple[complex, ...]
@@ -55,30 +55,18 @@ class LinearResult:
         return math.log(final_v / start_v) / self.growth_per_s
 
 
-def limiter_g0(c: WienCircuit, temp_k: float) -> float:
-    """Small-signal conductance of the limiter pair itself at zero volts, S."""
-    if c.limiter is None:
-        return 0.0
-    table = limiter_table(c.limiter, 0.0, temp_k)
-    return float(table.conductance(np.array([0.0]))[0])
+def loop_gain(loop: Loop, p: np.ndarray, branch: Branch = NO_BRANCH) -> np.ndarray:
+    """Loop gain L(p) with the branch at its small-signal admittance (its element
+    conductance g0 with its capacitance, behind its series resistance)."""
+    y = 0.0 if branch.is_linear_zero else branch.admittance(p, loop.w_ref)
+    return loop.loop_gain(p, y)
 
 
-def loop_gain(loop: Loop, p: np.ndarray, g0: float = 0.0) -> np.ndarray:
-    """Loop gain broken at the non-inverting input, L = beta (1 + Rg y) A / D1,
-    D1 = (1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y, y = yf + the limiter branch's small-signal
-    admittance (pair conductance g0 with its capacitance, behind Rd)."""
-    a = loop.a(p)
-    y = loop.yf(p) + (loop.branch_admittance(p, g0) if (g0 or loop.cap_f) else 0.0)
-    one = 1.0 + loop.rg_ohm * y
-    d1 = one * (1.0 + loop.ro_ohm * loop.yx(p)) + (loop.ro_ohm + a * loop.rg_ohm) * y
-    return loop.beta(p) * one * a / d1
-
-
-def _char_roots(loop: Loop, g0: float) -> np.ndarray:
-    """Roots (in p) of alpha + gamma Yb (Yb the limiter branch at zero amplitude), built
-    as one rational; roots shared with the
-    denominator are artefacts of cross-multiplying and are dropped."""
-    q = loop.alpha + loop.gamma * loop.branch_rational(g0) if (g0 or loop.cap_f) else loop.alpha
+def _char_roots(loop: Loop, branch: Branch) -> np.ndarray:
+    """Roots (in p) of alpha + gamma Yb (Yb the branch at zero amplitude), built as one
+    rational; roots shared with the denominator are artefacts of cross-multiplying and
+    are dropped."""
+    q = loop.alpha if branch.is_linear_zero else loop.alpha + loop.gamma * branch.rational(loop.w_ref)
     num = q.num / np.max(np.abs(q.num))
     roots = P.polyroots(num)
     den_roots = P.polyroots(q.den) if q.den.size > 1 else np.array([])
@@ -121,27 +109,26 @@ def _phase_zero(f, lo: float, hi: float, centre: float) -> float | None:
     return best
 
 
-def analyse_linear(c: WienCircuit, cond: Conditions, loop: Loop | None = None) -> LinearResult:
-    """Poles, startup, margin and marginal frequency of ``c`` at ``cond`` (``loop``:
-    the already-built equations, if the caller has them)."""
-    loop = loop or build_loop(c, cond)
+def analyse_linear(loop: Loop, branch: Branch = NO_BRANCH) -> LinearResult:
+    """Poles, startup, margin and marginal frequency of the loop closed through the
+    branch at zero amplitude. The search for the phase-zero frequencies spans 0.2 to 2
+    times w_ref, which the topology sets near its textbook frequency."""
     w = loop.w_ref
-    g0 = limiter_g0(c, cond.temp_k)
-    roots = _char_roots(loop, g0) * w
+    roots = _char_roots(loop, branch) * w
     # The dominant natural frequency: a complex pair normally; with a large gain excess
     # the pair splits into two real roots, both in the right half-plane (it still starts,
     # as a relaxation oscillation that the op-amp's swing then shapes).
     dom = max(roots, key=lambda r: r.real) if roots.size else complex(-math.inf, 0.0)
     starts = bool(roots.size) and dom.real > 0
 
-    wz = _phase_zero(lambda x: np.imag(loop_gain(loop, 1j * x, g0)), 0.2, 2.0, 1.0)
+    wz = _phase_zero(lambda x: np.imag(loop_gain(loop, 1j * x, branch)), 0.2, 2.0, 1.0)
     if wz is None:
         margin, fz = -1.0, math.nan
     else:
-        margin = float(np.real(loop_gain(loop, 1j * wz, g0))) - 1.0
+        margin = float(np.real(loop_gain(loop, 1j * wz, branch))) - 1.0
         fz = wz * w / (2 * math.pi)
 
-    # Marginal oscillation: alpha + g gamma = 0 with g real (the limiter's average conductance).
+    # Marginal oscillation: alpha + g gamma = 0 with g real (the branch's average conductance).
     def im_ratio(x):
         al, ga = loop.coefficients(1j * x)
         return np.imag(-al / ga)

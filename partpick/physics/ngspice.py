@@ -1,7 +1,7 @@
 """Running ngspice in batch mode on a :class:`~partpick.physics.circuit.Netlist`.
 
 An independent check of partpick's own transient simulator: the same netlist goes
-through :func:`partpick.export.spice.to_spice`, ngspice (``ngspice -b``) runs the
+through :func:`partpick.physics.spice.to_spice`, ngspice (``ngspice -b``) runs the
 transient and writes the probe voltages with ``wrdata``, and this module reads them
 back as numpy arrays. ngspice is optional; callers test :func:`ngspice_available`.
 """
@@ -15,8 +15,8 @@ from pathlib import Path
 
 import numpy as np
 
-from partpick.export.spice import to_spice
-from partpick.physics.circuit import Netlist
+from partpick.physics.netlist import Netlist
+from partpick.physics.spice import to_spice
 
 __all__ = ["ngspice_available", "run_ngspice"]
 

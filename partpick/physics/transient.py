@@ -1,4 +1,4 @@
-"""Transient simulation of a :class:`~partpick.physics.circuit.Netlist`.
+"""Transient simulation of a :class:`~partpick.physics.netlist.Netlist`.
 
 Formulation: modified nodal analysis. The unknowns are the voltage of every node
 other than ground, the branch current of every voltage source and, for every op-amp,
@@ -11,7 +11,7 @@ with C the (constant) capacitance matrix, G the conductances and the source
 constraints, f the nonlinear element currents and s the sources. Every row is a
 current balance (sum of currents leaving the node), except the voltage-source rows,
 which state v_a - v_b = V. The op-amp macro-model is the one of
-:mod:`partpick.physics.circuit` (and of the SPICE export): current into x,
+:mod:`partpick.physics.opamp` (and of the SPICE export): current into x,
 imax tanh(gm (v_inp - v_inn) / imax); C1 and R1 from x to ground; the clamp current
 out of x, gclamp (v_x - clip(v_x, v_vee + head_low, v_vcc - head_high)) (stamped,
 like the SPICE card, as the sum of the two one-sided excesses, which is the same
@@ -19,8 +19,8 @@ whenever the clip range is not empty); the second
 pole y' = 2 pi f2 (x - y), written as the scaled balance
 (gm / (2 pi f2)) y' + gm (y - x) = 0; and the output current into ``out``,
 ilim tanh((v_y - v_out) / (ro ilim)). A limiter pair carries table.current(v_a - v_b)
-from a to b (:func:`partpick.physics.junction.limiter_table` with rd = 0; a series Rd
-is its own Resistor) with its capacitance across it. A Kick is a rectangular current
+from a to b (:func:`partpick.physics.junction.limiter_table` without series resistance; a
+series resistor is its own Resistor) with its capacitance across it. A Kick is a rectangular current
 pulse from ground into its node; it enters each step as its mean over the step, so the
 delivered charge is exact whatever the step size. A conductance GMIN = 1e-12 S from
 every node to ground (as SPICE adds) keeps capacitor-only nodes defined at DC.
@@ -49,9 +49,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import lapack
 
-from partpick.physics.circuit import (Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource,
-                                      macro_params)
 from partpick.physics.junction import LimiterTable, limiter_table
+from partpick.physics.netlist import Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
+from partpick.physics.opamp import macro_params
 from partpick.physics.waveform import WaveformStats, analyse
 
 __all__ = ["TransientResult", "simulate", "operating_point", "GMIN_S"]
@@ -167,6 +167,7 @@ class _System:
         self.kicks: list[tuple[int, float, float, float]] = []   # node, A, start, end
         self.limiters: list[tuple[int, int, _Table]] = []
         self.ops: list[tuple] = []
+        self.op_names: dict[str, int] = {}
         krow = n_nodes
         for el in net.elements:
             if isinstance(el, Resistor):
@@ -189,7 +190,7 @@ class _System:
             elif isinstance(el, LimiterX):
                 a, b = idx(el.a), idx(el.b)
                 stamp2(C, a, b, el.cap_f)
-                tab = _Table(limiter_table(el.limiter, rd_ohm=0.0, temp_k=net.temp_k))
+                tab = _Table(limiter_table(el.limiter, series_ohm=0.0, temp_k=net.temp_k))
                 self.limiters.append((a, b, tab))
             elif isinstance(el, OpAmpX):
                 pass
@@ -202,6 +203,7 @@ class _System:
                 C[iy, iy] += mp.gm_s / (2 * math.pi * mp.pole2_hz)
                 G[iy, iy] += mp.gm_s
                 G[iy, ix] -= mp.gm_s
+            self.op_names[op.name] = len(self.ops)
             self.ops.append((idx(op.inp), idx(op.inn), idx(op.out), idx(op.vcc), idx(op.vee), ix, iy,
                              mp.gm_s / mp.imax_a, mp.imax_a, mp.gm_s, mp.gclamp_s, mp.head_high_v,
                              mp.head_low_v, 1.0 / (mp.ro_ohm * mp.ilim_a), mp.ilim_a, 1.0 / mp.ro_ohm))
@@ -343,7 +345,8 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
              record: tuple[str, ...] = ("osc", "load")) -> TransientResult:
     """Integrate the netlist from its DC operating point for cycles / f_hint seconds.
 
-    record: probe names of ``netlist.probes`` (or node names) whose voltages to keep.
+    record: probe names of ``netlist.probes`` (or node names) whose voltages to keep,
+    and ``iout:NAME`` for the output current (A, into the output node) of op-amp NAME.
     Steps of h = 1 / (f_hint points_per_cycle); BDF2 with Newton at each step.
     """
     if not cycles > 0:
@@ -355,7 +358,13 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     sysm = _System(netlist)
     n = sysm.n
     probe_idx: dict[str, int | None] = {}
+    currents: list[tuple[str, tuple]] = []
     for name in record:
+        if name.startswith("iout:"):
+            if name[5:] not in sysm.op_names:
+                raise ValueError(f"transient: unknown op-amp {name[5:]!r}")
+            currents.append((name, sysm.ops[sysm.op_names[name[5:]]]))
+            continue
         node = netlist.probes.get(name, name)
         if node == "0":
             probe_idx[name] = None
@@ -447,6 +456,14 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     for name, k in probe_idx.items():
         rec[name][0] = 0.0 if k is None else zc[k]
     rec_items = [(rec[name], k) for name, k in probe_idx.items() if k is not None]
+    # output current of an op-amp: ilim tanh((v_y - v_out) / (Ro ilim)), as stamped
+    cur_items = [(rec[name], op[2], op[6], op[13], op[14]) for name, op in currents]
+
+    def record_currents(step: int, z: np.ndarray) -> None:
+        for arr, io, iy, k_out, ilim in cur_items:
+            arr[step] = ilim * math.tanh(k_out * (z[iy] - z[io]))
+
+    record_currents(0, zc)
     bps = [b for b in sysm.breakpoints if 0.0 <= b < t[-1]]
     snap = 1e-3 * h
     for step in range(steps):
@@ -462,5 +479,7 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
             zp, hp = None, None      # a source edge at the step end: restart with backward Euler
         for arr, k in rec_items:
             arr[step + 1] = zc[k]
+        if cur_items:
+            record_currents(step + 1, zc)
     return TransientResult(t_s=t, v=rec, steps_split=stats["split"], newton_iterations=stats["iters"],
                            meta={"h_s": h, "steps": steps, "unknowns": n})

@@ -1,7 +1,9 @@
-"""The whole design job as one library call: ``design(spec, catalog)``.
+"""The whole design job as one library call: ``design(spec, catalog)``, and the exact
+evaluation of one BOM, ``evaluate_bom``. Receives parsed inputs and reads no files.
 
-spec + catalog -> search space -> CP-SAT proposals -> exact verification -> ranking.
-Each stage is timed (``Design.timings``) so benchmarks can report them.
+spec + catalog (+ stock) -> search space (from the plug-ins' hooks) -> CP-SAT proposals
+-> exact verification and Monte Carlo -> ranking. Each stage is timed
+(``Design.timings``) so benchmarks can report them.
 """
 
 from __future__ import annotations
@@ -13,17 +15,19 @@ from dataclasses import dataclass, field
 
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
+from partpick.circuits import TOPOLOGIES, check_spec, slots_for
 from partpick.errors import InfeasibleError
+from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
-from partpick.search import BUFFERED, Pick, Space, build_space, retune_arms, solve
+from partpick.search.solver import solve
+from partpick.search.space import Pick, Space, build_space
 from partpick.spec import Spec, check_parts
-from partpick.topologies.wien import DESIGNATORS
 from partpick.tolerance import with_yield
 from partpick.verify import verify
 
-__all__ = ["Design", "design", "pick_to_bom", "bom_cost", "evaluate_bom"]
+__all__ = ["Design", "design", "pick_to_bom", "evaluate_bom", "netlist_text"]
 
-RETUNE = 3  # leading candidates whose arms are retuned with the verified pull
+RETUNE = 3  # leading candidates whose frequency network is retuned with the verified pull
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,47 +45,30 @@ class Design:
 
 
 def pick_to_bom(p: Pick, spec: Spec, space: Space) -> Bom:
-    """The BOM of a solver pick (single supply adds the bias and coupling parts)."""
-    a, g, s = p.arms, p.gain, p.stage
-    d = DESIGNATORS
-    lines = [BomLine(d["rs"], "rs", a.r_family, a.rs), BomLine(d["cs"], "cs", a.c_family, a.cs),
-             BomLine(d["rp"], "rp", a.r_family, a.rp), BomLine(d["cp"], "cp", a.c_family, a.cp),
-             BomLine(d["rg"], "rg", g.r_family, g.rg), BomLine(d["rf"], "rf", g.r_family, g.rf)]
-    if g.rd > 0:
-        lines.append(BomLine(d["rd"], "rd", g.r_family, g.rd))
-    lines.append(BomLine(d["limiter"], "limiter", g.limiter, 0.0))
-    lines.append(BomLine(d["opamp"], "opamp", p.op.opamp, 0.0))
-    if s.kind in ("gain", "attenuator"):
-        lines += [BomLine(d["stage_ra"], "stage_ra", s.r_family, s.ra),
-                  BomLine(d["stage_rb"], "stage_rb", s.r_family, s.rb)]
-    if spec.supply.kind == "single":
-        (rfam, rb, _), (bcfam, cb, _), (ccfam, cc, _) = space.fixed_lines
-        lines += [BomLine(d["bias_top"], "bias_top", rfam, rb), BomLine(d["bias_bottom"], "bias_bottom", rfam, rb),
-                  BomLine(d["bias_c"], "bias_c", bcfam, cb), BomLine(d["coupling_c"], "coupling_c", ccfam, cc)]
-    return Bom(tuple(lines), spec.supply.kind, s.kind)
+    """The BOM of a solver pick: every slot of the circuit's shape filled from the
+    pick's options, the op-amp and (single supply) the fixed bias and coupling parts."""
+    caps = {s.role for s in TOPOLOGIES[space.topology].slots if s.kind == "capacitors"}
+    values = {**p.net.values, **p.ctl.values, **p.stage.values}
+    family = {role: (p.net.c_family if role in caps else p.net.r_family) for role in p.net.values}
+    family.update({role: p.ctl.r_family for role in p.ctl.values})
+    family.update({role: p.stage.r_family for role in p.stage.values})
+    actives = {**dict(p.ctl.parts), "opamp": p.op.opamp}
+    for role, fam, v in space.fixed:
+        family[role], values[role] = fam, v
+    lines = []
+    for slot in slots_for(space.topology, space.control, p.stage.kind, spec.supply.kind):
+        if slot.role in actives:
+            lines.append(BomLine(slot.designator, slot.role, actives[slot.role], 0.0))
+        elif values.get(slot.role):
+            lines.append(BomLine(slot.designator, slot.role, family[slot.role], values[slot.role]))
+    return Bom(tuple(lines), spec.supply.kind, p.stage.kind, space.topology, space.control)
 
 
-def bom_cost(bom: Bom, catalog: Catalog, stock=None) -> tuple[float, int]:
-    """Cost per board (unit prices plus one line price per distinct family and value,
-    priced as the search prices them, stock list included; a buffer on a single-channel
-    op-amp takes a second package) and the physical part count."""
-    from partpick.search import _line_price, _pricer
-
-    price = _pricer(catalog, stock)
-    qty = bom.uses()
-    op = catalog.find("opamps", bom.line("opamp").family)
-    if bom.stage in BUFFERED and op.channels == 1:
-        qty[(op.id, 0.0)] += 1
-    cost = sum(price(f, v) * n + _line_price(catalog, (f, v), stock) for (f, v), n in qty.items())
-    parts = sum(n * (catalog.find("limiters", f).parts if catalog.kind_of(f) == "limiters" else 1)
-                for (f, _v), n in qty.items())
-    return cost, parts + (1 if bom.stage in BUFFERED and op.channels > 1 else 0)
-
-
-def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_limit_s: float = 10.0,
+def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None, time_limit_s: float = 10.0,
            workers: int = 2, seed: int = 0, rank_by: tuple[str, ...] | None = None,
            samples: int = 20_000, progress=None) -> Design:
-    """Search, verify and rank candidates for ``spec`` from ``catalog``.
+    """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
+    list the spec names, already loaded, when it names one).
 
     Raises :class:`InfeasibleError` when no candidate can meet the spec, naming the
     requirement that binds and what is achievable. ``progress(done, total)`` is called
@@ -90,13 +77,9 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     check_parts(spec, catalog)
+    check_spec(spec)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
-    stock = None
-    if spec.stock is not None:
-        from partpick.stock import load_stock
-
-        stock = load_stock(spec.stock.path, catalog)
     space = build_space(spec, catalog, stock=stock)
     t1 = time.perf_counter()
     timings["enumerate"] = t1 - t0
@@ -118,17 +101,20 @@ def design(spec: Spec, catalog: Catalog, *, results: int | None = None, time_lim
 
     items = [verified(p) for p in picks]
     # The solver aimed with the surrogate's pull; verification measured the real one.
-    # Retune the arms of the leading candidates with it (same families, same required
-    # gain), so the built circuit lands closer still, and let verification judge again.
+    # Retune the frequency network of the leading candidates with it (same families, same
+    # required gain), so the built circuit lands closer still, and let verification judge
+    # again.
+    topo = TOPOLOGIES[space.topology]
+    price = Pricer(catalog).unit
     for r in rank(items, rank_by)[:RETUNE]:
         p = r.pick
         if not r.verdict.nominal.starts:
             continue
-        pull = math.log(r.verdict.nominal.freq_hz) - p.arms.ln_f0
+        pull = math.log(r.verdict.nominal.freq_hz) - p.net.ln_f0
         op = p.op
-        arms = retune_arms(spec, catalog, p.arms, pull, (math.exp(op.ln_r_min), math.exp(op.ln_r_max)))
-        if arms is not None:
-            items.append(verified(dataclasses.replace(p, arms=arms)))
+        net = topo.retune(spec, catalog, p.net, pull, (math.exp(op.ln_r_min), math.exp(op.ln_r_max)), price)
+        if net is not None:
+            items.append(verified(dataclasses.replace(p, net=net)))
     t3 = time.perf_counter()
     timings["verify"] = t3 - t2
     ranked = rank(items, rank_by)[:n]
@@ -175,3 +161,18 @@ def _verified_failure(ranked: list[Ranked]) -> str:
                       f"{c.high if c.high is not None else ''})" for c in best.verdict.failed())
     return (f"no verified candidate meets the spec; '{worst}' fails in {counts[worst]} of {len(ranked)}; "
             f"the best candidate misses {fails}")
+
+
+def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = None) -> str:
+    """The SPICE netlist of ``bom`` at the spec's nominal point, with a transient run of
+    ``cycles`` periods (default: enough to settle)."""
+    from partpick.circuits import build_netlist
+    from partpick.physics.spice import to_spice
+    from partpick.verify import operating_conditions, predict, transient_cycles_for
+
+    circuit = bom.to_circuit(catalog)
+    cond = operating_conditions(spec)["nominal"]
+    if cycles is None:
+        point = predict(circuit, cond)
+        cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
+    return to_spice(build_netlist(circuit, cond), cycles=cycles)

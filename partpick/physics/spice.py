@@ -1,4 +1,4 @@
-"""SPICE netlist export of an in-memory :class:`~partpick.physics.circuit.Netlist`.
+"""SPICE netlist text of an in-memory :class:`~partpick.physics.netlist.Netlist`.
 
 The text is plain SPICE (elements R, C, V, I, D, E, B, X, ``.subckt``, ``.model``,
 ``.options``, ``.tran``) so it runs in ngspice and, with at most small edits, in other
@@ -8,7 +8,7 @@ sources lack them); the optional ``.control`` block for batch runs (``linearize`
 ``wrdata``) is ngspice's own.
 
 The op-amp is emitted as a subcircuit that implements exactly the macro-model of
-:mod:`partpick.physics.circuit` (numbers from :func:`macro_params`), and the limiter
+:mod:`partpick.physics.opamp` (numbers from :func:`macro_params`), and the limiter
 as diodes whose parameters are those of :func:`partpick.physics.junction.junctions_at`,
 already evaluated at the netlist's temperature. ``.options TEMP = TNOM`` keeps SPICE
 from applying its own temperature law on top of that, so partpick's transient
@@ -24,9 +24,9 @@ import re
 
 from partpick import __version__
 from partpick.catalog import Limiter, OpAmp
-from partpick.physics.circuit import (Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource,
-                                      macro_params)
 from partpick.physics.junction import Junction, junctions_at
+from partpick.physics.netlist import Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
+from partpick.physics.opamp import macro_params
 
 __all__ = ["to_spice", "subckt_name", "model_name"]
 

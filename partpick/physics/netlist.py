@@ -1,24 +1,18 @@
 """An in-memory netlist: the one description of a candidate's circuit that both the
 SPICE exporter and partpick's own transient simulator read, so the two cannot drift.
 
-The op-amp is a behavioural macro-model (the classic two-stage form): a
-transconductance stage that saturates smoothly at the slew-rate current,
-i1 = SR C1 tanh(2 pi GBW vd / SR), into an integrator C1 || R1 (dominant pole at
-GBW / A0); the integrator node is clamped to the rails less the output headroom by a
-stiff restoring conductance; an optional second pole; and an output stage whose
-current saturates smoothly, i = Ilim tanh((vy - vout) / (Ro Ilim)), so the
-small-signal output resistance is Ro and the short-circuit current Ilim.
+Elements are plain records between named nodes ('0' is ground). The op-amp element
+stands for the behavioural macro-model of :mod:`partpick.physics.opamp`; the limiter
+element for a junction pair of :mod:`partpick.physics.junction`.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 from partpick.catalog import Limiter, OpAmp
 
-__all__ = ["Resistor", "Capacitor", "VSource", "Kick", "OpAmpX", "LimiterX", "Netlist", "MacroParams",
-           "macro_params"]
+__all__ = ["Resistor", "Capacitor", "VSource", "Kick", "OpAmpX", "LimiterX", "Netlist"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -108,39 +102,3 @@ class Netlist:
                 if n is not None and n != "0" and n not in seen:
                     seen.append(n)
         return tuple(seen)
-
-
-@dataclass(frozen=True, slots=True)
-class MacroParams:
-    """Numbers of the op-amp macro-model (see module docstring); SI units."""
-
-    c1_f: float
-    gm_s: float
-    r1_ohm: float
-    imax_a: float
-    gclamp_s: float
-    head_high_v: float
-    head_low_v: float
-    ro_ohm: float
-    ilim_a: float
-    pole2_hz: float | None
-
-
-def macro_params(op: OpAmp) -> MacroParams:
-    """Macro-model values from catalog data: C1 = 1 nF sets the scale; gm = 2 pi GBW C1,
-    R1 = A0 / gm, slew current SR C1; the clamp conductance is 100 gm, so clamping acts
-    a hundred times faster than the unity-gain frequency."""
-    c1 = 1e-9
-    gm = 2 * math.pi * op.gbw_hz * c1
-    return MacroParams(
-        c1_f=c1,
-        gm_s=gm,
-        r1_ohm=op.a0 / gm,
-        imax_a=op.slew_v_per_s * c1,
-        gclamp_s=100 * gm,
-        head_high_v=op.headroom_high_v,
-        head_low_v=op.headroom_low_v,
-        ro_ohm=max(op.output_resistance_ohm, 1e-3),
-        ilim_a=op.output_current_a,
-        pole2_hz=op.second_pole_hz,
-    )

@@ -1,0 +1,158 @@
+"""What can be built: the registry of topologies and amplitude controls, and the few
+functions that assemble a circuit from its plug-ins (its netlist, its loop, its branch).
+
+Every plug-in is one module of this package with the same shape (see DEVELOPERS.md,
+"Adding a topology" and "Adding an amplitude control"); this file lists them. Spec
+validation (:func:`check_spec`) and the BOM roles (:func:`all_slots`) come from here.
+"""
+
+from __future__ import annotations
+
+import math
+
+from partpick.circuits import clipping, diode_limiter, periphery, wien
+from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
+from partpick.errors import SpecError
+from partpick.physics.harmonic import BalanceResult, harmonic_balance
+from partpick.physics.linear import LinearResult, analyse_linear
+from partpick.physics.loop import Branch, Loop
+from partpick.physics.netlist import Kick, Netlist
+
+__all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
+           "topology", "control", "all_slots", "slots_for", "control_for_roles", "check_spec", "make_circuit",
+           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn"]
+
+TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY,)}
+CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, clipping.CONTROL)}
+
+
+def topology(name: str):
+    """The topology plug-in called ``name`` (KeyError when unknown)."""
+    return TOPOLOGIES[name]
+
+
+def control(name: str):
+    """The amplitude-control plug-in called ``name`` (KeyError when unknown)."""
+    return CONTROLS[name]
+
+
+def all_slots() -> dict[str, Slot]:
+    """Every role any plug-in declares, role -> slot (roles are unique across plug-ins:
+    the conformance test checks it)."""
+    out: dict[str, Slot] = {}
+    for plug in (*TOPOLOGIES.values(), *CONTROLS.values()):
+        for s in plug.slots:
+            out.setdefault(s.role, s)
+    for s in periphery.SLOTS:
+        out.setdefault(s.role, s)
+    return out
+
+
+def slots_for(topology_name: str, control_name: str, stage: str, supply_kind: str) -> tuple[Slot, ...]:
+    """The slots of one circuit shape, in BOM order: the topology's, the control's,
+    then the periphery's."""
+    return (*TOPOLOGIES[topology_name].slots, *CONTROLS[control_name].slots,
+            *periphery.slots_for(stage, supply_kind))
+
+
+def designators() -> dict[str, str]:
+    """Role -> reference designator, shared by BOM, netlist and report."""
+    return {role: s.designator for role, s in all_slots().items()}
+
+
+def control_for_roles(topology_name: str, roles) -> str:
+    """The amplitude control whose required slots a set of BOM roles holds (the
+    clipping 'none' control when no other fits)."""
+    roles = set(roles)
+    for name, ctl in CONTROLS.items():
+        needed = {s.role for s in ctl.slots if not s.optional}
+        if needed and needed <= roles:
+            return name
+    return clipping.CONTROL.name
+
+
+def check_spec(spec) -> None:
+    """Refuse a spec whose topology the registry does not hold, naming its line."""
+    if spec.topology not in TOPOLOGIES:
+        raise SpecError(f"must be one of {', '.join(TOPOLOGIES)} (got '{spec.topology}')",
+                        source=spec.source, line=spec.line_of("topology"), field="topology")
+
+
+def make_circuit(topology_name: str, control_name: str, values: dict, parts: dict, *, stage: str = "none",
+                 supply_kind: str = "dual") -> Circuit:
+    """A circuit from plug-in names, values by role (ohm, F; zero values of optional
+    slots dropped) and catalog records by role."""
+    vals = {k: float(v) for k, v in values.items() if v}
+    return Circuit(TOPOLOGIES[topology_name], CONTROLS[control_name], Values(vals),
+                   Values({k: v for k, v in parts.items() if v is not None}), stage, supply_kind)
+
+
+# -- assembly -----------------------------------------------------------------------------------
+
+def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netlist:
+    """The circuit of ``c`` at ``cond`` as elements (see :mod:`partpick.physics.netlist`):
+    supplies and bias, the topology's core, the control at its port, the output stage
+    and load. A kick of charge C * kick_v into the topology's kick node at t = 0 starts
+    the oscillation from the DC operating point."""
+    els, ref, neg = periphery.supplies(c, cond)
+    core = c.topology.netlist(c, ref, neg)
+    els += list(core.elements)
+    a, b = core.ports[c.control.port]
+    els += c.control.netlist(c, a, b)
+    out_els, load = periphery.output(c, cond, core.out, ref, neg)
+    els += out_els
+    f_hint = c.f0_hz
+    els.append(Kick("IKICK", core.kick_node, core.kick_cap_f * kick_v, 0.0, 0.02 / f_hint))
+    return Netlist(
+        title=f"partpick {c.topology.title}, f0 {f_hint:.6g} Hz",
+        elements=tuple(els),
+        temp_k=cond.temp_k,
+        f_hint_hz=f_hint,
+        probes={"osc": core.out, "load": load},
+    )
+
+
+def build_loop(c: Circuit, cond: Conditions, w_ref: float | None = None) -> Loop:
+    """The loop of ``c`` at ``cond``, seen from its control's port."""
+    return c.topology.loop(c, cond, w_ref)
+
+
+def branch(c: Circuit, temp_k: float) -> Branch:
+    """The control branch of ``c`` at temp_k (K)."""
+    return c.control.branch(c, temp_k)
+
+
+def linear(c: Circuit, cond: Conditions, loop: Loop | None = None) -> LinearResult:
+    """Poles, startup, margin and marginal frequency of ``c`` at ``cond``."""
+    return analyse_linear(loop or build_loop(c, cond), branch(c, cond.temp_k))
+
+
+def balance(c: Circuit, cond: Conditions, lin: LinearResult, *, loop: Loop | None = None,
+            start: BalanceResult | None = None, kmax: int = 21) -> BalanceResult | None:
+    """Harmonic balance of ``c`` at ``cond`` (None without a nonlinear branch, or when
+    it cannot settle the amplitude)."""
+    br = branch(c, cond.temp_k)
+    if br.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
+        return None
+    return harmonic_balance(loop or build_loop(c, cond), br, lin, cond.rails(c.supply_kind), kmax=kmax, start=start)
+
+
+def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, float]:
+    """d ln fn / d ln value of each role (central differences of step h, relative),
+    for the roles where it is not zero: the direction each part's tolerance moves fn.
+    ``values`` maps role -> value; ``fn`` is one of a topology's equations."""
+    base = dict(values)
+    out: dict[str, float] = {}
+    for role in roles if roles is not None else tuple(base):
+        v = base[role]
+        up = float(fn({**base, role: v * (1 + h)}))
+        dn = float(fn({**base, role: v * (1 - h)}))
+        s = (math.log(up) - math.log(dn)) / (math.log1p(h) - math.log1p(-h))
+        if abs(s) > 1e-9:
+            out[role] = s
+    return out
+
+
+def margin_fn(topo):
+    """The ideal-op-amp loop-gain ratio gain / required gain as a function of values."""
+    return lambda v: topo.gain(v) / topo.required_gain(v)

@@ -1,0 +1,277 @@
+"""The periphery every topology shares: the op-amp type, the output stage that drives
+the load, and on a single supply the mid-rail bias and the output coupling capacitor.
+
+Output stages: 'none' (the oscillator output drives the load), 'follower' (a unity-gain
+buffer on a spare op-amp channel), 'gain' (a non-inverting stage, gain 1 + Rb/Ra, Ra to
+the reference), 'attenuator' (Ra in series, Rb to the reference). On a single supply a
+divider of two equal resistors decoupled by a capacitor makes the mid-rail reference
+and a coupling capacitor feeds the ground-referenced load.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from partpick.circuits.base import Circuit, Conditions, Slot, Values
+from partpick.circuits.options import AMP_SLOPE_MAX, DM_MAX, StageOption, merge_lines, nearest, values_of
+from partpick.errors import InfeasibleError
+from partpick.physics.netlist import Capacitor, OpAmpX, Resistor, VSource
+from partpick.physics.opamp import open_loop_gain, output_resistance
+from partpick.physics.rational import Rational, const, parallel
+
+__all__ = ["SLOTS", "BUFFERED", "STAGE_ROLES", "BIAS_ROLES", "stage_gain", "has_buffer", "slots_for",
+           "supplies", "output", "output_admittance", "to_load", "channels_used", "stage_load_admittance",
+           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts"]
+
+SLOTS = (
+    Slot("opamp", "opamps", "U1", "op-amp (every channel of the circuit)"),
+    Slot("stage_ra", "resistors", "R6", "output stage: gain-setting resistor to the reference, or series resistor"),
+    Slot("stage_rb", "resistors", "R7", "output stage: feedback resistor, or shunt resistor"),
+    Slot("bias_top", "resistors", "R8", "mid-rail bias divider, upper resistor"),
+    Slot("bias_bottom", "resistors", "R9", "mid-rail bias divider, lower resistor"),
+    Slot("bias_c", "capacitors", "C3", "mid-rail bias decoupling capacitor"),
+    Slot("coupling_c", "capacitors", "C4", "output coupling capacitor"),
+)
+BUFFERED = ("follower", "gain")            # stages that take an op-amp channel
+STAGE_ROLES = ("stage_ra", "stage_rb")
+BIAS_ROLES = ("bias_top", "bias_bottom", "bias_c", "coupling_c")
+
+
+def slots_for(stage: str, supply_kind: str) -> tuple[Slot, ...]:
+    """The periphery slots a circuit with this stage and supply uses."""
+    roles = ["opamp"]
+    if stage in ("gain", "attenuator"):
+        roles += list(STAGE_ROLES)
+    if supply_kind == "single":
+        roles += list(BIAS_ROLES)
+    return tuple(s for s in SLOTS if s.role in roles)
+
+
+def has_buffer(c: Circuit) -> bool:
+    """The output stage takes an op-amp channel of its own."""
+    return c.stage in BUFFERED
+
+
+def channels_used(c: Circuit) -> int:
+    """Op-amp channels the whole circuit needs: the topology's plus the buffer's."""
+    return c.topology.channels + (1 if has_buffer(c) else 0)
+
+
+def stage_gain(c: Circuit) -> float:
+    """Ideal, unloaded gain of the output stage, V/V."""
+    ra, rb = c.value("stage_ra"), c.value("stage_rb")
+    if c.stage == "gain":
+        return 1.0 + rb / ra
+    if c.stage == "attenuator":
+        return rb / (ra + rb)
+    return 1.0
+
+
+# -- netlist ------------------------------------------------------------------------------------
+
+def supplies(c: Circuit, cond: Conditions) -> tuple[list, str, str]:
+    """The supply sources and, on a single supply, the bias network: (elements, the
+    signal reference node, the negative rail node)."""
+    vcc, vee, _ = cond.rails(c.supply_kind)
+    els: list = [VSource("VCC", "vcc", "0", vcc)]
+    if c.supply_kind == "dual":
+        els.append(VSource("VEE", "vee", "0", vee))
+        return els, "0", "vee"
+    rb = c.value("bias_top")
+    els += [Resistor("R8", "vcc", "mid", rb), Resistor("R9", "mid", "0", c.value("bias_bottom", rb)),
+            Capacitor("C3", "mid", "0", c.value("bias_c"))]
+    return els, "mid", "0"
+
+
+def output(c: Circuit, cond: Conditions, drive: str, ref: str, neg: str, channel: str = "U1B") -> tuple[list, str]:
+    """The output stage from node ``drive``, the coupling capacitor and the load:
+    (elements, the load node)."""
+    els: list = []
+    op = c.opamp
+    if c.stage == "follower":
+        els.append(OpAmpX(channel, drive, "so", "so", "vcc", neg, op))
+        drive = "so"
+    elif c.stage == "gain":
+        els += [OpAmpX(channel, drive, "sn", "so", "vcc", neg, op),
+                Resistor("R6", "sn", ref, c.value("stage_ra")),
+                Resistor("R7", "sn", "so", c.value("stage_rb"))]
+        drive = "so"
+    elif c.stage == "attenuator":
+        els += [Resistor("R6", drive, "ao", c.value("stage_ra")),
+                Resistor("R7", "ao", ref, c.value("stage_rb"))]
+        drive = "ao"
+    load = drive
+    if c.supply_kind == "single":
+        load = "load"
+        els.append(Capacitor("C4", drive, "load", c.value("coupling_c")))
+        if math.isinf(cond.load_r_ohm):
+            els.append(Resistor("RBLEED", "load", "0", 1e7))  # DC path for the open load
+    if not math.isinf(cond.load_r_ohm):
+        els.append(Resistor("RLOAD", load, "0", cond.load_r_ohm))
+    if cond.load_c_f > 0:
+        els.append(Capacitor("CLOAD", load, "0", cond.load_c_f))
+    return els, load
+
+
+# -- small-signal contributions -------------------------------------------------------------------
+
+def impedance_c(c_f: float, w_ref: float) -> Rational:
+    """Impedance 1 / (s C) in p = s / w_ref."""
+    return Rational(np.array([1.0]), np.array([0.0, w_ref * c_f]))
+
+
+def admittance_c(c_f: float, w_ref: float) -> Rational:
+    """Admittance s C in p."""
+    return Rational(np.array([0.0, w_ref * c_f]), np.array([1.0]))
+
+
+def _load_z(cond: Conditions, w_ref: float, single: bool) -> Rational | None:
+    """Impedance of the load itself (R || C), None when open with no capacitance."""
+    r = cond.load_r_ohm if not math.isinf(cond.load_r_ohm) else (1e7 if single else math.inf)
+    y = const(0.0 if math.isinf(r) else 1.0 / r)
+    if cond.load_c_f > 0:
+        y = y + admittance_c(cond.load_c_f, w_ref)
+    if not np.any(y.num):
+        return None
+    return y.inv()
+
+
+def _driven_z(c: Circuit, cond: Conditions, w_ref: float) -> Rational | None:
+    """Impedance seen at the node that drives the load (coupling capacitor included)."""
+    zl = _load_z(cond, w_ref, c.supply_kind == "single")
+    if zl is None:
+        return None
+    if c.supply_kind == "single":
+        return impedance_c(c.value("coupling_c"), w_ref) + zl
+    return zl
+
+
+def output_admittance(c: Circuit, cond: Conditions, w_ref: float) -> Rational | None:
+    """Admittance the output stage and load put on the oscillator's output node, S
+    (None when a buffer isolates them or the load is open)."""
+    zd = _driven_z(c, cond, w_ref)
+    if c.stage == "none" and zd is not None:
+        return zd.inv()
+    if c.stage == "attenuator":
+        rb = const(c.value("stage_rb"))
+        shunt = rb if zd is None else parallel(rb, zd)
+        return (const(c.value("stage_ra")) + shunt).inv()
+    return None
+
+
+def to_load(c: Circuit, cond: Conditions, w_ref: float) -> Rational:
+    """Transfer from the oscillator output to the load, V/V (output stage and coupling)."""
+    zl = _load_z(cond, w_ref, c.supply_kind == "single")
+    zd = _driven_z(c, cond, w_ref)
+    coupling = const(1.0) if (c.supply_kind == "dual" or zl is None) else zl / zd
+    if c.stage == "none":
+        return coupling
+    if c.stage == "attenuator":
+        rb = const(c.value("stage_rb"))
+        shunt = rb if zd is None else parallel(rb, zd)
+        return shunt / (const(c.value("stage_ra")) + shunt) * coupling
+    a = open_loop_gain(c.opamp, w_ref)
+    ro = output_resistance(c.opamp)
+    yl = const(0.0) if zd is None else zd.inv()
+    b = const(1.0)
+    if c.stage == "gain":
+        ra, rb = c.value("stage_ra"), c.value("stage_rb")
+        b = const(ra / (ra + rb))
+        yl = yl + const(1.0 / (ra + rb))
+    # Vso (1 + Ro Yl) = A (Vin - b Vso)
+    return a / (const(1.0) + yl.scale(ro) + a * b) * coupling
+
+
+def stage_load_admittance(c: Circuit, load_r_ohm: float, load_c_f: float, f_hz: float) -> float:
+    """Magnitude of what the buffer channel drives at f_hz (Hz): the load and, for a gain
+    stage, its own feedback divider, S."""
+    y = (0.0 if math.isinf(load_r_ohm) else 1 / load_r_ohm) + 2 * math.pi * f_hz * load_c_f
+    if c.stage == "gain":
+        y += 1 / (c.value("stage_ra") + c.value("stage_rb"))
+    return y
+
+
+# -- search hooks ---------------------------------------------------------------------------------
+
+def stage_options(spec, rf, kinds: tuple[str, ...], shelf=None) -> list[StageOption]:
+    """Output stages of one resistor family, with their gain into the load."""
+    r_load = spec.load.resistance_ohm
+    y_load = (0.0 if math.isinf(r_load) else 1 / r_load) + 2 * math.pi * spec.frequency.target_hz * spec.load.capacitance_f
+    ln_y = math.log(max(y_load, 1e-9))
+    values = [v for v in values_of(rf, shelf) if 1e3 <= v <= 1e6]
+    out = []
+    if not values:
+        kinds = tuple(k for k in kinds if k in ("none", "follower"))
+    base = nearest(values, 10e3) if values else 0.0
+    if "none" in kinds:
+        out.append(StageOption("none", Values(), rf.id, 0.0, ln_y, ()))
+    if "follower" in kinds:
+        out.append(StageOption("follower", Values(), rf.id, 0.0, -20.0, ()))
+    if "gain" in kinds:
+        for rb in values:
+            gain = 1 + rb / base
+            if 1.05 <= gain <= 8:
+                out.append(StageOption("gain", Values({"stage_ra": base, "stage_rb": rb}), rf.id, math.log(gain),
+                                       -20.0, merge_lines([(rf.id, base, 1), (rf.id, rb, 1)])))
+    if "attenuator" in kinds:
+        for ra in values:
+            shunt = base if math.isinf(r_load) else base * r_load / (base + r_load)
+            gain = shunt / (ra + shunt)
+            if 0.05 <= gain <= 0.95:
+                out.append(StageOption("attenuator", Values({"stage_ra": ra, "stage_rb": base}), rf.id,
+                                       math.log(gain), -math.log(ra + shunt),
+                                       merge_lines([(rf.id, ra, 1), (rf.id, base, 1)])))
+    return out
+
+
+def useful_stages(stages: list[StageOption], ctls, rfams, a) -> list[StageOption]:
+    """The stages worth offering: 'none' and 'follower' once, and from the cheapest
+    family's scaling stages the few whose gain maps some control option's amplitude
+    nearest the target (the others only repeat what those do at the same cost)."""
+    cheapest = min(rfams, key=lambda r: r.price_unit).id
+    out, seen = [], set()
+    for s in stages:
+        if s.kind in ("none", "follower") and s.kind not in seen:
+            seen.add(s.kind)
+            out.append(s)
+    want = math.log(a.peak_v)
+    scaling = [s for s in stages if s.kind in ("gain", "attenuator") and s.r_family == cheapest]
+    chosen: set[int] = set()
+    for g in ctls:
+        need = want - g.ln_amp
+        if abs(need) < 0.02:
+            continue  # no stage needed for this one
+        near = sorted(range(len(scaling)), key=lambda i: abs(scaling[i].ln_gain - need))[:2]
+        chosen.update(i for i in near if abs(scaling[i].ln_gain - need) < 0.05 + AMP_SLOPE_MAX * DM_MAX / 4)
+    return out + [scaling[i] for i in sorted(chosen)]
+
+
+def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str, float], ...]:
+    """Single supply: the mid-rail divider, its decoupling and the output coupling
+    capacitor (the same for every candidate), as (role, family, value)."""
+    if spec.supply.kind != "single":
+        return ()
+    fam = min(rfams, key=lambda r: r.price_unit)
+    rb = nearest(fam.values(), 47e3)
+    if shelf is not None:
+        on = [(r.id, v) for r in rfams for v in r.values() if shelf.quantity(r.id, v) >= 2 * spec.builds]
+        if on:
+            fid, rb = min(on, key=lambda k: abs(math.log(k[1] / 47e3)))
+            fam = catalog.find("resistors", fid)
+    caps = [c for c in catalog.capacitors if spec.parts.capacitors is None or c.id in spec.parts.capacitors]
+    f = spec.frequency.target_hz
+    need_b = 100 / (2 * math.pi * f * rb / 2)       # bias corner a hundredth of f
+    r_load = spec.load.resistance_ohm if not math.isinf(spec.load.resistance_ohm) else 1e7
+    need_c = 10 / (2 * math.pi * f * r_load)        # coupling corner a tenth of f: under 0.5 % loss
+    out = [("bias_top", fam.id, rb), ("bias_bottom", fam.id, rb)]
+    for role, need in (("bias_c", need_b), ("coupling_c", need_c)):
+        options = [(price(c.id, v), c.id, v) for c in caps for v in c.values() if v >= need
+                   and c.voltage_v >= spec.supply.max_v and (shelf is None or shelf.quantity(c.id, v) >= spec.builds)]
+        if not options:
+            raise InfeasibleError(f"no allowed capacitor reaches {need * 1e6:.3g} uF for the single-supply bias "
+                                  f"and coupling at {f:g} Hz", ("parts",))
+        _, cid, v = min(options)
+        out.append((role, cid, v))
+    return tuple(out)

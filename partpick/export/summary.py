@@ -1,0 +1,130 @@
+"""What ``partpick design`` prints and writes: the ranked table, the #1 bill of
+materials, and the machine forms (JSON, CSV, YAML) of the ranked candidates."""
+
+from __future__ import annotations
+
+import json
+
+from partpick import units
+from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
+from partpick.export.table import render_table
+from partpick.export.verdict import check_json, worst_line
+from partpick.pricing import Pricer
+
+__all__ = ["summary", "design_table", "design_json", "design_csv", "design_yaml", "bom_note", "candidate_json",
+           "bom_rows", "design_output"]
+
+
+def summary(r) -> dict:
+    """The figures of one ranked candidate, SI units and fractions."""
+    v = r.verdict
+    p = v.nominal
+    return {
+        "passed": v.passed,
+        "frequency_hz": p.freq_hz, "frequency_error": r.freq_error,
+        "amplitude_load_peak_v": p.load_peak_v, "amplitude_error": r.amp_error,
+        "thd": r.thd, "startup_margin": p.lin.margin, "worst_corner_margin": v.worst_margin,
+        "yield": r.yield_frac, "yield_shares": r.mc.share if r.mc else None,
+        "monte_carlo": r.mc.stats if r.mc else None, "samples": r.mc.samples if r.mc else 0,
+        "worst_case": r.worst,
+        "cost": r.cost, "parts": r.parts, "stage": r.bom.stage,
+        "failed": [c.name for c in v.failed()],
+    }
+
+
+def _bom_json(bom) -> list[dict]:
+    return [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value} for ln in bom.lines]
+
+
+def bom_rows(r, catalog) -> list[list]:
+    """Rows of the BOM table: ref, role, value, family, unit price (the catalog price the
+    search used; a limiter: its pair)."""
+    price = Pricer(catalog).unit
+    rows = []
+    for ln in r.bom.lines:
+        dim = ROLES[ln.role][1]
+        value = units.format_quantity(ln.value, dim, 3) if dim else ""
+        rows.append([ln.ref, ln.role, value, ln.family, f"{price(ln.family, ln.value):.3f}"])
+    return rows
+
+
+def design_table(d, catalog, spec) -> str:
+    """The ranked candidates as a table, then the #1 bill of materials and its cautions."""
+    lines = []
+    rows = []
+    for i, r in enumerate(d.ranked, 1):
+        s = summary(r)
+        lim = r.bom.control_part()
+        rows.append([i, "pass" if s["passed"] else "FAIL", f"{s['frequency_hz']:.6g} Hz",
+                     f"{s['frequency_error'] * 100:+.3f} %",
+                     f"{s['amplitude_load_peak_v'] * 2:.4g} Vpp", f"{s['thd'] * 100:.2f} %",
+                     f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
+                     f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim.family if lim else "-",
+                     r.bom.stage])
+    lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
+                               f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
+                              right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
+    best = d.ranked[0]
+    lines.append("")
+    lines.append(f"#1 bill of materials (textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g}, "
+                 f"needs {best.circuit.required_gain:.4g}):")
+    lines.append(render_table(["ref", "role", "value", "family", f"unit {catalog.currency}"], bom_rows(best, catalog),
+                              right=(4,), indent="  "))
+    for caution in best.verdict.cautions:
+        lines.append(f"caution: {caution}")
+    return "\n".join(lines)
+
+
+def design_json(spec_path, d) -> str:
+    return json.dumps({"spec": str(spec_path), "candidates": [
+        {"rank": i, **summary(r), "bom": _bom_json(r.bom)} for i, r in enumerate(d.ranked, 1)],
+        "timings_s": d.timings}, indent=2, default=lambda x: None)
+
+
+def design_csv(d) -> str:
+    out = ["rank,ref,role,family,value"]
+    for i, r in enumerate(d.ranked, 1):
+        rows = [row for row in bom_to_csv(r.bom).splitlines() if not row.startswith("#")][1:]
+        out += [f"{i},{row}" for row in rows]
+    return "\n".join(out)
+
+
+def design_yaml(spec_path, d) -> str:
+    return "\n".join(bom_to_yaml(r.bom, header=f"rank {i} for {spec_path}") for i, r in enumerate(d.ranked, 1))
+
+
+def bom_note(spec_path, i: int, r) -> str:
+    """The header of a written BOM file: where it came from and what it predicts."""
+    s_ = summary(r)
+    note = (f"partpick design {spec_path}, rank {i}: {'meets' if s_['passed'] else 'misses'} the spec\n"
+            f"predicted {s_['frequency_hz']:.6g} Hz ({s_['frequency_error'] * 100:+.3f} %), "
+            f"{2 * s_['amplitude_load_peak_v']:.4g} Vpp at the load, THD {s_['thd'] * 100:.2f} %\n"
+            f"yield {s_['yield']:.1%} ({s_['samples']} Monte Carlo builds)")
+    if r.worst:
+        note += "\n" + worst_line(r.worst)
+    return note
+
+
+def candidate_json(i: int, r) -> str:
+    """One candidate with its verdict, as written beside its BOM file."""
+    return json.dumps({"rank": i, **summary(r), "checks": [check_json(c) for c in r.verdict.checks],
+                       "cautions": list(r.verdict.cautions), "bom": _bom_json(r.bom)}, indent=2,
+                      default=lambda x: None)
+
+
+def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bool = False,
+                  verbose: bool = False) -> str:
+    """What ``partpick design`` prints in format ``fmt`` (text, json, csv, yaml)."""
+    if fmt == "json":
+        return design_json(spec_path, d)
+    if fmt == "csv":
+        return design_csv(d)
+    if fmt == "yaml":
+        return design_yaml(spec_path, d)
+    lines = [f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
+             f"(ranked by {', '.join(keys or spec.rank_by)})"]
+    if not quiet:
+        lines.append(design_table(d, catalog, spec))
+    if verbose:
+        lines.append("time per stage: " + ", ".join(f"{k} {v:.2f} s" for k, v in d.timings.items()))
+    return "\n".join(lines)

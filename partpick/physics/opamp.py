@@ -1,0 +1,113 @@
+"""The op-amp, one model for every circuit: open-loop gain A(s), the macro-model the
+transient simulator and the SPICE export share, the output swing, and the one rule that
+says when the linear model stops holding (swing, slew, current).
+
+Small signal: A(s) = A0 wa / (s + wa) [* w2 / (s + w2)], wa = 2 pi GBW / A0 (dominant
+pole, optional second pole), output resistance Ro. Large signal (the macro-model, the
+classic two-stage form): a transconductance stage that saturates smoothly at the
+slew-rate current, i1 = SR C1 tanh(2 pi GBW vd / SR), into an integrator C1 || R1
+(dominant pole at GBW / A0); the integrator node clamped to the rails less the output
+headroom by a stiff restoring conductance; an optional second pole; an output stage
+whose current saturates smoothly, i = Ilim tanh((vy - vout) / (Ro Ilim)), so the
+small-signal output resistance is Ro and the short-circuit current Ilim.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from partpick.catalog import OpAmp
+from partpick.physics.rational import Rational
+
+__all__ = ["open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
+           "SLEW_SHARE", "CURRENT_SHARE"]
+
+# The linear model holds while the signal's slew stays under this share of the slew rate
+# and the output current under this share of the current limit (beyond them the output
+# stage distorts; common practice, no published source).
+SLEW_SHARE = 0.2
+CURRENT_SHARE = 0.7
+
+
+def output_resistance(op: OpAmp) -> float:
+    """Open-loop output resistance, ohm (at least 1 mohm, so an ideal part stays regular)."""
+    return max(op.output_resistance_ohm, 1e-3)
+
+
+def open_loop_gain(op: OpAmp, w_ref: float) -> Rational:
+    """Open-loop gain A(p), p = s / w_ref (w_ref in rad/s): A0 wa / (s + wa)
+    [* w2 / (s + w2)], wa = 2 pi GBW / A0."""
+    a = 2 * math.pi * op.gbw_hz / op.a0 / w_ref
+    out = Rational(np.array([op.a0 * a]), np.array([a, 1.0]))
+    if op.second_pole_hz is not None:
+        b = 2 * math.pi * op.second_pole_hz / w_ref
+        out = out * Rational(np.array([b]), np.array([b, 1.0]))
+    return out
+
+
+@dataclass(frozen=True, slots=True)
+class MacroParams:
+    """Numbers of the op-amp macro-model (see module docstring); SI units."""
+
+    c1_f: float
+    gm_s: float
+    r1_ohm: float
+    imax_a: float
+    gclamp_s: float
+    head_high_v: float
+    head_low_v: float
+    ro_ohm: float
+    ilim_a: float
+    pole2_hz: float | None
+
+
+def macro_params(op: OpAmp) -> MacroParams:
+    """Macro-model values from catalog data: C1 = 1 nF sets the scale; gm = 2 pi GBW C1,
+    R1 = A0 / gm, slew current SR C1; the clamp conductance is 100 gm, so clamping acts
+    a hundred times faster than the unity-gain frequency."""
+    c1 = 1e-9
+    gm = 2 * math.pi * op.gbw_hz * c1
+    return MacroParams(
+        c1_f=c1,
+        gm_s=gm,
+        r1_ohm=op.a0 / gm,
+        imax_a=op.slew_v_per_s * c1,
+        gclamp_s=100 * gm,
+        head_high_v=op.headroom_high_v,
+        head_low_v=op.headroom_low_v,
+        ro_ohm=output_resistance(op),
+        ilim_a=op.output_current_a,
+        pole2_hz=op.second_pole_hz,
+    )
+
+
+def swing_limits(op: OpAmp, rails: tuple[float, float, float]) -> tuple[float, float]:
+    """(lowest, highest) output voltage relative to the signal reference, V, for rails
+    (positive rail, negative rail, reference) in V: each rail less its headroom."""
+    vcc, vee, ref = rails
+    return vee + op.headroom_low_v - ref, vcc - op.headroom_high_v - ref
+
+
+def regime(op: OpAmp, x_min_v: float, x_max_v: float, slew_v_per_s: float, limits: tuple[float, float], *,
+           near_v: float = 0.0, iout_peak_a: float | None = None) -> str:
+    """Which limit the op-amp's output meets: 'swing' when it comes within near_v (V) of
+    a swing limit, else 'slew' when its slew exceeds SLEW_SHARE of the slew rate, else
+    'current' when iout_peak_a (A, when given) exceeds CURRENT_SHARE of the current
+    limit, else 'limiter' (the linear model holds and the amplitude control sets the
+    amplitude). A simulated output settles a little inside the internal clamp (by the
+    drop across Ro), hence near_v."""
+    lo, hi = limits
+    if near_v > 0:
+        clipped = x_max_v >= hi - near_v or x_min_v <= lo + near_v
+    else:
+        clipped = x_max_v > hi or x_min_v < lo
+    if clipped:
+        return "swing"
+    if slew_v_per_s > SLEW_SHARE * op.slew_v_per_s:
+        return "slew"
+    if iout_peak_a is not None and iout_peak_a > CURRENT_SHARE * op.output_current_a:
+        return "current"
+    return "limiter"

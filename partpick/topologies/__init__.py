@@ -1,1 +1,0 @@
-"""Oscillator topologies, one module each: slots, equations and netlist."""
