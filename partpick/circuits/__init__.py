@@ -13,7 +13,7 @@ import math
 from partpick.circuits import clipping, diode_limiter, periphery, wien
 from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
 from partpick.errors import SpecError
-from partpick.physics.harmonic import BalanceResult, harmonic_balance
+from partpick.physics.harmonic import BalanceResult
 from partpick.physics.linear import LinearResult, analyse_linear
 from partpick.physics.loop import Branch, Loop
 from partpick.physics.netlist import Kick, Netlist
@@ -129,12 +129,12 @@ def linear(c: Circuit, cond: Conditions, loop: Loop | None = None) -> LinearResu
 
 def balance(c: Circuit, cond: Conditions, lin: LinearResult, *, loop: Loop | None = None,
             start: BalanceResult | None = None, kmax: int = 21) -> BalanceResult | None:
-    """Harmonic balance of ``c`` at ``cond`` (None without a nonlinear branch, or when
-    it cannot settle the amplitude)."""
-    br = branch(c, cond.temp_k)
-    if br.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
+    """The settled oscillation of ``c`` at ``cond`` as its amplitude control finds it
+    (harmonic balance for a limiter); None when the control sets no amplitude (then the
+    op-amp's swing does, and the transient simulation must answer)."""
+    if not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
-    return harmonic_balance(loop or build_loop(c, cond), br, lin, cond.rails(c.supply_kind), kmax=kmax, start=start)
+    return c.control.balance(c, cond, loop or build_loop(c, cond), lin, kmax=kmax, start=start)
 
 
 def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, float]:

@@ -222,7 +222,13 @@ class AmplitudeControl(Protocol):
     port: str
 
     def branch(self, c: Circuit, temp_k: float):
-        """The control branch (:class:`partpick.physics.loop.Branch`) at temp_k (K)."""
+        """The control branch (:class:`partpick.physics.loop.Branch`) at temp_k (K):
+        its small-signal form is what the linear analysis closes the loop with."""
+
+    def balance(self, c: Circuit, cond: Conditions, loop, lin, *, kmax: int = 21, start=None):
+        """The settled oscillation (:class:`partpick.physics.harmonic.BalanceResult`) at
+        ``cond`` given the loop and its linear analysis, or None when the control does
+        not set the amplitude (the transient simulation then answers)."""
 
     def netlist(self, c: Circuit, a: str, b: str) -> list:
         """Elements of the control between port nodes a and b."""

@@ -20,6 +20,10 @@ class Clipping:
     def branch(self, c: Circuit, temp_k: float) -> Branch:
         return Branch(None)
 
+    def balance(self, c: Circuit, cond, loop, lin, *, kmax: int = 21, start=None):
+        """No control sets the amplitude: the op-amp's swing does (transient only)."""
+        return None
+
     def netlist(self, c: Circuit, a: str, b: str) -> list:
         return []
 

@@ -57,6 +57,12 @@ class DiodeLimiter:
         g0 = float(table.conductance([0.0])[0])
         return Branch(table, rd, pair_capacitance(lim), g0, limiter_table(lim, rd, temp_k))
 
+    def balance(self, c: Circuit, cond, loop, lin, *, kmax: int = 21, start=None):
+        """The settled oscillation by harmonic balance with the pair's i(v)
+        (:func:`partpick.physics.harmonic.harmonic_balance`)."""
+        return harmonic_balance(loop, self.branch(c, cond.temp_k), lin, cond.rails(c.supply_kind), kmax=kmax,
+                                start=start)
+
     def netlist(self, c: Circuit, a: str, b: str) -> list:
         """Rd (R5) from a, then the pair (D1) to b; the pair straight across without Rd."""
         els: list = []
