@@ -17,7 +17,7 @@ from typing import Iterable
 
 from partpick import series
 from partpick.errors import CatalogError, InputError
-from partpick.yamlsrc import Fields, read_yaml
+from partpick.yamlsrc import Fields, Mapping, read_yaml
 
 __all__ = [
     "KINDS",
@@ -166,8 +166,12 @@ class Limiter:
     back-to-back Zener pair.
 
     Forward junction (Shockley equation, I = Is (exp(V / (n Vt)) - 1)): is_a, A;
-    n; rs_ohm, ohm; cj_f junction capacitance, F; eg_j bandgap energy, J, and xti
-    (SPICE-style temperature exponent) for Is(T). Zener pairs add the breakdown knee:
+    n; rs_ohm, ohm; eg_j bandgap energy, J, and xti (SPICE-style temperature exponent)
+    for Is(T). Its charge, as SPICE's diode models it (one junction, at 25 degC):
+    cjo_f zero-bias depletion capacitance, F; vj_v junction potential, V; m grading
+    coefficient; fc forward-bias depletion coefficient (the depletion capacitance is
+    linearised above fc vj_v); tt_s transit time, s (diffusion charge tt_s times the
+    junction current). Zener pairs add the breakdown knee:
     vz_v at iz_a, zener resistance rz_ohm, vz_tempco_v_per_k. vf_spread_v is the
     part-to-part spread of forward voltage at a fixed current (3 sigma), V.
     parts: physical parts one limiter needs (2 for a pair of discrete diodes).
@@ -179,7 +183,11 @@ class Limiter:
     is_a: float
     n: float
     rs_ohm: float
-    cj_f: float
+    cjo_f: float
+    vj_v: float
+    m: float
+    fc: float
+    tt_s: float
     eg_j: float
     xti: float
     vz_v: float
@@ -519,7 +527,7 @@ class _Limiters(_Reader):
             is_a=rec.quantity("saturation_current", "current", positive=True),
             n=n,
             rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0),
-            cj_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0),
+            **_junction_charge(rec),
             eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19),
             xti=rec.number("xti", default=3.0, minimum=0.0, maximum=10.0),
             vz_v=rec.quantity("zener_voltage", "voltage", positive=True) if zener else 0.0,
@@ -533,6 +541,37 @@ class _Limiters(_Reader):
             price_line=_cost(price, "line", default=0.0),
             where=_where(rec),
         )
+
+
+# SPICE's defaults for an absent diode charge parameter (ngspice manual, diode model
+# parameters: CJO 0, VJ 1 V, M 0.5, FC 0.5, TT 0) and the ranges ngspice accepts (it
+# limits M to 0.9 and FC to 0.95).
+_CHARGE_DEFAULTS = {"cjo_f": 0.0, "vj_v": 1.0, "m": 0.5, "fc": 0.5, "tt_s": 0.0}
+
+
+def _junction_charge(rec: Fields) -> dict[str, float]:
+    """The junction's charge parameters from ``capacitance``: a mapping of SPICE
+    parameters {cjo, vj, m, fc, tt} (absent ones at SPICE's defaults), or, as catalogs
+    before the charge model wrote it, one capacitance: a constant one, i.e. CJO with
+    M = 0 (and TT = 0)."""
+    out = dict(_CHARGE_DEFAULTS)
+    if not rec.has("capacitance"):
+        return out
+    if not isinstance(rec.node.items["capacitance"][1], Mapping):
+        out.update(cjo_f=rec.quantity("capacitance", "capacitance", nonnegative=True), m=0.0)
+        return out
+    cap = rec.sub("capacitance", ("cjo", "vj", "m", "fc", "tt"))
+    out.update(
+        cjo_f=cap.quantity("cjo", "capacitance", nonnegative=True, default=0.0),
+        vj_v=cap.quantity("vj", "voltage", positive=True, default=1.0),
+        m=cap.number("m", default=0.5, minimum=0.0, maximum=0.9),
+        fc=cap.number("fc", default=0.5, minimum=0.0, maximum=0.95),
+        tt_s=cap.quantity("tt", "time", nonnegative=True, default=0.0),
+    )
+    if out["fc"] * out["vj_v"] > 1.0:
+        # ngspice limits vj to 1/fc (with a warning): refuse rather than differ
+        raise cap.error("vj", f"times fc must not exceed 1 V (got {out['vj_v']:g} V x {out['fc']:g})")
+    return out
 
 
 _READERS: dict[str, _Reader] = {

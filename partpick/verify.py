@@ -26,13 +26,20 @@ from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
            "operating_conditions", "transient_cycles_for", "make_check", "RESISTOR_DERATING", "OPAMP_PACKAGE_W",
-           "TransientSummary", "transient_check", "nominal_spectrum"]
+           "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
+           "CAP_UNCERTAINTY"]
 
 # Share of a resistor's rating it may dissipate (derating: common practice, no published source).
 RESISTOR_DERATING = 0.5
 # Dissipation a small op-amp package takes without a heatsink, W (common practice for
 # SOIC-8 class packages at 70 degC ambient, no published source).
 OPAMP_PACKAGE_W = 0.5
+# How far a catalog's junction charge may be off, as a fraction of the capacitance the
+# control's element presents at its working amplitude: datasheets give typical
+# capacitance curves at best (no limits), the SPICE law is a fit, and plausible
+# parameter sets for one class of part differ by about this much (our assumption:
+# common practice, no published source).
+CAP_UNCERTAINTY = 0.5
 
 
 @dataclass(frozen=True, slots=True)
@@ -44,7 +51,10 @@ class OperatingPoint:
     relative to the signal reference (V); swing_low_v / swing_high_v: the op-amp's
     limits there (V); slew_v_per_s; iout_peak_a / iout_rms_a (A); method: 'harmonic
     balance', 'transient' or 'none' (no oscillation); regime: 'limiter', 'swing',
-    'slew', 'current' or 'no startup'.
+    'slew', 'current' or 'no startup'; freq_per_cap_hz_f: d freq_hz / d C for a
+    capacitance C added across the control's element (Hz/F, NaN unless harmonic balance
+    solved the point) and cap_eff_f: the capacitance that element presents to the
+    fundamental (F).
     """
 
     cond: Conditions
@@ -64,13 +74,16 @@ class OperatingPoint:
     iout_rms_a: float
     method: str
     regime: str
+    freq_per_cap_hz_f: float = math.nan
+    cap_eff_f: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
 class Check:
     """One requirement: the predicted value, its limits, pass/fail and the margin
     (distance to the nearest limit in the value's unit, positive when inside).
-    dim names the unit for formatting (see :mod:`partpick.units`)."""
+    dim names the unit for formatting (see :mod:`partpick.units`). A check with no
+    limit at all is information (a sensitivity), never a failure."""
 
     name: str
     field: str
@@ -81,6 +94,11 @@ class Check:
     passed: bool
     margin: float
     note: str = ""
+
+    @property
+    def is_info(self) -> bool:
+        """Information only: no limit to meet."""
+        return self.low is None and self.high is None
 
 
 @dataclass(frozen=True, slots=True)
@@ -99,6 +117,10 @@ class Verdict:
 
     def failed(self) -> tuple[Check, ...]:
         return tuple(c for c in self.checks if not c.passed)
+
+    def requirements(self) -> tuple[Check, ...]:
+        """The checks that judge a requirement (not the information rows)."""
+        return tuple(c for c in self.checks if not c.is_info)
 
 
 def _swing(c: Circuit, cond: Conditions) -> tuple[float, float]:
@@ -122,7 +144,7 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
 def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
     return OperatingPoint(cond, lin, True, hb.freq_hz, hb.osc_peak_v, hb.load_peak_v, hb.osc_thd, hb.load_thd,
                           hb.x_min_v, hb.x_max_v, lo, hi, hb.slew_v_per_s, hb.iout_peak_a, hb.iout_rms_a,
-                          "harmonic balance", "limiter")
+                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f)
 
 
 def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, kick_v: float = 0.01) -> float:
@@ -220,6 +242,53 @@ def _tempco_drift(c: Circuit, tempcos: dict[str, tuple[float, float]], dt_k: flo
     return lo, hi
 
 
+@dataclass(frozen=True, slots=True)
+class CapSensitivity:
+    """How the settled frequency depends on the capacitance across the amplitude
+    control's element: hz_per_pf (Hz per pF added), frac_per_pf (the same relative to
+    the frequency, 1/pF), cap_eff_f (F, the capacitance the element presents to the
+    fundamental at its working amplitude, Re(Q1 / V1)), movement_frac (the relative
+    frequency change CAP_UNCERTAINTY of cap_eff_f would cause)."""
+
+    hz_per_pf: float
+    frac_per_pf: float
+    cap_eff_f: float
+    movement_frac: float
+
+
+def capacitance_sensitivity(p: OperatingPoint) -> CapSensitivity | None:
+    """The frequency's sensitivity to capacitance across the control's element at the
+    operating point ``p`` (from its harmonic balance:
+    :attr:`partpick.physics.harmonic.BalanceResult.freq_per_cap_hz_f`); None when no
+    harmonic balance solved it."""
+    if not (p.method == "harmonic balance" and math.isfinite(p.freq_per_cap_hz_f)):
+        return None
+    hz_per_pf = p.freq_per_cap_hz_f * 1e-12
+    frac = hz_per_pf / p.freq_hz
+    return CapSensitivity(hz_per_pf, frac, p.cap_eff_f, abs(frac) * CAP_UNCERTAINTY * p.cap_eff_f * 1e12)
+
+
+def _capacitance_check(spec: Spec, p: OperatingPoint) -> tuple[Check | None, str | None]:
+    """The information row on the limiter's capacitance and, when the frequency its
+    uncertainty could move exceeds a quarter of the frequency tolerance, a caution."""
+    sens = capacitance_sensitivity(p)
+    if sens is None:
+        return None, None
+    quarter = spec.frequency.tolerance_frac / 4
+    cap_pf = sens.cap_eff_f * 1e12
+    note = (f"{sens.frac_per_pf * 100:+.3g} %/pF; {cap_pf:.3g} pF at its amplitude, +/-{CAP_UNCERTAINTY:.0%} of "
+            f"it moves f by +/-{sens.movement_frac * 100:.3g} % (a quarter of the tolerance: {quarter * 100:.3g} %)")
+    row = Check("frequency per pF at the limiter", "frequency.tolerance", sens.hz_per_pf, None, None, "frequency",
+                True, math.inf, note)
+    if sens.movement_frac <= quarter:
+        return row, None
+    tol_pct = spec.frequency.tolerance_frac * 100
+    return row, (f"the limiter's capacitance sets the frequency: {sens.hz_per_pf:+.3g} Hz per pF, and an error of "
+                 f"{CAP_UNCERTAINTY:.0%} in the {cap_pf:.3g} pF it presents would move the frequency by "
+                 f"{sens.movement_frac * 100:.3g} %, more than a quarter of the {tol_pct:.3g} % tolerance: check the "
+                 "catalog's junction capacitance (CJO, VJ, M, TT) against the part's datasheet or a measurement")
+
+
 def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None,
            tempcos: dict[str, tuple[float, float]] | None = None, ratings: dict[str, float] | None = None,
            points: dict[str, OperatingPoint] | None = None) -> Verdict:
@@ -264,6 +333,9 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     worst = max(worst_f, key=lambda x: abs(x / f.target_hz - 1) if math.isfinite(x) else math.inf)
     checks.append(make_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
                          "worst of the temperature ends with the parts' tempcos"))
+    row, caution = _capacitance_check(spec, nom)
+    checks += [row] if row is not None else []
+    cautions += [caution] if caution is not None else []
 
     # Amplitude at the load over supply and temperature.
     lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)

@@ -29,10 +29,11 @@ def _exact(x: float) -> sp.Rational:
 
 
 def characteristic_roots(net: Netlist, *, ideal_opamps: bool = False, limiter_g: float = 0.0,
-                         scale: float = 1.0) -> np.ndarray:
-    """Roots (rad/s) of det M(s) = 0 for the netlist's small-signal circuit. limiter_g:
-    small-signal conductance of every limiter pair (S). ``scale`` (rad/s) normalises s
-    for conditioning: the polynomial is built in s / scale."""
+                         limiter_c: float = 0.0, scale: float = 1.0) -> np.ndarray:
+    """Roots (rad/s) of det M(s) = 0 for the netlist's small-signal circuit. limiter_g,
+    limiter_c: small-signal conductance (S) and capacitance (F) of every limiter pair at
+    rest. ``scale`` (rad/s) normalises s for conditioning: the polynomial is built in
+    s / scale."""
     ground = {"0"}
     for el in net.elements:
         if isinstance(el, VSource):
@@ -72,7 +73,7 @@ def characteristic_roots(net: Netlist, *, ideal_opamps: bool = False, limiter_g:
         elif isinstance(el, Capacitor):
             stamp(el.a, el.b, p * k * _exact(el.farad))
         elif isinstance(el, LimiterX):
-            stamp(el.a, el.b, _exact(limiter_g) + p * k * _exact(el.cap_f))
+            stamp(el.a, el.b, _exact(limiter_g) + p * k * _exact(limiter_c))
         elif isinstance(el, (VSource, Kick, OpAmpX)):
             pass
         else:

@@ -114,7 +114,7 @@ def test_loop_against_symbolic_netlist(pair, demo_catalog):
     lin = linear(c, COND)
     br = c.control.branch(c, COND.temp_k)
     w0 = 2 * math.pi * c.f0_hz
-    roots = mna.characteristic_roots(build_netlist(c, COND), limiter_g=br.g0_s, scale=w0)
+    roots = mna.characteristic_roots(build_netlist(c, COND), limiter_g=br.g0_s, limiter_c=br.c0_f, scale=w0)
     ref = max((r for r in roots if abs(r.imag) > 0.2 * w0), key=lambda r: r.real)
     ours = max((p for p in lin.poles_rad_s if abs(p.imag) > 0.2 * w0), key=lambda p: p.real)
     assert ours.real == pytest.approx(ref.real, rel=1e-5, abs=1e-6 * w0)

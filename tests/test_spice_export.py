@@ -34,6 +34,12 @@ def num(x: float) -> str:
     return "%.12g" % x
 
 
+def model_card(name: str, j) -> str:
+    """The .model card of junction j as the SPICE parameters name them."""
+    return (f".model {name} D(IS={num(j.is_a)} N={num(j.n)} RS={num(j.rs_ohm)} CJO={num(j.cjo_f)} "
+            f"VJ={num(j.vj_v)} M={num(j.m)} FC={num(j.fc)} TT={num(j.tt_s)})")
+
+
 def wien(cat, *, rf=22e3, opamp="oa-jfet-4m", limiter="d-si-signal", **kw):
     """The test design: Rs = Rp = 10 kohm, Cs = Cp = 10 nF, Rg = 10 kohm."""
     return WienCircuit(rs_ohm=10e3, cs_f=10e-9, rp_ohm=10e3, cp_f=10e-9, rg_ohm=10e3, rf_ohm=rf,
@@ -75,7 +81,9 @@ def check_elements(nl: Netlist, text: str) -> None:
         elif isinstance(el, Kick):
             assert any(ln.startswith(f"{el.name} 0 {el.node} PULSE(0 {num(el.amps)} ") for ln in lines), el
         elif isinstance(el, LimiterX):
-            assert f"C{el.name} {el.a} {el.b} {num(el.cap_f)}" in lines, el
+            # the junctions carry their own charge: no lumped capacitor across the pair
+            assert any(ln.startswith(f"{el.name}A") for ln in lines), el
+            assert not any(ln.startswith(f"C{el.name} ") for ln in lines), el
         else:  # pragma: no cover - a new element type needs a check here
             raise AssertionError(f"unchecked element {el!r}")
 
@@ -106,7 +114,8 @@ def test_dual_supply_diode_limiter_text(demo_catalog):
     lim = demo_catalog.find("limiters", "d-si-signal")
     fwd, _ = junctions_at(lim, nl.temp_k)
     mod = model_name(lim)
-    assert f".model {mod} D(IS={num(fwd.is_a)} N={num(fwd.n)} RS={num(fwd.rs_ohm)} CJO=0)" in lines
+    assert model_card(mod, fwd) in lines
+    assert fwd.cjo_f == pytest.approx(lim.cjo_f) and fwd.tt_s == lim.tt_s > 0  # at 25 degC as catalogued
     assert f"D1A dl nn {mod}" in lines and f"D1B nn dl {mod}" in lines
     assert "VEE vee 0 DC -12" in lines and "VCC vcc 0 DC 12" in lines
     assert ".control" not in text  # a plain netlist for users
@@ -158,8 +167,8 @@ def test_single_supply_zener_gain_stage_text(demo_catalog):
     fwd, brk = junctions_at(lim, nl.temp_k)
     f, b = model_name(lim, "f"), model_name(lim, "b")
     assert {"D1AF d1_m out " + f, "D1AR out d1_m " + b, "D1BF d1_m nn " + f, "D1BR nn d1_m " + b} <= set(lines)
-    assert f".model {f} D(IS={num(fwd.is_a)} N={num(fwd.n)} RS={num(fwd.rs_ohm)} CJO=0)" in lines
-    assert f".model {b} D(IS={num(brk.is_a)} N={num(brk.n)} RS={num(brk.rs_ohm)} CJO=0)" in lines
+    assert model_card(f, fwd) in lines and fwd.cjo_f > 0
+    assert model_card(b, brk) in lines and brk.cjo_f == 0 and brk.tt_s == 0  # the breakdown junction stores no charge
     assert "BV" not in text.upper().replace("BV/IBV", "")
 
 
@@ -171,6 +180,8 @@ def test_temperature_is_carried_by_the_parameters(demo_catalog):
     fwd, brk = junctions_at(lim, 358.15)
     assert f"IS={num(fwd.is_a)} " in text and f"IS={num(brk.is_a)} " in text
     assert fwd.is_a > 10 * lim.is_a  # the hot Is really differs from the 25 degC one
+    assert f"CJO={num(fwd.cjo_f)} VJ={num(fwd.vj_v)} " in text
+    assert fwd.vj_v < lim.vj_v and fwd.cjo_f > lim.cjo_f  # the junction potential falls when hot
 
 
 def test_kick_delivers_its_charge(demo_catalog):
@@ -308,7 +319,7 @@ def test_spice_limiter_law_matches_junction_physics(demo_catalog, limiter, temp_
     # partpick's own junction model and compare with ngspice's operating point.
     lim = demo_catalog.find("limiters", limiter)
     nl = Netlist("limiter DC check", (VSource("V1", "a", "0", 5.0), Resistor("R1", "a", "b", 2.2e3),
-                                      LimiterX("D1", "b", "0", lim, 0.0)),
+                                      LimiterX("D1", "b", "0", lim)),
                  temp_k=temp_k, f_hint_hz=1e3, probes={"osc": "b", "load": "a"})
     _, v = run_ngspice(nl, cycles=1, points_per_cycle=20)
     lo, hi = 0.0, 5.0

@@ -141,12 +141,17 @@ def test_unknown_probe_rejected():
 
 
 def test_scalar_limiter_table_matches_table(demo_catalog):
+    """The transient's scalar curves give the table's current, conductance, charge and
+    capacitance to rounding."""
     tab = limiter_table(demo_catalog.find("limiters", "d-si-signal"), series_ohm=0.0, temp_k=298.15)
-    fast = transient._Table(tab)
+    cur, charge = transient._curves(tab)
+    assert charge is not None
     for v in np.concatenate([np.linspace(-2, 2, 401), [0.0, 1e-9, -1e-9, 5.0, -5.0]]):
-        assert fast.current(v) == pytest.approx(float(tab.current(np.array([v]))[0]), rel=1e-12, abs=1e-18)
-        assert fast.conductance(v) == pytest.approx(float(tab.conductance(np.array([v]))[0]), rel=1e-12,
-                                                    abs=1e-18)
+        x = np.array([v])
+        assert cur.value(v) == pytest.approx(float(tab.current(x)[0]), rel=1e-12, abs=1e-18)
+        assert cur.derivative(v) == pytest.approx(float(tab.conductance(x)[0]), rel=1e-12, abs=1e-18)
+        assert charge.value(v) == pytest.approx(float(tab.charge(x)[0]), rel=1e-12, abs=1e-24)
+        assert charge.derivative(v) == pytest.approx(float(tab.capacitance(x)[0]), rel=1e-12, abs=1e-24)
 
 
 def test_pulse_edges_between_grid_points():

@@ -3,8 +3,9 @@ opposed Zeners, optionally behind a series resistor Rd, at the topology's 'feedb
 port. Its conductance grows with the amplitude and brings the loop gain down to one.
 
 The pair's i(v) is the Shockley junction with series resistance and the SPICE
-temperature law (:mod:`partpick.physics.junction`); its junction capacitance sits
-across the pair, behind Rd. THD rises with the small-signal gain excess the pair must
+temperature law (:mod:`partpick.physics.junction`); its junction charge (SPICE's
+depletion and diffusion charge, so a capacitance that grows as the pair conducts)
+sits across the pair, behind Rd. THD rises with the small-signal gain excess the pair must
 remove; the amplitude drifts with the forward voltage.
 """
 
@@ -18,7 +19,7 @@ from partpick.circuits.base import Circuit, Conditions, Slot, Values
 from partpick.circuits.options import (AMP_SLOPE_MAX, CtlOption, dt_of, merge_lines, nearest, sigma, slope,
                                        values_of, z_of)
 from partpick.physics.harmonic import describing_amplitude, harmonic_balance
-from partpick.physics.junction import forward_voltage, limiter_table
+from partpick.physics.junction import T0_K, forward_voltage, limiter_table
 from partpick.physics.linear import analyse_linear
 from partpick.physics.loop import Branch
 from partpick.physics.netlist import LimiterX, Resistor
@@ -34,12 +35,12 @@ SLOTS = (
 KNEE_A = 20e-6
 
 
-def pair_capacitance(lim) -> float:
-    """Junction capacitance across the pair, F: two diodes in parallel, or two Zeners
-    in series."""
+def pair_capacitance(lim, temp_k: float = T0_K) -> float:
+    """Small-signal capacitance across the pair at zero volts and temp_k (K), F: two
+    diodes in parallel, or two Zeners in series."""
     if lim is None:
         return 0.0
-    return 2 * lim.cj_f if lim.kind != "zener-pair" else lim.cj_f / 2
+    return float(limiter_table(lim, 0.0, temp_k).capacitance(0.0))
 
 
 class DiodeLimiter:
@@ -50,12 +51,12 @@ class DiodeLimiter:
     port = "feedback"
 
     def branch(self, c: Circuit, temp_k: float) -> Branch:
-        """The pair (tabulated i(v) at temp_k, K) with its capacitance, behind Rd."""
+        """The pair (tabulated i(v) and charge q(v) at temp_k, K), behind Rd."""
         lim = c.part("limiter")
         rd = c.value("rd")
         table = limiter_table(lim, 0.0, temp_k)
         g0 = float(table.conductance([0.0])[0])
-        return Branch(table, rd, pair_capacitance(lim), g0, limiter_table(lim, rd, temp_k))
+        return Branch(table, rd, 0.0, g0, limiter_table(lim, rd, temp_k))
 
     def balance(self, c: Circuit, cond, loop, lin, *, kmax: int = 21, start=None):
         """The settled oscillation by harmonic balance with the pair's i(v)
@@ -70,7 +71,7 @@ class DiodeLimiter:
             els.append(Resistor("R5", a, "dl", c.value("rd")))
             a = "dl"
         lim = c.part("limiter")
-        els.append(LimiterX("D1", a, b, lim, pair_capacitance(lim)))
+        els.append(LimiterX("D1", a, b, lim))
         return els
 
     def amplitude_spread(self, c: Circuit, temp_k: float) -> float:

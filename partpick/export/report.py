@@ -90,9 +90,11 @@ def render_report(spec, d, catalog, *, points=None, front=None, stock=None, spec
     # verdict
     vrows = []
     for c in v.checks:
-        lim = (f"{_fmt(c.low, c.dim)} .. {_fmt(c.high, c.dim)}" if c.low is not None and c.high is not None
+        lim = ("-" if c.is_info else
+               f"{_fmt(c.low, c.dim)} .. {_fmt(c.high, c.dim)}" if c.low is not None and c.high is not None
                else (f"&ge; {_fmt(c.low, c.dim)}" if c.low is not None else f"&le; {_fmt(c.high, c.dim)}"))
-        verdict = '<span class="pass">pass</span>' if c.passed else '<span class="fail">FAIL</span>'
+        verdict = ("info" if c.is_info else '<span class="pass">pass</span>' if c.passed
+                   else '<span class="fail">FAIL</span>')
         vrows.append([_e(c.name), _e(_fmt(c.value, c.dim)), lim, verdict, _e(_fmt(c.margin, c.dim)), _e(c.note)])
     parts += ['<h2>Verdict</h2>', _table(["requirement", "predicted", "limit", "verdict", "margin", "note"], vrows,
                                          "verdict")]

@@ -8,7 +8,7 @@ from partpick import units
 from partpick.export.table import render_table
 from partpick.verify import Check, Verdict
 
-__all__ = ["render_verdict", "render_point", "fmt_value", "failure_line", "worst_line", "check_json",
+__all__ = ["render_verdict", "render_point", "fmt_value", "verdict_word", "failure_line", "worst_line", "check_json",
            "check_text", "check_data", "transient_text"]
 
 
@@ -25,15 +25,21 @@ def render_verdict(v: Verdict) -> str:
     """Each requirement: predicted value, limit, pass/fail and margin."""
     rows = []
     for c in v.checks:
-        if c.low is not None and c.high is not None:
+        if c.is_info:
+            limit = "-"
+        elif c.low is not None and c.high is not None:
             limit = f"{fmt_value(c.low, c.dim)} .. {fmt_value(c.high, c.dim)}"
         elif c.low is not None:
             limit = f">= {fmt_value(c.low, c.dim)}"
         else:
             limit = f"<= {fmt_value(c.high, c.dim)}"
-        rows.append([c.name, fmt_value(c.value, c.dim), limit, "pass" if c.passed else "FAIL",
-                     fmt_value(c.margin, c.dim), c.note])
+        rows.append([c.name, fmt_value(c.value, c.dim), limit, verdict_word(c), fmt_value(c.margin, c.dim), c.note])
     return render_table(["requirement", "predicted", "limit", "verdict", "margin", "note"], rows)
+
+
+def verdict_word(c: Check) -> str:
+    """'pass', 'FAIL', or 'info' for a row that judges nothing."""
+    return "info" if c.is_info else ("pass" if c.passed else "FAIL")
 
 
 def render_point(name: str, p) -> str:
@@ -84,7 +90,8 @@ def check_text(spec_path, bom_path, r) -> str:
     """``partpick check``: operating points, every requirement, Monte Carlo, failures,
     cautions."""
     verdict, mc, circuit = r.verdict, r.mc, r.circuit
-    status = "PASS" if verdict.passed else f"FAIL ({len(verdict.failed())} of {len(verdict.checks)} requirements)"
+    status = ("PASS" if verdict.passed else
+              f"FAIL ({len(verdict.failed())} of {len(verdict.requirements())} requirements)")
     lines = [f"{bom_path} against {spec_path}: {status}",
              f"textbook f0 {circuit.f0_hz:.6g} Hz, gain {circuit.gain:.4g} (needs {circuit.required_gain:.4g})"]
     lines += [render_point(name, point) for name, point in verdict.corners.items()]

@@ -5,17 +5,25 @@ branch and the branch (:mod:`partpick.physics.loop`).
 Unknowns are the odd harmonics of the voltage across the branch's nonlinear element
 (the limiter pair), Vp_k (k = 1, 3, ..., K), and the angular frequency; the
 fundamental's phase is the reference (Im Vp_1 = 0). For each harmonic the loop equation
-(see ``Branch.element_coefficients``: the element's capacitance and the series
-resistance are linear and enter the coefficients exactly) must hold, where Ip_k are the
-Fourier coefficients of the element current i(vp(t)) computed by FFT of the sampled
-waveform (the harmonic-balance method: K. S. Kundert and A.
+(see ``Branch.element_coefficients``: a linear capacitance and the series resistance
+enter the coefficients exactly) must hold, where the element current is
+i(vp(t)) + dq(vp(t))/dt: its harmonics Ip_k + j k w Q_k, with Ip_k and Q_k the Fourier
+coefficients of the tabulated current i(v) and charge q(v) computed by FFT of the
+sampled waveform (the harmonic-balance method: K. S. Kundert and A.
 Sangiovanni-Vincentelli, "Simulation of nonlinear circuits in the frequency domain",
 IEEE Trans. CAD 5(4), 1986). Newton's method with the analytic Jacobian (the
-conductance waveform di/dv mapped through the same transforms) converges in a few
-steps from the describing-function solution (the single-harmonic balance, which
-predicts the amplitude well but no frequency shift for a memoryless limiter; the
-higher harmonics carry that shift). Only odd harmonics appear: the limiter is odd
-and the circuit is symmetric about the signal reference.
+conductance waveform di/dv and the capacitance waveform dq/dv, times j k w, mapped
+through the same transforms) converges in a few steps from the describing-function
+solution (the single-harmonic balance, which predicts the amplitude well but no
+frequency shift for a memoryless limiter; the higher harmonics and the charge carry
+that shift). Only odd harmonics appear: the limiter is odd and the circuit is
+symmetric about the signal reference. Two opposed Zeners in series are not one
+memoryless element: the node between them moves with the charge each stores, so their
+branch adds the even harmonics of that node as unknowns (:class:`_SeriesBalance`).
+
+At the solution the frequency's derivative in a capacitance added across the element
+comes from the same Jacobian (implicit-function theorem): how far the frequency moves
+per picofarad of limiter capacitance, without another solution.
 
 The op-amps are linear here (A0, GBW, second pole, Ro). When the solution shows an
 op-amp's output leaving its swing, slewing near its limit or running near its current
@@ -68,6 +76,8 @@ class BalanceResult:
     converged: bool
     harmonics: int
     state: tuple = ()  # (element harmonics, scaled angular frequency): a warm start for a nearby problem
+    cap_eff_f: float = 0.0  # the element's capacitance as the fundamental sees it, Re(Q_1 / V_1), F
+    freq_per_cap_hz_f: float = math.nan  # d freq_hz / d C for a capacitance C added across the element, Hz/F
 
 
 def _thd(h: np.ndarray) -> float:
@@ -81,6 +91,7 @@ class _Balance:
 
     def __init__(self, loop: Loop, branch: Branch, kmax: int, nt: int) -> None:
         self.loop, self.branch, self.table = loop, branch, branch.table
+        self.charged = branch.has_charge
         self.ks = np.arange(1, kmax + 1, 2)
         self.nt = nt
         theta = 2 * np.pi * np.arange(nt) / nt
@@ -96,47 +107,208 @@ class _Balance:
         return self.branch.element_coefficients(self.loop, 1j * w * self.ks)
 
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
+        """(loop residual per harmonic, element current harmonics Ie = I_k + j k w Q_k
+        (A), charge harmonics Q_k (C), v(theta), i(theta)) at element harmonics vk and
+        scaled angular frequency w."""
         v_t = self.synth @ _ri(vk)
         i_t = self.table.current(v_t)
         ik = _cx(self.anal @ i_t)
+        qk = None
+        if self.charged:
+            qk = _cx(self.anal @ self.table.charge(v_t))
+            ik = ik + 1j * self.ks * (w * self.loop.w_ref) * qk
         al, ga = coeffs if coeffs is not None else self.coeffs(w)
-        return al * vk + ga * ik, ik, v_t, i_t
+        return al * vk + ga * ik, ik, qk, v_t, i_t
 
-    def solve(self, a0: float, w0: float, iters: int = 60, start: np.ndarray | None = None):
+    def system(self, vk: np.ndarray, w: float):
+        """(complex residual, real Newton Jacobian over re V1, (re, im) V3.., w (im V1 is
+        the phase reference), al, ga) at vk, w."""
+        al, ga = self.coeffs(w)
+        r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
+        g_t = self.table.conductance(v_t)
+        dI = self.anal @ (g_t[:, None] * self.synth)  # d(re,im I)/d(re,im V)
+        if self.charged:
+            # the charging current j k w Q_k: the capacitance waveform C(v(theta))
+            # mapped like the conductance, times j k w
+            c_t = self.table.capacitance(v_t)
+            dI = dI + _cmul_block(1j * self.ks * (w * self.loop.w_ref)) @ (self.anal @ (c_t[:, None] * self.synth))
+        J = _cmul_block(ga) @ dI + _cmul_block(al)
+        h = 1e-7 * w
+        al2, ga2 = self.coeffs(w + h)
+        dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
+        dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h + ga * dik_dw)
+        return r, np.column_stack([J[:, 0], J[:, 2:], dw]), al, ga
+
+    def unpack(self, step: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """A Newton step's (V harmonics, other unknowns) parts, its frequency step last."""
+        dv = np.empty(self.ks.size, dtype=complex)
+        dv[0] = step[0]
+        dv[1:] = step[1:-1:2] + 1j * step[2:-1:2]
+        return dv, np.zeros(0, dtype=complex)
+
+    def rows(self, r: np.ndarray) -> np.ndarray:
+        """The residual (complex per harmonic) as the Newton system's right-hand side."""
+        return _ri(r)
+
+    def solve(self, a0: float, w0: float, iters: int = 60, start: np.ndarray | None = None,
+              start_even: np.ndarray | None = None):
         vk = np.zeros(self.ks.size, dtype=complex)
         vk[0] = a0
         if start is not None:
             n = min(start.size, vk.size)
             vk[:n] = start[:n]
+        self.begin(vk, start_even)
         w = w0
         converged = False
         for _ in range(iters):
-            al, ga = self.coeffs(w)
-            r, ik, v_t, _ = self.residual(vk, w, (al, ga))
+            r, Jr, al, _ = self.system(vk, w)
             scale = max(abs(vk[0]), 1e-12)
             if np.max(np.abs(r)) < 1e-10 * scale * max(1.0, np.max(np.abs(al))):
                 converged = True
                 break
-            g_t = self.table.conductance(v_t)
-            dI = self.anal @ (g_t[:, None] * self.synth)  # d(re,im I)/d(re,im V)
-            J = _cmul_block(ga) @ dI + _cmul_block(al)
-            h = 1e-7 * w
-            al2, ga2 = self.coeffs(w + h)
-            dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h)
-            # unknowns: re V1, (re, im) V3.., w  (im V1 fixed at 0 as the phase reference)
-            Jr = np.column_stack([J[:, 0], J[:, 2:], dw])
-            step = np.linalg.solve(Jr, -_ri(r))
-            # damp: keep the fundamental positive and the frequency step small
+            step = np.linalg.solve(Jr, -self.rows(r))
+            dv, dother = self.unpack(step)
+            # damp: keep the fundamental positive, the frequency step (and the other
+            # unknowns' DC) small
             lam = 1.0
-            if vk[0].real + step[0] <= 0.2 * vk[0].real:
-                lam = min(lam, 0.8 * vk[0].real / abs(step[0]))
+            if vk[0].real + dv[0].real <= 0.2 * vk[0].real:
+                lam = min(lam, 0.8 * vk[0].real / abs(dv[0].real))
             if abs(step[-1]) > 0.05 * w:
                 lam = min(lam, 0.05 * w / abs(step[-1]))
-            step *= lam
-            vk[0] += step[0]
-            vk[1:] += step[1:-1:2] + 1j * step[2:-1:2]
-            w += step[-1]
+            if dother.size and abs(dother[0]) > 0.5:
+                lam = min(lam, 0.5 / abs(dother[0]))
+            vk = vk + lam * dv
+            self.advance(lam * dother)
+            w += lam * step[-1]
         return vk, w, converged
+
+    def begin(self, vk: np.ndarray, start_even: np.ndarray | None) -> None:
+        """Set the unknowns besides V (none here)."""
+
+    def advance(self, d: np.ndarray) -> None:
+        """Move the unknowns besides V by d (none here)."""
+
+    def freq_per_cap(self, vk: np.ndarray, w: float) -> float:
+        """d(frequency)/d(C) at the solution vk, w, Hz/F, for a linear capacitance C added
+        across the element: the implicit-function theorem on the converged equations,
+        dX/dC = -J^-1 dR/dC with dR_k/dC = ga_k j k w w_ref V_k (element_coefficients)."""
+        r, Jr, _, ga = self.system(vk, w)
+        dr = ga * 1j * self.ks * (w * self.loop.w_ref) * vk
+        dx = np.linalg.solve(Jr, -self.rows_odd(dr, r))
+        return float(dx[-1]) * self.loop.w_ref / (2 * math.pi)
+
+    def rows_odd(self, dr: np.ndarray, r: np.ndarray) -> np.ndarray:
+        """A derivative of the odd (loop) rows as a right-hand side."""
+        return _ri(dr)
+
+
+class _SeriesBalance(_Balance):
+    """Harmonic balance of a branch made of two equal elements in series, opposed (two
+    Zeners, anode to anode), with the node between them.
+
+    With the pair's voltage v(theta) odd (only odd harmonics, as the whole circuit is
+    symmetric), the two elements swap roles every half period: the voltage across the
+    forward-oriented one is u(theta) = v(theta) / 2 + e(theta) with e holding only even
+    harmonics (its DC included), the other one's is u(theta + pi), and the node between
+    them balances when i_e(u(theta)) + i_e(u(theta + pi)) = 0, i.e. when the even
+    harmonics of the element current i_e(u) + dq_e(u)/dt vanish. Its odd harmonics are
+    the pair's current. Unknowns: the odd harmonics of v (as for one element), the even
+    harmonics of e and the frequency; the even rows are scaled by |gamma| at the
+    fundamental so that every row is in volts."""
+
+    def __init__(self, loop: Loop, branch: Branch, kmax: int, nt: int) -> None:
+        super().__init__(loop, branch, kmax, nt)
+        self.elem = branch.table.element
+        self.split = (branch.table.v_v, branch.table.split_v)
+        self.kall = np.arange(0, kmax + 1)
+        theta = 2 * np.pi * np.arange(nt) / nt
+        kt = np.outer(theta, self.kall)
+        self.synth_all = np.empty((nt, 2 * self.kall.size))
+        self.synth_all[:, 0::2] = np.cos(kt)
+        self.synth_all[:, 1::2] = -np.sin(kt)
+        self.anal_all = self.synth_all.T * (2.0 / nt)
+        self.anal_all[0] /= 2.0               # the DC term
+        self.odd = self.kall % 2 == 1
+        self.ek = np.zeros(int(np.sum(~self.odd)), dtype=complex)
+        nk = self.kall.size
+        self.keep_rows = [r for r in range(2 * nk) if r != 1]              # Im of the DC row is 0
+        self.keep_cols = [c for c in range(2 * nk) if c not in (1, 3)]     # Im u0 (none), Im u1 (phase)
+
+    def _u(self, vk: np.ndarray, ek: np.ndarray) -> np.ndarray:
+        uk = np.empty(self.kall.size, dtype=complex)
+        uk[self.odd], uk[~self.odd] = vk / 2, ek
+        return uk
+
+    def _currents(self, uk: np.ndarray, w: float):
+        """Element current and charge harmonics (all k) at u's harmonics, and u(theta)."""
+        u_t = self.synth_all @ _ri(uk)
+        qk = _cx(self.anal_all @ self.elem.charge(u_t))
+        ik = _cx(self.anal_all @ self.elem.current(u_t)) + 1j * self.kall * (w * self.loop.w_ref) * qk
+        return ik, qk, u_t
+
+    def residual(self, vk: np.ndarray, w: float, coeffs=None):
+        ik, qk, _ = self._currents(self._u(vk, self.ek), w)
+        al, ga = coeffs if coeffs is not None else self.coeffs(w)
+        v_t = self.synth @ _ri(vk)
+        i_t = self.synth @ _ri(ik[self.odd])
+        return al * vk + ga * ik[self.odd], ik[self.odd], qk[self.odd], v_t, i_t
+
+    def begin(self, vk: np.ndarray, start_even: np.ndarray | None) -> None:
+        ek = np.zeros(self.kall.size - self.ks.size, dtype=complex)
+        if start_even is not None:
+            n = min(start_even.size, ek.size)
+            ek[:n] = start_even[:n]
+        else:
+            # the split with no charge moving: both elements carry the pair's current
+            v_t = self.synth @ _ri(vk)
+            e_t = np.interp(v_t, *self.split) - v_t / 2
+            ek = _cx(self.anal_all @ e_t)[~self.odd]
+        self.ek = ek
+
+    def advance(self, d: np.ndarray) -> None:
+        self.ek = self.ek + d
+
+    def system(self, vk: np.ndarray, w: float):
+        """(complex residual over all harmonics (odd: the loop, V; even: the middle node,
+        scaled to V), the real Newton Jacobian over the kept unknowns and w, al, ga)."""
+        nk = self.kall.size
+        al, ga = self.coeffs(w)
+        zs = abs(ga[0])
+        ik, qk, u_t = self._currents(self._u(vk, self.ek), w)
+        r = np.empty(nk, dtype=complex)
+        r[self.odd] = al * vk + ga * ik[self.odd]
+        r[~self.odd] = zs * ik[~self.odd]
+        g_t, c_t = self.elem.conductance(u_t), self.elem.capacitance(u_t)
+        jkw = _cmul_block(1j * self.kall * (w * self.loop.w_ref))
+        dI = self.anal_all @ (g_t[:, None] * self.synth_all) + jkw @ (self.anal_all @ (c_t[:, None] * self.synth_all))
+        # rows: odd k -> ga dI/du + 2 al (u_k = v_k / 2); even k -> zs dI/du
+        rowscale = np.ones(nk, dtype=complex)
+        rowscale[self.odd], rowscale[~self.odd] = ga, zs
+        diag = np.zeros(nk, dtype=complex)
+        diag[self.odd] = 2 * al
+        J = _cmul_block(rowscale) @ dI + _cmul_block(diag)
+        h = 1e-7 * w
+        al2, ga2 = self.coeffs(w + h)
+        dr = np.empty(nk, dtype=complex)
+        dr[self.odd] = (((al2 - al) * vk + (ga2 - ga) * ik[self.odd]) / h
+                        + ga * 1j * self.ks * self.loop.w_ref * qk[self.odd])
+        dr[~self.odd] = zs * 1j * self.kall[~self.odd] * self.loop.w_ref * qk[~self.odd]
+        Jr = np.column_stack([J[np.ix_(self.keep_rows, self.keep_cols)], _ri(dr)[self.keep_rows]])
+        return r, Jr, al, ga
+
+    def rows(self, r: np.ndarray) -> np.ndarray:
+        return _ri(r)[self.keep_rows]
+
+    def rows_odd(self, dr: np.ndarray, r: np.ndarray) -> np.ndarray:
+        full = np.zeros(self.kall.size, dtype=complex)
+        full[self.odd] = dr
+        return _ri(full)[self.keep_rows]
+
+    def unpack(self, step: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        du = np.zeros(2 * self.kall.size)
+        du[self.keep_cols] = step[:-1]
+        duk = _cx(du)
+        return 2 * duk[self.odd], duk[~self.odd]
 
 
 def _ri(z: np.ndarray) -> np.ndarray:
@@ -194,14 +366,16 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     # across the series resistance, as the element's own amplitude
     a_df = max(a_df - branch.series_ohm * lin.marginal_g_s * a_df, 0.2 * a_df)
     w0 = 2 * math.pi * lin.marginal_hz / loop.w_ref
-    warm = None
+    warm = warm_even = None
     if start is not None and start.state:
         # the same network a little changed (another gain, temperature): same w_ref
-        warm, w0, kmax = start.state
+        warm, w0, kmax, *even = start.state
         warm = np.asarray(warm)
+        warm_even = np.asarray(even[0]) if even and even[0] else None
+    series = getattr(branch.table, "element", None) is not None
     for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
-        hb = _Balance(loop, branch, k, max(64, 8 * (k + 1)))
-        vk, w, ok = hb.solve(a_df, w0, start=warm)
+        hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
+        vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
         if ok and tail < 3e-4:
             break
@@ -210,9 +384,11 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
 
 def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
     br = hb.branch
-    _, ipk, _, _ = hb.residual(vk, w)
+    _, ipk, qk, _, _ = hb.residual(vk, w)
     p = 1j * w * hb.ks
-    ik = ipk + p * loop.w_ref * br.cap_f * vk       # branch current: element plus its capacitance
+    ik = ipk + p * loop.w_ref * br.cap_f * vk       # branch current: element plus its linear capacitance
+    # the element's capacitance as the fundamental sees it (describing-function capacitance)
+    cap_eff = br.cap_f + (float(np.real(qk[0] / vk[0])) if qk is not None and abs(vk[0]) > 0 else 0.0)
     vf = vk + br.series_ohm * ik                        # voltage across the whole branch
     i_t = hb.synth @ _ri(ik)
     vo = loop.probe("osc", p, vf, ik)
@@ -253,7 +429,9 @@ def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
         regime=regime,
         converged=bool(ok),
         harmonics=kmax,
-        state=(tuple(vk), w, kmax),
+        state=(tuple(vk), w, kmax, tuple(getattr(hb, "ek", ()))),
+        cap_eff_f=cap_eff,
+        freq_per_cap_hz_f=hb.freq_per_cap(vk, w) if ok else math.nan,
     )
 
 

@@ -12,6 +12,19 @@ A Zener's breakdown is modelled as a second, reverse junction with saturation cu
 Iz exp(-Vz/(nz Vt)) and emission nz = rz Iz / Vt, so it carries Iz at Vz with dynamic
 resistance rz there (a soft knee, as low-voltage Zeners have). The catalog's junction
 parameters hold at T0 = 25 degC.
+
+Charge (SPICE's diode model, ngspice manual "Junction Diodes", as ngspice's
+``dioload.c`` evaluates it), at the junction's own voltage vd (inside Rs):
+depletion charge VJ CJO (1 - (1 - vd/VJ)^(1-M)) / (1 - M), capacitance
+CJO (1 - vd/VJ)^-M, below FC VJ; above it the capacitance is continued linearly,
+CJO / (1 - FC)^(1+M) (1 - FC (1 + M) + M vd / VJ), and the charge is its integral;
+plus the diffusion charge TT I. CJO and VJ follow SPICE's temperature law (ngspice
+``diotemp.c``, the default TLEVC = 0: the junction potential from the silicon bandgap
+law Eg(T) = 1.16 - 7.02e-4 T^2 / (T + 1108) eV, the capacitance with it and with
+400 ppm/K), with the catalog's values at T0. The breakdown junction of a Zener carries
+no charge of its own: the forward junction's depletion charge, evaluated at the
+reverse voltage, is the capacitance of the reverse-biased junction (depletion only;
+breakdown current stores no diffusion charge).
 """
 
 from __future__ import annotations
@@ -26,9 +39,13 @@ from scipy import constants, special
 from partpick.catalog import Limiter
 
 __all__ = ["T0_K", "thermal_voltage", "Junction", "junctions_at", "LimiterTable", "limiter_table",
-           "forward_voltage"]
+           "forward_voltage", "depletion_at"]
 
 T0_K = 298.15
+# SPICE's reference temperature and the silicon bandgap there (eV), as ngspice's
+# junction-potential law hard-codes them (REFTEMP, 1.1150877 in diotemp.c).
+_TREF_K = 300.15
+_EG_REF_EV = 1.1150877
 
 
 def thermal_voltage(temp_k: float) -> float:
@@ -38,12 +55,53 @@ def thermal_voltage(temp_k: float) -> float:
 
 @dataclass(frozen=True, slots=True)
 class Junction:
-    """One junction at a fixed temperature: is_a (A), n, rs_ohm (ohm), vt (V)."""
+    """One junction at a fixed temperature: is_a (A), n, rs_ohm (ohm), vt (V), and its
+    charge: cjo_f (F), vj_v (V), m, fc, tt_s (s), SPICE's CJO, VJ, M, FC, TT already
+    at that temperature (see module docstring)."""
 
     is_a: float
     n: float
     rs_ohm: float
     vt: float
+    cjo_f: float = 0.0
+    vj_v: float = 1.0
+    m: float = 0.5
+    fc: float = 0.5
+    tt_s: float = 0.0
+
+    def depletion(self, vd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Depletion charge (C) and capacitance (F) at junction voltage vd (V), SPICE's
+        law with the linear continuation above fc vj_v."""
+        vd = np.asarray(vd, dtype=float)
+        if self.cjo_f == 0.0:
+            return np.zeros_like(vd), np.zeros_like(vd)
+        cjo, vj, m, fc = self.cjo_f, self.vj_v, self.m, self.fc
+        vfc = fc * vj
+        low = np.minimum(vd, vfc)
+        arg = 1.0 - low / vj
+        sarg = arg ** -m
+        q = vj * cjo * (1.0 - arg * sarg) / (1.0 - m)
+        c = cjo * sarg
+        hi = vd > vfc
+        if np.any(hi):
+            f1 = vj * (1.0 - (1.0 - fc) ** (1.0 - m)) / (1.0 - m)
+            czof2 = cjo / (1.0 - fc) ** (1.0 + m)
+            f3 = 1.0 - fc * (1.0 + m)
+            q_hi = cjo * f1 + czof2 * (f3 * (vd - vfc) + m / (2 * vj) * (vd * vd - vfc * vfc))
+            q = np.where(hi, q_hi, q)
+            c = np.where(hi, czof2 * (f3 + m * vd / vj), c)
+        return q, c
+
+    def charge(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Charge (C) stored in the junction at terminal voltage v (V) and its derivative
+        dq/dv (F): depletion at the junction's own voltage v - I Rs plus TT I, taken
+        quasi-statically (the charging current's drop across Rs neglected: Rs C is
+        nanoseconds against the oscillation's period)."""
+        v = np.asarray(v, dtype=float)
+        i = self.current(v)
+        g = _dI(self, v)
+        qd, cd = self.depletion(v - i * self.rs_ohm)
+        return qd + self.tt_s * i, cd * (1.0 - self.rs_ohm * g) + self.tt_s * g
 
     def current(self, v: np.ndarray) -> np.ndarray:
         """Current through the junction plus its series resistance at terminal voltage v (V), A."""
@@ -65,39 +123,88 @@ def _is_at(is0: float, n: float, eg_j: float, xti: float, temp_k: float) -> floa
     return is0 * ratio ** (xti / n) * math.exp((ratio - 1) * eg_j / (n * constants.k * temp_k))
 
 
+def _pb_shift(temp_k: float) -> float:
+    """SPICE's junction-potential temperature term at temp_k (K), V: Eg(T) - Eg(Tref)
+    T/Tref - 3 Vt ln(T/Tref) (ngspice diotemp.c's pbfact, written out)."""
+    eg = 1.16 - 7.02e-4 * temp_k * temp_k / (temp_k + 1108.0)
+    ratio = temp_k / _TREF_K
+    return eg - _EG_REF_EV * ratio - 3.0 * thermal_voltage(temp_k) * math.log(ratio)
+
+
+def depletion_at(cjo_f: float, vj_v: float, m: float, fc: float, temp_k: float,
+                 tnom_k: float = T0_K) -> tuple[float, float]:
+    """(CJO, VJ) at temp_k (K) from their values at tnom_k (K): SPICE's temperature law
+    (ngspice diotemp.c, TLEVC = 0), including its limit VJ <= 1/FC."""
+    pbo = (vj_v - _pb_shift(tnom_k)) / (tnom_k / _TREF_K)
+    gma_old = (vj_v - pbo) / pbo
+    vj_t = _pb_shift(temp_k) + temp_k / _TREF_K * pbo
+    gma_new = (vj_t - pbo) / pbo
+    cjo_t = (cjo_f * (1.0 + m * (400e-6 * (temp_k - _TREF_K) - gma_new))
+             / (1.0 + m * (400e-6 * (tnom_k - _TREF_K) - gma_old)))
+    if fc * vj_t > 1.0:
+        vj_t = 1.0 / fc
+    return cjo_t, vj_t
+
+
 def junctions_at(lim: Limiter, temp_k: float) -> tuple[Junction, Junction | None]:
-    """The forward junction and (Zener pairs only) the breakdown junction at temp_k (K)."""
+    """The forward junction, with its charge, and (Zener pairs only) the breakdown
+    junction, which carries none, at temp_k (K)."""
     vt = thermal_voltage(temp_k)
-    fwd = Junction(_is_at(lim.is_a, lim.n, lim.eg_j, lim.xti, temp_k), lim.n, lim.rs_ohm, vt)
+    cjo, vj = depletion_at(lim.cjo_f, lim.vj_v, lim.m, lim.fc, temp_k)
+    fwd = Junction(_is_at(lim.is_a, lim.n, lim.eg_j, lim.xti, temp_k), lim.n, lim.rs_ohm, vt,
+                   cjo, vj, lim.m, lim.fc, lim.tt_s)
     if lim.kind != "zener-pair":
         return fwd, None
     vz = lim.vz_v + lim.vz_tempco_v_per_k * (temp_k - T0_K)
     nz = max(lim.rz_ohm * lim.iz_a / vt, 1.0)
-    brk = Junction(lim.iz_a * math.exp(-vz / (nz * vt)), nz, lim.rs_ohm, vt)
+    brk = Junction(lim.iz_a * math.exp(-vz / (nz * vt)), nz, lim.rs_ohm, vt, 0.0, 1.0, lim.m, lim.fc, 0.0)
     return fwd, brk
 
 
 @dataclass(frozen=True, slots=True)
 class LimiterTable:
-    """Tabulated branch characteristic i(v) (odd-symmetric): v_v (V, ascending),
-    i_a (A), g_s = di/dv (S). The branch is the limiter pair in series with series_ohm (ohm)."""
+    """A tabulated characteristic on the voltage grid v_v (V, ascending): current i_a
+    (A), g_s = di/dv (S), stored charge q_c (C) and c_f = dq/dv (F); linear beyond the
+    table's ends.
+
+    For a limiter branch (:func:`limiter_table`) it is odd-symmetric: the limiter pair
+    in series with series_ohm (ohm), the charge the pair's. Two opposed Zeners in
+    series also give ``element``, the table of one Zener (forward direction positive,
+    not symmetric), and ``split_v``, the voltage across the forward-conducting one of
+    the two at each point of the grid when no charge moves (the pair's current then
+    flows through both): a two-terminal i(v) and q(v) describe such a pair only
+    quasi-statically, so the analyses that can take the node between the two do
+    (:mod:`partpick.physics.harmonic`, :mod:`partpick.physics.transient`)."""
 
     v_v: np.ndarray
     i_a: np.ndarray
     g_s: np.ndarray
     series_ohm: float
+    q_c: np.ndarray | None = None
+    c_f: np.ndarray | None = None
+    element: "LimiterTable | None" = None
+    split_v: np.ndarray | None = None
 
     def current(self, v: np.ndarray) -> np.ndarray:
-        """Branch current at branch voltage v (V), A; linear beyond the table ends."""
+        """Current at voltage v (V), A."""
         return _interp_linear_ends(v, self.v_v, self.i_a, self.g_s)
 
     def conductance(self, v: np.ndarray) -> np.ndarray:
-        """di/dv of the branch at v (V), S."""
-        return np.interp(np.abs(v), self.v_v[self._half:], self.g_s[self._half:])
+        """di/dv at v (V), S."""
+        return np.interp(v, self.v_v, self.g_s)
 
     @property
-    def _half(self) -> int:
-        return len(self.v_v) // 2
+    def has_charge(self) -> bool:
+        """Charge is stored (a capacitance anywhere on the table)."""
+        return self.c_f is not None and bool(np.any(self.c_f > 0))
+
+    def charge(self, v: np.ndarray) -> np.ndarray:
+        """Stored charge at voltage v (V), C."""
+        return _interp_linear_ends(v, self.v_v, self.q_c, self.c_f)
+
+    def capacitance(self, v: np.ndarray) -> np.ndarray:
+        """dq/dv at v (V), F."""
+        return np.interp(v, self.v_v, self.c_f)
 
 
 def _interp_linear_ends(v, xs, ys, gs):
@@ -159,29 +266,75 @@ def _solve_zener_element(fwd: Junction, brk: Junction, i: np.ndarray) -> np.ndar
     return v
 
 
+# Table density: points per decade of current (the voltage then steps by n Vt ln(10) /
+# 100, about 1 mV, along the exponential part), from a current low enough that the
+# first point lies within about 1 mV of zero, so the charge's curvature at low voltage
+# is tabulated too, up to 1 A.
+_PER_DECADE = 100
+
+
 @lru_cache(maxsize=256)
-def _pair_table(lim: Limiter, temp_k: float, points: int) -> tuple[np.ndarray, np.ndarray]:
-    """The pair alone, i >= 0: (i, v) on a log current grid from 1 pA to 1 A."""
-    i_pos = np.concatenate([[0.0], np.logspace(-12, 0, points)])
-    return i_pos, _pair_voltage(lim, temp_k, i_pos)
+def _pair_table(lim: Limiter, temp_k: float) -> tuple:
+    """The pair alone, i >= 0, on a log current grid to 1 A: (i, v, q, dq/dv) and, for
+    Zener pairs, the element table and the voltage across the forward Zener.
+
+    Diode and LED pairs: q(v) = q_j(v) - q_j(-v), the two anti-parallel junctions at the
+    pair's voltage. Zener pairs: the two Zeners' capacitances in series, each at its
+    own voltage where the pair carries i (one forward, one in breakdown), integrated
+    over v (the quasi-static form; the element table holds the exact one)."""
+    fwd, brk = junctions_at(lim, temp_k)
+    g0 = _pair_conductance0(fwd, brk)
+    lo = min(-12.0, math.floor(math.log10(max(1e-3 * g0, 1e-30))))
+    i = np.concatenate([[0.0], np.logspace(lo, 0, int(round(-lo * _PER_DECADE)) + 1)])
+    if brk is None:
+        v = _solve_pair(fwd, i)
+        qa, ca = fwd.charge(v)
+        qb, cb = fwd.charge(-v)
+        return i, v, qa - qb, ca + cb, None, None
+    u_f = _solve_zener_element(fwd, brk, i)      # the Zener carrying i forward
+    u_r = _solve_zener_element(fwd, brk, -i)     # the one carrying it in breakdown (u_r < 0)
+    v = u_f - u_r
+    q_f, c_fw = fwd.charge(u_f)
+    q_r, c_rv = fwd.charge(u_r)
+    c = np.divide(c_fw * c_rv, c_fw + c_rv, out=np.zeros_like(v), where=c_fw + c_rv > 0)
+    q = np.concatenate([[0.0], np.cumsum(0.5 * (c[1:] + c[:-1]) * np.diff(v))])
+    # one Zener over its whole range: breakdown side (u_r, current -i) then forward side
+    u = np.concatenate([u_r[:0:-1], u_f])
+    elem = LimiterTable(u, np.concatenate([-i[:0:-1], i]), _dI(fwd, u) + _dI(brk, -u), 0.0,
+                        np.concatenate([q_r[:0:-1], q_f]), np.concatenate([c_rv[:0:-1], c_fw]))
+    return i, v, q, c, elem, u_f
+
+
+def _pair_conductance0(fwd: Junction, brk: Junction | None) -> float:
+    """Small-signal conductance of the pair at zero volts, S."""
+    g = float(_dI(fwd, np.array(0.0)))
+    if brk is None:
+        return 2 * g
+    return (g + float(_dI(brk, np.array(0.0)))) / 2
 
 
 @lru_cache(maxsize=2048)
-def limiter_table(lim: Limiter, series_ohm: float, temp_k: float, points: int = 1200) -> LimiterTable:
-    """Tabulate the branch (limiter pair + series_ohm in series) from 1 pA to 1 A each way.
+def limiter_table(lim: Limiter, series_ohm: float, temp_k: float) -> LimiterTable:
+    """Tabulate the branch (limiter pair + series_ohm in series) to 1 A each way.
 
     The table is dense on a log current scale so linear interpolation errs by
     well under 0.1 % in current across the knee. Cached: the search and the Monte
     Carlo ask for the same few tables many times; the pair's own table is shared by
     every series_ohm (the series resistor only adds i series_ohm to the voltage).
     """
-    i_pos, v_pair = _pair_table(lim, temp_k, points)
+    i_pos, v_pair, q_pos, c_pos, elem, u_f = _pair_table(lim, temp_k)
     v_pos = v_pair + i_pos * series_ohm
     g_pos = 1.0 / np.gradient(v_pos, i_pos)
-    v = np.concatenate([-v_pos[:0:-1], v_pos])
-    i = np.concatenate([-i_pos[:0:-1], i_pos])
-    g = np.concatenate([g_pos[:0:-1], g_pos])
-    return LimiterTable(v, i, g, series_ohm)
+
+    def odd(x):
+        return np.concatenate([-x[:0:-1], x])
+
+    def even(x):
+        return np.concatenate([x[:0:-1], x])
+
+    # the forward-oriented Zener carries the pair's current: forward at v > 0, in breakdown at v < 0
+    split = None if elem is None else np.concatenate([elem.v_v[:i_pos.size - 1], u_f])
+    return LimiterTable(odd(v_pos), odd(i_pos), even(g_pos), series_ohm, odd(q_pos), even(c_pos), elem, split)
 
 
 def forward_voltage(lim: Limiter, current_a: float, temp_k: float = T0_K) -> float:

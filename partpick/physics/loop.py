@@ -20,9 +20,10 @@ probe = cv(p) V + ci(p) I. A topology plug-in builds these rationals for its cir
 the analyses in :mod:`partpick.physics.linear` and :mod:`partpick.physics.harmonic`
 take them and know no circuit.
 
-The branch itself (:class:`Branch`) is a memoryless element with a capacitance across
-it, behind a series resistance: the junction pair of a diode limiter with its
-junction capacitance and series resistor, or (table None) a plain conductance.
+The branch itself (:class:`Branch`) is a memoryless element, which may store charge,
+behind a series resistance: the junction pair of a diode limiter with its junction
+charge (depletion and diffusion) and series resistor, or (table None) a plain
+conductance.
 """
 
 from __future__ import annotations
@@ -91,11 +92,15 @@ class Loop:
 @dataclass(frozen=True, slots=True)
 class Branch:
     """The control branch: a resistance series_ohm (ohm) in series with a memoryless element whose
-    tabulated characteristic ``table`` (current(v) in A, conductance(v) in S; None for a
-    plain conductance g0) has cap_f (F) across it. g0_s is the element's small-signal
-    conductance at zero volts (S); series_table the characteristic of element and series resistance
-    together (for the describing-function start of harmonic balance; the element's
-    own when the series resistance is 0)."""
+    tabulated characteristic ``table`` (current(v) in A, conductance(v) in S and, when it
+    stores charge, charge(v) in C and capacitance(v) = dq/dv in F; None for a plain
+    conductance g0) has a further linear capacitance cap_f (F) across it. g0_s is the
+    element's small-signal conductance at zero volts (S); series_table the characteristic
+    of element and series resistance together (for the describing-function start of
+    harmonic balance; the element's own when the series resistance is 0).
+
+    The small-signal analyses see the element at zero volts: g0_s and c0_f (cap_f plus
+    the table's dq/dv at 0 V); harmonic balance sees the whole charge q(v)."""
 
     table: object | None
     series_ohm: float = 0.0
@@ -107,30 +112,42 @@ class Branch:
         if self.series_table is None and self.series_ohm == 0.0:
             object.__setattr__(self, "series_table", self.table)
 
+    @property
+    def has_charge(self) -> bool:
+        """The element's table stores charge (a voltage-dependent capacitance)."""
+        return self.table is not None and getattr(self.table, "has_charge", False)
+
+    @property
+    def c0_f(self) -> float:
+        """Small-signal capacitance across the element at zero volts, F."""
+        extra = float(self.table.capacitance(np.array([0.0]))[0]) if self.has_charge else 0.0
+        return self.cap_f + extra
+
     def admittance(self, p: np.ndarray, w_ref: float, g_element: float | None = None) -> np.ndarray:
         """Small-signal admittance of the whole branch at p, S: the element's conductance
-        (g_element, default g0_s) and its capacitance, behind the series resistance."""
+        (g_element, default g0_s) and its capacitance c0_f, behind the series resistance."""
         g = self.g0_s if g_element is None else g_element
-        ye = g + p * w_ref * self.cap_f
+        ye = g + p * w_ref * self.c0_f
         return ye / (1.0 + self.series_ohm * ye)
 
     def rational(self, w_ref: float, g_element: float | None = None) -> Rational:
         """:meth:`admittance` as a rational function of p."""
         g = self.g0_s if g_element is None else g_element
-        return Rational(np.array([g, w_ref * self.cap_f]),
-                        np.array([1.0 + self.series_ohm * g, self.series_ohm * w_ref * self.cap_f]))
+        c = self.c0_f
+        return Rational(np.array([g, w_ref * c]), np.array([1.0 + self.series_ohm * g, self.series_ohm * w_ref * c]))
 
     @property
     def is_linear_zero(self) -> bool:
         """The branch adds nothing at small signal (no conductance, no capacitance)."""
-        return not self.g0_s and not self.cap_f
+        return not self.g0_s and not self.c0_f
 
     def element_coefficients(self, loop: Loop, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """The loop equation written for the voltage across the element itself, Ve, and
-        the element's own current Ie: with I = Ie + s C Ve through the branch and
-        V = Ve + Rser I, alpha V + gamma I = 0 becomes
-        (alpha + (alpha Rser + gamma) s C) Ve + (alpha Rser + gamma) Ie = 0. This keeps
-        the capacitance where it is, behind the series resistance Rser."""
+        the element's own current Ie (its table's current and charging current): with
+        I = Ie + s C Ve through the branch (C the linear cap_f) and V = Ve + Rser I,
+        alpha V + gamma I = 0 becomes (alpha + (alpha Rser + gamma) s C) Ve
+        + (alpha Rser + gamma) Ie = 0. This keeps the capacitance where it is, behind
+        the series resistance Rser."""
         al, ga = loop.alpha(p), loop.gamma(p)
         k = al * self.series_ohm + ga
         return al + k * (p * loop.w_ref * self.cap_f), k

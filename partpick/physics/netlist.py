@@ -73,13 +73,13 @@ class OpAmpX:
 @dataclass(frozen=True, slots=True)
 class LimiterX:
     """The limiter pair between nodes a and b (two anti-parallel diodes or LEDs, or two
-    opposed Zeners) with its junction capacitance cap_f (F) across it."""
+    opposed Zeners), each junction with its charge as the catalog's limiter gives it
+    (:mod:`partpick.physics.junction`)."""
 
     name: str
     a: str
     b: str
     limiter: Limiter
-    cap_f: float
 
 
 @dataclass(frozen=True, slots=True)

@@ -10,9 +10,12 @@ sources lack them); the optional ``.control`` block for batch runs (``linearize`
 The op-amp is emitted as a subcircuit that implements exactly the macro-model of
 :mod:`partpick.physics.opamp` (numbers from :func:`macro_params`), and the limiter
 as diodes whose parameters are those of :func:`partpick.physics.junction.junctions_at`,
-already evaluated at the netlist's temperature. ``.options TEMP = TNOM`` keeps SPICE
-from applying its own temperature law on top of that, so partpick's transient
-simulator and SPICE see the same circuit.
+already evaluated at the netlist's temperature: IS by the SPICE law with the catalog's
+EG and XTI, CJO and VJ by SPICE's own junction-capacitance law (so the values written
+are what SPICE itself would compute from the catalog's 25 degC values). ``.options
+TEMP = TNOM`` keeps SPICE from applying its temperature law a second time on top of
+that (at TEMP = TNOM it leaves IS, CJO and VJ as written), so partpick's own analyses
+and SPICE see the same circuit.
 
 Output is deterministic: the same netlist always gives the same text.
 """
@@ -129,9 +132,11 @@ def _opamp_subckt(op: OpAmp) -> list[str]:
 
 
 def _diode_model(name: str, j: Junction) -> str:
-    """A ``.model`` card for junction ``j`` (already at the netlist temperature);
-    CJO=0 because the limiter's capacitance is a separate capacitor."""
-    return f".model {name} D(IS={_num(j.is_a)} N={_num(j.n)} RS={_num(j.rs_ohm)} CJO=0)"
+    """A ``.model`` card for junction ``j``, every value already at the netlist
+    temperature (IS, and CJO and VJ by SPICE's own temperature law): current, series
+    resistance and charge (CJO, VJ, M, FC, TT)."""
+    return (f".model {name} D(IS={_num(j.is_a)} N={_num(j.n)} RS={_num(j.rs_ohm)} CJO={_num(j.cjo_f)} "
+            f"VJ={_num(j.vj_v)} M={_num(j.m)} FC={_num(j.fc)} TT={_num(j.tt_s)})")
 
 
 def _limiter_models(lim: Limiter, temp_k: float) -> list[str]:
@@ -140,7 +145,9 @@ def _limiter_models(lim: Limiter, temp_k: float) -> list[str]:
         return [f"* {lim.kind} '{lim.id}' forward junction at {_num(temp_k - 273.15)} degC",
                 _diode_model(model_name(lim), fwd)]
     return [f"* Zener '{lim.id}' at {_num(temp_k - 273.15)} degC: forward junction and the",
-            "* reverse breakdown junction (partpick's soft-knee Zener model, not SPICE BV/IBV)",
+            "* reverse breakdown junction (partpick's soft-knee Zener model, not SPICE BV/IBV);",
+            "* the forward junction's depletion charge is the whole junction's, so the",
+            "* breakdown junction stores none (CJO=0, TT=0)",
             _diode_model(model_name(lim, "f"), fwd),
             _diode_model(model_name(lim, "b"), brk)]
 
@@ -167,9 +174,6 @@ def _limiter_lines(el: LimiterX) -> list[str]:
             f"{_designator('D', el.name + 'A')} {a} {b} {mod}",
             f"{_designator('D', el.name + 'B')} {b} {a} {mod}",
         ]
-    if el.cap_f > 0:
-        # the pair's junction capacitance, lumped across it (the diode models have CJO=0)
-        lines.append(f"{_designator('C', el.name)} {a} {b} {_num(el.cap_f)}")
     return lines
 
 

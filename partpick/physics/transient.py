@@ -5,10 +5,11 @@ other than ground, the branch current of every voltage source and, for every op-
 its integrator node x and (when the op-amp has a second pole) the node y after that
 pole. The circuit is the differential-algebraic system
 
-    C dz/dt + G z + f(z) = s(t)
+    d(C z + q(z))/dt + G z + f(z) = s(t)
 
-with C the (constant) capacitance matrix, G the conductances and the source
-constraints, f the nonlinear element currents and s the sources. Every row is a
+with C the (constant) capacitance matrix, q the limiters' junction charges, G the
+conductances and the source constraints, f the nonlinear element currents and s the
+sources. Every row is a
 current balance (sum of currents leaving the node), except the voltage-source rows,
 which state v_a - v_b = V. The op-amp macro-model is the one of
 :mod:`partpick.physics.opamp` (and of the SPICE export): current into x,
@@ -20,7 +21,10 @@ pole y' = 2 pi f2 (x - y), written as the scaled balance
 (gm / (2 pi f2)) y' + gm (y - x) = 0; and the output current into ``out``,
 ilim tanh((v_y - v_out) / (ro ilim)). A limiter pair carries table.current(v_a - v_b)
 from a to b (:func:`partpick.physics.junction.limiter_table` without series resistance; a
-series resistor is its own Resistor) with its capacitance across it. A Kick is a rectangular current
+series resistor is its own Resistor) and its charge q(v) across it (charge-based:
+the BDF formula differentiates q, so the charge the integration moves is conserved
+whatever the step). Two opposed Zeners are two such elements, each Zener's own
+table, with the node between them an unknown. A Kick is a rectangular current
 pulse from ground into its node; it enters each step as its mean over the step, so the
 delivered charge is exact whatever the step size. A conductance GMIN = 1e-12 S from
 every node to ground (as SPICE adds) keeps capacitor-only nodes defined at DC.
@@ -84,44 +88,52 @@ class TransientResult:
         return analyse(self.t_s, self.v[probe], cycles=cycles)
 
 
-class _Table:
-    """Scalar, allocation-free evaluation of a LimiterTable (same values as its
-    ``current`` and ``conductance`` methods): linear interpolation by bisection."""
+class _Curve:
+    """Scalar, allocation-free evaluation of one tabulated function y(v) with its
+    derivative d (the same values as LimiterTable's ``current`` and ``conductance``,
+    or ``charge`` and ``capacitance``): linear interpolation by bisection, y linear
+    beyond the ends."""
 
-    __slots__ = ("v", "i", "slope", "g_end_lo", "g_end_hi", "vh", "gh", "gslope")
+    __slots__ = ("v", "y", "slope", "d_end_lo", "d_end_hi", "d", "dslope")
 
-    def __init__(self, tab: LimiterTable) -> None:
-        v = np.asarray(tab.v_v, dtype=float)
-        i = np.asarray(tab.i_a, dtype=float)
-        g = np.asarray(tab.g_s, dtype=float)
+    def __init__(self, v: np.ndarray, y: np.ndarray, d: np.ndarray) -> None:
+        v, y, d = (np.asarray(x, dtype=float) for x in (v, y, d))
         self.v = v.tolist()
-        self.i = i.tolist()
-        self.slope = (np.diff(i) / np.diff(v)).tolist()
-        self.g_end_lo = float(g[0])
-        self.g_end_hi = float(g[-1])
-        half = len(v) // 2
-        self.vh = v[half:].tolist()
-        self.gh = g[half:].tolist()
-        self.gslope = (np.diff(g[half:]) / np.diff(v[half:])).tolist()
+        self.y = y.tolist()
+        self.slope = (np.diff(y) / np.diff(v)).tolist()
+        self.d_end_lo = float(d[0])
+        self.d_end_hi = float(d[-1])
+        self.d = d.tolist()
+        self.dslope = (np.diff(d) / np.diff(v)).tolist()
 
-    def current(self, x: float) -> float:
+    def value(self, x: float) -> float:
         v = self.v
         if x >= v[-1]:
-            return self.i[-1] + self.g_end_hi * (x - v[-1])
+            return self.y[-1] + self.d_end_hi * (x - v[-1])
         if x <= v[0]:
-            return self.i[0] + self.g_end_lo * (x - v[0])
+            return self.y[0] + self.d_end_lo * (x - v[0])
         k = bisect_right(v, x) - 1
-        return self.i[k] + self.slope[k] * (x - v[k])
+        return self.y[k] + self.slope[k] * (x - v[k])
 
-    def conductance(self, x: float) -> float:
-        x = abs(x)
-        vh = self.vh
-        if x >= vh[-1]:
-            return self.gh[-1]
-        if x <= vh[0]:
-            return self.gh[0]
-        k = bisect_right(vh, x) - 1
-        return self.gh[k] + self.gslope[k] * (x - vh[k])
+    def derivative(self, x: float) -> float:
+        v = self.v
+        if x >= v[-1]:
+            return self.d_end_hi
+        if x <= v[0]:
+            return self.d_end_lo
+        k = bisect_right(v, x) - 1
+        return self.d[k] + self.dslope[k] * (x - v[k])
+
+
+def _middle(name: str) -> str:
+    """The internal node between the two Zeners of limiter ``name``."""
+    return name + ":m"
+
+
+def _curves(tab: LimiterTable) -> tuple[_Curve, _Curve | None]:
+    """The current curve and (when the pair stores charge) the charge curve of a table."""
+    charge = _Curve(tab.v_v, tab.q_c, tab.c_f) if tab.has_charge else None
+    return _Curve(tab.v_v, tab.i_a, tab.g_s), charge
 
 
 class _System:
@@ -130,7 +142,10 @@ class _System:
     entry there, which stays zero / is never solved for."""
 
     def __init__(self, net: Netlist) -> None:
-        nodes = list(net.nodes())
+        tables = {el.name: limiter_table(el.limiter, series_ohm=0.0, temp_k=net.temp_k)
+                  for el in net.elements if isinstance(el, LimiterX)}
+        # two Zeners in series: the node between them is an unknown of its own
+        nodes = list(net.nodes()) + [_middle(name) for name, tab in tables.items() if tab.element is not None]
         self.node_index = {name: k for k, name in enumerate(nodes)}
         n_nodes = len(nodes)
         vsrcs = [e for e in net.elements if isinstance(e, VSource)]
@@ -165,7 +180,8 @@ class _System:
         for k in range(n_nodes):
             G[k, k] += GMIN_S
         self.kicks: list[tuple[int, float, float, float]] = []   # node, A, start, end
-        self.limiters: list[tuple[int, int, _Table]] = []
+        self.limiters: list[tuple[int, int, _Curve]] = []
+        self.charges: list[tuple[int, int, _Curve]] = []
         self.ops: list[tuple] = []
         self.op_names: dict[str, int] = {}
         krow = n_nodes
@@ -189,9 +205,17 @@ class _System:
                 self.kicks.append((idx(el.node), el.amps, el.start_s, el.start_s + el.width_s))
             elif isinstance(el, LimiterX):
                 a, b = idx(el.a), idx(el.b)
-                stamp2(C, a, b, el.cap_f)
-                tab = _Table(limiter_table(el.limiter, series_ohm=0.0, temp_k=net.temp_k))
-                self.limiters.append((a, b, tab))
+                tab = tables[el.name]
+                if tab.element is None:
+                    pairs = [(a, b)]
+                else:   # each Zener from the middle node (its anode) to one terminal
+                    tab, m = tab.element, idx(_middle(el.name))
+                    pairs = [(m, a), (m, b)]
+                cur, charge = _curves(tab)
+                for x, y in pairs:
+                    self.limiters.append((x, y, cur))
+                    if charge is not None:
+                        self.charges.append((x, y, charge))
             elif isinstance(el, OpAmpX):
                 pass
             else:
@@ -249,17 +273,43 @@ class _System:
                 d2 = g_out * (1.0 - th2 * th2)
                 J[io, iy] -= d2
                 J[io, io] += d2
-        for a, b, tab in self.limiters:
+        for a, b, cur in self.limiters:
             vd = zl[a] - zl[b]
-            i = tab.current(vd)
+            i = cur.value(vd)
             F[a] += i
             F[b] -= i
             if J is not None:
-                g = tab.conductance(vd)
+                g = cur.derivative(vd)
                 J[a, a] += g
                 J[b, b] += g
                 J[a, b] -= g
                 J[b, a] -= g
+
+    def charge_history(self, a1: float, a2: float, zc: np.ndarray, zp: np.ndarray | None) -> list[float]:
+        """Per charged limiter, a1 q(zc) + a2 q(zp): the past steps' part of the BDF
+        derivative of its charge (C/s)."""
+        out = []
+        for a, b, q in self.charges:
+            h = a1 * q.value(zc[a] - zc[b])
+            if zp is not None and a2 != 0.0:
+                h += a2 * q.value(zp[a] - zp[b])
+            out.append(h)
+        return out
+
+    def stamp_charge(self, z: np.ndarray, F: np.ndarray, J: np.ndarray, a0: float, hist: list[float]) -> None:
+        """Add each limiter's charging current, the BDF derivative a0 q(z) + hist of its
+        charge q(v) (charge-based, so the charge the integration moves is conserved),
+        to F and a0 dq/dv to J."""
+        for (a, b, q), h in zip(self.charges, hist):
+            vd = z[a] - z[b]
+            i = a0 * q.value(vd) + h
+            F[a] += i
+            F[b] -= i
+            c = a0 * q.derivative(vd)
+            J[a, a] += c
+            J[b, b] += c
+            J[a, b] -= c
+            J[b, a] -= c
 
     def kick_source(self, t0: float, t1: float) -> np.ndarray:
         """The source vector averaged over (t0, t1]."""
@@ -409,6 +459,7 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
         A, a0, a1, a2 = coeffs(hc, hp)
         hist = a1 * zc if zp is None or a2 == 0.0 else a1 * zc + a2 * zp
         ch = C @ hist - sysm.kick_source(t0, t0 + hc)
+        qhist = sysm.charge_history(a1, a2, zc, zp) if sysm.charges else None
         if zp is None or hp is None or hc > _MAX_RATIO * hp:
             z = zc.copy()
         else:
@@ -419,6 +470,8 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
             J = A.copy()
             F = A @ z + ch
             stamp(z, F, J)
+            if qhist is not None:
+                sysm.stamp_charge(z, F, J, a0, qhist)
             _, _, dz, info = dgesv(J[:n, :n], -F[:n])
             if info != 0:
                 return None
