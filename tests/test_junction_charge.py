@@ -271,8 +271,13 @@ supply: {{kind: dual, min: 12 V}}
 load: {{resistance: 10 kohm}}
 distortion: {{max_thd: 20 %}}
 """
+    from partpick.export.verdict import render_verdict
+
     for tol, cautioned in (("0.5 %", True), ("20 %", False)):
         v = verify(c, Spec.from_text(spec_text.format(tol=tol), "t.yaml"))
+        line = next(ln for ln in render_verdict(v).splitlines() if ln.startswith("frequency per pF at the limiter"))
+        assert line.split()[8:11] == ["-", "info", "-"], line    # no limit, no verdict, no margin
+        assert v.requirements() == tuple(ch for ch in v.checks if ch.name != "frequency per pF at the limiter")
         row = next(ch for ch in v.checks if ch.name == "frequency per pF at the limiter")
         assert row.is_info and row.passed and row.value < 0
         nom = v.nominal

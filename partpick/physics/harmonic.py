@@ -94,13 +94,7 @@ class _Balance:
         self.charged = branch.has_charge
         self.ks = np.arange(1, kmax + 1, 2)
         self.nt = nt
-        theta = 2 * np.pi * np.arange(nt) / nt
-        kt = np.outer(theta, self.ks)
-        # columns: re_k, im_k for each odd k; v(theta) = sum Re(V_k e^{j k theta})
-        self.synth = np.empty((nt, 2 * self.ks.size))
-        self.synth[:, 0::2] = np.cos(kt)
-        self.synth[:, 1::2] = -np.sin(kt)
-        self.anal = self.synth.T * (2.0 / nt)
+        self.synth, self.anal = _transforms(self.ks, nt)
 
     def coeffs(self, w: float) -> tuple[np.ndarray, np.ndarray]:
         # unknowns are the harmonics of the voltage across the nonlinear element itself
@@ -221,13 +215,7 @@ class _SeriesBalance(_Balance):
         self.elem = branch.table.element
         self.split = (branch.table.v_v, branch.table.split_v)
         self.kall = np.arange(0, kmax + 1)
-        theta = 2 * np.pi * np.arange(nt) / nt
-        kt = np.outer(theta, self.kall)
-        self.synth_all = np.empty((nt, 2 * self.kall.size))
-        self.synth_all[:, 0::2] = np.cos(kt)
-        self.synth_all[:, 1::2] = -np.sin(kt)
-        self.anal_all = self.synth_all.T * (2.0 / nt)
-        self.anal_all[0] /= 2.0               # the DC term
+        self.synth_all, self.anal_all = _transforms(self.kall, nt)
         self.odd = self.kall % 2 == 1
         self.ek = np.zeros(int(np.sum(~self.odd)), dtype=complex)
         nk = self.kall.size
@@ -309,6 +297,20 @@ class _SeriesBalance(_Balance):
         du[self.keep_cols] = step[:-1]
         duk = _cx(du)
         return 2 * duk[self.odd], duk[~self.odd]
+
+
+def _transforms(ks: np.ndarray, nt: int) -> tuple[np.ndarray, np.ndarray]:
+    """(synthesis, analysis) matrices of harmonics ks on nt samples of a period:
+    columns re_k, im_k for each k, v(theta) = sum Re(V_k e^{j k theta}); the analysis
+    is the inverse on those harmonics (a DC term k = 0 weighs 1/nt, the others 2/nt)."""
+    theta = 2 * np.pi * np.arange(nt) / nt
+    kt = np.outer(theta, ks)
+    synth = np.empty((nt, 2 * ks.size))
+    synth[:, 0::2] = np.cos(kt)
+    synth[:, 1::2] = -np.sin(kt)
+    anal = synth.T * (2.0 / nt)
+    anal[0::2][ks == 0] /= 2.0
+    return synth, anal
 
 
 def _ri(z: np.ndarray) -> np.ndarray:

@@ -332,8 +332,11 @@ def limiter_table(lim: Limiter, series_ohm: float, temp_k: float) -> LimiterTabl
     def even(x):
         return np.concatenate([x[:0:-1], x])
 
+    if elem is None or series_ohm:
+        # the element's table describes the pair alone, on the pair's own voltage
+        return LimiterTable(odd(v_pos), odd(i_pos), even(g_pos), series_ohm, odd(q_pos), even(c_pos))
     # the forward-oriented Zener carries the pair's current: forward at v > 0, in breakdown at v < 0
-    split = None if elem is None else np.concatenate([elem.v_v[:i_pos.size - 1], u_f])
+    split = np.concatenate([elem.v_v[:i_pos.size - 1], u_f])
     return LimiterTable(odd(v_pos), odd(i_pos), even(g_pos), series_ohm, odd(q_pos), even(c_pos), elem, split)
 
 
