@@ -19,12 +19,12 @@ from partpick.circuits.base import Circuit, Conditions, Slot, Values
 from partpick.circuits.options import (AMP_SLOPE_MAX, CtlOption, dt_of, merge_lines, nearest, sigma, slope,
                                        values_of, z_of)
 from partpick.physics.harmonic import describing_amplitude, harmonic_balance
-from partpick.physics.junction import T0_K, forward_voltage, limiter_table
+from partpick.physics.junction import forward_voltage, limiter_table
 from partpick.physics.linear import analyse_linear
 from partpick.physics.loop import Branch
 from partpick.physics.netlist import LimiterX, Resistor
 
-__all__ = ["DiodeLimiter", "CONTROL", "SLOTS", "pair_capacitance"]
+__all__ = ["DiodeLimiter", "CONTROL", "SLOTS"]
 
 SLOTS = (
     Slot("rd", "resistors", "R5", "resistor in series with the limiter", optional=True),
@@ -33,14 +33,6 @@ SLOTS = (
 
 # The limiter works near its forward voltage at tens of microamps (its knee).
 KNEE_A = 20e-6
-
-
-def pair_capacitance(lim, temp_k: float = T0_K) -> float:
-    """Small-signal capacitance across the pair at zero volts and temp_k (K), F: two
-    diodes in parallel, or two Zeners in series."""
-    if lim is None:
-        return 0.0
-    return float(limiter_table(lim, 0.0, temp_k).capacitance(0.0))
 
 
 class DiodeLimiter:

@@ -186,12 +186,12 @@ class _Balance:
         """d(frequency)/d(C) at the solution vk, w, Hz/F, for a linear capacitance C added
         across the element: the implicit-function theorem on the converged equations,
         dX/dC = -J^-1 dR/dC with dR_k/dC = ga_k j k w w_ref V_k (element_coefficients)."""
-        r, Jr, _, ga = self.system(vk, w)
+        _, Jr, _, ga = self.system(vk, w)
         dr = ga * 1j * self.ks * (w * self.loop.w_ref) * vk
-        dx = np.linalg.solve(Jr, -self.rows_odd(dr, r))
+        dx = np.linalg.solve(Jr, -self.rows_odd(dr))
         return float(dx[-1]) * self.loop.w_ref / (2 * math.pi)
 
-    def rows_odd(self, dr: np.ndarray, r: np.ndarray) -> np.ndarray:
+    def rows_odd(self, dr: np.ndarray) -> np.ndarray:
         """A derivative of the odd (loop) rows as a right-hand side."""
         return _ri(dr)
 
@@ -287,7 +287,7 @@ class _SeriesBalance(_Balance):
     def rows(self, r: np.ndarray) -> np.ndarray:
         return _ri(r)[self.keep_rows]
 
-    def rows_odd(self, dr: np.ndarray, r: np.ndarray) -> np.ndarray:
+    def rows_odd(self, dr: np.ndarray) -> np.ndarray:
         full = np.zeros(self.kall.size, dtype=complex)
         full[self.odd] = dr
         return _ri(full)[self.keep_rows]
