@@ -2,8 +2,11 @@
 
 A catalog is a folder of YAML files; each file may hold any of the sections
 ``resistors``, ``capacitors``, ``opamps`` and ``limiters`` (see DEVELOPERS.md for the
-format). Loading validates every field and turns it into SI floats held in frozen
-records; the rest of partpick never sees the YAML. Resistor and capacitor values
+format), and a ``packages`` section gives packages' thermal data, which loading hands
+to the op-amps in them. Loading validates every field and turns it into SI floats held
+in frozen records; the rest of partpick never sees the YAML. Every family may name its
+maker and maker's part number (optional, carried to BOM and purchasing files); a
+``{value}`` in a part number stands for the part's value in RKM code. Resistor and capacitor values
 come from IEC 60063 series (:mod:`partpick.series`) within each family's range.
 """
 
@@ -11,7 +14,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Iterable
 
@@ -19,16 +22,8 @@ from partpick import series
 from partpick.errors import CatalogError, InputError
 from partpick.yamlsrc import Fields, read_yaml
 
-__all__ = [
-    "KINDS",
-    "ResistorFamily",
-    "CapacitorFamily",
-    "OpAmp",
-    "Limiter",
-    "Catalog",
-    "load_catalog",
-    "default_catalog_dir",
-]
+__all__ = ["KINDS", "ResistorFamily", "CapacitorFamily", "OpAmp", "Limiter", "Package", "Catalog", "load_catalog",
+           "default_catalog_dir"]
 
 KINDS = ("resistors", "capacitors", "opamps", "limiters")
 DISTRIBUTIONS = ("uniform", "normal")
@@ -63,6 +58,8 @@ class ResistorFamily:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
     def values(self) -> tuple[float, ...]:
         """Every value the family offers, ohm, ascending (IEC 60063 decade expansion)."""
@@ -103,6 +100,8 @@ class CapacitorFamily:
     price_at_max: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
     @property
     def has_band(self) -> bool:
@@ -131,7 +130,9 @@ class OpAmp:
     input_cm_low_v / input_cm_high_v: how close the inputs may come to each rail, V
     (negative = beyond the rail); output_current_a: short-circuit limit, A;
     output_resistance_ohm: open-loop output resistance, ohm; slew_v_per_s: V/s;
-    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction.
+    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction; theta_ja_k_per_w
+    (K/W) and tj_max_k (K): the package's thermal data from the catalog's ``packages``
+    section (None when it has none).
     """
 
     id: str
@@ -158,6 +159,26 @@ class OpAmp:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
+    theta_ja_k_per_w: float | None = None
+    tj_max_k: float | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Package:
+    """A package's thermal data: junction-to-ambient thermal resistance theta_ja_k_per_w
+    (K/W, as the maker measures it on a standard board, JEDEC JESD51) and the maximum
+    junction temperature tj_max_k (K)."""
+
+    id: str
+    theta_ja_k_per_w: float
+    tj_max_k: float
+    where: str = field(default="", compare=False)
+
+    def limit_w(self, ambient_k: float) -> float:
+        """Dissipation that brings the junction to its maximum at ambient_k (K), W."""
+        return max(self.tj_max_k - ambient_k, 0.0) / self.theta_ja_k_per_w
 
 
 @dataclass(frozen=True, slots=True)
@@ -192,6 +213,8 @@ class Limiter:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
 
 Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter
@@ -208,6 +231,7 @@ class Catalog:
     currency: str
     sources: tuple[str, ...]
     demo: bool
+    packages: tuple[Package, ...] = ()
 
     def of_kind(self, kind: str) -> tuple[Family, ...]:
         return getattr(self, kind)
@@ -227,6 +251,13 @@ class Catalog:
         for kind in KINDS:
             if self.find(kind, family_id) is not None:
                 return kind
+        return None
+
+    def package(self, name: str) -> Package | None:
+        """The thermal data of package ``name``, or None."""
+        for p in self.packages:
+            if p.id == name:
+                return p
         return None
 
     def all_ids(self) -> tuple[str, ...]:
@@ -271,6 +302,7 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
     elif isinstance(paths, (str, Path)):
         paths = [paths]
     families: dict[str, list] = {k: [] for k in KINDS}
+    packages: dict[str, Package] = {}
     seen: dict[str, str] = {}
     currency: tuple[str, str] | None = None
     sources = []
@@ -278,7 +310,7 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
     for path in _catalog_files(paths):
         source = str(path)
         root = Fields(read_yaml(path, CatalogError), source, CatalogError,
-                      allowed=("description", "demo", "currency") + KINDS)
+                      allowed=("description", "demo", "currency", "packages") + KINDS)
         sources.append(source)
         demo = root.boolean("demo", default=False) or demo
         if root.has("currency"):
@@ -287,30 +319,44 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
                 raise root.error("currency", f"must match '{currency[0]}' of {currency[1]} (got '{cur}')")
             currency = (cur, source)
         count = 0
+        for rec in root.records("packages", ("id", "theta_ja", "max_junction")):
+            pkg = _package(rec)
+            if pkg.id in packages:
+                raise rec.error("id", f"duplicates package '{pkg.id}' first defined at {packages[pkg.id].where}")
+            packages[pkg.id] = pkg
+            count += 1
         for kind, reader in _READERS.items():
             for rec in root.records(kind, reader.allowed):
                 fam = reader.read(rec)
-                fid = fam.id
-                if fid in seen:
-                    raise rec.error("id", f"duplicates family '{fid}' first defined at {seen[fid]}")
-                seen[fid] = fam.where
+                if fam.id in seen:
+                    raise rec.error("id", f"duplicates family '{fam.id}' first defined at {seen[fam.id]}")
+                seen[fam.id] = fam.where
                 families[kind].append(fam)
                 count += 1
         if count == 0:
-            raise CatalogError(
-                "contains no part families; expected at least one of the sections " + ", ".join(KINDS),
-                source=source, line=1)
+            raise CatalogError("contains no part families; expected at least one of the sections "
+                               + ", ".join(KINDS), source=source, line=1)
     if not sources or not seen:
         raise CatalogError("the catalog is empty; expected part families", source=", ".join(map(str, paths)))
-    return Catalog(
-        resistors=tuple(families["resistors"]),
-        capacitors=tuple(families["capacitors"]),
-        opamps=tuple(families["opamps"]),
-        limiters=tuple(families["limiters"]),
-        currency=currency[0] if currency else "USD",
-        sources=tuple(sources),
-        demo=demo,
-    )
+    return Catalog(resistors=tuple(families["resistors"]), capacitors=tuple(families["capacitors"]),
+                   opamps=tuple(_with_thermal(op, packages.get(op.package)) for op in families["opamps"]),
+                   limiters=tuple(families["limiters"]), currency=currency[0] if currency else "USD",
+                   sources=tuple(sources), demo=demo, packages=tuple(packages.values()))
+
+
+def _with_thermal(op: OpAmp, pkg: Package | None) -> OpAmp:
+    """The op-amp with its package's thermal data (unchanged when the catalog has none)."""
+    if pkg is None:
+        return op
+    return replace(op, theta_ja_k_per_w=pkg.theta_ja_k_per_w, tj_max_k=pkg.tj_max_k)
+
+
+def _package(rec: Fields) -> Package:
+    theta = rec.quantity("theta_ja", "thermal_resistance", positive=True)
+    tj = rec.quantity("max_junction", "temperature")
+    if tj <= 273.15:
+        raise rec.error("max_junction", f"must be above 0 degC (got {tj - 273.15:g} degC)")
+    return Package(_id(rec), theta, tj, _where(rec))
 
 
 # -- readers, one per kind ---------------------------------------------------------------
@@ -324,6 +370,14 @@ def _id(rec: Fields) -> str:
 
 def _where(rec: Fields) -> str:
     return f"{rec.source}:{rec.node.line}"
+
+
+def _maker(rec: Fields) -> dict[str, str]:
+    """The optional maker and maker's part number of a family."""
+    part = rec.text("maker_part", default="")
+    if "{" in part.replace("{value}", "") or "}" in part.replace("{value}", ""):
+        raise rec.error("maker_part", f"may hold '{{value}}' and no other braces (got '{part}')")
+    return {"maker": rec.text("maker", default=""), "maker_part": part}
 
 
 def _tolerance(rec: Fields, key: str = "tolerance") -> float:
@@ -363,13 +417,10 @@ def _cost(p: Fields, key: str, default: float | None = None) -> float:
 class _Reader:
     allowed: tuple[str, ...] = ()
 
-    def read(self, rec: Fields):  # pragma: no cover - interface
-        raise NotImplementedError
-
 
 class _Resistors(_Reader):
     allowed = ("id", "description", "technology", "series", "tolerance", "distribution", "tempco",
-               "range", "power", "voltage", "package", "price")
+               "range", "power", "voltage", "package", "price", "maker", "maker_part")
 
     def read(self, rec: Fields) -> ResistorFamily:
         ser = _series(rec)
@@ -391,12 +442,13 @@ class _Resistors(_Reader):
             price_unit=_cost(price, "unit"),
             price_line=_cost(price, "line", default=0.0),
             where=_where(rec),
+            **_maker(rec),
         )
 
 
 class _Capacitors(_Reader):
     allowed = ("id", "description", "dielectric", "series", "tolerance", "distribution", "tempco",
-               "temperature_band", "range", "voltage", "package", "price")
+               "temperature_band", "range", "voltage", "package", "price", "maker", "maker_part")
 
     def read(self, rec: Fields) -> CapacitorFamily:
         ser = _series(rec)
@@ -442,13 +494,14 @@ class _Capacitors(_Reader):
             price_at_max=at_max,
             price_line=_cost(price, "line", default=0.0),
             where=_where(rec),
+            **_maker(rec),
         )
 
 
 class _OpAmps(_Reader):
     allowed = ("id", "description", "gbw", "dc_gain", "second_pole", "slew_rate", "supply", "headroom",
                "output_current", "output_resistance", "input_common_mode", "rail_to_rail", "channels",
-               "quiescent_current", "input_bias_current", "gbw_spread", "package", "price")
+               "quiescent_current", "input_bias_current", "gbw_spread", "package", "price", "maker", "maker_part")
 
     def read(self, rec: Fields) -> OpAmp:
         sup = rec.sub("supply", ("min", "max"))
@@ -492,6 +545,7 @@ class _OpAmps(_Reader):
             price_unit=_cost(price, "unit"),
             price_line=_cost(price, "line", default=0.0),
             where=_where(rec),
+            **_maker(rec),
         )
         if op.headroom_high_v + op.headroom_low_v >= smin:
             raise head.error(None, "leaves no output swing at the minimum supply")
@@ -501,7 +555,7 @@ class _OpAmps(_Reader):
 class _Limiters(_Reader):
     allowed = ("id", "description", "kind", "saturation_current", "emission", "series_resistance",
                "capacitance", "bandgap", "xti", "zener_voltage", "zener_current", "zener_resistance",
-               "zener_tempco", "forward_voltage_spread", "parts", "package", "price")
+               "zener_tempco", "forward_voltage_spread", "parts", "package", "price", "maker", "maker_part")
 
     def read(self, rec: Fields) -> Limiter:
         kind = rec.text("kind", choices=LIMITER_KINDS)
@@ -532,6 +586,7 @@ class _Limiters(_Reader):
             price_unit=_cost(price, "unit"),
             price_line=_cost(price, "line", default=0.0),
             where=_where(rec),
+            **_maker(rec),
         )
 
 

@@ -237,9 +237,7 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
             text = text.replace(f" {word} ", f" {click.style(word, fg=colour)} ")
     click.echo(text)
     if explain:
-        click.echo("\nnot considered:", err=notes)
-        for line in d.space.explain:
-            click.echo(f"  {line}", err=notes)
+        click.echo("\n" + out_.explain_text(d, spec), err=notes)
     if report_path is not None:
         from partpick.export.report import render_report
         from partpick.verify import nominal_spectrum

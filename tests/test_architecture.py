@@ -19,7 +19,7 @@ PKG = ROOT / "partpick"
 LAYERS = [
     ("partpick", "partpick.errors", "partpick.units", "partpick.series", "partpick.yamlsrc", "partpick.fileio",
      "partpick.starter"),
-    ("partpick.catalog", "partpick.spec", "partpick.stock"),
+    ("partpick.catalog", "partpick.spec", "partpick.stock", "partpick.derating"),
     ("partpick.physics",),
     ("partpick.circuits",),
     ("partpick.search", "partpick.verify", "partpick.tolerance", "partpick.bom", "partpick.pricing", "partpick.rank"),

@@ -7,12 +7,13 @@ import json
 
 from partpick import units
 from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
+from partpick.derating import RULES
 from partpick.export.table import render_table
 from partpick.export.verdict import check_json, worst_line
 from partpick.pricing import Pricer
 
 __all__ = ["summary", "design_table", "design_json", "design_csv", "design_yaml", "bom_note", "candidate_json",
-           "bom_rows", "design_output"]
+           "bom_rows", "design_output", "explain_text", "derating_lines"]
 
 
 def summary(r) -> dict:
@@ -127,4 +128,28 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
         lines.append(design_table(d, catalog, spec))
     if verbose:
         lines.append("time per stage: " + ", ".join(f"{k} {v:.2f} s" for k, v in d.timings.items()))
+    return "\n".join(lines)
+
+
+def derating_lines(spec, opamp=None) -> list[str]:
+    """The derating rules in force, each with its value, meaning and where it was set;
+    with ``opamp``, the package limit that follows for it."""
+    from partpick.verify import package_limit
+
+    d = spec.derating
+    out = []
+    for rule in RULES:
+        value = units.format_quantity(float(f"{d.value(rule.key):.4g}"), rule.dim)
+        out.append(f"{rule.key} = {value}: {rule.meaning} ({d.origin_of(rule.key)}; {rule.source})")
+    if opamp is not None:
+        out.append(f"package limit of {opamp.id}: {package_limit(opamp, spec)[1]}")
+    return out
+
+
+def explain_text(d, spec) -> str:
+    """``design --explain``: what the search left out and why, and the derating rules."""
+    lines = ["not considered:"] + [f"  {line}" for line in d.space.explain]
+    best = d.ranked[0].circuit.opamp if d.ranked else None
+    lines += ["derating rules (set them in the spec's 'derating:' or a rules file it names):"]
+    lines += [f"  {line}" for line in derating_lines(spec, best)]
     return "\n".join(lines)
