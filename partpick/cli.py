@@ -231,7 +231,7 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     d = design(spec, cat, stock=stock, results=results, time_limit_s=time_limit, workers=workers, seed=seed,
                rank_by=keys, samples=samples, progress=progress)
     notes = fmt != "text"  # side messages go to stderr when stdout carries data
-    text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose)
+    text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose, stock=stock)
     if fmt == "text" and sys.stdout.isatty():  # colour only on a terminal
         for word, colour in (("pass", "green"), ("FAIL", "red")):
             text = text.replace(f" {word} ", f" {click.style(word, fg=colour)} ")
@@ -254,7 +254,7 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     if out_dir is not None:
         from partpick.export.files import write_candidates
 
-        write_candidates(d, spec, spec_path, cat, out_dir, force=force)
+        write_candidates(d, spec, spec_path, cat, out_dir, force=force, stock=stock)
         click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=notes)
 
 

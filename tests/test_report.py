@@ -60,9 +60,10 @@ def test_bom_files_round_trip_and_netlists_run(tmp_path, path):
     result = run("design", path, "--catalog", CATALOGS, "-n", "1", "--out", out, "--samples", "2000")
     assert result.exit_code == 0, result.output + result.stderr
     csv_file = next(out.glob("*.csv"))
-    header = [ln for ln in csv_file.read_text(encoding="utf-8").splitlines() if not ln.startswith("#")][0]
-    assert header.split(",")[:4] == ["designator", "role", "quantity", "value"]
-    for col in ("description", "tolerance", "tempco", "rating", "package", "unit_cost", "line_cost", "stock"):
+    header = csv_file.read_text(encoding="utf-8").splitlines()[0]
+    assert header.split(",")[:4] == ["designators", "roles", "quantity", "value"]
+    for col in ("description", "maker", "maker_part", "tolerance", "tempco", "rating", "package", "unit_cost",
+                "line_cost", "order_cost", "on_shelf"):
         assert col in header
     yaml_file = next(out.glob("*.yaml"))
     a = run("check", path, yaml_file, "--catalog", CATALOGS, "--format", "json", "--samples", "2000")

@@ -5,16 +5,14 @@ Charts are inline SVG; the page needs no script and no network."""
 
 from __future__ import annotations
 
-import csv
 import html
-import io
 import math
 
 import numpy as np
 
 from partpick import __version__, units
 from partpick.export import svgplot
-from partpick.export.purchase import bom_to_purchase_csv
+from partpick.export.purchase import PURCHASE_COLUMNS, purchase_rows
 from partpick.export.schematic import schematic_svg
 
 __all__ = ["render_report"]
@@ -78,11 +76,9 @@ def render_report(spec, d, catalog, *, points=None, front=None, stock=None, spec
     rows = [[_e(k), _e(f"{val:.6g}" if isinstance(val, float) else val), _e(u)] for k, val, u in spec.normalised()]
     parts += ['<h2>Requirement</h2>', _table(["field", "value (SI)", "unit"], rows, "requirement")]
     # BOM
-    reader = list(csv.reader(io.StringIO("\n".join(
-        ln for ln in bom_to_purchase_csv(best.bom, catalog, stock=stock, builds=spec.builds).splitlines()
-        if not ln.startswith("#")))))
+    rows = purchase_rows(best.bom, catalog, stock=stock, builds=spec.builds)
     parts += [f"<h2>Bill of materials (rank 1, {best.cost:.3f} {_e(catalog.currency)} per board)</h2>",
-              _table(reader[0], [[_e(c) for c in row] for row in reader[1:]], "bom")]
+              _table(PURCHASE_COLUMNS, [[_e(c) for c in row] for row in rows], "bom")]
     # circuit
     parts += ['<h2>Circuit</h2>', f'<div id="schematic">{schematic_svg(best.bom)}</div>',
               f'<p class="note">textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g} '

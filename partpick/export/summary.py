@@ -10,7 +10,7 @@ from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
 from partpick.derating import RULES
 from partpick.export.table import render_table
 from partpick.export.verdict import check_json, worst_line
-from partpick.pricing import Pricer
+from partpick.pricing import purchase_lines
 
 __all__ = ["summary", "design_table", "design_json", "design_csv", "design_yaml", "bom_note", "candidate_json",
            "bom_rows", "design_output", "explain_text", "derating_lines"]
@@ -37,19 +37,20 @@ def _bom_json(bom) -> list[dict]:
     return [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value} for ln in bom.lines]
 
 
-def bom_rows(r, catalog) -> list[list]:
-    """Rows of the BOM table: ref, role, value, family, unit price (the catalog price the
-    search used; a limiter: its pair)."""
-    price = Pricer(catalog).unit
+def bom_rows(r, catalog, stock=None) -> list[list]:
+    """Rows of the BOM table, one per purchasing line: designators, roles, quantity per
+    board, value, family, unit price, line cost (parts, line price and ordering cost:
+    the lines add up to the candidate's cost)."""
     rows = []
-    for ln in r.bom.lines:
-        dim = ROLES[ln.role][1]
+    for ln in purchase_lines(r.bom, catalog, stock):
+        dim = ROLES[ln.roles[0]][1]
         value = units.format_quantity(ln.value, dim, 3) if dim else ""
-        rows.append([ln.ref, ln.role, value, ln.family, f"{price(ln.family, ln.value):.3f}"])
+        rows.append([",".join(ln.refs), ",".join(ln.roles), ln.quantity, value, ln.family, f"{ln.unit_price:.3f}",
+                     f"{ln.cost:.3f}"])
     return rows
 
 
-def design_table(d, catalog, spec) -> str:
+def design_table(d, catalog, spec, stock=None) -> str:
     """The ranked candidates as a table, then the #1 bill of materials and its cautions."""
     lines = []
     rows = []
@@ -69,8 +70,11 @@ def design_table(d, catalog, spec) -> str:
     lines.append("")
     lines.append(f"#1 bill of materials (textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g}, "
                  f"needs {best.circuit.required_gain:.4g}):")
-    lines.append(render_table(["ref", "role", "value", "family", f"unit {catalog.currency}"], bom_rows(best, catalog),
-                              right=(4,), indent="  "))
+    lines.append(render_table(["ref", "role", "qty", "value", "family", f"unit {catalog.currency}",
+                               f"line {catalog.currency}"], bom_rows(best, catalog, stock), right=(2, 5, 6),
+                              indent="  "))
+    lines.append(f"  line = unit x qty + the family's line price{' + ordering cost off the shelf' if stock else ''};"
+                 f" total {best.cost:.3f} {catalog.currency} per board")
     for caution in best.verdict.cautions:
         lines.append(f"caution: {caution}")
     return "\n".join(lines)
@@ -114,7 +118,7 @@ def candidate_json(i: int, r) -> str:
 
 
 def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bool = False,
-                  verbose: bool = False) -> str:
+                  verbose: bool = False, stock=None) -> str:
     """What ``partpick design`` prints in format ``fmt`` (text, json, csv, yaml)."""
     if fmt == "json":
         return design_json(spec_path, d)
@@ -125,7 +129,7 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
     lines = [f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
              f"(ranked by {', '.join(keys or spec.rank_by)})"]
     if not quiet:
-        lines.append(design_table(d, catalog, spec))
+        lines.append(design_table(d, catalog, spec, stock))
     if verbose:
         lines.append("time per stage: " + ", ".join(f"{k} {v:.2f} s" for k, v in d.timings.items()))
     return "\n".join(lines)
