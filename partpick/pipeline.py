@@ -165,14 +165,23 @@ def _verified_failure(ranked: list[Ranked]) -> str:
 
 def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = None) -> str:
     """The SPICE netlist of ``bom`` at the spec's nominal point, with a transient run of
-    ``cycles`` periods (default: enough to settle)."""
+    ``cycles`` periods (default: enough to settle), titled with the target and the
+    predicted frequency; when the circuit starts, a batch block makes ``ngspice -b``
+    measure and print the frequency, amplitude and THD at the load."""
+    from partpick import units
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
     from partpick.verify import operating_conditions, predict, transient_cycles_for
 
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
+    point = predict(circuit, cond)
     if cycles is None:
-        point = predict(circuit, cond)
         cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
-    return to_spice(build_netlist(circuit, cond), cycles=cycles)
+    target = units.format_quantity(spec.frequency.target_hz, "frequency")
+    amp = units.Amplitude(point.load_peak_v, "pk").as_kind(spec.amplitude.target.kind)
+    predicted = (f"predicted {units.format_quantity(float(f'{point.freq_hz:.6g}'), 'frequency')}, "
+                 f"{units.format_amplitude(amp, 4)} at the load" if point.starts else "predicted not to start")
+    title = f"partpick {circuit.topology.title} for {spec.name}: target {target}, {predicted} (nominal point)"
+    return to_spice(build_netlist(circuit, cond), cycles=cycles, title=title,
+                    measure_hz=point.freq_hz if point.starts else None)
