@@ -305,8 +305,6 @@ def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> No
 
     spec, cat, stock = _inputs(spec_path, catalog_paths)
     points, front = tradeoff(spec, cat, stock=stock, samples=samples, progress=_progress(True, "design runs"))
-    if not front:
-        raise PartpickError("no design meets the spec with any allowed family pair; run `partpick design` for why")
     click.echo(tradeoff_json(points, front) if fmt == "json" else tradeoff_text(spec, cat, points, front, samples))
     if plots_dir is not None:
         from partpick.export.plots import front_plot
@@ -332,7 +330,7 @@ def report_cmd(spec_path, catalog_paths, out, force, samples) -> None:
 
     spec, cat, stock = _inputs(spec_path, catalog_paths)
     d = design(spec, cat, stock=stock, samples=samples)
-    points, front = tradeoff(spec, cat, stock=stock, samples=samples)
+    points, front = tradeoff(spec, cat, stock=stock, samples=samples, extra=d.ranked)
     best = d.ranked[0]
     spectrum = nominal_spectrum(best.circuit, best.verdict.nominal.cond)
     out = out or Path(f"{spec.name}-report.html")
