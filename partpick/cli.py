@@ -154,10 +154,10 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
     if fmt == "json":
         click.echo(json.dumps(check_data(spec_path, bom_path, r), indent=2, default=lambda x: None))
     else:
-        click.echo(check_text(spec_path, bom_path, r))
+        click.echo(check_text(spec_path, bom_path, r, spec))
         if transient:
             click.echo("")
-            click.echo(transient_text(transient_check(r.circuit, r.verdict.nominal.cond)))
+            click.echo(transient_text(transient_check(r.circuit, r.verdict.nominal.cond), spec))
     if not r.verdict.passed:
         sys.exit(1)
 

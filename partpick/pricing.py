@@ -112,7 +112,7 @@ def purchase_lines(bom, catalog: Catalog, stock=None) -> tuple[PurchaseLine, ...
     for (family, value), lines in groups.items():
         kind = catalog.kind_of(family)
         fam = catalog.find(kind, family)
-        unit, refs = price.unit(family, value), tuple(ln.ref for ln in lines)
+        unit, refs = price.unit(family, value), tuple(r.strip() for ln in lines for r in ln.ref.split(","))
         qty = len(lines)
         if kind == "limiters":
             qty, unit = qty * fam.parts, unit / fam.parts

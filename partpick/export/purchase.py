@@ -65,13 +65,10 @@ def _description(kind: str, fam, line: PurchaseLine, channels: int) -> str:
     text = fam.description or fam.id
     if kind != "opamps":
         return text
-    if fam.channels >= channels:
-        spare = fam.channels - channels
-        return text + (f"; {', '.join(line.refs)} in one package" +
-                       (f", {spare} channel(s) spare: tie each as a follower to the reference" if spare else ""))
-    if fam.channels == 1:
-        return text + f"; single channel: one package per channel, {line.quantity} packages"
-    return text + f"; {fam.channels} channels a package: {line.quantity} packages"
+    if fam.channels == 1 and channels > 1:
+        return f"{text}; single channel: {line.quantity} packages"
+    spare = fam.channels - channels
+    return text + (f"; {spare} channel(s) spare: tie off (see the schematic)" if spare > 0 else "")
 
 
 def purchase_rows(bom: Bom, catalog: Catalog, *, stock=None, builds: int = 1) -> list[list[str]]:

@@ -8,6 +8,7 @@ import json
 from partpick import units
 from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
 from partpick.derating import RULES
+from partpick.export import shown
 from partpick.export.table import render_table
 from partpick.export.verdict import check_json, worst_line
 from partpick.pricing import purchase_lines
@@ -57,19 +58,20 @@ def design_table(d, catalog, spec, stock=None) -> str:
     for i, r in enumerate(d.ranked, 1):
         s = summary(r)
         lim = r.bom.control_part()
-        rows.append([i, "pass" if s["passed"] else "FAIL", f"{s['frequency_hz']:.6g} Hz",
+        rows.append([i, "pass" if s["passed"] else "FAIL", shown.frequency(s["frequency_hz"]),
                      f"{s['frequency_error'] * 100:+.3f} %",
-                     f"{s['amplitude_load_peak_v'] * 2:.4g} Vpp", f"{s['thd'] * 100:.2f} %",
+                     shown.amplitude(s["amplitude_load_peak_v"], spec), f"{s['thd'] * 100:.2f} %",
                      f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
                      f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim.family if lim else "-",
                      r.bom.stage])
     lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
                                f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
                               right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
+    lines.append(design_legend(d, spec, catalog))
     best = d.ranked[0]
     lines.append("")
-    lines.append(f"#1 bill of materials (textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g}, "
-                 f"needs {best.circuit.required_gain:.4g}):")
+    lines.append(f"#1 bill of materials (textbook f0 {shown.frequency(best.circuit.f0_hz)}, gain "
+                 f"{best.circuit.gain:.4g}, needs {best.circuit.required_gain:.4g}):")
     lines.append(render_table(["ref", "role", "qty", "value", "family", f"unit {catalog.currency}",
                                f"line {catalog.currency}"], bom_rows(best, catalog, stock), right=(2, 5, 6),
                               indent="  "))
@@ -78,6 +80,19 @@ def design_table(d, catalog, spec, stock=None) -> str:
     for caution in best.verdict.cautions:
         lines.append(f"caution: {caution}")
     return "\n".join(lines)
+
+
+def design_legend(d, spec, catalog) -> str:
+    """What each column of the design table means, and which operating point it is at."""
+    samples = next((r.mc.samples for r in d.ranked if r.mc is not None), 0)
+    return "\n".join([
+        f"frequency, error, at load: nominal point (mid supply, {shown.temperature(spec.temperature.nominal_k)}),"
+        f" error against the {shown.frequency(spec.frequency.target_hz)} target, amplitude at the load in the spec's "
+        f"unit; THD: worst of the supply and temperature ends",
+        "margin: small-signal startup margin at the nominal point (loop gain at the phase-zero frequency - 1); "
+        f"yield: share of {samples} Monte Carlo builds meeting every requirement",
+        f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
+        "stage: the output stage (none, follower, gain, attenuator)"])
 
 
 def design_json(spec_path, d) -> str:
