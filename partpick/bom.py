@@ -34,6 +34,7 @@ from partpick.circuits import (CONTROLS, STAGES, SUPPLY_KINDS, TOPOLOGIES, Circu
                                designators, make_circuit, slots_for)
 from partpick.circuits.periphery import BIAS_ROLES, BUFFERED, STAGE_ROLES
 from partpick.errors import InputError
+from partpick.pricing import maker_part
 from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_text
 
 __all__ = ["ROLES", "BomLine", "Bom", "BomError", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv",
@@ -295,7 +296,7 @@ def bom_to_yaml(bom: Bom, *, header: str = "", catalog: Catalog | None = None) -
         if fam is not None and fam.maker:
             tail += f", maker: {_quoted(fam.maker)}"
         if fam is not None and fam.maker_part:
-            tail += f", maker_part: {_quoted(fam.maker_part.replace('{value}', value))}"
+            tail += f", maker_part: {_quoted(maker_part(fam, value))}"
         out.append(f"  - {{ref: '{ln.ref}', role: {ln.role}, family: {ln.family}{tail}}}")
     return "\n".join(out) + "\n"
 

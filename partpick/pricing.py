@@ -22,7 +22,7 @@ from dataclasses import dataclass
 from partpick import units
 from partpick.catalog import Catalog
 
-__all__ = ["ORDER_LINE", "Pricer", "PurchaseLine", "purchase_lines", "bom_cost", "channel_refs"]
+__all__ = ["ORDER_LINE", "Pricer", "PurchaseLine", "purchase_lines", "bom_cost", "channel_refs", "maker_part"]
 
 ORDER_LINE = 0.50  # ordering cost of a BOM line not on the shelf, in the catalog's currency (stock: prefer)
 
@@ -102,6 +102,12 @@ def channel_refs(ref: str, channels: int) -> tuple[str, ...]:
     return tuple(f"{ref}{chr(ord('A') + i)}" for i in range(channels))
 
 
+def maker_part(fam, value_rkm: str) -> str:
+    """The maker's part number of family ``fam`` for a part of value ``value_rkm`` (RKM
+    code; empty for active parts): its ``{value}`` replaced."""
+    return fam.maker_part.replace("{value}", value_rkm)
+
+
 def purchase_lines(bom, catalog: Catalog, stock=None) -> tuple[PurchaseLine, ...]:
     """The purchasing lines of ``bom`` in BOM order (see module docstring)."""
     price = Pricer(catalog, stock)
@@ -119,13 +125,11 @@ def purchase_lines(bom, catalog: Catalog, stock=None) -> tuple[PurchaseLine, ...
         elif kind == "opamps":
             refs = channel_refs(lines[0].ref, bom.channels)
             qty = math.ceil(bom.channels / fam.channels)
-        part = fam.maker_part
-        if "{value}" in part:
-            dim = "resistance" if kind == "resistors" else "capacitance"
-            part = part.replace("{value}", units.format_rkm(value, dim) if value else "")
+        rkm = units.format_rkm(value, "resistance" if kind == "resistors" else "capacitance") if value else ""
         out.append(PurchaseLine(refs, tuple(ln.role for ln in lines), family, value, qty, unit,
                                 price.fee(family, value), price.order(family, value),
-                                None if stock is None else stock.quantity(family, value), fam.maker, part))
+                                None if stock is None else stock.quantity(family, value), fam.maker,
+                                maker_part(fam, rkm)))
     return tuple(out)
 
 

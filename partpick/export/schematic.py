@@ -275,7 +275,7 @@ def schematic_svg(bom: Bom, catalog) -> str:
     schemdraw, elm = _schemdraw()
     schemdraw.use("svg")
     d = schemdraw.Drawing(show=False)
-    d.config(fontsize=10, unit=2.5)
+    d.config(fontsize=10, unit=2.5, margin=1.5)  # room for labels that run past the last part
     draw_bom(bom, catalog, d, elm)
     svg = d.get_imagedata("svg")
     return svg.decode("utf-8") if isinstance(svg, bytes) else svg
