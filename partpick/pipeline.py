@@ -13,6 +13,7 @@ import math
 import time
 from dataclasses import dataclass, field
 
+from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
 from partpick.circuits import TOPOLOGIES, check_spec, slots_for
@@ -156,9 +157,15 @@ def _verified_failure(ranked: list[Ranked]) -> str:
             counts[c.name] = counts.get(c.name, 0) + 1
     worst = max(counts, key=counts.get)
     best = ranked[0]
-    fails = "; ".join(f"{c.name}: {c.value:.4g} (limit {c.low if c.low is not None else ''}"
-                      f"{'..' if c.low is not None and c.high is not None else ''}"
-                      f"{c.high if c.high is not None else ''})" for c in best.verdict.failed())
+    def q(x: float) -> str:  # the value with its unit, 4 digits
+        return units.format_quantity(x, c.dim, 4) if math.isfinite(x) else "-"
+
+    fails = []
+    for c in best.verdict.failed():
+        limit = " .. ".join(q(x) for x in (c.low, c.high) if x is not None)
+        fails.append(f"{c.name}: {q(c.value)} (limit {'>= ' if c.high is None else '<= ' if c.low is None else ''}"
+                     f"{limit})")
+    fails = "; ".join(fails)
     return (f"no verified candidate meets the spec; '{worst}' fails in {counts[worst]} of {len(ranked)}; "
             f"the best candidate misses {fails}")
 
@@ -168,7 +175,6 @@ def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = 
     ``cycles`` periods (default: enough to settle), titled with the target and the
     predicted frequency; when the circuit starts, a batch block makes ``ngspice -b``
     measure and print the frequency, amplitude and THD at the load."""
-    from partpick import units
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
     from partpick.verify import operating_conditions, predict, transient_cycles_for
