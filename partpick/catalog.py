@@ -121,6 +121,22 @@ class CapacitorFamily:
 
 
 @dataclass(frozen=True, slots=True)
+class Package:
+    """A package's thermal data: junction-to-ambient thermal resistance theta_ja_k_per_w
+    (K/W, as the maker measures it on a standard board, JEDEC JESD51) and the maximum
+    junction temperature tj_max_k (K)."""
+
+    id: str
+    theta_ja_k_per_w: float
+    tj_max_k: float
+    where: str = field(default="", compare=False)
+
+    def limit_w(self, ambient_k: float) -> float:
+        """Dissipation that brings the junction to its maximum at ambient_k (K), W."""
+        return max(self.tj_max_k - ambient_k, 0.0) / self.theta_ja_k_per_w
+
+
+@dataclass(frozen=True, slots=True)
 class OpAmp:
     """An op-amp, modelled by a dominant pole (DC gain a0, gain-bandwidth gbw_hz)
     and an optional second pole, with its output and input limits.
@@ -130,9 +146,9 @@ class OpAmp:
     input_cm_low_v / input_cm_high_v: how close the inputs may come to each rail, V
     (negative = beyond the rail); output_current_a: short-circuit limit, A;
     output_resistance_ohm: open-loop output resistance, ohm; slew_v_per_s: V/s;
-    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction; theta_ja_k_per_w
-    (K/W) and tj_max_k (K): the package's thermal data from the catalog's ``packages``
-    section (None when it has none).
+    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction; thermal: its
+    package's thermal data from the catalog's ``packages`` section (None when it has
+    none).
     """
 
     id: str
@@ -161,24 +177,7 @@ class OpAmp:
     where: str = field(default="", compare=False)
     maker: str = ""
     maker_part: str = ""
-    theta_ja_k_per_w: float | None = None
-    tj_max_k: float | None = None
-
-
-@dataclass(frozen=True, slots=True)
-class Package:
-    """A package's thermal data: junction-to-ambient thermal resistance theta_ja_k_per_w
-    (K/W, as the maker measures it on a standard board, JEDEC JESD51) and the maximum
-    junction temperature tj_max_k (K)."""
-
-    id: str
-    theta_ja_k_per_w: float
-    tj_max_k: float
-    where: str = field(default="", compare=False)
-
-    def limit_w(self, ambient_k: float) -> float:
-        """Dissipation that brings the junction to its maximum at ambient_k (K), W."""
-        return max(self.tj_max_k - ambient_k, 0.0) / self.theta_ja_k_per_w
+    thermal: Package | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -346,9 +345,7 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
 
 def _with_thermal(op: OpAmp, pkg: Package | None) -> OpAmp:
     """The op-amp with its package's thermal data (unchanged when the catalog has none)."""
-    if pkg is None:
-        return op
-    return replace(op, theta_ja_k_per_w=pkg.theta_ja_k_per_w, tj_max_k=pkg.tj_max_k)
+    return op if pkg is None else replace(op, thermal=pkg)
 
 
 def _package(rec: Fields) -> Package:

@@ -284,7 +284,8 @@ def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path
     res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
     click.echo(swap_text(res, stock, cat, bom_path, stock_path, spec))
     if out_path is not None:
-        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}"),
+        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}",
+                                           catalog=cat),
                      force=force)
         click.echo(f"wrote {out_path}")
 

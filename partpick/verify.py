@@ -341,12 +341,12 @@ def package_limit(op, spec: Spec) -> tuple[float, str]:
     """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
     ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
     catalog's package data, or the derating.unknown_package limit without it."""
-    d, t_amb = spec.derating, spec.temperature.max_k
-    if op.theta_ja_k_per_w is None:
+    d, t_amb, th = spec.derating, spec.temperature.max_k, op.thermal
+    if th is None:
         return d.unknown_package, f"{d.unknown_package:.3g} W (no thermal data for package '{op.package}')"
-    limit = d.package_power * max(op.tj_max_k - t_amb, 0.0) / op.theta_ja_k_per_w
-    return limit, (f"{op.package}: {d.package_power:.0%} x ({op.tj_max_k - 273.15:.4g} - {t_amb - 273.15:.4g} degC) / "
-                   f"{op.theta_ja_k_per_w:.4g} K/W = {limit:.3g} W")
+    limit = d.package_power * th.limit_w(t_amb)
+    return limit, (f"{op.package}: {d.package_power:.0%} x ({th.tj_max_k - 273.15:.4g} - {t_amb - 273.15:.4g} degC) / "
+                   f"{th.theta_ja_k_per_w:.4g} K/W = {limit:.3g} W")
 
 
 def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:

@@ -35,7 +35,7 @@ def test_package_limit_is_the_junction_rule(demo_catalog):
     power = demo_catalog.find("opamps", "oa-power-4m")
     small = demo_catalog.find("opamps", "oa-jfet-4m")
     # demo packages: SOIC-8-EP 55 K/W, SOIC-8 150 K/W, both 150 degC
-    assert power.package == "SOIC-8-EP" and power.theta_ja_k_per_w == pytest.approx(55)
+    assert power.package == "SOIC-8-EP" and power.thermal.theta_ja_k_per_w == pytest.approx(55)
     assert package_limit(power, spec)[0] == pytest.approx((150 - 60) / 55)
     assert package_limit(small, spec)[0] == pytest.approx((150 - 60) / 150)
     # the power op-amp is not held to the small-package limit
@@ -49,7 +49,7 @@ def test_share_and_unknown_package_rules(demo_catalog, tmp_path):
     spec = _spec(VALID_SPEC + "derating: {package_power: 50 %, unknown_package: 0.3 W}\n")
     power = demo_catalog.find("opamps", "oa-power-4m")
     assert package_limit(power, spec)[0] == pytest.approx(0.5 * 90 / 55)
-    bare = dataclasses.replace(power, theta_ja_k_per_w=None, tj_max_k=None)
+    bare = dataclasses.replace(power, thermal=None)
     limit, how = package_limit(bare, spec)
     assert limit == pytest.approx(0.3) and "no thermal data" in how
     assert spec.derating.origin_of("package_power") == "spec"
@@ -126,6 +126,7 @@ def test_catalog_packages_section(tmp_path):
         "     package: DIP-8, maker: Example Corp, maker_part: EX-1, price: {unit: 0.1}}\n", encoding="utf-8")
     cat = load_catalog(tmp_path)
     op = cat.find("opamps", "op-x")
-    assert op.theta_ja_k_per_w == 100 and op.tj_max_k == pytest.approx(398.15)
+    assert op.thermal == cat.package("DIP-8")
+    assert op.thermal.theta_ja_k_per_w == 100 and op.thermal.tj_max_k == pytest.approx(398.15)
     assert cat.package("DIP-8").limit_w(273.15 + 25) == pytest.approx(1.0)
     assert (op.maker, op.maker_part) == ("Example Corp", "EX-1")
