@@ -14,7 +14,11 @@ YAML form::
 
 CSV form: a header ``ref,role,family,value`` (more columns are ignored) and comment
 lines ``# supply: dual`` / ``# stage: none`` (and optionally ``# topology:``,
-``# control:``) before it.
+``# control:``) before it. The purchasing CSV (:mod:`partpick.export.purchase`) reads
+the same way: its ``designators`` and ``roles`` cells list a line's parts (one role for
+a limiter pair's two diodes or an op-amp's channels), and without the comment lines
+the circuit's shape follows from the roles (bias parts: single supply) and the op-amp's
+channels (one more than the topology's: a buffered output stage).
 """
 
 from __future__ import annotations
@@ -28,8 +32,9 @@ from partpick import units
 from partpick.catalog import Catalog
 from partpick.circuits import (CONTROLS, STAGES, SUPPLY_KINDS, TOPOLOGIES, Circuit, all_slots, control_for_roles,
                                designators, make_circuit, slots_for)
-from partpick.circuits.periphery import BUFFERED
+from partpick.circuits.periphery import BIAS_ROLES, BUFFERED, STAGE_ROLES
 from partpick.errors import InputError
+from partpick.pricing import maker_part
 from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_text
 
 __all__ = ["ROLES", "BomLine", "Bom", "BomError", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv",
@@ -125,7 +130,8 @@ def parse_bom(text: str, source: str, catalog: Catalog) -> Bom:
     control = root.text("control", choices=tuple(CONTROLS), default="") or None
     supply = root.text("supply", choices=SUPPLY_KINDS, default="dual")
     stage = root.text("stage", choices=STAGES, default="none")
-    recs = root.records("parts", ("ref", "role", "family", "value", "quantity", "description", "cost"))
+    recs = root.records("parts", ("ref", "role", "family", "value", "quantity", "description", "cost", "maker",
+                                  "maker_part"))
     if not recs:
         raise root.error("parts", "must list the parts (ref, role, family, value)")
     lines = []
@@ -140,10 +146,13 @@ def parse_bom(text: str, source: str, catalog: Catalog) -> Bom:
 
 
 def _shaped(lines: tuple[BomLine, ...], supply: str, stage: str, topology: str, control: str | None) -> Bom:
-    """The BOM with its control named (inferred from the roles when not given)."""
+    """The BOM with its control named (inferred from the roles when not given) and its
+    lines in the circuit's slot order, whatever order the file lists them in (so the
+    seeded Monte Carlo draws the same builds for the same parts)."""
     if control is None:
         control = control_for_roles(topology, (ln.role for ln in lines))
-    return Bom(lines, supply, stage, topology, control)
+    order = {role: i for i, role in enumerate(all_slots())}
+    return Bom(tuple(sorted(lines, key=lambda ln: order[ln.role])), supply, stage, topology, control)
 
 
 def _check_family(catalog: Catalog, kind: str, family: str, fail) -> None:
@@ -153,6 +162,7 @@ def _check_family(catalog: Catalog, kind: str, family: str, fail) -> None:
 
 def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
     meta = {"supply": "dual", "stage": "none", "topology": _DEFAULT_TOPOLOGY, "control": ""}
+    written = set()  # the shape lines the file has
     rows = []
     for lineno, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.strip()
@@ -162,6 +172,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             key, _, val = stripped[1:].partition(":")
             if key.strip() in meta:
                 meta[key.strip()] = val.strip()
+                written.add(key.strip())
             continue
         rows.append((lineno, raw))
     if not rows:
@@ -173,23 +184,31 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
         raise BomError(f"'# topology:' must be one of {', '.join(TOPOLOGIES)} and '# control:' one of "
                        f"{', '.join(CONTROLS)}", source=source, line=1)
     reader = list(csv.reader(io.StringIO("\n".join(r for _, r in rows))))
-    # the purchasing form (bom_to_purchase_csv) names the designator column 'designator'
-    header = ["ref" if h.strip().lower() == "designator" else h.strip().lower() for h in reader[0]]
+    # the purchasing form (bom_to_purchase_csv) names its columns 'designators' and 'roles'
+    aliases = {"designator": "ref", "designators": "ref", "roles": "role"}
+    header = [aliases.get(h.strip().lower(), h.strip().lower()) for h in reader[0]]
     for col in ("ref", "role", "family", "value"):
         if col not in header:
             raise BomError(f"missing column '{col}'", source=source, line=rows[0][0])
     idx = {h: i for i, h in enumerate(header)}
-    lines = []
+    lines, channels = [], 1
     for (lineno, _), cells in zip(rows[1:], reader[1:]):
         get = lambda name: cells[idx[name]].strip() if idx[name] < len(cells) else ""  # noqa: E731
 
         def fail(message, col):
             return BomError(message, source=source, line=lineno, column=idx[col] + 1, field=col)
 
-        role = get("role")
-        if role not in ROLES:
-            raise fail(f"unknown role '{role}'; expected one of {', '.join(ROLES)}" + did_you_mean(role, ROLES), "role")
-        kind, dim = ROLES[role]
+        roles = [r.strip() for r in get("role").split(",")]
+        refs = [r.strip() for r in get("ref").split(",") if r.strip()]
+        for role in roles:
+            if role not in ROLES:
+                raise fail(f"unknown role '{role}'; expected one of {', '.join(ROLES)}" + did_you_mean(role, ROLES),
+                           "role")
+        if len(roles) > 1 and len(refs) != len(roles):
+            raise fail(f"lists {len(refs)} designator(s) for {len(roles)} roles; expected one per role", "ref")
+        kind, dim = ROLES[roles[0]]
+        if kind == "opamps":
+            channels = max(len(refs), 1)  # the op-amp's designators are the channels the circuit uses
         _check_family(catalog, kind, get("family"), lambda m: fail(m, "family"))
         value = 0.0
         if dim:
@@ -199,9 +218,30 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
                 raise fail(exc.message, "value") from None
             if value <= 0:
                 raise fail("must be > 0", "value")
-        lines.append(BomLine(get("ref") or DESIGNATORS[role], role, get("family"), value))
+        if len(roles) == 1:
+            refs = [",".join(refs) if refs and (len(refs) == 1 or kind == "limiters") else DESIGNATORS[roles[0]]]
+        for ref, role in zip(refs, roles):
+            if ROLES[role] != (kind, dim):
+                raise fail(f"mixes roles of different kinds ({roles[0]}, {role}) on one line", "role")
+            lines.append(BomLine(ref, role, get("family"), value))
+    supply, stage = _shape_of(lines, meta["topology"], channels)
+    meta["supply"] = meta["supply"] if "supply" in written else supply
+    meta["stage"] = meta["stage"] if "stage" in written else stage
     return _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
                      lambda m: BomError(m, source=source, line=rows[0][0]))
+
+
+def _shape_of(lines: list[BomLine], topology: str, channels: int) -> tuple[str, str]:
+    """(supply kind, output stage) of a CSV without '# supply:' and '# stage:' lines: a
+    single supply when it lists the bias parts, a buffered stage when the op-amp has one
+    channel more than the topology uses, a gain stage or attenuator when it lists the
+    stage resistors."""
+    roles = {ln.role for ln in lines}
+    supply = "single" if set(BIAS_ROLES) <= roles else "dual"
+    buffered = channels > TOPOLOGIES[topology].channels
+    if set(STAGE_ROLES) & roles:
+        return supply, "gain" if buffered else "attenuator"
+    return supply, "follower" if buffered else "none"
 
 
 def _complete(bom: Bom, fail) -> Bom:
@@ -242,16 +282,28 @@ def value_text(line: BomLine) -> str:
     return units.format_rkm(line.value, dim) if dim else ""
 
 
-def bom_to_yaml(bom: Bom, *, header: str = "") -> str:
-    """The YAML form (see module docstring); ``header`` goes in as comment lines."""
+def bom_to_yaml(bom: Bom, *, header: str = "", catalog: Catalog | None = None) -> str:
+    """The YAML form (see module docstring); ``header`` goes in as comment lines; with
+    ``catalog``, each part also carries its maker and maker's part number when the
+    catalog names them (a ``{value}`` in the part number becomes the RKM value)."""
     out = [f"# {h}" for h in header.splitlines()] if header else []
     out += [f"topology: {bom.topology}", f"control: {bom.control}", f"supply: {bom.supply_kind}",
             f"stage: {bom.stage}", "parts:"]
     for ln in bom.lines:
         value = value_text(ln)
         tail = f", value: {value}" if value else ""
+        fam = catalog.find(ROLES[ln.role][0], ln.family) if catalog is not None else None
+        if fam is not None and fam.maker:
+            tail += f", maker: {_quoted(fam.maker)}"
+        if fam is not None and fam.maker_part:
+            tail += f", maker_part: {_quoted(maker_part(fam, value))}"
         out.append(f"  - {{ref: '{ln.ref}', role: {ln.role}, family: {ln.family}{tail}}}")
     return "\n".join(out) + "\n"
+
+
+def _quoted(text: str) -> str:
+    """``text`` as a single-quoted YAML scalar."""
+    return "'" + text.replace("'", "''") + "'"
 
 
 def bom_to_csv(bom: Bom) -> str:

@@ -2,8 +2,11 @@
 
 A catalog is a folder of YAML files; each file may hold any of the sections
 ``resistors``, ``capacitors``, ``opamps`` and ``limiters`` (see DEVELOPERS.md for the
-format). Loading validates every field and turns it into SI floats held in frozen
-records; the rest of partpick never sees the YAML. Resistor and capacitor values
+format), and a ``packages`` section gives packages' thermal data, which loading hands
+to the op-amps in them. Loading validates every field and turns it into SI floats held
+in frozen records; the rest of partpick never sees the YAML. Every family may name its
+maker and maker's part number (optional, carried to BOM and purchasing files); a
+``{value}`` in a part number stands for the part's value in RKM code. Resistor and capacitor values
 come from IEC 60063 series (:mod:`partpick.series`) within each family's range.
 """
 
@@ -11,30 +14,30 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Iterable
 
 from partpick import series
-from partpick.errors import CatalogError, InputError
-from partpick.yamlsrc import Fields, Mapping, read_yaml
+from partpick.errors import CatalogError
+from partpick.yamlsrc import Fields, read_yaml
 
 __all__ = [
     "KINDS",
-    "ResistorFamily",
     "CapacitorFamily",
-    "OpAmp",
-    "Limiter",
     "Catalog",
-    "load_catalog",
+    "Limiter",
+    "OpAmp",
+    "Package",
+    "ResistorFamily",
     "default_catalog_dir",
+    "load_catalog",
 ]
 
 KINDS = ("resistors", "capacitors", "opamps", "limiters")
 DISTRIBUTIONS = ("uniform", "normal")
 LIMITER_KINDS = ("diode", "zener-pair", "led")
 
-_PRICE = ("unit", "line")
 
 
 @dataclass(frozen=True, slots=True)
@@ -63,6 +66,8 @@ class ResistorFamily:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
     def values(self) -> tuple[float, ...]:
         """Every value the family offers, ohm, ascending (IEC 60063 decade expansion)."""
@@ -103,6 +108,8 @@ class CapacitorFamily:
     price_at_max: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
     @property
     def has_band(self) -> bool:
@@ -122,6 +129,22 @@ class CapacitorFamily:
 
 
 @dataclass(frozen=True, slots=True)
+class Package:
+    """A package's thermal data: junction-to-ambient thermal resistance theta_ja_k_per_w
+    (K/W, as the maker measures it on a standard board, JEDEC JESD51) and the maximum
+    junction temperature tj_max_k (K)."""
+
+    id: str
+    theta_ja_k_per_w: float
+    tj_max_k: float
+    where: str = field(default="", compare=False)
+
+    def limit_w(self, ambient_k: float) -> float:
+        """Dissipation that brings the junction to its maximum at ambient_k (K), W."""
+        return max(self.tj_max_k - ambient_k, 0.0) / self.theta_ja_k_per_w
+
+
+@dataclass(frozen=True, slots=True)
 class OpAmp:
     """An op-amp, modelled by a dominant pole (DC gain a0, gain-bandwidth gbw_hz)
     and an optional second pole, with its output and input limits.
@@ -131,7 +154,9 @@ class OpAmp:
     input_cm_low_v / input_cm_high_v: how close the inputs may come to each rail, V
     (negative = beyond the rail); output_current_a: short-circuit limit, A;
     output_resistance_ohm: open-loop output resistance, ohm; slew_v_per_s: V/s;
-    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction.
+    gbw_spread_frac: part-to-part GBW spread (3 sigma), fraction; thermal: its
+    package's thermal data from the catalog's ``packages`` section (None when it has
+    none).
     """
 
     id: str
@@ -158,6 +183,9 @@ class OpAmp:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
+    thermal: Package | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -200,6 +228,8 @@ class Limiter:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
 
 Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter
@@ -216,6 +246,7 @@ class Catalog:
     currency: str
     sources: tuple[str, ...]
     demo: bool
+    packages: tuple[Package, ...] = ()
 
     def of_kind(self, kind: str) -> tuple[Family, ...]:
         return getattr(self, kind)
@@ -235,6 +266,13 @@ class Catalog:
         for kind in KINDS:
             if self.find(kind, family_id) is not None:
                 return kind
+        return None
+
+    def package(self, name: str) -> Package | None:
+        """The thermal data of package ``name``, or None."""
+        for p in self.packages:
+            if p.id == name:
+                return p
         return None
 
     def all_ids(self) -> tuple[str, ...]:
@@ -279,14 +317,17 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
     elif isinstance(paths, (str, Path)):
         paths = [paths]
     families: dict[str, list] = {k: [] for k in KINDS}
+    packages: dict[str, Package] = {}
     seen: dict[str, str] = {}
     currency: tuple[str, str] | None = None
     sources = []
     demo = False
+    from partpick.catalog_read import READERS, read_package, with_thermal
+
     for path in _catalog_files(paths):
         source = str(path)
         root = Fields(read_yaml(path, CatalogError), source, CatalogError,
-                      allowed=("description", "demo", "currency") + KINDS)
+                      allowed=("description", "demo", "currency", "packages") + KINDS)
         sources.append(source)
         demo = root.boolean("demo", default=False) or demo
         if root.has("currency"):
@@ -295,288 +336,26 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
                 raise root.error("currency", f"must match '{currency[0]}' of {currency[1]} (got '{cur}')")
             currency = (cur, source)
         count = 0
-        for kind, reader in _READERS.items():
+        for rec in root.records("packages", ("id", "theta_ja", "max_junction")):
+            pkg = read_package(rec)
+            if pkg.id in packages:
+                raise rec.error("id", f"duplicates package '{pkg.id}' first defined at {packages[pkg.id].where}")
+            packages[pkg.id] = pkg
+            count += 1
+        for kind, reader in READERS.items():
             for rec in root.records(kind, reader.allowed):
                 fam = reader.read(rec)
-                fid = fam.id
-                if fid in seen:
-                    raise rec.error("id", f"duplicates family '{fid}' first defined at {seen[fid]}")
-                seen[fid] = fam.where
+                if fam.id in seen:
+                    raise rec.error("id", f"duplicates family '{fam.id}' first defined at {seen[fam.id]}")
+                seen[fam.id] = fam.where
                 families[kind].append(fam)
                 count += 1
         if count == 0:
-            raise CatalogError(
-                "contains no part families; expected at least one of the sections " + ", ".join(KINDS),
-                source=source, line=1)
+            raise CatalogError("contains no part families; expected at least one of the sections "
+                               + ", ".join(KINDS), source=source, line=1)
     if not sources or not seen:
         raise CatalogError("the catalog is empty; expected part families", source=", ".join(map(str, paths)))
-    return Catalog(
-        resistors=tuple(families["resistors"]),
-        capacitors=tuple(families["capacitors"]),
-        opamps=tuple(families["opamps"]),
-        limiters=tuple(families["limiters"]),
-        currency=currency[0] if currency else "USD",
-        sources=tuple(sources),
-        demo=demo,
-    )
-
-
-# -- readers, one per kind ---------------------------------------------------------------
-
-def _id(rec: Fields) -> str:
-    fid = rec.text("id")
-    if not all(c.isalnum() or c in "-_." for c in fid):
-        raise rec.error("id", f"must use letters, digits, '-', '_' or '.' only (got '{fid}')")
-    return fid
-
-
-def _where(rec: Fields) -> str:
-    return f"{rec.source}:{rec.node.line}"
-
-
-def _tolerance(rec: Fields, key: str = "tolerance") -> float:
-    tol = rec.quantity(key, "fraction", positive=True)
-    if tol >= 0.5:
-        raise rec.error(key, f"must be below 50 % (got {tol * 100:g} %)")
-    return tol
-
-
-def _series(rec: Fields) -> str:
-    try:
-        return series.check_series_name(rec.text("series"))
-    except InputError as exc:
-        raise rec.error("series", exc.message) from None
-
-
-def _range(rec: Fields, dim: str, series_name: str) -> tuple[float, float]:
-    r = rec.sub("range", ("min", "max"))
-    lo = r.quantity("min", dim, positive=True)
-    hi = r.quantity("max", dim, positive=True)
-    if lo > hi:
-        raise r.error("min", f"must not exceed range.max (got {lo:g} > {hi:g})")
-    if not series.values_in_range(series_name, lo, hi):
-        raise r.error(None, f"holds no {series_name} value")
-    return lo, hi
-
-
-def _price(rec: Fields, allowed=_PRICE) -> Fields:
-    return rec.sub("price", allowed)
-
-
-def _cost(p: Fields, key: str, default: float | None = None) -> float:
-    """A price in the catalog's currency, >= 0."""
-    return p.number(key, default=default, minimum=0.0)
-
-
-class _Reader:
-    allowed: tuple[str, ...] = ()
-
-    def read(self, rec: Fields):  # pragma: no cover - interface
-        raise NotImplementedError
-
-
-class _Resistors(_Reader):
-    allowed = ("id", "description", "technology", "series", "tolerance", "distribution", "tempco",
-               "range", "power", "voltage", "package", "price")
-
-    def read(self, rec: Fields) -> ResistorFamily:
-        ser = _series(rec)
-        lo, hi = _range(rec, "resistance", ser)
-        price = _price(rec)
-        return ResistorFamily(
-            id=_id(rec),
-            description=rec.text("description", default=""),
-            technology=rec.text("technology"),
-            series=ser,
-            tolerance_frac=_tolerance(rec),
-            distribution=rec.text("distribution", choices=DISTRIBUTIONS, default="uniform"),
-            tempco_per_k=rec.quantity("tempco", "tempco", nonnegative=True),
-            min_ohm=lo,
-            max_ohm=hi,
-            power_w=rec.quantity("power", "power", positive=True),
-            voltage_v=rec.quantity("voltage", "voltage", positive=True, default=math.inf),
-            package=rec.text("package", default=""),
-            price_unit=_cost(price, "unit"),
-            price_line=_cost(price, "line", default=0.0),
-            where=_where(rec),
-        )
-
-
-class _Capacitors(_Reader):
-    allowed = ("id", "description", "dielectric", "series", "tolerance", "distribution", "tempco",
-               "temperature_band", "range", "voltage", "package", "price")
-
-    def read(self, rec: Fields) -> CapacitorFamily:
-        ser = _series(rec)
-        lo, hi = _range(rec, "capacitance", ser)
-        price = _price(rec, ("at_min", "at_max", "line"))
-        at_min = _cost(price, "at_min")
-        at_max = _cost(price, "at_max", default=at_min)
-        if at_max < at_min:
-            raise price.error("at_max", f"must be >= price.at_min (got {at_max:g} < {at_min:g})")
-        tempco = tempco_spread = 0.0
-        band = band_lo = band_hi = 0.0
-        if rec.has("tempco") == rec.has("temperature_band"):
-            raise rec.error(None, "needs exactly one of 'tempco' (class 1, film) or 'temperature_band' "
-                                  "(class 2, electrolytic)")
-        if rec.has("tempco"):
-            tc = rec.sub("tempco", ("nominal", "spread"))
-            tempco = tc.quantity("nominal", "tempco")
-            tempco_spread = tc.quantity("spread", "tempco", nonnegative=True, default=0.0)
-        else:
-            tb = rec.sub("temperature_band", ("change", "min", "max"))
-            band = tb.quantity("change", "fraction", positive=True)
-            band_lo = tb.quantity("min", "temperature")
-            band_hi = tb.quantity("max", "temperature")
-            if band_lo >= band_hi:
-                raise tb.error("min", "must be below temperature_band.max")
-        return CapacitorFamily(
-            id=_id(rec),
-            description=rec.text("description", default=""),
-            dielectric=rec.text("dielectric"),
-            series=ser,
-            tolerance_frac=_tolerance(rec),
-            distribution=rec.text("distribution", choices=DISTRIBUTIONS, default="uniform"),
-            tempco_per_k=tempco,
-            tempco_spread_per_k=tempco_spread,
-            band_frac=band,
-            band_min_k=band_lo,
-            band_max_k=band_hi,
-            voltage_v=rec.quantity("voltage", "voltage", positive=True),
-            min_f=lo,
-            max_f=hi,
-            package=rec.text("package", default=""),
-            price_at_min=at_min,
-            price_at_max=at_max,
-            price_line=_cost(price, "line", default=0.0),
-            where=_where(rec),
-        )
-
-
-class _OpAmps(_Reader):
-    allowed = ("id", "description", "gbw", "dc_gain", "second_pole", "slew_rate", "supply", "headroom",
-               "output_current", "output_resistance", "input_common_mode", "rail_to_rail", "channels",
-               "quiescent_current", "input_bias_current", "gbw_spread", "package", "price")
-
-    def read(self, rec: Fields) -> OpAmp:
-        sup = rec.sub("supply", ("min", "max"))
-        smin = sup.quantity("min", "voltage", positive=True)
-        smax = sup.quantity("max", "voltage", positive=True)
-        if smin >= smax:
-            raise sup.error("min", f"must be below supply.max (got {smin:g} V >= {smax:g} V)")
-        head = rec.sub("headroom", ("high", "low"))
-        cm = rec.sub("input_common_mode", ("low", "high"))
-        rr = rec.sub("rail_to_rail", ("input", "output"), required=False)
-        gbw = rec.quantity("gbw", "frequency", positive=True)
-        a0 = rec.quantity("dc_gain", "gain", positive=True)
-        if a0 <= 1:
-            raise rec.error("dc_gain", "must exceed 1 V/V (0 dB)")
-        pole2 = rec.quantity("second_pole", "frequency", positive=True, required=False)
-        if pole2 is not None and pole2 <= gbw / a0:
-            raise rec.error("second_pole", "must lie above the dominant pole gbw / dc_gain")
-        price = _price(rec)
-        op = OpAmp(
-            id=_id(rec),
-            description=rec.text("description", default=""),
-            gbw_hz=gbw,
-            a0=a0,
-            second_pole_hz=pole2,
-            slew_v_per_s=rec.quantity("slew_rate", "slew_rate", positive=True),
-            supply_min_v=smin,
-            supply_max_v=smax,
-            headroom_high_v=head.quantity("high", "voltage", nonnegative=True),
-            headroom_low_v=head.quantity("low", "voltage", nonnegative=True),
-            output_current_a=rec.quantity("output_current", "current", positive=True),
-            output_resistance_ohm=rec.quantity("output_resistance", "resistance", nonnegative=True),
-            input_cm_low_v=cm.quantity("low", "voltage"),
-            input_cm_high_v=cm.quantity("high", "voltage"),
-            rail_to_rail_in=rr.boolean("input", default=False) if rr else False,
-            rail_to_rail_out=rr.boolean("output", default=False) if rr else False,
-            channels=rec.integer("channels", default=1, minimum=1, maximum=8),
-            quiescent_current_a=rec.quantity("quiescent_current", "current", positive=True),
-            input_bias_a=rec.quantity("input_bias_current", "current", nonnegative=True),
-            gbw_spread_frac=rec.quantity("gbw_spread", "fraction", nonnegative=True, default=0.3),
-            package=rec.text("package", default=""),
-            price_unit=_cost(price, "unit"),
-            price_line=_cost(price, "line", default=0.0),
-            where=_where(rec),
-        )
-        if op.headroom_high_v + op.headroom_low_v >= smin:
-            raise head.error(None, "leaves no output swing at the minimum supply")
-        return op
-
-
-class _Limiters(_Reader):
-    allowed = ("id", "description", "kind", "saturation_current", "emission", "series_resistance",
-               "capacitance", "bandgap", "xti", "zener_voltage", "zener_current", "zener_resistance",
-               "zener_tempco", "forward_voltage_spread", "parts", "package", "price")
-
-    def read(self, rec: Fields) -> Limiter:
-        kind = rec.text("kind", choices=LIMITER_KINDS)
-        n = rec.number("emission", minimum=0.5, maximum=10.0)
-        zener = kind == "zener-pair"
-        if not zener:
-            for key in ("zener_voltage", "zener_current", "zener_resistance", "zener_tempco"):
-                if rec.has(key):
-                    raise rec.error(key, f"applies to kind zener-pair only (this is kind {kind})")
-        price = _price(rec)
-        return Limiter(
-            id=_id(rec),
-            description=rec.text("description", default=""),
-            kind=kind,
-            is_a=rec.quantity("saturation_current", "current", positive=True),
-            n=n,
-            rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0),
-            **_junction_charge(rec),
-            eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19),
-            xti=rec.number("xti", default=3.0, minimum=0.0, maximum=10.0),
-            vz_v=rec.quantity("zener_voltage", "voltage", positive=True) if zener else 0.0,
-            iz_a=rec.quantity("zener_current", "current", positive=True) if zener else 0.0,
-            rz_ohm=rec.quantity("zener_resistance", "resistance", nonnegative=True) if zener else 0.0,
-            vz_tempco_v_per_k=rec.quantity("zener_tempco", "voltage_tempco") if zener else 0.0,
-            vf_spread_v=rec.quantity("forward_voltage_spread", "voltage", nonnegative=True, default=0.0),
-            parts=rec.integer("parts", default=2, minimum=1, maximum=4),
-            package=rec.text("package", default=""),
-            price_unit=_cost(price, "unit"),
-            price_line=_cost(price, "line", default=0.0),
-            where=_where(rec),
-        )
-
-
-# SPICE's defaults for an absent diode charge parameter (ngspice manual, diode model
-# parameters: CJO 0, VJ 1 V, M 0.5, FC 0.5, TT 0) and the ranges ngspice accepts (it
-# limits M to 0.9 and FC to 0.95).
-_CHARGE_DEFAULTS = {"cjo_f": 0.0, "vj_v": 1.0, "m": 0.5, "fc": 0.5, "tt_s": 0.0}
-
-
-def _junction_charge(rec: Fields) -> dict[str, float]:
-    """The junction's charge parameters from ``capacitance``: a mapping of SPICE
-    parameters {cjo, vj, m, fc, tt} (absent ones at SPICE's defaults), or, as catalogs
-    before the charge model wrote it, one capacitance: a constant one, i.e. CJO with
-    M = 0 (and TT = 0)."""
-    out = dict(_CHARGE_DEFAULTS)
-    if not rec.has("capacitance"):
-        return out
-    if not isinstance(rec.node.items["capacitance"][1], Mapping):
-        out.update(cjo_f=rec.quantity("capacitance", "capacitance", nonnegative=True), m=0.0)
-        return out
-    cap = rec.sub("capacitance", ("cjo", "vj", "m", "fc", "tt"))
-    out.update(
-        cjo_f=cap.quantity("cjo", "capacitance", nonnegative=True, default=0.0),
-        vj_v=cap.quantity("vj", "voltage", positive=True, default=1.0),
-        m=cap.number("m", default=0.5, minimum=0.0, maximum=0.9),
-        fc=cap.number("fc", default=0.5, minimum=0.0, maximum=0.95),
-        tt_s=cap.quantity("tt", "time", nonnegative=True, default=0.0),
-    )
-    if out["fc"] * out["vj_v"] > 1.0:
-        # ngspice limits vj to 1/fc (with a warning): refuse rather than differ
-        raise cap.error("vj", f"times fc must not exceed 1 V (got {out['vj_v']:g} V x {out['fc']:g})")
-    return out
-
-
-_READERS: dict[str, _Reader] = {
-    "resistors": _Resistors(),
-    "capacitors": _Capacitors(),
-    "opamps": _OpAmps(),
-    "limiters": _Limiters(),
-}
+    return Catalog(resistors=tuple(families["resistors"]), capacitors=tuple(families["capacitors"]),
+                   opamps=tuple(with_thermal(op, packages.get(op.package)) for op in families["opamps"]),
+                   limiters=tuple(families["limiters"]), currency=currency[0] if currency else "USD",
+                   sources=tuple(sources), demo=demo, packages=tuple(packages.values()))

@@ -154,10 +154,10 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
     if fmt == "json":
         click.echo(json.dumps(check_data(spec_path, bom_path, r), indent=2, default=lambda x: None))
     else:
-        click.echo(check_text(spec_path, bom_path, r))
+        click.echo(check_text(spec_path, bom_path, r, spec))
         if transient:
             click.echo("")
-            click.echo(transient_text(transient_check(r.circuit, r.verdict.nominal.cond)))
+            click.echo(transient_text(transient_check(r.circuit, r.verdict.nominal.cond), spec))
     if not r.verdict.passed:
         sys.exit(1)
 
@@ -231,15 +231,13 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     d = design(spec, cat, stock=stock, results=results, time_limit_s=time_limit, workers=workers, seed=seed,
                rank_by=keys, samples=samples, progress=progress)
     notes = fmt != "text"  # side messages go to stderr when stdout carries data
-    text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose)
+    text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose, stock=stock)
     if fmt == "text" and sys.stdout.isatty():  # colour only on a terminal
         for word, colour in (("pass", "green"), ("FAIL", "red")):
             text = text.replace(f" {word} ", f" {click.style(word, fg=colour)} ")
     click.echo(text)
     if explain:
-        click.echo("\nnot considered:", err=notes)
-        for line in d.space.explain:
-            click.echo(f"  {line}", err=notes)
+        click.echo("\n" + out_.explain_text(d, spec), err=notes)
     if report_path is not None:
         from partpick.export.report import render_report
         from partpick.verify import nominal_spectrum
@@ -256,7 +254,7 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
     if out_dir is not None:
         from partpick.export.files import write_candidates
 
-        write_candidates(d, spec, spec_path, cat, out_dir, force=force)
+        write_candidates(d, spec, spec_path, cat, out_dir, force=force, stock=stock)
         click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=notes)
 
 
@@ -284,9 +282,10 @@ def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path
     bom = load_bom(bom_path, cat)
     stock = load_stock(stock_path, cat)
     res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
-    click.echo(swap_text(res, stock, cat, bom_path, stock_path))
+    click.echo(swap_text(res, stock, cat, bom_path, stock_path, spec))
     if out_path is not None:
-        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}"),
+        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}",
+                                           catalog=cat),
                      force=force)
         click.echo(f"wrote {out_path}")
 
@@ -307,8 +306,6 @@ def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> No
 
     spec, cat, stock = _inputs(spec_path, catalog_paths)
     points, front = tradeoff(spec, cat, stock=stock, samples=samples, progress=_progress(True, "design runs"))
-    if not front:
-        raise PartpickError("no design meets the spec with any allowed family pair; run `partpick design` for why")
     click.echo(tradeoff_json(points, front) if fmt == "json" else tradeoff_text(spec, cat, points, front, samples))
     if plots_dir is not None:
         from partpick.export.plots import front_plot
@@ -334,7 +331,7 @@ def report_cmd(spec_path, catalog_paths, out, force, samples) -> None:
 
     spec, cat, stock = _inputs(spec_path, catalog_paths)
     d = design(spec, cat, stock=stock, samples=samples)
-    points, front = tradeoff(spec, cat, stock=stock, samples=samples)
+    points, front = tradeoff(spec, cat, stock=stock, samples=samples, extra=d.ranked)
     best = d.ranked[0]
     spectrum = nominal_spectrum(best.circuit, best.verdict.nominal.cond)
     out = out or Path(f"{spec.name}-report.html")

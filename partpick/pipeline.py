@@ -13,6 +13,7 @@ import math
 import time
 from dataclasses import dataclass, field
 
+from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
 from partpick.circuits import TOPOLOGIES, check_spec, slots_for
@@ -156,23 +157,38 @@ def _verified_failure(ranked: list[Ranked]) -> str:
             counts[c.name] = counts.get(c.name, 0) + 1
     worst = max(counts, key=counts.get)
     best = ranked[0]
-    fails = "; ".join(f"{c.name}: {c.value:.4g} (limit {c.low if c.low is not None else ''}"
-                      f"{'..' if c.low is not None and c.high is not None else ''}"
-                      f"{c.high if c.high is not None else ''})" for c in best.verdict.failed())
+    def q(x: float) -> str:  # the value with its unit, 4 digits
+        return units.format_quantity(x, c.dim, 4) if math.isfinite(x) else "-"
+
+    fails = []
+    for c in best.verdict.failed():
+        limit = " .. ".join(q(x) for x in (c.low, c.high) if x is not None)
+        fails.append(f"{c.name}: {q(c.value)} (limit {'>= ' if c.high is None else '<= ' if c.low is None else ''}"
+                     f"{limit})")
+    fails = "; ".join(fails)
     return (f"no verified candidate meets the spec; '{worst}' fails in {counts[worst]} of {len(ranked)}; "
             f"the best candidate misses {fails}")
 
 
 def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = None) -> str:
     """The SPICE netlist of ``bom`` at the spec's nominal point, with a transient run of
-    ``cycles`` periods (default: enough to settle)."""
+    ``cycles`` periods (default: enough to settle), titled with the target and the
+    predicted frequency; a batch block makes ``ngspice -b`` measure and print the
+    frequency, amplitude and THD at the load."""
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
     from partpick.verify import operating_conditions, predict, transient_cycles_for
 
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
+    point = predict(circuit, cond)
     if cycles is None:
-        point = predict(circuit, cond)
         cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
-    return to_spice(build_netlist(circuit, cond), cycles=cycles)
+    target = units.format_quantity(spec.frequency.target_hz, "frequency")
+    amp = units.Amplitude(point.load_peak_v, "pk").as_kind(spec.amplitude.target.kind)
+    predicted = (f"predicted {units.format_quantity(float(f'{point.freq_hz:.6g}'), 'frequency')}, "
+                 f"{units.format_amplitude(amp, 4)} at the load" if point.starts else "predicted not to start")
+    title = f"partpick {circuit.topology.title} for {spec.name}: target {target}, {predicted} (nominal point)"
+    # measured even when no oscillation is predicted: the run then shows the kick dying away
+    return to_spice(build_netlist(circuit, cond), cycles=cycles, title=title,
+                    measure_hz=point.freq_hz if point.starts else circuit.f0_hz)

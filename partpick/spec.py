@@ -13,6 +13,7 @@ from pathlib import Path
 
 from partpick import units
 from partpick.catalog import KINDS, Catalog
+from partpick.derating import RULES, Derating, read_derating
 from partpick.errors import SpecError
 from partpick.yamlsrc import Fields, Mapping, did_you_mean, parse_yaml, read_text
 
@@ -31,7 +32,8 @@ DEFAULT_RANK = ("yield", "frequency_error", "cost")
 _OPEN_WORDS = ("open", "none")
 
 _TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "temperature",
-        "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs")
+        "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs",
+        "derating")
 
 
 @dataclass(frozen=True, slots=True)
@@ -151,6 +153,7 @@ class Spec:
     builds: int
     output_stage: str
     catalogs: tuple[Path, ...]
+    derating: Derating = Derating()
     source: str = field(default="<spec>", compare=False)
     where: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
@@ -203,6 +206,7 @@ class Spec:
             ("output_stage", self.output_stage, ""),
             ("catalogs", ", ".join(map(str, self.catalogs)) or "default", ""),
         ]
+        rows += [(f"derating.{r.key}", self.derating.value(r.key), "W" if r.dim == "power" else "1") for r in RULES]
         return rows
 
 
@@ -331,6 +335,7 @@ def _read(root: Fields, source: str) -> Spec:
         builds=root.integer("builds", default=1, minimum=1, maximum=10_000_000),
         output_stage=root.text("output_stage", choices=OUTPUT_STAGES, default="auto"),
         catalogs=_relative_paths(root, "catalogs", base),
+        derating=read_derating(root, "derating", base),
         source=source,
         where=where,
     )

@@ -3,9 +3,17 @@
 Accuracy is the frequency error the builds reach at the spec's yield: the larger of
 |q/f_target - 1| at the 0.1 % and 99.9 % quantiles of the Monte Carlo frequency (or, for
 yields under 99.8 %, the quantiles that leave (1 - yield)/2 each side). Designs come from
-one design run per allowed pair of resistor and capacitor families (so the front shows
-what each grade of part buys), plus two single-objective runs over every family (the
-cheapest, and the most accurate). Only designs that meet the spec are compared.
+the spec's own design run (its ranking, the top DESIGN_RESULTS: what ``partpick design``
+finds), one run per allowed pair of resistor and capacitor families (so the front shows
+what each grade of part buys), two single-objective runs over every family (the
+cheapest, and the most accurate), and any further designs the caller has (a report's
+own run). Only designs that meet the spec are compared; a design found by several runs
+counts once.
+
+The front keeps a design only when every design at most as expensive is less accurate
+by more than ACCURACY_TIE (relative): a design that another matches in accuracy at a
+lower or equal cost is weakly dominated and left out, and accuracies closer than the tie
+are taken as equal (the Monte Carlo quantiles cannot tell them apart).
 """
 
 from __future__ import annotations
@@ -17,18 +25,22 @@ import numpy as np
 
 from partpick.catalog import Catalog
 from partpick.circuits import TOPOLOGIES
-from partpick.pipeline import design
 from partpick.errors import InfeasibleError
+from partpick.pipeline import design
 from partpick.rank import Ranked
 from partpick.spec import Spec
 
-__all__ = ["Point", "tradeoff", "pareto"]
+__all__ = ["Point", "tradeoff", "pareto", "accuracy", "dominates", "DESIGN_RESULTS", "ACCURACY_TIE"]
+
+DESIGN_RESULTS = 50   # candidates of the spec's own design run taken onto the plot
+FAMILY_RESULTS = 3    # candidates of each family-pair and single-objective run
+ACCURACY_TIE = 1e-3   # relative: accuracies closer than this are equal (Monte Carlo resolution, with margin)
 
 
 @dataclass(frozen=True, slots=True)
 class Point:
     """One evaluated design: cost (currency per board), accuracy (fraction), yield,
-    the families it uses, where it came from, and the ranked item itself."""
+    the families it uses, the runs that found it, and the ranked item itself."""
 
     cost: float
     accuracy: float
@@ -48,41 +60,74 @@ def accuracy(r: Ranked, spec: Spec) -> float:
     return float(max(abs(lo / f - 1), abs(hi / f - 1)))
 
 
+def dominates(q: Point, p: Point) -> bool:
+    """q is at most as expensive and at least as accurate as p (accuracies within
+    ACCURACY_TIE count as equal), and q is not p's design."""
+    return q.item.bom != p.item.bom and q.cost <= p.cost + 1e-12 and q.accuracy <= p.accuracy * (1 + ACCURACY_TIE)
+
+
 def pareto(points: list[Point]) -> list[Point]:
-    """The points no other is both cheaper (or as cheap) and more accurate (or as
-    accurate) than, one better in at least one; cheapest first."""
-    front = []
-    for p in points:
-        dominated = any((q.cost <= p.cost and q.accuracy <= p.accuracy) and (q.cost < p.cost or q.accuracy < p.accuracy)
-                        for q in points)
-        if not dominated and not any(q.cost == p.cost and q.accuracy == p.accuracy for q in front):
+    """The front (see module docstring), cheapest first: a sweep in order of cost (then
+    accuracy) keeps a point only when it is more accurate, beyond the tie, than every
+    point before it."""
+    front: list[Point] = []
+    best = float("inf")
+    for p in sorted(points, key=lambda p: (round(p.cost, 9), p.accuracy)):
+        if p.accuracy < best * (1 - ACCURACY_TIE):
             front.append(p)
-    return sorted(front, key=lambda p: (p.cost, p.accuracy))
+        best = min(best, p.accuracy)
+    return front
 
 
-def tradeoff(spec: Spec, catalog: Catalog, *, stock=None, results: int = 3, samples: int = 20_000,
-             progress=None) -> tuple[list[Point], list[Point]]:
-    """Every evaluated design and the front (see module docstring)."""
+def _runs(spec: Spec, catalog: Catalog) -> list[tuple[str, Spec, tuple[str, ...] | None, int]]:
+    """(label, spec, ranking, results) of every design run."""
     rfams = [r.id for r in catalog.resistors if spec.parts.resistors is None or r.id in spec.parts.resistors]
-    cfams = [c.id for c in catalog.capacitors if (spec.parts.capacitors is None or c.id in spec.parts.capacitors)
-             and "electrolytic" not in c.dielectric.lower()]
-    extra = [c.id for c in catalog.capacitors if (spec.parts.capacitors is None or c.id in spec.parts.capacitors)
-             and "electrolytic" in c.dielectric.lower()]
-    runs = [(f"{r} + {c}", dataclasses.replace(spec, parts=dataclasses.replace(spec.parts, resistors=(r,),
-                                                                               capacitors=(c, *extra))), None)
-            for r in rfams for c in cfams]
-    runs += [("cheapest (all families)", spec, ("cost",)), ("most accurate (all families)", spec, ("frequency_error",))]
-    points: list[Point] = []
-    for i, (label, sub, rank_by) in enumerate(runs, 1):
+    caps = [c for c in catalog.capacitors if spec.parts.capacitors is None or c.id in spec.parts.capacitors]
+    cfams = [c.id for c in caps if "electrolytic" not in c.dielectric.lower()]
+    extra = [c.id for c in caps if "electrolytic" in c.dielectric.lower()]  # bias and coupling only
+    runs = [("design (the spec's ranking)", spec, None, max(DESIGN_RESULTS, spec.results))]
+    runs += [(f"{r} + {c}", dataclasses.replace(spec, parts=dataclasses.replace(spec.parts, resistors=(r,),
+                                                                              capacitors=(c, *extra))),
+              None, FAMILY_RESULTS) for r in rfams for c in cfams]
+    runs += [("cheapest (all families)", spec, ("cost",), FAMILY_RESULTS),
+             ("most accurate (all families)", spec, ("frequency_error",), FAMILY_RESULTS)]
+    return runs
+
+
+def tradeoff(spec: Spec, catalog: Catalog, *, stock=None, samples: int = 20_000, progress=None,
+             extra: tuple[Ranked, ...] = ()) -> tuple[list[Point], list[Point]]:
+    """Every evaluated design that meets the spec and the front (see module docstring).
+
+    Raises :class:`InfeasibleError` (naming what binds, from the spec's own run) when no
+    run finds a design that meets the spec."""
+    found: dict[tuple, Point] = {}
+    refusal = None
+    runs = _runs(spec, catalog)
+
+    def add(r: Ranked, label: str) -> None:
+        key = tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines)
+        if key in found:
+            found[key] = dataclasses.replace(found[key], source=found[key].source + "; " + label)
+            return
+        network = TOPOLOGIES[r.bom.topology].network_roles
+        fams = sorted({ln.family for ln in r.bom.lines if ln.role in network})
+        found[key] = Point(r.cost, accuracy(r, spec), r.yield_frac, " + ".join(fams), label, r)
+
+    for r in extra:
+        if r.verdict.passed:
+            add(r, "given")
+    for i, (label, sub, rank_by, results) in enumerate(runs, 1):
         try:
             d = design(sub, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples)
-        except InfeasibleError:
+        except InfeasibleError as exc:
+            refusal = refusal or exc
             continue
         finally:
             if progress is not None:
                 progress(i, len(runs))
         for r in d.passing:
-            network = TOPOLOGIES[r.bom.topology].network_roles
-            fams = sorted({ln.family for ln in r.bom.lines if ln.role in network})
-            points.append(Point(r.cost, accuracy(r, spec), r.yield_frac, " + ".join(fams), label, r))
+            add(r, label)
+    points = list(found.values())
+    if not points:
+        raise refusal or InfeasibleError("no design meets the spec with any allowed family pair", ("parts",))
     return points, pareto(points)

@@ -204,6 +204,9 @@ _DIMS: dict[str, _Dim] = {
              _Unit(), "V/\u00b5s", _Unit(exp10=6), False, ("V/\u00b5s", "V/s")),
         _Dim("gain", "a gain", {"dB": _Unit(decibel=True), "V/V": _Unit()},
              _Unit(), "V/V", _Unit(), False, ("dB", "V/V")),
+        _Dim("thermal_resistance", "a thermal resistance",
+             {"K/W": _Unit(), "degC/W": _Unit(), _DEG + "C/W": _Unit()},
+             _Unit(), "K/W", _Unit(), False, ("K/W",)),
         _Dim("energy", "an energy", _table(_expand("{}eV", _ELECTRONVOLT), _expand("{}J")),
              _Unit(), "eV", _ELECTRONVOLT, True, ("eV", "J")),
     )

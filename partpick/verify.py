@@ -25,15 +25,10 @@ from partpick.physics.opamp import regime as opamp_regime, swing_limits
 from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
-           "operating_conditions", "transient_cycles_for", "make_check", "RESISTOR_DERATING", "OPAMP_PACKAGE_W",
+           "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
            "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
            "CAP_UNCERTAINTY"]
 
-# Share of a resistor's rating it may dissipate (derating: common practice, no published source).
-RESISTOR_DERATING = 0.5
-# Dissipation a small op-amp package takes without a heatsink, W (common practice for
-# SOIC-8 class packages at 70 degC ambient, no published source).
-OPAMP_PACKAGE_W = 0.5
 # How far a catalog's junction charge may be off, as a fraction of the capacitance the
 # control's element presents at its working amplitude: datasheets give typical
 # capacitance curves at best (no limits), the SPICE law is a fit, and plausible
@@ -391,21 +386,19 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
 
     # Dissipation (fundamental only; the harmonics carry little power).
     vo = nom.osc_peak_v
-    powers = c.topology.dissipation(c, nom.freq_hz, vo)
-    for role, p_w in powers.items():
+    share = spec.derating.resistor_power
+    for role, p_w in c.topology.dissipation(c, nom.freq_hz, vo).items():
         rating = ratings.get(role)
-        if rating and p_w > RESISTOR_DERATING * rating:
-            cautions.append(f"{role} dissipates {p_w * 1e3:.3g} mW, over {RESISTOR_DERATING:.0%} of its "
-                            f"{rating * 1e3:.3g} mW rating")
-    span_max = spec.supply.span_max_v
-    p_op = span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, vo, nom.iout_peak_a)
-    if periphery.has_buffer(c):
-        p_op += span_max * op.quiescent_current_a + _class_b_loss(span_max / 2, nom.load_peak_v,
-                                                                 nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9))
-    checks.append(make_check("op-amp package dissipation", "supply.max", p_op, None, OPAMP_PACKAGE_W, "power",
-                         "quiescent plus output stage at the maximum supply"))
-    if p_op > 0.5 * OPAMP_PACKAGE_W:
-        cautions.append(f"the op-amp package dissipates about {p_op:.2g} W; check its thermal rating and copper")
+        if rating and p_w > share * rating:
+            cautions.append(f"{role} dissipates {p_w * 1e3:.3g} mW, over {share:.0%} of its {rating * 1e3:.3g} mW "
+                            f"rating (derating rule resistor_power)")
+    p_op, packages = _package_dissipation(c, spec, nom)
+    limit, how = package_limit(op, spec)
+    checks.append(make_check("op-amp package dissipation", "supply.max", p_op, None, limit, "power",
+                             f"quiescent plus output stage at the maximum supply, {packages}; limit {how}"))
+    if p_op > 0.5 * limit:
+        cautions.append(f"the op-amp package dissipates about {p_op:.2g} W of its {limit:.2g} W limit; check its "
+                        f"thermal rating and copper")
     if ipk > 0.7 * op.output_current_a:
         cautions.append("the op-amp runs near its output current limit: the load is heavy for it; use a buffer "
                         "or a higher-current part")
@@ -414,6 +407,33 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     cautions.append("low-voltage signal circuit: for anything mains-connected or safety-related follow local "
                     "codes and licensed practice")
     return Verdict(tuple(checks), nom, pts, tuple(cautions), wc)
+
+
+def package_limit(op, spec: Spec) -> tuple[float, str]:
+    """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
+    ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
+    catalog's package data, or the derating.unknown_package limit without it."""
+    d, t_amb, th = spec.derating, spec.temperature.max_k, op.thermal
+    if th is None:
+        return d.unknown_package, f"{d.unknown_package:.3g} W (no thermal data for package '{op.package}')"
+    limit = d.package_power * th.limit_w(t_amb)
+    return limit, (f"{op.package}: {d.package_power:.0%} x ({th.tj_max_k - 273.15:.4g} - {t_amb - 273.15:.4g} degC) / "
+                   f"{th.theta_ja_k_per_w:.4g} K/W = {limit:.3g} W")
+
+
+def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:
+    """(W, which package) the hottest op-amp package dissipates at the maximum supply:
+    the quiescent power of every channel it holds (catalog figures are per channel) plus
+    the output stage of each channel in use, class B (:func:`_class_b_loss`)."""
+    op, span = c.opamp, spec.supply.span_max_v
+    losses = [_class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)]
+    if periphery.has_buffer(c):
+        i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
+        losses.append(_class_b_loss(span / 2, nom.load_peak_v, i_buf))
+    quiescent = span * op.quiescent_current_a * op.channels
+    if op.channels >= len(losses):
+        return quiescent + sum(losses), f"{len(losses)} of {op.channels} channel(s) in one package"
+    return quiescent + max(losses), "one channel per package, the hotter one"
 
 
 def _class_b_loss(v_rail: float, v_pk: float, i_pk: float) -> float:

@@ -18,8 +18,8 @@ PKG = ROOT / "partpick"
 # <- pipeline <- export <- cli: a module may import its own layer and the ones below.
 LAYERS = [
     ("partpick", "partpick.errors", "partpick.units", "partpick.series", "partpick.yamlsrc", "partpick.fileio",
-     "partpick.starter"),
-    ("partpick.catalog", "partpick.spec", "partpick.stock"),
+     "partpick.starter", "partpick.cache"),
+    ("partpick.catalog", "partpick.catalog_read", "partpick.spec", "partpick.stock", "partpick.derating"),
     ("partpick.physics",),
     ("partpick.circuits",),
     ("partpick.search", "partpick.verify", "partpick.tolerance", "partpick.bom", "partpick.pricing", "partpick.rank"),

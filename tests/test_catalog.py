@@ -51,8 +51,8 @@ def test_demo_values_parse_to_si(demo_catalog):
     assert len(mf.values()) == 96 * 5 + 1
     op = demo_catalog.find("opamps", "oa-jfet-4m")
     assert op.gbw_hz == 4e6
-    assert op.a0 == pytest.approx(1e5)  # 100 dB = 1e5 V/V (20 log10)
-    assert op.slew_v_per_s == pytest.approx(13e6)
+    assert op.a0 == pytest.approx(158489.3, rel=1e-6)  # 104 dB = 10^(104/20) V/V (20 log10)
+    assert op.slew_v_per_s == pytest.approx(11e6)
     x7r = demo_catalog.find("capacitors", "x7r-10")
     assert x7r.has_band and x7r.band_frac == pytest.approx(0.15)
     assert x7r.band_min_k == pytest.approx(218.15)

@@ -274,8 +274,10 @@ distortion: {{max_thd: 20 %}}
     from partpick.export.verdict import render_verdict
 
     for tol, cautioned in (("0.5 %", True), ("20 %", False)):
-        v = verify(c, Spec.from_text(spec_text.format(tol=tol), "t.yaml"))
-        line = next(ln for ln in render_verdict(v).splitlines() if ln.startswith("frequency per pF at the limiter"))
+        spec = Spec.from_text(spec_text.format(tol=tol), "t.yaml")
+        v = verify(c, spec)
+        line = next(ln for ln in render_verdict(v, spec).splitlines()
+                    if ln.startswith("frequency per pF at the limiter"))
         assert line.split()[8:11] == ["-", "info", "-"], line    # no limit, no verdict, no margin
         assert v.requirements() == tuple(ch for ch in v.checks if ch.name != "frequency per pF at the limiter")
         row = next(ch for ch in v.checks if ch.name == "frequency per pF at the limiter")

@@ -27,31 +27,91 @@ def run(*args):
     return CliRunner().invoke(main, [str(a) for a in args])
 
 
+def _chromium(tmp_path, *args) -> subprocess.CompletedProcess:
+    return subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={tmp_path / 'profile'}", *args], capture_output=True,
+                          text=True, timeout=120)
+
+
+def _ink_tiles(png, rows: int, cols: int) -> list[list[bool]]:
+    """Which tiles of a screenshot hold anything but the white page (dark pixels)."""
+    from PIL import Image
+
+    im = Image.open(png).convert("L")
+    w, h = im.size
+    return [[im.crop((c * w // cols, r * h // rows, (c + 1) * w // cols, (r + 1) * h // rows)).getextrema()[0] < 128
+             for c in range(cols)] for r in range(rows)]
+
+
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium not installed")
 @pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
 def test_report_renders_in_chromium(tmp_path, path):
     pytest.importorskip("schemdraw")
+    pytest.importorskip("PIL")
+    from partpick import units
+    from partpick.spec import Spec
+
     report = tmp_path / "report.html"
-    result = run("report", path, "--catalog", CATALOGS, "-o", report, "--samples", "2000")
+    result = run("report", path, "--catalog", CATALOGS, "-o", report, "--samples", "1000")
     assert result.exit_code == 0, result.output + result.stderr
-    profile = tmp_path / "profile"
-    dom = subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", "--enable-logging=stderr", "--v=0",
-                          "--dump-dom", report.as_uri()], capture_output=True, text=True, timeout=120)
+    dom = _chromium(tmp_path, "--enable-logging=stderr", "--v=0", "--dump-dom", report.as_uri())
     assert dom.returncode == 0, dom.stderr[-2000:]
     html = dom.stdout
     assert "partpick design report" in html
     for section in SECTIONS:
         assert f'id="{section}"' in html, section
-    # the drawings are really there: the schematic and the charts are SVG with content
-    assert re.search(r'id="schematic">\s*<svg', html)
-    assert html.count("<svg") >= 5
-    assert "R1" in html and "U1" in html
     # no script errors (the page has no script at all) and nothing failed to load
     assert "Uncaught" not in dom.stderr and "Failed to load" not in dom.stderr
+    # the requirement in the user's units: as the spec wrote it, degC and %, no raw SI
+    spec = Spec.from_yaml(path)
+    requirement = re.search(r'<table id="requirement">(.*?)</table>', html, re.S).group(1)
+    written = yaml_fields(path)
+    cells = dict(re.findall(r"<tr><td>([^<]*)</td><td>([^<]*)</td></tr>", requirement))
+    for row, key, read in (("frequency", "frequency", lambda t: units.parse_quantity(t, "frequency")),
+                           ("amplitude at the load", "amplitude", units.parse_amplitude)):
+        shown_target, shown_tol = cells[row].split(" +/- ")
+        target, tol = str(written[key]["target"]), str(written[key]["tolerance"])
+        assert read(shown_target) == read(target) and shown_target.split()[-1] == target.split()[-1], cells[row]
+        assert units.parse_quantity(shown_tol, "fraction") == units.parse_quantity(tol, "fraction")
+    assert "degC" in requirement and "THD &lt;= " in requirement
+    for raw in ("273.15", "e-0", "e+0", " K<", "0.0"):
+        assert raw not in requirement, raw
+    # amplitudes everywhere in the spec's unit
+    unit = "V" + spec.amplitude.target.kind
+    alternatives = re.search(r'<table id="alternatives">(.*?)</table>', html, re.S).group(1)
+    cells = re.findall(r"<td>([^<]*V(?:pk|pp|rms))</td>", alternatives)
+    assert cells and all(c.endswith(unit) for c in cells), cells
+    # a complete schematic: every part of the report's BOM with its designator and value
+    bom = re.search(r'<table id="bom">(.*?)</table>', html, re.S).group(1)
+    head = re.findall(r"<th>([^<]*)</th>", bom)
+    rows = [re.findall(r"<td>([^<]*)</td>", row) for row in re.findall(r"<tr>(.*?)</tr>", bom, re.S)[1:]]
+    schematic = re.search(r'<div id="schematic">(.*?)</div>', html, re.S).group(1)
+    assert schematic.lstrip().startswith("<svg")
+    words = {w for t in re.findall(r">([^<>]+)<", schematic) for w in t.split()}
+    assert len(rows) >= 8
+    for row in rows:
+        cell = dict(zip(head, row))
+        for ref in cell["designators"].split(","):
+            assert ref in words, ref
+        assert (cell["value"] or cell["family"]) in words, cell
+    # rendered: the whole page has ink from top to bottom of the window, and the schematic
+    # alone, rendered on its own, fills its area (a drawing, not an empty frame)
     shot = tmp_path / "page.png"
-    subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", f"--screenshot={shot}", "--window-size=1200,2400",
-                    report.as_uri()], capture_output=True, timeout=120)
-    assert shot.stat().st_size > 20_000  # a rendered page, not a blank one
+    _chromium(tmp_path, f"--screenshot={shot}", "--window-size=1200,2400", report.as_uri())
+    bands = _ink_tiles(shot, 12, 1)
+    assert all(row[0] for row in bands), [row[0] for row in bands]
+    alone = tmp_path / "schematic.html"
+    alone.write_text(f'<!DOCTYPE html><html><body style="margin:0;background:#fff"><div style="width:1100px">'
+                     f'{schematic}</div></body></html>', encoding="utf-8")
+    shot = tmp_path / "schematic.png"
+    _chromium(tmp_path, f"--screenshot={shot}", "--window-size=1100,760", alone.as_uri())
+    tiles = _ink_tiles(shot, 3, 3)
+    assert sum(map(sum, tiles)) >= 7, tiles
+
+
+def yaml_fields(path) -> dict:
+    import yaml
+
+    return yaml.safe_load(path.read_text(encoding="utf-8"))
 
 
 @pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
@@ -60,9 +120,10 @@ def test_bom_files_round_trip_and_netlists_run(tmp_path, path):
     result = run("design", path, "--catalog", CATALOGS, "-n", "1", "--out", out, "--samples", "2000")
     assert result.exit_code == 0, result.output + result.stderr
     csv_file = next(out.glob("*.csv"))
-    header = [ln for ln in csv_file.read_text(encoding="utf-8").splitlines() if not ln.startswith("#")][0]
-    assert header.split(",")[:4] == ["designator", "role", "quantity", "value"]
-    for col in ("description", "tolerance", "tempco", "rating", "package", "unit_cost", "line_cost", "stock"):
+    header = csv_file.read_text(encoding="utf-8").splitlines()[0]
+    assert header.split(",")[:4] == ["designators", "roles", "quantity", "value"]
+    for col in ("description", "maker", "maker_part", "tolerance", "tempco", "rating", "package", "unit_cost",
+                "line_cost", "order_cost", "on_shelf"):
         assert col in header
     yaml_file = next(out.glob("*.yaml"))
     a = run("check", path, yaml_file, "--catalog", CATALOGS, "--format", "json", "--samples", "2000")

@@ -349,3 +349,20 @@ def test_missing_ngspice_is_reported(demo_catalog, monkeypatch):
     assert not ng.ngspice_available()
     with pytest.raises(RuntimeError, match="not installed"):
         run_ngspice(dual_diode_netlist(demo_catalog), cycles=2)
+
+
+def test_batch_block_with_the_predicted_frequency(demo_catalog):
+    """With measure_hz the deck measures at the load over whole periods of the last
+    cycles and quits in batch mode; the title line replaces the netlist's."""
+    nl = dual_diode_netlist(demo_catalog)
+    text = to_spice(nl, cycles=40, title="a title\nwith a break", measure_hz=nl.f_hint_hz * 0.99)
+    lines = text.splitlines()
+    assert lines[0] == "a title with a break" and lines[-1] == ".end"
+    block = lines[lines.index(".control"):lines.index(".endc") + 1]
+    load = f"v({nl.probes['load']})"
+    assert "run" in block and f"fourier $&pp_freq {load}" in block
+    assert f"let pp_freq = 12/(pp_t2-pp_t1)" in block  # 15 periods measured from the end, 12 whole ones timed
+    assert any(ln.startswith("if $?batchmode") for ln in block) and "  quit" in block
+    assert ".control" not in to_spice(nl)
+    with pytest.raises(ValueError, match="measure_hz"):
+        to_spice(nl, measure_hz=0.0)

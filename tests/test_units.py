@@ -395,6 +395,7 @@ def test_unit_symbols() -> None:
         "fraction": "%",
         "tempco": "ppm/K",
         "voltage_tempco": "V/K",
+        "thermal_resistance": "K/W",
         "slew_rate": "V/µs",
         "gain": "V/V",
         "energy": "eV",

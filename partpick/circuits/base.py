@@ -170,8 +170,10 @@ class Topology(Protocol):
     networks near a target, as :class:`~partpick.circuits.options.NetOption`),
     ``retune``, ``gain_ratios`` / ``gain_values`` / ``port_conductance_needed`` /
     ``osc_per_port`` / ``reference`` / ``reference_required_gain`` (what a control
-    needs to build its options on this topology), ``opamp_reference``; ``draw`` (the
-    schematic) and ``hand_design`` (the hand-method baseline of the benchmarks).
+    needs to build its options on this topology), ``opamp_reference``; ``draw`` (its
+    part of the schematic on a :class:`partpick.export.schematic.Sheet`, returning
+    where the output stage and each port's control attach) and ``hand_design`` (the
+    hand-method baseline of the benchmarks).
     """
 
     name: str
@@ -235,6 +237,10 @@ class AmplitudeControl(Protocol):
 
     def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
         """Part-to-part spread of the amplitude it sets, relative (3 sigma)."""
+
+    def draw(self, sheet, a, b, up: float) -> None:
+        """Draw its parts on the schematic sheet between the port's ends a and b (the
+        netlist's port nodes, in order) on the clear side ``up`` (+1: above)."""
 
 
 @dataclass(frozen=True, slots=True)

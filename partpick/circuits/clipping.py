@@ -30,5 +30,8 @@ class Clipping:
     def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
         return 0.0
 
+    def draw(self, sheet, a, b, up: float) -> None:
+        """Nothing to draw: no branch at the port."""
+
 
 CONTROL = Clipping()

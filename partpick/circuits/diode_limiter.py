@@ -74,6 +74,35 @@ class DiodeLimiter:
             return 0.0
         return lim.vf_spread_v / max(forward_voltage(lim, KNEE_A, temp_k), 1e-3)
 
+    # -- drawing --------------------------------------------------------------------------------
+    def draw(self, sheet, a, b, up: float) -> None:
+        """Draw the branch on ``sheet`` beside the port's two ends (a: the netlist's
+        first port node, b: the second; ``up``: the clear side): Rd (R5) from a, then the
+        pair to b, as in :meth:`netlist`. Diodes and LEDs are drawn anti-parallel, D1
+        conducting from Rd's side to b and D2 back; a Zener pair as two opposed Zeners
+        in series, their anodes joined."""
+        y1 = a[1] + 2.0 * up
+        sheet.wire(a, (a[0], y1))
+        dl = (a[0], y1)
+        if sheet.has("rd"):
+            dl = (a[0] - 2.6, y1)
+            sheet.resistor("rd", (a[0], y1), dl)
+        bl = (b[0], y1)
+        sheet.wire(bl, b)
+        lim = sheet.family("limiter")
+        d1, d2 = (sheet.ref("limiter").split(",") + ["D2"])[:2]
+        fam = sheet.value("limiter")
+        if lim.kind == "zener-pair":
+            mid = ((dl[0] + bl[0]) / 2, y1)
+            sheet.part(d1, sheet.elm.Zener(), mid, dl, f"{d1}\n{fam}", polar=True)
+            sheet.part(d2, sheet.elm.Zener(), mid, bl, d2, polar=True)
+            return
+        y2 = y1 + 1.3 * up
+        sheet.part(d1, sheet.elm.Diode(), dl, bl, f"{d1} {fam}", loc="bottom", polar=True)
+        sheet.part(d2, sheet.elm.Diode(), (bl[0], y2), (dl[0], y2), f"{d2} {fam}", polar=True)
+        sheet.wire(bl, (bl[0], y2))
+        sheet.wire(dl, (dl[0], y2))
+
     # -- search hook ------------------------------------------------------------------------------
     def options(self, topology, spec, rf, lims, ideal, f_hz: float, amp_targets: list[float], m_floor: float,
                 shelf=None) -> list[CtlOption]:

@@ -23,7 +23,8 @@ from partpick.physics.rational import Rational, const, parallel
 
 __all__ = ["SLOTS", "BUFFERED", "STAGE_ROLES", "BIAS_ROLES", "stage_gain", "has_buffer", "slots_for",
            "supplies", "output", "output_admittance", "to_load", "channels_used", "stage_load_admittance",
-           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts"]
+           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts", "rail_flags",
+           "reference_flag", "draw"]
 
 SLOTS = (
     Slot("opamp", "opamps", "U1", "op-amp (every channel of the circuit)"),
@@ -275,3 +276,86 @@ def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str
         _, cid, v = min(options)
         out.append((role, cid, v))
     return tuple(out)
+
+
+# -- drawing --------------------------------------------------------------------------------------
+
+def rail_flags(supply_kind: str) -> tuple[str, str | None]:
+    """Names of the positive and negative supply flags on a drawing (None: ground)."""
+    return ("+V", "-V") if supply_kind == "dual" else ("+V", None)
+
+
+def reference_flag(supply_kind: str) -> str | None:
+    """The signal reference's flag on a drawing: ground on a dual supply, the mid-rail
+    node VREF on a single supply."""
+    return None if supply_kind == "dual" else "VREF"
+
+
+def draw(sheet, out, stage: str, supply_kind: str) -> None:
+    """Draw on ``sheet`` (:class:`partpick.export.schematic.Sheet`) from the oscillator
+    output ``out``: the output stage (U1B with R6, R7; or R6, R7 as an attenuator), on a
+    single supply the coupling capacitor C4 (its + towards the op-amp, which sits at
+    mid-rail) and the bias network R8, R9, C3 making VREF, the output connector, and a
+    note on the supply pins' decoupling and any spare channel, as in :func:`supplies`
+    and :func:`output`."""
+    x0, y0 = out
+    drive = out
+    if stage in BUFFERED:
+        x = x0 + 4.0
+        pins = sheet.opamp("U1B", f"U1B\n{sheet.value('opamp')}", (x, y0))
+        sheet.wire(out, pins["in2"])
+        jo = (pins["out"][0] + 0.6, pins["out"][1])
+        top = pins["in1"][1] + 1.65
+        sheet.wire(pins["out"], jo)
+        sheet.wire(pins["in1"], (x - 0.6, pins["in1"][1]), (x - 0.6, top))
+        if stage == "gain":
+            sheet.resistor("stage_rb", (x - 0.6, top), (jo[0], top))
+            sheet.resistor("stage_ra", (x - 0.6, top), (x - 3.1, top))
+            sheet.reference((x - 3.1, top))
+        else:
+            sheet.wire((x - 0.6, top), (jo[0], top))
+        sheet.wire((jo[0], top), jo)
+        drive = jo
+    elif stage == "attenuator":
+        drive = (x0 + 3.0, y0)
+        sheet.resistor("stage_ra", out, drive)
+        sheet.resistor("stage_rb", drive, (drive[0], y0 - 2.8), loc="bottom")
+        sheet.reference((drive[0], y0 - 2.8))
+    x_end = drive[0] + 1.0
+    if supply_kind == "single":
+        sheet.capacitor("coupling_c", (drive[0] + 0.6, drive[1]), (drive[0] + 3.1, drive[1]))
+        sheet.wire(drive, (drive[0] + 0.6, drive[1]))
+        x_end = drive[0] + 3.7
+        _draw_bias(sheet, (max(x0 + 6.5, drive[0] - 1.0), y0 - 1.6))
+        sheet.wire((drive[0] + 3.1, drive[1]), (x_end, drive[1]))
+    else:
+        sheet.wire(drive, (x_end, drive[1]))
+    sheet.connector("OUT", (x_end, drive[1]), "OUT: to the load")
+    channels = sheet.bom.channels
+    op = sheet.family("opamp")
+    notes = ["Supply: +V" + (" and -V" if supply_kind == "dual" else "") + " to every op-amp package, each pin "
+             "decoupled to ground with 100 nF ceramic at the pin (not in the BOM)."]
+    if channels > 1:
+        notes.append(f"U1A, U1B: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
+                     f"{sheet.value('opamp')} {'package' if op.channels > 1 else 'packages'}.")
+    if op.channels > channels:
+        notes.append(f"U1 has {op.channels - channels} spare channel(s): tie each +input to the reference and "
+                     "the output to its -input.")
+    if supply_kind == "single":
+        notes.append("VREF: mid-rail made by R8, R9 and C3; ground symbols are 0 V.")
+    sheet.note("\n".join(notes), (-4.2, -8.0))
+
+
+def _draw_bias(sheet, top) -> None:
+    """R8 from +V to VREF, R9 from VREF to ground, C3 across R9 (its + at VREF)."""
+    x, y = top
+    sheet.flag("+V", (x, y), "up")
+    j = (x, y - 2.4)
+    sheet.resistor("bias_top", (x, y), j)
+    sheet.resistor("bias_bottom", j, (x, y - 4.8))
+    sheet.ground((x, y - 4.8))
+    c = (x + 2.0, j[1])
+    sheet.wire(j, c, (x + 3.0, j[1]))
+    sheet.capacitor("bias_c", c, (c[0], y - 4.8), loc="bottom")
+    sheet.ground((c[0], y - 4.8))
+    sheet.flag("VREF", (x + 3.0, j[1]), "right")

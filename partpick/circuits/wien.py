@@ -334,61 +334,36 @@ class WienBridge:
         return make_circuit(self.name, control, values, {"opamp": opamp, **(parts or {})})
 
     # -- drawing ------------------------------------------------------------------------------------
-    def draw(self, d, elm, label, stage: str, supply_kind: str) -> None:
-        """Draw the oscillator core on schemdraw drawing ``d`` (``elm``: schemdraw's
-        elements module; ``label(role)``: the designator and value text of a slot): the
-        Wien arms, the gain network, the control branch across Rf and the op-amp, with a
-        note of the output stage and, on a single supply, the bias network. Ground
-        symbols stand for the signal reference (mid-rail on a single supply)."""
-        op = d.add(elm.Opamp(leads=True).label(label("opamp"), loc="center", ofst=(0, -1.2)))
-        d.add(elm.Line().at(op.out).right(1.0))
-        out = d.here
-        d.add(elm.Dot())
-        # gain network: Rf over the top, Rg down to the reference
-        d.add(elm.Line().at(op.in1).left(1.0))
-        d.add(elm.Dot())
-        d.add(elm.Line().up(1.6))
-        top = d.here
-        d.add(elm.Resistor().right().tox(out).label(label("rf")))
-        d.add(elm.Line().down().toy(out))
-        # Rg leaves the junction to the left, clear of the Wien network below
-        d.add(elm.Resistor().at(top).left(2.6).label(label("rg")))
-        d.add(elm.Ground())
-        # control branch across Rf
-        if label("limiter"):
-            d.add(elm.Line().at(top).up(1.6))
-            if label("rd"):
-                d.add(elm.Resistor().right(2.4).label(label("rd")))
-            d.add(elm.Diode().right(2.4).label(label("limiter") + " (pair)"))
-            d.add(elm.Line().right().tox(out))
-            d.add(elm.Line().down().toy(top))
-        # shunt arm Rp || Cp at the non-inverting input
-        d.add(elm.Line().at(op.in2).left(1.0))
-        plus = d.here
-        d.add(elm.Dot())
-        d.add(elm.Resistor().down(2.4).label(label("rp"), loc="bottom"))
-        d.add(elm.Ground())
-        d.add(elm.Line().at(plus).left(1.6))
-        d.add(elm.Capacitor().down(2.4).label(label("cp"), loc="bottom"))
-        d.add(elm.Ground())
-        # series arm Rs + Cs from the output back to the non-inverting input
-        d.add(elm.Line().at(out).down(4.2))
-        d.add(elm.Resistor().left(3.0).label(label("rs"), loc="bottom"))
-        d.add(elm.Capacitor().left(3.0).label(label("cs"), loc="bottom"))
-        d.add(elm.Line().left().tox(plus.x - 3.4))
-        d.add(elm.Line().up().toy(plus))
-        d.add(elm.Line().right().tox(plus.x - 1.6))
-        # output stage and supply notes
-        note = {"none": "load", "follower": "follower, load",
-                "gain": f"gain stage {label('stage_ra')}, {label('stage_rb')}, load",
-                "attenuator": f"attenuator {label('stage_ra')}, {label('stage_rb')}, load"}[stage]
-        d.add(elm.Line().at(out).right(1.2))
-        d.add(elm.Dot(open=True).label(note, loc="bottom"))
-        d.add(elm.Gap().right(3.5))  # room for the note inside the drawing's bounds
-        if supply_kind == "single":
-            d.add(elm.Label().at((plus.x - 3.4, plus.y - 6.0)).label(
-                f"single supply: reference = mid-rail from {label('bias_top')} / {label('bias_bottom')}, "
-                f"{label('bias_c')}; output through {label('coupling_c')}", loc="right"))
+    def draw(self, sheet) -> dict:
+        """Draw the core on ``sheet`` (:class:`partpick.export.schematic.Sheet`): op-amp
+        channel U1A, the gain network Rg (to the reference) and Rf over the top, the
+        shunt arm Rp || Cp at the +input and the series arm Rs + Cs from the output back
+        to it. Returns where the others attach: 'out' (the oscillator output, for the
+        output stage) and each port's (end at the output side, end at the -input side,
+        which way is clear: +1 up) for the amplitude control, as the netlist's
+        'feedback' port = ('out', 'nn')."""
+        pins = sheet.opamp("U1A", f"U1A\n{sheet.value('opamp')}", (0.0, -0.625))
+        x_fb, x_out, y_rf, y_arm = 4.6, 5.4, 3.0, -5.6
+        out = (x_out, pins["out"][1])
+        sheet.wire(pins["out"], (x_fb, out[1]), out)
+        # gain network: -input up to Rg (left, to the reference) and Rf (right, to the output)
+        sheet.wire(pins["in1"], (-1.0, pins["in1"][1]), (-1.0, y_rf), (-0.3, y_rf))
+        sheet.resistor("rg", (-1.0, y_rf), (-3.5, y_rf))
+        sheet.reference((-3.5, y_rf))
+        sheet.resistor("rf", (-0.3, y_rf), (x_fb, y_rf))
+        sheet.wire((x_fb, y_rf), (x_fb, out[1]))
+        # shunt arm Rp || Cp from the +input to the reference
+        plus = pins["in2"]
+        sheet.wire(plus, (-1.0, plus[1]), (-2.6, plus[1]), (-4.2, plus[1]), (-4.2, y_arm))
+        sheet.resistor("rp", (-1.0, plus[1]), (-1.0, -3.4), loc="bottom")
+        sheet.reference((-1.0, -3.4))
+        sheet.capacitor("cp", (-2.6, plus[1]), (-2.6, -3.4))
+        sheet.reference((-2.6, -3.4))
+        # series arm Rs + Cs from the output back to the +input
+        sheet.capacitor("cs", (-4.2, y_arm), (0.2, y_arm), loc="bottom")
+        sheet.resistor("rs", (0.2, y_arm), (x_out, y_arm), loc="bottom")
+        sheet.wire((x_out, y_arm), out)
+        return {"out": out, "ports": {"feedback": ((x_fb, y_rf), (-0.3, y_rf), 1.0)}}
 
 
 TOPOLOGY = WienBridge()

@@ -19,7 +19,7 @@ def write_candidates(d, spec, spec_path, catalog, out_dir, *, force: bool = Fals
     written = []
     for i, r in enumerate(d.ranked, 1):
         path = Path(out_dir) / f"{spec.name}-{i:02d}.yaml"
-        written.append(write_atomic(path, bom_to_yaml(r.bom, header=bom_note(spec_path, i, r)), force=force))
+        written.append(write_atomic(path, bom_to_yaml(r.bom, header=bom_note(spec_path, i, r), catalog=catalog), force=force))
         written.append(write_atomic(path.with_suffix(".csv"),
                                     bom_to_purchase_csv(r.bom, catalog, stock=stock, builds=spec.builds),
                                     force=force))

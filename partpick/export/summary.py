@@ -7,12 +7,14 @@ import json
 
 from partpick import units
 from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
+from partpick.derating import RULES
+from partpick.export import shown
 from partpick.export.table import render_table
 from partpick.export.verdict import check_json, worst_line
-from partpick.pricing import Pricer
+from partpick.pricing import purchase_lines
 
 __all__ = ["summary", "design_table", "design_json", "design_csv", "design_yaml", "bom_note", "candidate_json",
-           "bom_rows", "design_output"]
+           "bom_rows", "design_output", "explain_text", "derating_lines"]
 
 
 def summary(r) -> dict:
@@ -36,43 +38,61 @@ def _bom_json(bom) -> list[dict]:
     return [{"ref": ln.ref, "role": ln.role, "family": ln.family, "value": ln.value} for ln in bom.lines]
 
 
-def bom_rows(r, catalog) -> list[list]:
-    """Rows of the BOM table: ref, role, value, family, unit price (the catalog price the
-    search used; a limiter: its pair)."""
-    price = Pricer(catalog).unit
+def bom_rows(r, catalog, stock=None) -> list[list]:
+    """Rows of the BOM table, one per purchasing line: designators, roles, quantity per
+    board, value, family, unit price, line cost (parts, line price and ordering cost:
+    the lines add up to the candidate's cost)."""
     rows = []
-    for ln in r.bom.lines:
-        dim = ROLES[ln.role][1]
+    for ln in purchase_lines(r.bom, catalog, stock):
+        dim = ROLES[ln.roles[0]][1]
         value = units.format_quantity(ln.value, dim, 3) if dim else ""
-        rows.append([ln.ref, ln.role, value, ln.family, f"{price(ln.family, ln.value):.3f}"])
+        rows.append([",".join(ln.refs), ",".join(ln.roles), ln.quantity, value, ln.family, f"{ln.unit_price:.3f}",
+                     f"{ln.cost:.3f}"])
     return rows
 
 
-def design_table(d, catalog, spec) -> str:
+def design_table(d, catalog, spec, stock=None) -> str:
     """The ranked candidates as a table, then the #1 bill of materials and its cautions."""
     lines = []
     rows = []
     for i, r in enumerate(d.ranked, 1):
         s = summary(r)
         lim = r.bom.control_part()
-        rows.append([i, "pass" if s["passed"] else "FAIL", f"{s['frequency_hz']:.6g} Hz",
+        rows.append([i, "pass" if s["passed"] else "FAIL", shown.frequency(s["frequency_hz"]),
                      f"{s['frequency_error'] * 100:+.3f} %",
-                     f"{s['amplitude_load_peak_v'] * 2:.4g} Vpp", f"{s['thd'] * 100:.2f} %",
+                     shown.amplitude(s["amplitude_load_peak_v"], spec), f"{s['thd'] * 100:.2f} %",
                      f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
                      f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim.family if lim else "-",
                      r.bom.stage])
     lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
                                f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
                               right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
+    lines.append(design_legend(d, spec, catalog))
     best = d.ranked[0]
     lines.append("")
-    lines.append(f"#1 bill of materials (textbook f0 {best.circuit.f0_hz:.6g} Hz, gain {best.circuit.gain:.4g}, "
-                 f"needs {best.circuit.required_gain:.4g}):")
-    lines.append(render_table(["ref", "role", "value", "family", f"unit {catalog.currency}"], bom_rows(best, catalog),
-                              right=(4,), indent="  "))
+    lines.append(f"#1 bill of materials (textbook f0 {shown.frequency(best.circuit.f0_hz)}, gain "
+                 f"{best.circuit.gain:.4g}, needs {best.circuit.required_gain:.4g}):")
+    lines.append(render_table(["ref", "role", "qty", "value", "family", f"unit {catalog.currency}",
+                               f"line {catalog.currency}"], bom_rows(best, catalog, stock), right=(2, 5, 6),
+                              indent="  "))
+    lines.append(f"  line = unit x qty + the family's line price{' + ordering cost off the shelf' if stock else ''};"
+                 f" total {best.cost:.3f} {catalog.currency} per board")
     for caution in best.verdict.cautions:
         lines.append(f"caution: {caution}")
     return "\n".join(lines)
+
+
+def design_legend(d, spec, catalog) -> str:
+    """What each column of the design table means, and which operating point it is at."""
+    samples = next((r.mc.samples for r in d.ranked if r.mc is not None), 0)
+    return "\n".join([
+        f"frequency, error, at load: nominal point (mid supply, {shown.temperature(spec.temperature.nominal_k)}),"
+        f" error against the {shown.frequency(spec.frequency.target_hz)} target, amplitude at the load in the spec's "
+        f"unit; THD: worst of the supply and temperature ends",
+        "margin: small-signal startup margin at the nominal point (loop gain at the phase-zero frequency - 1); "
+        f"yield: share of {samples} Monte Carlo builds meeting every requirement",
+        f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
+        "stage: the output stage (none, follower, gain, attenuator)"])
 
 
 def design_json(spec_path, d) -> str:
@@ -113,7 +133,7 @@ def candidate_json(i: int, r) -> str:
 
 
 def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bool = False,
-                  verbose: bool = False) -> str:
+                  verbose: bool = False, stock=None) -> str:
     """What ``partpick design`` prints in format ``fmt`` (text, json, csv, yaml)."""
     if fmt == "json":
         return design_json(spec_path, d)
@@ -124,7 +144,31 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
     lines = [f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
              f"(ranked by {', '.join(keys or spec.rank_by)})"]
     if not quiet:
-        lines.append(design_table(d, catalog, spec))
+        lines.append(design_table(d, catalog, spec, stock))
     if verbose:
         lines.append("time per stage: " + ", ".join(f"{k} {v:.2f} s" for k, v in d.timings.items()))
+    return "\n".join(lines)
+
+
+def derating_lines(spec, opamp=None) -> list[str]:
+    """The derating rules in force, each with its value, meaning and where it was set;
+    with ``opamp``, the package limit that follows for it."""
+    from partpick.verify import package_limit
+
+    d = spec.derating
+    out = []
+    for rule in RULES:
+        value = units.format_quantity(float(f"{d.value(rule.key):.4g}"), rule.dim)
+        out.append(f"{rule.key} = {value}: {rule.meaning} ({d.origin_of(rule.key)}; {rule.source})")
+    if opamp is not None:
+        out.append(f"package limit of {opamp.id}: {package_limit(opamp, spec)[1]}")
+    return out
+
+
+def explain_text(d, spec) -> str:
+    """``design --explain``: what the search left out and why, and the derating rules."""
+    lines = ["not considered:"] + [f"  {line}" for line in d.space.explain]
+    best = d.ranked[0].circuit.opamp if d.ranked else None
+    lines += ["derating rules (set them in the spec's 'derating:' or a rules file it names):"]
+    lines += [f"  {line}" for line in derating_lines(spec, best)]
     return "\n".join(lines)

@@ -4,12 +4,13 @@ from __future__ import annotations
 
 from partpick import units
 from partpick.bom import ROLES
+from partpick.export import shown
 from partpick.export.table import render_table
 
 __all__ = ["swap_text"]
 
 
-def swap_text(res, stock, catalog, bom_path, stock_path) -> str:
+def swap_text(res, stock, catalog, bom_path, stock_path, spec) -> str:
     out = []
     if not res.changed:
         out.append(f"every part of {bom_path} is on the shelf ({stock_path}); nothing to swap")
@@ -27,7 +28,7 @@ def swap_text(res, stock, catalog, bom_path, stock_path) -> str:
 
     def col(r):
         p = r.verdict.nominal
-        return [f"{p.freq_hz:.6g} Hz" if p.starts else "-", f"{2 * p.load_peak_v:.4g} Vpp",
+        return [shown.frequency(p.freq_hz) if p.starts else "-", shown.amplitude(p.load_peak_v, spec),
                 f"{p.lin.margin * 100:.2f} %", f"{r.yield_frac * 100:.1f} %", f"{r.cost:.3f}",
                 "meets the spec" if r.verdict.passed else "FAILS " + ", ".join(c.name for c in r.verdict.failed())]
 

@@ -28,6 +28,14 @@ def tradeoff_text(spec, catalog, points, front, samples: int) -> str:
           _family(p.item.bom.line("opamp")), _family(p.item.bom.control_part()), p.source] for p in front],
         right=(0, 1, 2))
     return (f"{spec.name}: {len(front)} designs on the cost-accuracy front, of {len(points)} that meet the spec\n"
-            + table + "\n"
-            f"accuracy: frequency error the builds reach at the {spec.yield_min_frac:.0%} yield "
-            f"({samples} Monte Carlo builds each)")
+            + table + "\n" + "\n".join(front_legend(spec, catalog, samples)))
+
+
+def front_legend(spec, catalog, samples: int) -> list[str]:
+    """What each column of the front means."""
+    return [f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); accuracy: the frequency "
+            f"error the builds reach at the {spec.yield_min_frac:.0%} yield ({samples} Monte Carlo builds each); "
+            "yield: share of builds meeting every requirement",
+            "arm families: the frequency-setting network's resistor and capacitor families; from run: the design "
+            "runs that found it (the spec's own ranking, one per family pair, cheapest, most accurate); the front "
+            "keeps a design only when every cheaper one is less accurate"]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from partpick import units
+from partpick.export import shown
 from partpick.export.table import render_table
 from partpick.verify import Check, Verdict
 
@@ -21,20 +22,29 @@ def fmt_value(value: float | None, dim: str) -> str:
     return units.format_quantity(float(f"{value:.4g}"), dim)
 
 
-def render_verdict(v: Verdict) -> str:
-    """Each requirement: predicted value, limit, pass/fail and margin."""
+def limit_text(c: Check, spec, ge: str = ">=", le: str = "<=") -> str:
+    """A check's limit in the user's units ('4.95 kHz .. 5.05 kHz', '>= 0 %')."""
+    if c.low is not None and c.high is not None:
+        return f"{shown.check_value(c.low, c, spec)} .. {shown.check_value(c.high, c, spec)}"
+    if c.low is not None:
+        return f"{ge} {shown.check_value(c.low, c, spec)}"
+    return f"{le} {shown.check_value(c.high, c, spec)}"
+
+
+VERDICT_LEGEND = ("predicted: at the operating point the note names (nominal: mid supply, nominal temperature; "
+                  "worst: the worst of the supply and temperature ends); margin: distance to the nearer limit, "
+                  "negative when outside; amplitudes at the load in the spec's unit")
+
+
+def render_verdict(v: Verdict, spec) -> str:
+    """Each requirement: predicted value, limit, pass/fail and margin, in the user's
+    units, with a legend."""
     rows = []
     for c in v.checks:
-        if c.is_info:
-            limit = "-"
-        elif c.low is not None and c.high is not None:
-            limit = f"{fmt_value(c.low, c.dim)} .. {fmt_value(c.high, c.dim)}"
-        elif c.low is not None:
-            limit = f">= {fmt_value(c.low, c.dim)}"
-        else:
-            limit = f"<= {fmt_value(c.high, c.dim)}"
-        rows.append([c.name, fmt_value(c.value, c.dim), limit, verdict_word(c), fmt_value(c.margin, c.dim), c.note])
-    return render_table(["requirement", "predicted", "limit", "verdict", "margin", "note"], rows)
+        rows.append([c.name, shown.check_value(c.value, c, spec), "-" if c.is_info else limit_text(c, spec),
+                     verdict_word(c), shown.check_value(c.margin, c, spec), c.note])
+    return render_table(["requirement", "predicted", "limit", "verdict", "margin", "note"], rows) + \
+        "\n" + VERDICT_LEGEND
 
 
 def verdict_word(c: Check) -> str:
@@ -42,32 +52,37 @@ def verdict_word(c: Check) -> str:
     return "info" if c.is_info else ("pass" if c.passed else "FAIL")
 
 
-def render_point(name: str, p) -> str:
+def render_point(name: str, p, spec) -> str:
     """One line per operating point (frequency, amplitudes, THD, method)."""
     if not p.starts:
         return f"{name:>11}: no oscillation (startup margin {p.lin.margin * 100:+.2f} %)"
-    return (f"{name:>11}: {p.freq_hz:.6g} Hz, {2 * p.osc_peak_v:.4g} Vpp at the op-amp, "
-            f"{2 * p.load_peak_v:.4g} Vpp at the load, THD {p.load_thd * 100:.3g} %, "
-            f"supply {p.cond.supply_v:g} V, {p.cond.temp_k - 273.15:.4g} degC ({p.method}, {p.regime})")
+    supply = f"{'+/-' if spec.supply.kind == 'dual' else ''}{p.cond.supply_v:g} V"
+    return (f"{name:>11}: {shown.frequency(p.freq_hz)}, {shown.amplitude(p.osc_peak_v, spec)} at the op-amp, "
+            f"{shown.amplitude(p.load_peak_v, spec)} at the load, THD {p.load_thd * 100:.3g} %, "
+            f"supply {supply}, {p.cond.temp_k - 273.15:.4g} degC ({p.method}, {p.regime})")
 
 
-def failure_line(c: Check) -> str:
+def failure_line(c: Check, spec) -> str:
     """How far a failed check misses its limit."""
+    def q(x):
+        return shown.check_value(x, c, spec)
     if c.low is not None and c.value < c.low:
-        return (f"{c.name}: {fmt_value(c.value, c.dim)} is below {fmt_value(c.low, c.dim)} by "
-                f"{fmt_value(c.low - c.value, c.dim)}")
+        return f"{c.name}: {q(c.value)} is below {q(c.low)} by {q(c.low - c.value)}"
     if c.high is not None and c.value > c.high:
-        return (f"{c.name}: {fmt_value(c.value, c.dim)} is above {fmt_value(c.high, c.dim)} by "
-                f"{fmt_value(c.value - c.high, c.dim)}")
+        return f"{c.name}: {q(c.value)} is above {q(c.high)} by {q(c.value - c.high)}"
     return f"{c.name}: no prediction"
 
 
-def worst_line(wc: dict) -> str:
-    """The worst-case corners in one line."""
+def worst_line(wc: dict, spec=None) -> str:
+    """The worst-case corners in one line (with ``spec``, in the user's units)."""
     lo, hi = wc["frequency_hz"]
     alo, ahi = wc["amplitude_v"]
+    if spec is None:
+        return (f"worst case (tolerance and temperature corners): margin {wc['margin'] * 100:+.2f} %, frequency "
+                f"{lo:.6g}..{hi:.6g} Hz, amplitude {alo:.4g}..{ahi:.4g} V peak")
     return (f"worst case (tolerance and temperature corners): margin {wc['margin'] * 100:+.2f} %, frequency "
-            f"{lo:.6g}..{hi:.6g} Hz, amplitude {alo:.4g}..{ahi:.4g} V peak")
+            f"{shown.frequency(lo)} .. {shown.frequency(hi)}, amplitude at the load {shown.amplitude(alo, spec)} .. "
+            f"{shown.amplitude(ahi, spec)}")
 
 
 def check_json(c: Check) -> dict:
@@ -86,29 +101,31 @@ def check_data(spec_path, bom_path, r) -> dict:
                                                    "samples_needed": mc.needed}}
 
 
-def check_text(spec_path, bom_path, r) -> str:
+def check_text(spec_path, bom_path, r, spec) -> str:
     """``partpick check``: operating points, every requirement, Monte Carlo, failures,
-    cautions."""
+    cautions, in the user's units."""
     verdict, mc, circuit = r.verdict, r.mc, r.circuit
     status = ("PASS" if verdict.passed else
               f"FAIL ({len(verdict.failed())} of {len(verdict.requirements())} requirements)")
     lines = [f"{bom_path} against {spec_path}: {status}",
-             f"textbook f0 {circuit.f0_hz:.6g} Hz, gain {circuit.gain:.4g} (needs {circuit.required_gain:.4g})"]
-    lines += [render_point(name, point) for name, point in verdict.corners.items()]
-    lines += ["", render_verdict(verdict)]
+             f"textbook f0 {shown.frequency(circuit.f0_hz)}, gain {circuit.gain:.4g} (needs "
+             f"{circuit.required_gain:.4g})"]
+    lines += [render_point(name, point, spec) for name, point in verdict.corners.items()]
+    lines += ["", render_verdict(verdict, spec)]
     if mc is not None:
         st = mc.stats.get("frequency_hz")
         if st:
             lines.append(f"Monte Carlo ({mc.samples} builds, seed {mc.seed}): yield {mc.yield_frac:.1%}; frequency "
-                         f"mean {st['mean']:.6g} Hz, sd {st['std']:.3g} Hz, 0.1..99.9 % {st['q001']:.6g}.."
-                         f"{st['q999']:.6g} Hz; {mc.needed} builds give a +/-0.5 % yield")
-            lines.append(worst_line(r.worst))
-    lines += [f"fails: {failure_line(c)}" for c in verdict.failed()]
+                         f"mean {shown.frequency(st['mean'])}, sd {shown.frequency(st['std'], 3)}, 0.1..99.9 % "
+                         f"{shown.frequency(st['q001'])} .. {shown.frequency(st['q999'])}; {mc.needed} builds give a "
+                         f"+/-0.5 % yield")
+            lines.append(worst_line(r.worst, spec))
+    lines += [f"fails: {failure_line(c, spec)}" for c in verdict.failed()]
     lines += [f"caution: {caution}" for caution in verdict.cautions]
     return "\n".join(lines)
 
 
-def transient_text(t) -> str:
+def transient_text(t, spec) -> str:
     """The transient summary (:class:`partpick.verify.TransientSummary`) in one line."""
     if not t.starts:
         return "transient: the circuit does not start (the kick dies away)"
@@ -116,6 +133,7 @@ def transient_text(t) -> str:
         return "transient: no oscillation within the simulated time"
     st = t.stats
     settle = f"{t.settle_s * 1e3:.4g} ms" if t.settle_s is not None else "not within the run"
-    return (f"transient ({t.cycles:.0f} cycles from a 10 mV kick): {st.freq_hz:.6g} Hz, {st.vpp_v:.4g} Vpp at the "
+    return (f"transient ({t.cycles:.0f} cycles from a 10 mV kick): {shown.frequency(st.freq_hz)}, "
+            f"{shown.amplitude(st.vpp_v / 2, spec)} at the "
             f"load, THD {st.thd_frac * 100:.3g} %, settles (2 %) after {settle}"
             + ("" if st.settled else "; still changing at the end"))

@@ -1,0 +1,150 @@
+"""Derating rules by name: package thermal limits from the catalog, shares set in the spec
+or in a rules file it names, and every rule shown by `design --explain`.
+
+Reference for the package limit: the junction temperature of a part dissipating P in
+still air is Tj = Ta + theta_ja P (the definition of theta_ja in JEDEC JESD51-1; any
+thermal-design text), so the most it may dissipate is (Tj,max - Ta) / theta_ja.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import pytest
+from click.testing import CliRunner
+
+from partpick.catalog import load_catalog
+from partpick.cli import main
+from partpick.pipeline import evaluate_bom
+from partpick.bom import load_bom
+from partpick.spec import Spec
+from partpick.verify import package_limit
+from tests.conftest import CATALOGS, SPECS, VALID_SPEC
+
+
+def _spec(text: str = VALID_SPEC, tmp_path=None) -> Spec:
+    if tmp_path is None:
+        return Spec.from_text(text)
+    path = tmp_path / "spec.yaml"
+    path.write_text(text, encoding="utf-8")
+    return Spec.from_yaml(path)
+
+
+def test_package_limit_is_the_junction_rule(demo_catalog):
+    spec = _spec()  # ambient up to 60 degC
+    power = demo_catalog.find("opamps", "oa-power-4m")
+    small = demo_catalog.find("opamps", "oa-jfet-4m")
+    # demo packages: SOIC-8-EP 55 K/W, SOIC-8 150 K/W, both 150 degC
+    assert power.package == "SOIC-8-EP" and power.thermal.theta_ja_k_per_w == pytest.approx(55)
+    assert package_limit(power, spec)[0] == pytest.approx((150 - 60) / 55)
+    assert package_limit(small, spec)[0] == pytest.approx((150 - 60) / 150)
+    # the power op-amp is not held to the small-package limit
+    assert package_limit(power, spec)[0] > 2.5 * package_limit(small, spec)[0]
+    # at 70 degC ambient a SOIC-8 takes about the 0.5 W of common practice
+    hot = dataclasses.replace(spec, temperature=dataclasses.replace(spec.temperature, max_k=273.15 + 70))
+    assert package_limit(small, hot)[0] == pytest.approx(80 / 150)
+
+
+def test_share_and_unknown_package_rules(demo_catalog, tmp_path):
+    spec = _spec(VALID_SPEC + "derating: {package_power: 50 %, unknown_package: 0.3 W}\n")
+    power = demo_catalog.find("opamps", "oa-power-4m")
+    assert package_limit(power, spec)[0] == pytest.approx(0.5 * 90 / 55)
+    bare = dataclasses.replace(power, thermal=None)
+    limit, how = package_limit(bare, spec)
+    assert limit == pytest.approx(0.3) and "no thermal data" in how
+    assert spec.derating.origin_of("package_power") == "spec"
+    assert spec.derating.origin_of("resistor_power") == "default"
+
+
+def test_rules_file_named_by_the_spec(tmp_path):
+    rules = tmp_path / "house.yaml"
+    rules.write_text("description: our bench rules\nderating: {resistor_power: 25 %, thd_share: 70 %}\n",
+                     encoding="utf-8")
+    spec = _spec(VALID_SPEC + "derating: house.yaml\n", tmp_path)
+    assert spec.derating.resistor_power == pytest.approx(0.25)
+    assert spec.derating.thd_share == pytest.approx(0.7)
+    assert spec.derating.output_current == pytest.approx(0.6)  # not set: the default
+    assert spec.derating.origin_of("resistor_power") == str(rules.resolve())
+
+
+@pytest.mark.parametrize("tail,line,field,words", [
+    ("derating: {resistor_power: 150 %}\n", 17, "derating.resistor_power", ["<= 100 %"]),
+    ("derating: {resistor_pwr: 50 %}\n", 17, "derating.resistor_pwr", ["did you mean 'resistor_power'"]),
+    ("derating: {unknown_package: 0.5 V}\n", 17, "derating.unknown_package", ["power"]),
+    ("derating: {thd_share: 0 %}\n", 17, "derating.thd_share", ["must be > 0"]),
+])
+def test_bad_rules_exit_2_naming_the_field(tmp_path, tail, line, field, words):
+    path = tmp_path / "spec.yaml"
+    path.write_text(VALID_SPEC + tail, encoding="utf-8")
+    result = CliRunner().invoke(main, ["spec", "check", str(path), "--catalog", str(CATALOGS)])
+    assert result.exit_code == 2, result.output
+    assert result.stderr.startswith(f"error: {path}:{line}: '{field}' "), result.stderr
+    for w in words:
+        assert w in result.stderr
+
+
+def test_missing_rules_file_exits_2(tmp_path):
+    path = tmp_path / "spec.yaml"
+    path.write_text(VALID_SPEC + "derating: nowhere.yaml\n", encoding="utf-8")
+    result = CliRunner().invoke(main, ["spec", "check", str(path), "--catalog", str(CATALOGS)])
+    assert result.exit_code == 2 and "nowhere.yaml" in result.stderr, result.output
+
+
+def test_verify_uses_the_rules(demo_catalog, tmp_path):
+    """The shipped transducer draft on the power op-amp: its package check uses the
+    exposed-pad package's limit, and a tighter share moves the limit with it."""
+    base = (SPECS / "lvdt-exciter.yaml").read_text(encoding="utf-8")
+    bom = load_bom(SPECS / "boms" / "lvdt-exciter-draft.yaml", demo_catalog)
+    bom = dataclasses.replace(bom, lines=tuple(dataclasses.replace(ln, family="oa-power-4m") if ln.role == "opamp"
+                                               else ln for ln in bom.lines))
+    limits = []
+    for tail in ("", "derating: {package_power: 25 %}\n"):
+        spec = _spec(base + tail, tmp_path)
+        r = evaluate_bom(bom, spec, demo_catalog, samples=200)
+        check = next(c for c in r.verdict.checks if c.name == "op-amp package dissipation")
+        assert "SOIC-8-EP" in check.note
+        limits.append(check.high)
+    assert limits[0] == pytest.approx((150 - 50) / 55)
+    assert limits[1] == pytest.approx(0.25 * limits[0])
+
+
+def test_explain_shows_every_rule():
+    result = CliRunner().invoke(main, ["design", str(SPECS / "lvdt-exciter.yaml"), "--catalog", str(CATALOGS),
+                                       "-n", "1", "--samples", "200", "--explain", "-q"])
+    assert result.exit_code == 0, result.output
+    for key in ("resistor_power = 50 %", "package_power = 100 %", "unknown_package = 500 mW", "thd_share = 80 %",
+                "output_current = 60 %", "package limit of oa-power-4m: SOIC-8-EP"):
+        assert key in result.output, key
+
+
+def test_catalog_packages_section(tmp_path):
+    (tmp_path / "a.yaml").write_text(
+        "packages:\n  - {id: DIP-8, theta_ja: 100 K/W, max_junction: 125 degC}\n"
+        "opamps:\n  - {id: op-x, gbw: 1 MHz, dc_gain: 100 dB, slew_rate: 0.5 V/us, supply: {min: 3 V, max: 32 V},\n"
+        "     headroom: {high: 1.5 V, low: 0.1 V}, output_current: 20 mA, output_resistance: 100 ohm,\n"
+        "     input_common_mode: {low: 0 V, high: 1.5 V}, quiescent_current: 0.5 mA, input_bias_current: 20 nA,\n"
+        "     package: DIP-8, maker: Example Corp, maker_part: EX-1, price: {unit: 0.1}}\n", encoding="utf-8")
+    cat = load_catalog(tmp_path)
+    op = cat.find("opamps", "op-x")
+    assert op.thermal == cat.package("DIP-8")
+    assert op.thermal.theta_ja_k_per_w == 100 and op.thermal.tj_max_k == pytest.approx(398.15)
+    assert cat.package("DIP-8").limit_w(273.15 + 25) == pytest.approx(1.0)
+    assert (op.maker, op.maker_part) == ("Example Corp", "EX-1")
+
+
+@pytest.mark.xfail(strict=True, reason="the search (partpick/search, being rewritten for issue 11) still aims with "
+                                       "its own constants; wiring spec.derating.thd_share and .output_current in "
+                                       "there makes this pass: then drop this marker")
+def test_the_search_aims_with_the_spec_shares(demo_catalog):
+    import math
+
+    from partpick.search.space import build_space
+
+    base = _spec((SPECS / "carrier-50khz.yaml").read_text(encoding="utf-8"))
+    tight = _spec((SPECS / "carrier-50khz.yaml").read_text(encoding="utf-8")
+                  + "derating: {thd_share: 50 %, output_current: 30 %}\n")
+    a, b = build_space(base, demo_catalog), build_space(tight, demo_catalog)
+    assert b.thd_max == pytest.approx(0.5 * base.max_thd_frac)
+    op = next(o for o in b.ops if o.opamp == "oa-audio-10m")
+    assert op.ln_i_max == pytest.approx(math.log(0.3 * demo_catalog.find("opamps", "oa-audio-10m").output_current_a))
+    assert a.thd_max == pytest.approx(0.8 * base.max_thd_frac)
