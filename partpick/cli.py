@@ -199,10 +199,10 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--out", "out_dir", type=_PATH, default=None,
               help="Write one BOM file per candidate (YAML) into this folder.")
 @_force_option
-@click.option("--time-limit", type=float, default=10.0, show_default=True, help="Solver time limit per round, s.")
-@click.option("--workers", type=click.IntRange(1, 64), default=2, show_default=True, help="Solver threads.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Solver random seed (results are deterministic).")
-@click.option("--explain", is_flag=True, help="Also say which op-amps and limiters were dropped, and why.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Monte Carlo seed (reruns agree).")
+@click.option("--explain", is_flag=True, help="Also say which parts were left out and why, and the rules in force.")
+@click.option("--why-not", "why_not", type=click.IntRange(1, 50), default=None,
+              help="On a refusal, show this many nearest designs (default 3).")
 @_samples_option
 @click.option("--plots", "plots_dir", type=_PATH, default=None,
               help="Write frequency and amplitude histograms of the top candidate as PNG (needs the plot extra).")
@@ -211,7 +211,7 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--quiet", "-q", is_flag=True, help="Only the summary line (and errors).")
 @click.option("--verbose", "-v", is_flag=True, help="Also the dropped parts and the time of each stage.")
 @_guarded
-def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain,
+def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, seed, explain, why_not,
                samples, plots_dir, report_path, quiet, verbose):
     """Search standard values for SPEC and print ranked, verified bills of materials."""
     from partpick.export import summary as out_
@@ -228,8 +228,8 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
                                      param_hint="--rank-by")
     progress = _progress(not quiet, f"verifying candidates (physics + {samples} Monte Carlo builds each)")
     explain = explain or verbose
-    d = design(spec, cat, stock=stock, results=results, time_limit_s=time_limit, workers=workers, seed=seed,
-               rank_by=keys, samples=samples, progress=progress)
+    d = design(spec, cat, stock=stock, results=results, seed=seed, rank_by=keys, samples=samples, progress=progress,
+               nearest=why_not or 3)
     notes = fmt != "text"  # side messages go to stderr when stdout carries data
     text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose, stock=stock)
     if fmt == "text" and sys.stdout.isatty():  # colour only on a terminal

@@ -40,7 +40,7 @@ from partpick.circuits import Circuit, all_slots, balance, linear, log_sensitivi
 from partpick.spec import Spec
 from partpick.verify import Verdict, make_check
 
-__all__ = ["Model", "YieldResult", "model_for", "monte_carlo", "worst_case", "samples_needed", "with_yield",
+__all__ = ["Model", "YieldResult", "model_for", "variation", "monte_carlo", "worst_case", "samples_needed", "with_yield",
            "draw_builds", "frequency_and_startup"]
 
 T_REF = 298.15
@@ -99,34 +99,42 @@ def samples_needed(p: float, half_width: float = 0.005) -> int:
     return int(math.ceil((1.96 / half_width) ** 2 * p * (1 - p)))
 
 
+def variation(values_by_role: dict, families: dict, catalog: Catalog) -> tuple[dict, ...]:
+    """Per role of the resistors and capacitors: (value, tolerance, normal?, tempco
+    (nominal, spread), class-2 band (fraction, half-span)) from each part's family."""
+    values, tol, normal, tempco, band = {}, {}, {}, {}, {}
+    slots = all_slots()
+    for role, value in values_by_role.items():
+        kind = slots[role].kind
+        if kind not in ("resistors", "capacitors"):
+            continue
+        fam = catalog.find(kind, families[role])
+        values[role] = value
+        tol[role] = fam.tolerance_frac
+        normal[role] = fam.distribution == "normal"
+        if kind == "resistors":
+            tempco[role] = (0.0, fam.tempco_per_k)
+            band[role] = (0.0, 1.0)
+        elif fam.has_band:
+            tempco[role] = (0.0, 0.0)
+            band[role] = (fam.band_frac, 0.5 * (fam.band_max_k - fam.band_min_k))
+        else:
+            tempco[role] = (fam.tempco_per_k, fam.tempco_spread_per_k)
+            band[role] = (0.0, 1.0)
+    return values, tol, normal, tempco, band
+
+
 def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdict) -> Model:
     """The candidate's model: slopes from one more harmonic-balance run with the gain
     raised by 0.5 % (the topology's gain-setting part)."""
     nom = verdict.nominal
-    values, tol, normal, tempco, band = {}, {}, {}, {}, {}
-    slots = all_slots()
-    for ln in bom.lines:
-        kind = slots[ln.role].kind
-        if kind not in ("resistors", "capacitors"):
-            continue
-        fam = catalog.find(kind, ln.family)
-        values[ln.role] = ln.value
-        tol[ln.role] = fam.tolerance_frac
-        normal[ln.role] = fam.distribution == "normal"
-        if kind == "resistors":
-            tempco[ln.role] = (0.0, fam.tempco_per_k)
-            band[ln.role] = (0.0, 1.0)
-        elif fam.has_band:
-            tempco[ln.role] = (0.0, 0.0)
-            band[ln.role] = (fam.band_frac, 0.5 * (fam.band_max_k - fam.band_min_k))
-        else:
-            tempco[ln.role] = (fam.tempco_per_k, fam.tempco_spread_per_k)
-            band[ln.role] = (0.0, 1.0)
+    values, tol, normal, tempco, band = variation({ln.role: ln.value for ln in bom.lines},
+                                                  {ln.role: ln.family for ln in bom.lines}, catalog)
     cond = nom.cond
     lin = nom.lin
     up = c.topology.nudge_gain(c, 0.005)
     lin_up = linear(up, cond)
-    hb = balance(c, cond, lin)
+    hb = nom.balance if nom.balance is not None else balance(c, cond, lin)
     hb_up = balance(up, cond, lin_up, start=hb) if hb is not None else None
     m_ideal = c.ideal_margin
     if hb is not None and hb_up is not None:

@@ -21,7 +21,7 @@ from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_n
                                margin_fn, periphery)
 from partpick.physics.harmonic import BalanceResult
 from partpick.physics.linear import LinearResult
-from partpick.physics.opamp import regime as opamp_regime, swing_limits
+from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
 from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
@@ -71,6 +71,7 @@ class OperatingPoint:
     regime: str
     freq_per_cap_hz_f: float = math.nan
     cap_eff_f: float = 0.0
+    balance: BalanceResult | None = field(default=None, compare=False, repr=False)   # a warm start for neighbours
 
 
 @dataclass(frozen=True, slots=True)
@@ -122,15 +123,18 @@ def _swing(c: Circuit, cond: Conditions) -> tuple[float, float]:
     return swing_limits(c.opamp, cond.rails(c.supply_kind))
 
 
-def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None) -> OperatingPoint:
-    """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring)."""
+def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None,
+            near: OperatingPoint | None = None) -> OperatingPoint:
+    """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
+    ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
+    balance starts this one's Newton iteration (the answer is the same, only sooner)."""
     loop = build_loop(c, cond)
     lin = linear(c, cond, loop)
     lo, hi = _swing(c, cond)
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
-    hb = balance(c, cond, lin, loop=loop)
+    hb = balance(c, cond, lin, loop=loop, start=near.balance if near is not None else None)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
@@ -139,7 +143,7 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
 def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
     return OperatingPoint(cond, lin, True, hb.freq_hz, hb.osc_peak_v, hb.load_peak_v, hb.osc_thd, hb.load_thd,
                           hb.x_min_v, hb.x_max_v, lo, hi, hb.slew_v_per_s, hb.iout_peak_a, hb.iout_rms_a,
-                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f)
+                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f, hb)
 
 
 def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, kick_v: float = 0.01) -> float:
@@ -296,9 +300,11 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     tolerances, tempcos, ratings = tolerances or {}, tempcos or {}, ratings or {}
     conds = operating_conditions(spec)
     pts = dict(points or {})
+    if "nominal" not in pts:
+        pts["nominal"] = predict(c, conds["nominal"])
     for name, cond in conds.items():
         if name not in pts:
-            pts[name] = predict(c, cond)
+            pts[name] = predict(c, cond, near=pts["nominal"])
     nom = pts["nominal"]
     checks: list[Check] = []
     cautions: list[str] = []
@@ -424,23 +430,16 @@ def package_limit(op, spec: Spec) -> tuple[float, str]:
 def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:
     """(W, which package) the hottest op-amp package dissipates at the maximum supply:
     the quiescent power of every channel it holds (catalog figures are per channel) plus
-    the output stage of each channel in use, class B (:func:`_class_b_loss`)."""
+    the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`)."""
     op, span = c.opamp, spec.supply.span_max_v
-    losses = [_class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)]
+    losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)]
     if periphery.has_buffer(c):
         i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
-        losses.append(_class_b_loss(span / 2, nom.load_peak_v, i_buf))
+        losses.append(class_b_loss(span / 2, nom.load_peak_v, i_buf))
     quiescent = span * op.quiescent_current_a * op.channels
     if op.channels >= len(losses):
         return quiescent + sum(losses), f"{len(losses)} of {op.channels} channel(s) in one package"
     return quiescent + max(losses), "one channel per package, the hotter one"
-
-
-def _class_b_loss(v_rail: float, v_pk: float, i_pk: float) -> float:
-    """Average output-stage loss for a sine of v_pk (V), i_pk (A) from rails +/- v_rail
-    (V) into a resistive load: 2 V I / pi - V_pk I / 2 (W), the class-B result of any
-    power-amplifier text."""
-    return max(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
 
 
 @dataclass(frozen=True, slots=True)

@@ -22,7 +22,7 @@ import numpy as np
 __all__ = ["Slot", "Values", "Circuit", "Conditions", "Core", "Topology", "AmplitudeControl", "DIMS", "STAGES",
            "SUPPLY_KINDS"]
 
-STAGES = ("none", "follower", "gain", "attenuator")
+STAGES = ("none", "follower", "gain", "attenuator", "buffered-attenuator")
 SUPPLY_KINDS = ("dual", "single")
 DIMS = {"resistors": "resistance", "capacitors": "capacitance"}
 
@@ -166,14 +166,17 @@ class Topology(Protocol):
     it offers: 'feedback' = a branch across the feedback resistor, whose conductance
     lowers the gain).
 
-    Search hooks (:mod:`partpick.search.space`): ``network_options`` (frequency-setting
-    networks near a target, as :class:`~partpick.circuits.options.NetOption`),
-    ``retune``, ``gain_ratios`` / ``gain_values`` / ``port_conductance_needed`` /
-    ``osc_per_port`` / ``reference`` / ``reference_required_gain`` (what a control
-    needs to build its options on this topology), ``opamp_reference``; ``draw`` (its
-    part of the schematic on a :class:`partpick.export.schematic.Sheet`, returning
-    where the output stage and each port's control attach) and ``hand_design`` (the
-    hand-method baseline of the benchmarks).
+    Search hooks (:mod:`partpick.search.enumerate`): ``network_table`` (every
+    frequency-setting network of a family pair in a frequency window, as a
+    :class:`~partpick.circuits.options.NetTable`), ``gain_values`` /
+    ``port_conductance`` / ``port_conductance_slope`` / ``osc_per_port_k`` /
+    ``gain_sensitivity`` / ``thd_transfer`` (how the gain network and the port turn a
+    control branch's state into the loop's), ``reference`` / ``reference_gain_values``
+    (the equal-arm reference a control tabulates its surrogate on), ``opamp_reference``
+    (where an op-amp's pull and loss are measured); ``draw`` (its part of the schematic
+    on a :class:`partpick.export.schematic.Sheet`, returning where the output stage and
+    each port's control attach) and ``hand_design`` (the hand-method baseline of the
+    benchmarks).
     """
 
     name: str
@@ -214,9 +217,8 @@ class Topology(Protocol):
 class AmplitudeControl(Protocol):
     """An amplitude-control plug-in (one module under ``partpick/circuits``; see
     DEVELOPERS.md, "Adding an amplitude control"). Attributes: name (the word in BOMs
-    and specs), slots, port (the topology port it sits at). Search hook ``options``
-    (its gain networks with their surrogates, as
-    :class:`~partpick.circuits.options.CtlOption`).
+    and specs), slots, port (the topology port it sits at). Its search surrogate is its
+    own business: the diode limiter's is :mod:`partpick.circuits.limiter_surface`.
     """
 
     name: str

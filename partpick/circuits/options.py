@@ -14,99 +14,32 @@ import math
 from dataclasses import dataclass
 from statistics import NormalDist
 
-from partpick.circuits.base import Values
-
-__all__ = ["NetOption", "CtlOption", "StageOption", "merge_lines", "nearest", "sigma", "z_of", "dt_of",
-           "cap_tempco", "values_of", "resistor_families", "arm_capacitor_families", "SLOPE", "slope",
-           "AMP_SLOPE_MAX", "DM_MAX"]
-
-SLOPE = 1000                # surrogate slopes are kept as multiples of 1/SLOPE
-DM_MAX = 0.02               # nepers: how far from its reference gain excess a linearised surrogate is trusted
-AMP_SLOPE_MAX = 25.0        # ln amplitude per neper of gain excess: steeper designs are too fragile to build
+import numpy as np
 
 
-def slope(x: float) -> float:
-    """A slope rounded to 1/SLOPE: the surrogate is defined with it, so the solver's
-    integer model and the float evaluation use the same number."""
-    return round(x * SLOPE) / SLOPE
+__all__ = ["NetTable", "nearest", "sigma", "z_of", "dt_of", "cap_tempco", "values_of", "resistor_families",
+           "arm_capacitor_families"]
 
+@dataclass(frozen=True, slots=True, eq=False)
+class NetTable:
+    """Every frequency-setting network of one family pair in a frequency window, as
+    arrays over its rows: values (n, len(roles)) in ohm and F; ln_f0 (ln Hz); ln_k
+    (ln of the required gain); sigma_lnk (standard deviation of ln k from the parts'
+    tolerances); unit_cost (sum of unit prices); sorted by ln_f0. families gives each
+    role's family id; sigma_lnf is the relative standard deviation of f0 from the
+    tolerances (the same for every row: JCGM 100 first-order propagation)."""
 
-@dataclass(frozen=True, slots=True)
-class NetOption:
-    """A frequency-setting network: values (role -> ohm, F), its resistor and capacitor
-    families, ln_f0 (ln Hz), ln_k = ln(required gain), loss (worst-case margin loss from
-    its tolerances, nepers), r_max / r_min (ohm, its largest and smallest resistor),
-    lines, drift (frequency drift bound over temperature, nepers), spread (frequency
-    spread from the tolerances at the yield's z, nepers), sigma_k (standard deviation
-    of ln(required gain) from the tolerances)."""
+    roles: tuple[str, ...]
+    families: tuple[str, ...]
+    values: np.ndarray
+    ln_f0: np.ndarray
+    ln_k: np.ndarray
+    sigma_lnk: np.ndarray
+    unit_cost: np.ndarray
+    sigma_lnf: float
 
-    values: Values
-    r_family: str
-    c_family: str
-    ln_f0: float
-    ln_k: float
-    loss: float
-    r_max: float
-    r_min: float
-    lines: tuple
-    drift: float = 0.0
-    spread: float = 0.0
-    sigma_k: float = 0.0
-
-
-@dataclass(frozen=True, slots=True)
-class CtlOption:
-    """A gain network with its amplitude control: values (role -> ohm), parts (role ->
-    family id of each active part), the resistor family; ln_g = ln(small-signal gain);
-    surrogate at the gain excess ln1m_ref (nepers): ln_amp (ln of the oscillator
-    output amplitude, V), thd (fraction), pull (relative harmonic frequency pull), each
-    with its slope per neper of gain excess; loss (margin loss from its tolerances,
-    nepers); ln_amp_tmin / ln_amp_tmax: ln amplitude at the temperature ends; k_amp:
-    |amplitude slope| times z; sigma_g: standard deviation of ln(gain) from the
-    tolerances; vf_spread: amplitude spread from the control's parts at the yield's z."""
-
-    values: Values
-    parts: tuple
-    r_family: str
-    ln_g: float
-    ln1m_ref: float
-    ln_amp: float
-    s_amp: float
-    thd: float
-    s_thd: float
-    pull: float
-    s_pull: float
-    loss: float
-    lines: tuple
-    ln_amp_tmin: float = 0.0
-    ln_amp_tmax: float = 0.0
-    k_amp: float = 0.0
-    sigma_g: float = 0.0
-    vf_spread: float = 0.0
-
-    def part(self, role: str) -> str | None:
-        return dict(self.parts).get(role)
-
-
-@dataclass(frozen=True, slots=True)
-class StageOption:
-    """An output stage: kind, values (role -> ohm), resistor family, ln of its gain into
-    the load, ln of the load current per volt at the oscillator output (ln S), lines."""
-
-    kind: str
-    values: Values
-    r_family: str
-    ln_gain: float
-    ln_y: float
-    lines: tuple
-
-
-def merge_lines(lines) -> tuple:
-    """((family, value, quantity), ...) with equal (family, value) merged: one line each."""
-    merged: dict[tuple[str, float], int] = {}
-    for fam, value, qty in lines:
-        merged[(fam, value)] = merged.get((fam, value), 0) + qty
-    return tuple((f, v, q) for (f, v), q in merged.items())
+    def __len__(self) -> int:
+        return self.ln_f0.size
 
 
 def nearest(values, target: float) -> float:

@@ -167,7 +167,7 @@ def derating_lines(spec, opamp=None) -> list[str]:
 
 def explain_text(d, spec) -> str:
     """``design --explain``: what the search left out and why, and the derating rules."""
-    lines = ["not considered:"] + [f"  {line}" for line in d.space.explain]
+    lines = ["not considered:"] + [f"  {line}" for line in d.notes or ("(nothing: every allowed part was searched)",)]
     best = d.ranked[0].circuit.opamp if d.ranked else None
     lines += ["derating rules (set them in the spec's 'derating:' or a rules file it names):"]
     lines += [f"  {line}" for line in derating_lines(spec, best)]

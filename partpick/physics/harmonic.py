@@ -354,11 +354,13 @@ def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 2
 
 
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
-                     kmax: int = 21, start: BalanceResult | None = None) -> BalanceResult | None:
+                     kmax: int = 21, start: BalanceResult | None = None, escalate: int = 2) -> BalanceResult | None:
     """Settled oscillation of the loop closed through a nonlinear branch; rails (V) are
     (positive rail, negative rail, signal reference) for the op-amps' swing. None when
     the circuit does not start or the branch cannot bring the loop gain down (then the
-    op-amps' swing sets the amplitude and the transient simulation must answer)."""
+    op-amps' swing sets the amplitude and the transient simulation must answer). When
+    the highest harmonics are not yet negligible the harmonics are doubled, at most
+    ``escalate`` times."""
     if branch.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
     a_df = describing_amplitude(branch.series_table, lin.marginal_g_s)
@@ -375,7 +377,7 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
         warm = np.asarray(warm)
         warm_even = np.asarray(even[0]) if even and even[0] else None
     series = getattr(branch.table, "element", None) is not None
-    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
+    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3)[:escalate + 1]:
         hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
