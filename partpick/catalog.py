@@ -17,6 +17,7 @@ from typing import Iterable
 
 from partpick import series
 from partpick.errors import CatalogError, InputError
+from partpick.fileio import os_cause
 from partpick.yamlsrc import Fields, read_yaml
 
 __all__ = [
@@ -35,6 +36,30 @@ DISTRIBUTIONS = ("uniform", "normal")
 LIMITER_KINDS = ("diode", "zener-pair", "led")
 
 _PRICE = ("unit", "line")
+
+# Ranges every catalog value must lie in (SI), so the physics never sees a zero, a
+# subnormal or an absurd magnitude (facts of the trade, no published source: wide
+# enough for any part an oscillator would use).
+RESISTANCE_OHM = (0.01, 1e12)
+CAPACITANCE_F = (1e-13, 0.1)
+TEMPCO_PER_K = (-0.01, 0.01)        # +/-10,000 ppm/K
+MIN_TOLERANCE = 1e-6
+POWER_W = (1e-4, 1e3)
+RATING_V = (0.1, 1e5)
+GBW_HZ = (1.0, 10e9)
+POLE_HZ = (1e-3, 1e11)
+SLEW_V_PER_S = (1e3, 1e12)
+SUPPLY_V = (0.5, 1e3)
+SIDE_V = (-100.0, 100.0)            # headroom, common-mode distance from a rail
+CURRENT_A = (1e-9, 100.0)
+SMALL_CURRENT_A = (0.0, 1.0)        # input bias
+OUTPUT_OHM = (0.0, 1e6)
+SATURATION_A = (1e-30, 1.0)
+JUNCTION_F = (0.0, 1e-6)
+BANDGAP_J = (0.1 * 1.602176634e-19, 10 * 1.602176634e-19)
+ZENER_V = (0.1, 1e3)
+ZENER_TEMPCO_V_PER_K = (-1.0, 1.0)
+BAND_K = (73.15, 573.15)            # -200 degC .. 300 degC
 
 
 @dataclass(frozen=True, slots=True)
@@ -248,12 +273,19 @@ def _catalog_files(paths: Iterable[str | Path]) -> list[Path]:
     files: list[Path] = []
     for p in paths:
         p = Path(p)
-        if p.is_dir():
-            found = sorted(list(p.glob("*.yaml")) + list(p.glob("*.yml")))
+        if "\0" in str(p):
+            raise CatalogError("the path holds a NUL character", source=str(p))
+        try:
+            is_dir = p.is_dir()
+            found = sorted(e.path for e in os.scandir(p) if e.name.endswith((".yaml", ".yml"))) if is_dir else []
+            exists = is_dir or os.path.lexists(p)
+        except OSError as exc:
+            raise CatalogError(f"cannot read catalog folder or file ({os_cause(exc)})", source=str(p)) from None
+        if is_dir:
             if not found:
                 raise CatalogError("holds no catalog files (*.yaml); expected part families", source=str(p))
-            files.extend(found)
-        elif p.exists():
+            files.extend(Path(f) for f in found)
+        elif exists:
             files.append(p)
         else:
             raise CatalogError("catalog folder or file not found", source=str(p))
@@ -328,6 +360,8 @@ def _where(rec: Fields) -> str:
 
 def _tolerance(rec: Fields, key: str = "tolerance") -> float:
     tol = rec.quantity(key, "fraction", positive=True)
+    if tol < MIN_TOLERANCE:
+        raise rec.error(key, f"must be at least 0.0001 % (got {tol * 100:g} %)")
     if tol >= 0.5:
         raise rec.error(key, f"must be below 50 % (got {tol * 100:g} %)")
     return tol
@@ -340,10 +374,10 @@ def _series(rec: Fields) -> str:
         raise rec.error("series", exc.message) from None
 
 
-def _range(rec: Fields, dim: str, series_name: str) -> tuple[float, float]:
+def _range(rec: Fields, dim: str, series_name: str, bounds: tuple[float, float]) -> tuple[float, float]:
     r = rec.sub("range", ("min", "max"))
-    lo = r.quantity("min", dim, positive=True)
-    hi = r.quantity("max", dim, positive=True)
+    lo = r.quantity("min", dim, positive=True, bounds=bounds)
+    hi = r.quantity("max", dim, positive=True, bounds=bounds)
     if lo > hi:
         raise r.error("min", f"must not exceed range.max (got {lo:g} > {hi:g})")
     if not series.values_in_range(series_name, lo, hi):
@@ -373,7 +407,7 @@ class _Resistors(_Reader):
 
     def read(self, rec: Fields) -> ResistorFamily:
         ser = _series(rec)
-        lo, hi = _range(rec, "resistance", ser)
+        lo, hi = _range(rec, "resistance", ser, RESISTANCE_OHM)
         price = _price(rec)
         return ResistorFamily(
             id=_id(rec),
@@ -382,11 +416,11 @@ class _Resistors(_Reader):
             series=ser,
             tolerance_frac=_tolerance(rec),
             distribution=rec.text("distribution", choices=DISTRIBUTIONS, default="uniform"),
-            tempco_per_k=rec.quantity("tempco", "tempco", nonnegative=True),
+            tempco_per_k=rec.quantity("tempco", "tempco", nonnegative=True, bounds=TEMPCO_PER_K),
             min_ohm=lo,
             max_ohm=hi,
-            power_w=rec.quantity("power", "power", positive=True),
-            voltage_v=rec.quantity("voltage", "voltage", positive=True, default=math.inf),
+            power_w=rec.quantity("power", "power", positive=True, bounds=POWER_W),
+            voltage_v=rec.quantity("voltage", "voltage", positive=True, default=math.inf, bounds=RATING_V),
             package=rec.text("package", default=""),
             price_unit=_cost(price, "unit"),
             price_line=_cost(price, "line", default=0.0),
@@ -400,7 +434,7 @@ class _Capacitors(_Reader):
 
     def read(self, rec: Fields) -> CapacitorFamily:
         ser = _series(rec)
-        lo, hi = _range(rec, "capacitance", ser)
+        lo, hi = _range(rec, "capacitance", ser, CAPACITANCE_F)
         price = _price(rec, ("at_min", "at_max", "line"))
         at_min = _cost(price, "at_min")
         at_max = _cost(price, "at_max", default=at_min)
@@ -413,13 +447,13 @@ class _Capacitors(_Reader):
                                   "(class 2, electrolytic)")
         if rec.has("tempco"):
             tc = rec.sub("tempco", ("nominal", "spread"))
-            tempco = tc.quantity("nominal", "tempco")
-            tempco_spread = tc.quantity("spread", "tempco", nonnegative=True, default=0.0)
+            tempco = tc.quantity("nominal", "tempco", bounds=TEMPCO_PER_K)
+            tempco_spread = tc.quantity("spread", "tempco", nonnegative=True, default=0.0, bounds=TEMPCO_PER_K)
         else:
             tb = rec.sub("temperature_band", ("change", "min", "max"))
-            band = tb.quantity("change", "fraction", positive=True)
-            band_lo = tb.quantity("min", "temperature")
-            band_hi = tb.quantity("max", "temperature")
+            band = tb.quantity("change", "fraction", positive=True, bounds=(MIN_TOLERANCE, 1.0))
+            band_lo = tb.quantity("min", "temperature", bounds=BAND_K)
+            band_hi = tb.quantity("max", "temperature", bounds=BAND_K)
             if band_lo >= band_hi:
                 raise tb.error("min", "must be below temperature_band.max")
         return CapacitorFamily(
@@ -434,7 +468,7 @@ class _Capacitors(_Reader):
             band_frac=band,
             band_min_k=band_lo,
             band_max_k=band_hi,
-            voltage_v=rec.quantity("voltage", "voltage", positive=True),
+            voltage_v=rec.quantity("voltage", "voltage", positive=True, bounds=RATING_V),
             min_f=lo,
             max_f=hi,
             package=rec.text("package", default=""),
@@ -452,18 +486,18 @@ class _OpAmps(_Reader):
 
     def read(self, rec: Fields) -> OpAmp:
         sup = rec.sub("supply", ("min", "max"))
-        smin = sup.quantity("min", "voltage", positive=True)
-        smax = sup.quantity("max", "voltage", positive=True)
+        smin = sup.quantity("min", "voltage", positive=True, bounds=SUPPLY_V)
+        smax = sup.quantity("max", "voltage", positive=True, bounds=SUPPLY_V)
         if smin >= smax:
             raise sup.error("min", f"must be below supply.max (got {smin:g} V >= {smax:g} V)")
         head = rec.sub("headroom", ("high", "low"))
         cm = rec.sub("input_common_mode", ("low", "high"))
         rr = rec.sub("rail_to_rail", ("input", "output"), required=False)
-        gbw = rec.quantity("gbw", "frequency", positive=True)
+        gbw = rec.quantity("gbw", "frequency", positive=True, bounds=GBW_HZ)
         a0 = rec.quantity("dc_gain", "gain", positive=True)
-        if a0 <= 1:
-            raise rec.error("dc_gain", "must exceed 1 V/V (0 dB)")
-        pole2 = rec.quantity("second_pole", "frequency", positive=True, required=False)
+        if not 1 < a0 <= 1e9:
+            raise rec.error("dc_gain", "must lie above 1 V/V (0 dB) and at most 1e9 V/V (180 dB)")
+        pole2 = rec.quantity("second_pole", "frequency", positive=True, required=False, bounds=POLE_HZ)
         if pole2 is not None and pole2 <= gbw / a0:
             raise rec.error("second_pole", "must lie above the dominant pole gbw / dc_gain")
         price = _price(rec)
@@ -473,21 +507,22 @@ class _OpAmps(_Reader):
             gbw_hz=gbw,
             a0=a0,
             second_pole_hz=pole2,
-            slew_v_per_s=rec.quantity("slew_rate", "slew_rate", positive=True),
+            slew_v_per_s=rec.quantity("slew_rate", "slew_rate", positive=True, bounds=SLEW_V_PER_S),
             supply_min_v=smin,
             supply_max_v=smax,
-            headroom_high_v=head.quantity("high", "voltage", nonnegative=True),
-            headroom_low_v=head.quantity("low", "voltage", nonnegative=True),
-            output_current_a=rec.quantity("output_current", "current", positive=True),
-            output_resistance_ohm=rec.quantity("output_resistance", "resistance", nonnegative=True),
-            input_cm_low_v=cm.quantity("low", "voltage"),
-            input_cm_high_v=cm.quantity("high", "voltage"),
+            headroom_high_v=head.quantity("high", "voltage", nonnegative=True, bounds=SIDE_V),
+            headroom_low_v=head.quantity("low", "voltage", nonnegative=True, bounds=SIDE_V),
+            output_current_a=rec.quantity("output_current", "current", positive=True, bounds=CURRENT_A),
+            output_resistance_ohm=rec.quantity("output_resistance", "resistance", nonnegative=True,
+                                               bounds=OUTPUT_OHM),
+            input_cm_low_v=cm.quantity("low", "voltage", bounds=SIDE_V),
+            input_cm_high_v=cm.quantity("high", "voltage", bounds=SIDE_V),
             rail_to_rail_in=rr.boolean("input", default=False) if rr else False,
             rail_to_rail_out=rr.boolean("output", default=False) if rr else False,
             channels=rec.integer("channels", default=1, minimum=1, maximum=8),
-            quiescent_current_a=rec.quantity("quiescent_current", "current", positive=True),
-            input_bias_a=rec.quantity("input_bias_current", "current", nonnegative=True),
-            gbw_spread_frac=rec.quantity("gbw_spread", "fraction", nonnegative=True, default=0.3),
+            quiescent_current_a=rec.quantity("quiescent_current", "current", positive=True, bounds=CURRENT_A),
+            input_bias_a=rec.quantity("input_bias_current", "current", nonnegative=True, bounds=SMALL_CURRENT_A),
+            gbw_spread_frac=rec.quantity("gbw_spread", "fraction", nonnegative=True, default=0.3, bounds=(0.0, 0.9)),
             package=rec.text("package", default=""),
             price_unit=_cost(price, "unit"),
             price_line=_cost(price, "line", default=0.0),
@@ -516,17 +551,19 @@ class _Limiters(_Reader):
             id=_id(rec),
             description=rec.text("description", default=""),
             kind=kind,
-            is_a=rec.quantity("saturation_current", "current", positive=True),
+            is_a=rec.quantity("saturation_current", "current", positive=True, bounds=SATURATION_A),
             n=n,
-            rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0),
-            cj_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0),
-            eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19),
+            rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0, bounds=OUTPUT_OHM),
+            cj_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=JUNCTION_F),
+            eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19, bounds=BANDGAP_J),
             xti=rec.number("xti", default=3.0, minimum=0.0, maximum=10.0),
-            vz_v=rec.quantity("zener_voltage", "voltage", positive=True) if zener else 0.0,
-            iz_a=rec.quantity("zener_current", "current", positive=True) if zener else 0.0,
-            rz_ohm=rec.quantity("zener_resistance", "resistance", nonnegative=True) if zener else 0.0,
-            vz_tempco_v_per_k=rec.quantity("zener_tempco", "voltage_tempco") if zener else 0.0,
-            vf_spread_v=rec.quantity("forward_voltage_spread", "voltage", nonnegative=True, default=0.0),
+            vz_v=rec.quantity("zener_voltage", "voltage", positive=True, bounds=ZENER_V) if zener else 0.0,
+            iz_a=rec.quantity("zener_current", "current", positive=True, bounds=CURRENT_A) if zener else 0.0,
+            rz_ohm=rec.quantity("zener_resistance", "resistance", nonnegative=True, bounds=OUTPUT_OHM) if zener else 0.0,
+            vz_tempco_v_per_k=(rec.quantity("zener_tempco", "voltage_tempco", bounds=ZENER_TEMPCO_V_PER_K)
+                               if zener else 0.0),
+            vf_spread_v=rec.quantity("forward_voltage_spread", "voltage", nonnegative=True, default=0.0,
+                                     bounds=(0.0, 1.0)),
             parts=rec.integer("parts", default=2, minimum=1, maximum=4),
             package=rec.text("package", default=""),
             price_unit=_cost(price, "unit"),

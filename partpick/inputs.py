@@ -1,16 +1,23 @@
 """Reading what a command works on, at the edge: the spec, the catalog it names (or the
-default one) and its stock list, each checked against the others."""
+default one), its stock list and a BOM, each checked against the others; and the
+command's options, each checked against a sane range before any computation."""
 
 from __future__ import annotations
 
+import importlib.util
+import math
 from pathlib import Path
 
+from partpick.bom import Bom, check_bom_fits, load_bom
 from partpick.catalog import Catalog, default_catalog_dir, load_catalog
 from partpick.circuits import check_spec
-from partpick.spec import Spec, check_parts
+from partpick.errors import InputError
+from partpick.spec import RANK_KEYS, Spec, check_parts
 from partpick.stock import load_stock
+from partpick.yamlsrc import did_you_mean
 
-__all__ = ["catalog_for", "load_inputs"]
+__all__ = ["catalog_for", "load_inputs", "load_bom_for", "check_number", "check_seed", "check_samples",
+           "rank_keys", "require_extra", "SEED_MAX", "SAMPLES", "TIME_LIMIT_S", "CYCLES"]
 
 
 def catalog_for(paths, spec: Spec | None = None) -> Catalog:
@@ -32,3 +39,71 @@ def load_inputs(spec_path: str | Path, catalog_paths=()):
     check_spec(spec)
     stock = load_stock(spec.stock.path, cat) if spec.stock else None
     return spec, cat, stock
+
+
+# -- options, checked before any computation ------------------------------------------------------
+
+SEED_MAX = 2**31 - 2           # the solver's seed is a signed 32-bit integer, and the Monte Carlo's is seed + 1
+SAMPLES = (100, 1_000_000)     # Monte Carlo builds per candidate
+# Measured on the demo specs (benchmarks/bench_fuzz.py notes it): about 28 bytes per build are
+# kept for each verified candidate (n results + 5 more the search verifies), on top of about
+# 250 MB of code and search; this budget keeps a run under 1 GB.
+SAMPLE_BUDGET = 25_000_000
+TIME_LIMIT_S = (1e-3, 3600.0)
+CYCLES = (1.0, 100_000.0)
+
+
+def _option(name: str, message: str) -> InputError:
+    return InputError(message, field=name)
+
+
+def check_number(name: str, value: float | None, bounds: tuple[float, float], unit: str = "") -> None:
+    """Refuse an option value that is NaN, infinite or outside ``bounds`` (inclusive)."""
+    if value is None:
+        return
+    if not (math.isfinite(value) and bounds[0] <= value <= bounds[1]):
+        raise _option(name, f"must lie within {bounds[0]:g} .. {bounds[1]:g}{unit} (got {value:g})")
+
+
+def check_seed(seed: int | None) -> None:
+    if seed is not None and not 0 <= seed <= SEED_MAX:
+        raise _option("--seed", f"must lie within 0 .. {SEED_MAX} (got {seed})")
+
+
+def check_samples(samples: int | None, results: int = 1) -> None:
+    """Refuse a Monte Carlo size below a stable estimate or beyond the memory budget."""
+    if samples is None:
+        return
+    check_number("--samples", samples, SAMPLES)
+    most = SAMPLE_BUDGET // (results + 5)
+    if samples > most:
+        raise _option("--samples", f"{samples} builds for each of {results} results would need over 1 GB of "
+                                   f"memory; use at most {most} (or fewer results)")
+
+
+def rank_keys(text: str | None) -> tuple[str, ...] | None:
+    """``--rank-by a,b`` as a tuple of known, distinct keys (None when not given)."""
+    if text is None:
+        return None
+    keys = tuple(k.strip() for k in text.split(","))
+    for key in keys:
+        if key not in RANK_KEYS:
+            raise _option("--rank-by", f"has unknown key '{key}'; expected {', '.join(RANK_KEYS)}"
+                          + did_you_mean(key, RANK_KEYS))
+        if keys.count(key) > 1:
+            raise _option("--rank-by", f"lists '{key}' twice")
+    return keys
+
+
+def require_extra(module: str, option: str, extra: str) -> None:
+    """Refuse an option whose optional dependency is not installed, before any computation."""
+    if importlib.util.find_spec(module) is None:
+        raise _option(option, f"needs {module}: pip install 'partpick[{extra}]'")
+
+
+def load_bom_for(bom_path: str | Path, spec: Spec, catalog: Catalog) -> Bom:
+    """The BOM at ``bom_path``, checked against the catalog and against the spec it is
+    checked with (same topology, same supply kind)."""
+    bom = load_bom(bom_path, catalog)
+    check_bom_fits(bom, spec)
+    return bom
