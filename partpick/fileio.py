@@ -45,7 +45,7 @@ _LIVE_TEMPS: set[str] = set()       # temporary files being written, removed at 
 def os_cause(exc: OSError) -> str:
     """The reason of an OS error in words ('Permission denied', 'Read-only file system')."""
     if exc.errno == errno.ENAMETOOLONG:
-        return f"the name is too long (the file system allows {_NAME_MAX} bytes per name)"
+        return f"a name is longer than the {_NAME_MAX} bytes the file system allows"
     return exc.strerror or exc.__class__.__name__
 
 
@@ -254,7 +254,7 @@ class OutputPlan:
             path = self.paths[key]
             fail = _failer(path, option)
             if any(len(os.fsencode(part)) > _NAME_MAX for part in path.parts):
-                raise fail(f"the name is too long (the file system allows {_NAME_MAX} bytes per name)")
+                raise fail(f"a name is longer than the {_NAME_MAX} bytes the file system allows")
             try:
                 st = os.lstat(path)
             except FileNotFoundError:

@@ -11,7 +11,7 @@ from pathlib import Path
 from partpick.bom import Bom, check_bom_fits, load_bom
 from partpick.catalog import Catalog, default_catalog_dir, load_catalog
 from partpick.circuits import check_spec
-from partpick.errors import InputError
+from partpick.errors import InputError, SpecError
 from partpick.spec import RANK_KEYS, Spec, check_parts
 from partpick.stock import load_stock
 from partpick.yamlsrc import did_you_mean
@@ -34,11 +34,40 @@ def load_inputs(spec_path: str | Path, catalog_paths=()):
     """(spec, catalog, stock list or None), validated against each other and against
     the circuit registry."""
     spec = Spec.from_yaml(spec_path)
-    cat = catalog_for(catalog_paths, spec)
+    with _named_by(spec, "catalogs", None if catalog_paths else "catalogs"):
+        cat = catalog_for(catalog_paths, spec)
     check_parts(spec, cat)
     check_spec(spec)
-    stock = load_stock(spec.stock.path, cat) if spec.stock else None
+    with _named_by(spec, "stock", "stock.file" if spec.stock else None):
+        stock = load_stock(spec.stock.path, cat) if spec.stock else None
     return spec, cat, stock
+
+
+class _named_by:
+    """A file the spec names that cannot be read (missing, a folder, a FIFO ...) is
+    refused at the spec's line that names it; an error inside the file keeps its own
+    file and line."""
+
+    def __init__(self, spec: Spec, key: str, field: str | None) -> None:
+        self.spec, self.key, self.field = spec, key, field
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(self, kind, exc, tb) -> bool:
+        if self.field is not None and isinstance(exc, InputError) and exc.line is None and exc.source:
+            raise SpecError(f"names {exc.source}, which {_as_clause(exc.message)}", source=self.spec.source,
+                            line=self.spec.line_of(self.key), field=self.field) from None
+        return False
+
+
+def _as_clause(message: str) -> str:
+    """'file not found' -> 'is not found'; 'is a directory ...' stays."""
+    for old, new in (("file not found", "is not found"), ("catalog folder or file not found", "is not found"),
+                     ("cannot read file", "cannot be read"), ("cannot read catalog folder or file", "cannot be read")):
+        if message.startswith(old):
+            return new + message[len(old):]
+    return message
 
 
 # -- options, checked before any computation ------------------------------------------------------

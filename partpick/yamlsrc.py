@@ -111,7 +111,7 @@ def parse_yaml(text: str, source: str, error_cls: type[InputError] = InputError)
         raise error_cls(f"is not valid YAML: {exc.__class__.__name__}", source=source) from None
     if root is None:
         raise error_cls("is empty; expected a YAML mapping of fields", source=source, line=1)
-    return _convert(root, source, error_cls, set(), 0)
+    return _convert(root, source, error_cls, set(), 0, "")
 
 
 def _too_deep(text: str) -> int | None:
@@ -131,7 +131,7 @@ def _too_deep(text: str) -> int | None:
     return None
 
 
-def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: set, depth: int) -> Node:
+def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: set, depth: int, path: str) -> Node:
     line = node.start_mark.line + 1
     # A repeated node object means an alias (*name): refused, so one bad anchor
     # cannot blow a small file up into a huge tree.
@@ -144,10 +144,11 @@ def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: se
         bad = next((c for c in node.value if 0xD800 <= ord(c) <= 0xDFFF), None)
         if bad is not None:
             raise error_cls(f"holds a lone surrogate U+{ord(bad):04X} (an escape such as '\\ud83d' that is half of "
-                            "a character); write the character itself", source=source, line=line)
+                            "a character); write the character itself", source=source, line=line, field=path or None)
         return Scalar(node.value, node.tag, line, quoted=node.style in ("'", '"'))
     if isinstance(node, yaml.SequenceNode):
-        return Sequence(tuple(_convert(n, source, error_cls, seen, depth + 1) for n in node.value), line)
+        return Sequence(tuple(_convert(n, source, error_cls, seen, depth + 1, f"{path}[{i}]")
+                              for i, n in enumerate(node.value)), line)
     items: dict = {}
     for key_node, value_node in node.value:
         key_line = key_node.start_mark.line + 1
@@ -157,7 +158,7 @@ def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: se
         if key in items:
             first = items[key][0]
             raise error_cls(f"duplicate key '{key}' (first on line {first})", source=source, line=key_line)
-        items[key] = (key_line, _convert(value_node, source, error_cls, seen, depth + 1))
+        items[key] = (key_line, _convert(value_node, source, error_cls, seen, depth + 1, f"{path}.{key}" if path else key))
     return Mapping(items, line)
 
 
