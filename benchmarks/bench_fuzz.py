@@ -605,7 +605,7 @@ def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
 
 SHOW = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "multi-line message",
         "exit 2 not naming the file at fault", "killed", "temporary file left", "refusal wrote files",
-        "wrote outside the named place")
+        "wrote outside the named place", "exit 2 with file:line, no field")
 
 
 def _classify(code: int, err: str, elapsed: float, maxrss_kb: int, blamed: str | None) -> list[str]:
@@ -633,6 +633,8 @@ def _classify(code: int, err: str, elapsed: float, maxrss_kb: int, blamed: str |
                 out.append("exit 2 with file:line")
             if re.search(r":\d+(:\d+)?: '[^']+' ", first):
                 out.append("exit 2 with file:line 'field'")
+            elif re.search(r":\d+(:\d+)?: ", first):
+                out.append("exit 2 with file:line, no field")
         else:
             out.append("exit 2 not naming the file at fault")
     elif code == 2:
@@ -684,7 +686,7 @@ def main() -> None:
              "multi-line message", "temporary file left", "refusal wrote files", "wrote outside the named place",
              "traceback",
              "internal error (exit 3)", "hang > 20 s", "over 1 GB", "exit 2 naming the file", "exit 2 with file:line",
-             "exit 2 with file:line 'field'", "exit 2 not naming the file at fault",
+             "exit 2 with file:line 'field'", "exit 2 with file:line, no field", "exit 2 not naming the file at fault",
              "exit 2 (option or other)"]
     for c in order:
         print(f"  {c:38s} {counts.get(c, 0):6d}")
@@ -698,7 +700,7 @@ def main() -> None:
             print(f"  {item}")
     bad = sum(counts.get(c, 0) for c in ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB",
                                          "multi-line message", "killed", "temporary file left", "refusal wrote files",
-                                         "wrote outside the named place"))
+                                         "wrote outside the named place", "exit 2 with file:line, no field"))
     print(f"\n{'PASS' if bad == 0 else 'FAIL'}: {bad} bad outcomes")
 
 

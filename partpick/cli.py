@@ -173,13 +173,13 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
     opt.check_seed(seed)
     opt.check_samples(samples)
     spec, cat, stock = _inputs(spec_path, catalog_paths)
-    r = evaluate_bom(opt.load_bom_for(bom_path, spec, cat), spec, cat, stock, samples=samples, seed=seed)
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        r = evaluate_bom(bom, spec, cat, stock, samples=samples, seed=seed)
+        tran = transient_check(r.circuit, r.verdict.nominal.cond) if transient and fmt != "json" else None
     if fmt == "json":
         click.echo(json.dumps(check_data(spec_path, bom_path, r), indent=2, default=lambda x: None))
     else:
-        click.echo(check_text(spec_path, bom_path, r))
-        if transient:
-            click.echo("\n" + transient_text(transient_check(r.circuit, r.verdict.nominal.cond)))
+        click.echo(check_text(spec_path, bom_path, r) + ("\n\n" + transient_text(tran) if tran else ""))
     if not r.verdict.passed:
         sys.exit(1)
 
@@ -203,7 +203,8 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
     opt.check_number("--cycles", cycles, opt.CYCLES)
     plan, out = plan_one(out, "--out", force=force) if str(out) != "-" else (None, out)
     spec, cat, _ = _inputs(spec_path, catalog_paths)
-    text = netlist_text(opt.load_bom_for(bom_path, spec, cat), spec, cat, cycles)
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        text = netlist_text(bom, spec, cat, cycles)
     click.echo(text, nl=False) if plan is None else click.echo(f"wrote {plan.write(out, text)}")
 
 
@@ -284,9 +285,9 @@ def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path
     opt.check_samples(samples)
     plan, out_path = plan_one(out_path, "--out", force=force) if out_path is not None else (None, None)
     spec, cat, _ = _inputs(spec_path, catalog_paths)
-    bom = opt.load_bom_for(bom_path, spec, cat)
     stock = load_stock(stock_path, cat)
-    res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
     click.echo(swap_text(res, stock, cat, bom_path, stock_path))
     if plan is not None:
         header = f"partpick swap of {bom_path} to {stock_path}"

@@ -8,7 +8,9 @@ import importlib.util
 import math
 from pathlib import Path
 
-from partpick.bom import Bom, check_bom_fits, load_bom
+import numpy as np
+
+from partpick.bom import Bom, check_bom_fits, load_bom, value_text
 from partpick.catalog import Catalog, default_catalog_dir, load_catalog
 from partpick.circuits import check_spec
 from partpick.errors import InputError, SpecError
@@ -17,7 +19,7 @@ from partpick.stock import load_stock
 from partpick.yamlsrc import did_you_mean
 
 __all__ = ["catalog_for", "load_inputs", "load_bom_for", "check_number", "check_seed", "check_samples",
-           "rank_keys", "require_extra", "SEED_MAX", "SAMPLES", "TIME_LIMIT_S", "CYCLES"]
+           "rank_keys", "require_extra", "physics_of", "SEED_MAX", "SAMPLES", "TIME_LIMIT_S", "CYCLES"]
 
 
 def catalog_for(paths, spec: Spec | None = None) -> Catalog:
@@ -91,7 +93,13 @@ def check_number(name: str, value: float | None, bounds: tuple[float, float], un
     if value is None:
         return
     if not (math.isfinite(value) and bounds[0] <= value <= bounds[1]):
-        raise _option(name, f"must lie within {bounds[0]:g} .. {bounds[1]:g}{unit} (got {value:g})")
+        lo, hi, got = (_plain(x) for x in (bounds[0], bounds[1], value))
+        raise _option(name, f"must lie within {lo} .. {hi}{unit} (got {got})")
+
+
+def _plain(x: float) -> str:
+    """1000000 rather than 1e+06 for whole numbers an option takes."""
+    return str(int(x)) if math.isfinite(x) and float(x).is_integer() and abs(x) < 1e12 else f"{x:g}"
 
 
 def check_seed(seed: int | None) -> None:
@@ -136,3 +144,25 @@ def load_bom_for(bom_path: str | Path, spec: Spec, catalog: Catalog) -> Bom:
     bom = load_bom(bom_path, catalog)
     check_bom_fits(bom, spec)
     return bom
+
+
+class physics_of:
+    """``with physics_of(bom):`` turns a numerical failure of the physics on a BOM read
+    from a file (a singular loop, an overflow, a transient that cannot start, a math
+    domain error) into one line naming the BOM and its parts with their values, exit 2:
+    the values are what the physics cannot take. Inputs are range-checked on the way
+    in, so this is the last guard, not the first."""
+
+    def __init__(self, bom: Bom) -> None:
+        self.bom = bom
+
+    def __enter__(self) -> Bom:
+        return self.bom
+
+    def __exit__(self, kind, exc, tb) -> bool:
+        numeric = (ArithmeticError, np.linalg.LinAlgError)
+        if isinstance(exc, numeric) or (type(exc) is ValueError):
+            parts = ", ".join(f"{ln.ref} {value_text(ln) or ln.family}" for ln in self.bom.lines)
+            raise InputError(f"the physics cannot analyse this circuit ({type(exc).__name__}: {exc}); its parts: "
+                             f"{parts}", source=self.bom.source or None) from exc
+        return False

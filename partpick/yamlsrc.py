@@ -157,7 +157,8 @@ def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: se
         key = key_node.value
         if key in items:
             first = items[key][0]
-            raise error_cls(f"duplicate key '{key}' (first on line {first})", source=source, line=key_line)
+            raise error_cls(f"duplicate key '{key}' (first on line {first})", source=source, line=key_line,
+                            field=f"{path}.{key}" if path else key)
         items[key] = (key_line, _convert(value_node, source, error_cls, seen, depth + 1, f"{path}.{key}" if path else key))
     return Mapping(items, line)
 

@@ -156,7 +156,7 @@ def test_a_bom_csv_single_supply_against_a_dual_spec(tmp_path):
     (["design", LVDT, "--time-limit", "-1"], "--time-limit", ["got -1"]),
     (["design", LVDT, "--rank-by", "cost,cost"], "--rank-by", ["lists 'cost' twice"]),
     (["design", LVDT, "--rank-by", "cots"], "--rank-by", ["did you mean 'cost'"]),
-    (["design", LVDT, "--samples", "10000000"], "--samples", ["100 .. 1e+06"]),
+    (["design", LVDT, "--samples", "10000000"], "--samples", ["100 .. 1000000 (got 10000000)"]),
     (["design", LVDT, "--samples", "1000000", "-n", "100"], "--samples", ["over 1 GB", "at most 238095"]),
     (["check", LVDT, DRAFT, "--samples", "x"], "--samples", ["not a valid integer", "--help"]),
     (["design"], "SPEC", ["Missing argument", "design --help"]),
@@ -278,12 +278,24 @@ def test_an_unknown_failure_is_one_line_not_a_traceback(monkeypatch):
     import partpick.pipeline
 
     def broken(*args, **kwargs):
-        raise ZeroDivisionError("float division by zero")
+        raise RuntimeError("something\nunexpected")
     monkeypatch.setattr(partpick.pipeline, "evaluate_bom", broken)
     result = run("check", LVDT, DRAFT, "--catalog", CATALOGS)
     assert result.exit_code == 3
     err = result.stderr.strip()
-    assert "\n" not in err and err.startswith("error: internal error ZeroDivisionError: float division by zero")
+    assert "\n" not in err and err.startswith("error: internal error RuntimeError: something\\nunexpected (a bug")
+
+
+def test_physics_that_cannot_cope_names_the_parts_and_values(monkeypatch):
+    import partpick.pipeline
+
+    def singular(*args, **kwargs):
+        raise ZeroDivisionError("float division by zero")
+    monkeypatch.setattr(partpick.pipeline, "evaluate_bom", singular)
+    err = located(run("check", LVDT, DRAFT, "--catalog", CATALOGS), DRAFT, None, None,
+                  "the physics cannot analyse this circuit (ZeroDivisionError: float division by zero)",
+                  "R1 3k09", "C1 10n", "U1 oa-audio-10m")
+    assert "\n" not in err
 
 
 def test_no_color_and_the_progress_line(monkeypatch):
