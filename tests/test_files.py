@@ -330,3 +330,15 @@ def test_an_unreadable_catalog_file_is_one_line(shared_dir):
     code, err = _unreadable_run(["catalog", "validate", cat], cat / "opamps.yaml")
     assert code == 2
     assert err.strip() == f"error: {cat / 'opamps.yaml'}: cannot read file (Permission denied)"
+
+
+@pytest.mark.parametrize("option,module", [("--plots", "matplotlib"), ("--report", "schemdraw")])
+def test_a_missing_extra_is_refused_before_the_search(tmp_path, no_search, monkeypatch, option, module):
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec", lambda name, *a: None if name == module else real(name, *a))
+    target = tmp_path / ("page.html" if option == "--report" else "plots")
+    one_line_error(run("design", SPEC, option, target, "--catalog", CATALOGS), option, f"needs {module}",
+                   "pip install")
+    assert not no_search and not target.exists()
