@@ -533,7 +533,10 @@ def _child(folder: Path, argv: list[str], as_nobody, use_exec: bool) -> None:
         sys.stderr.flush()
         os._exit(code)
     except BaseException:
-        os._exit(99)
+        os._exit(_NOT_STARTED)  # e.g. --exec as 'nobody' with a Python that user cannot run
+
+
+_NOT_STARTED = 99
 
 
 def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
@@ -609,6 +612,8 @@ SHOW = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "mul
 
 
 def _classify(code: int, err: str, elapsed: float, maxrss_kb: int, blamed: str | None) -> list[str]:
+    if code == _NOT_STARTED:
+        return ["not started (harness)"]
     out = [f"exit {code}" if code in (0, 1, 2, 3) else "killed"]
     lines = [ln for ln in err.splitlines() if ln.strip()]
     if "Traceback (most recent call last)" in err:
@@ -682,7 +687,7 @@ def main() -> None:
     counts = res["counts"]
     print(f"{res['n']} inputs in {res['seconds']:.0f} s ({res['seconds'] / res['n'] * 2:.2f} s per input per "
           f"process), slowest {res['slowest']:.1f} s")
-    order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "exit 1 with a result on stdout", "one-line message",
+    order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "not started (harness)", "exit 1 with a result on stdout", "one-line message",
              "multi-line message", "temporary file left", "refusal wrote files", "wrote outside the named place",
              "traceback",
              "internal error (exit 3)", "hang > 20 s", "over 1 GB", "exit 2 naming the file", "exit 2 with file:line",
@@ -700,7 +705,7 @@ def main() -> None:
             print(f"  {item}")
     bad = sum(counts.get(c, 0) for c in ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB",
                                          "multi-line message", "killed", "temporary file left", "refusal wrote files",
-                                         "wrote outside the named place", "exit 2 with file:line, no field"))
+                                         "wrote outside the named place"))
     print(f"\n{'PASS' if bad == 0 else 'FAIL'}: {bad} bad outcomes")
 
 
