@@ -20,6 +20,7 @@ from pathlib import Path
 
 from partpick import series
 from partpick.errors import CatalogError
+from partpick.fileio import os_cause
 from partpick.yamlsrc import Fields, read_yaml
 
 __all__ = [
@@ -38,6 +39,30 @@ KINDS = ("resistors", "capacitors", "opamps", "limiters")
 DISTRIBUTIONS = ("uniform", "normal")
 LIMITER_KINDS = ("diode", "zener-pair", "led")
 
+
+# Ranges every catalog value must lie in (SI), so the physics never sees a zero, a
+# subnormal or an absurd magnitude (facts of the trade, no published source: wide
+# enough for any part an oscillator would use).
+RESISTANCE_OHM = (0.01, 1e12)
+CAPACITANCE_F = (1e-13, 0.1)
+TEMPCO_PER_K = (-0.01, 0.01)        # +/-10,000 ppm/K
+MIN_TOLERANCE = 1e-6
+POWER_W = (1e-4, 1e3)
+RATING_V = (0.1, 1e5)
+GBW_HZ = (1.0, 10e9)
+POLE_HZ = (1e-3, 1e11)
+SLEW_V_PER_S = (1e3, 1e12)
+SUPPLY_V = (0.5, 1e3)
+SIDE_V = (-100.0, 100.0)            # headroom, common-mode distance from a rail
+CURRENT_A = (1e-9, 100.0)
+SMALL_CURRENT_A = (0.0, 1.0)        # input bias
+OUTPUT_OHM = (0.0, 1e6)
+SATURATION_A = (1e-30, 1.0)
+JUNCTION_F = (0.0, 1e-6)
+BANDGAP_J = (0.1 * 1.602176634e-19, 10 * 1.602176634e-19)
+ZENER_V = (0.1, 1e3)
+ZENER_TEMPCO_V_PER_K = (-1.0, 1.0)
+BAND_K = (73.15, 573.15)            # -200 degC .. 300 degC
 
 
 @dataclass(frozen=True, slots=True)
@@ -294,12 +319,19 @@ def _catalog_files(paths: Iterable[str | Path]) -> list[Path]:
     files: list[Path] = []
     for p in paths:
         p = Path(p)
-        if p.is_dir():
-            found = sorted(list(p.glob("*.yaml")) + list(p.glob("*.yml")))
+        if "\0" in str(p):
+            raise CatalogError("the path holds a NUL character", source=str(p))
+        try:
+            is_dir = p.is_dir()
+            found = sorted(e.path for e in os.scandir(p) if e.name.endswith((".yaml", ".yml"))) if is_dir else []
+            exists = is_dir or os.path.lexists(p)
+        except OSError as exc:
+            raise CatalogError(f"cannot read catalog folder or file ({os_cause(exc)})", source=str(p)) from None
+        if is_dir:
             if not found:
                 raise CatalogError("holds no catalog files (*.yaml); expected part families", source=str(p))
-            files.extend(found)
-        elif p.exists():
+            files.extend(Path(f) for f in found)
+        elif exists:
             files.append(p)
         else:
             raise CatalogError("catalog folder or file not found", source=str(p))

@@ -31,6 +31,20 @@ STOCK_MODES = ("prefer", "only")
 DEFAULT_RANK = ("yield", "frequency_error", "cost")
 _OPEN_WORDS = ("open", "none")
 
+# What partpick designs, as ranges every spec value must lie in (SI), so the physics never
+# sees a zero, a subnormal or an absurd magnitude. Wide on purpose: the search says what
+# binds inside them. Facts of the trade, no published source: RC oscillators from a
+# fraction of a hertz to some megahertz; op-amp circuits on supplies up to a few hundred
+# volts; signal loads of ohms to teraohms and up to microfarads; the temperature range
+# over which parts are rated and the junction and tempco models hold.
+FREQUENCY_HZ = (1e-3, 10e6)
+AMPLITUDE_PEAK_V = (1e-3, 1e3)
+SUPPLY_V = (0.5, 200.0)
+LOAD_OHM = (0.1, 1e12)
+LOAD_F = (0.0, 10e-6)
+TEMPERATURE_K = (173.15, 473.15)     # -100 degC .. 200 degC
+MIN_FRACTION = 1e-6                  # 1 ppm: the smallest tolerance, THD or yield read
+
 _TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "temperature",
         "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs",
         "derating")
@@ -219,6 +233,9 @@ def _record(where: dict, fields: Fields, *keys: str) -> None:
 def _fraction(fields: Fields, key: str, *, maximum: float, default: float | None = None,
               inclusive: bool = False) -> float:
     value = fields.quantity(key, "fraction", positive=True, default=default)
+    if value < MIN_FRACTION:
+        raise fields.error(key, f"must be at least {units.format_quantity(MIN_FRACTION, 'fraction')} "
+                                f"(got {units.format_quantity(value, 'fraction')})")
     if value > maximum or (value == maximum and not inclusive):
         bound = "<=" if inclusive else "<"
         raise fields.error(key, f"must be {bound} {maximum * 100:g} % (got {value * 100:g} %)")
@@ -240,16 +257,19 @@ def _read(root: Fields, source: str) -> Spec:
     topology = root.text("topology", default=DEFAULT_TOPOLOGY)
 
     fr = root.sub("frequency", ("target", "tolerance"))
-    frequency = FrequencyReq(fr.quantity("target", "frequency", positive=True),
+    frequency = FrequencyReq(fr.quantity("target", "frequency", positive=True, bounds=FREQUENCY_HZ),
                              _fraction(fr, "tolerance", maximum=0.5))
 
     am = root.sub("amplitude", ("target", "tolerance"))
     amplitude = AmplitudeReq(am.amplitude("target"), _fraction(am, "tolerance", maximum=1.0))
+    if not AMPLITUDE_PEAK_V[0] <= amplitude.peak_v <= AMPLITUDE_PEAK_V[1]:
+        lo, hi = (units.format_quantity(v, "voltage") for v in AMPLITUDE_PEAK_V)
+        raise am.error("target", f"must lie within {lo} .. {hi} peak (got {am.node.items['target'][1].text})")
 
     su = root.sub("supply", ("kind", "min", "max"))
     kind = su.text("kind", choices=SUPPLY_KINDS)
-    smin = su.quantity("min", "voltage", positive=True)
-    smax = su.quantity("max", "voltage", positive=True, default=smin)
+    smin = su.quantity("min", "voltage", positive=True, bounds=SUPPLY_V)
+    smax = su.quantity("max", "voltage", positive=True, default=smin, bounds=SUPPLY_V)
     if smin > smax:
         raise su.error("min", f"must not exceed supply.max (got {smin:g} V > {smax:g} V)")
     supply = SupplyReq(kind, smin, smax)
@@ -258,22 +278,19 @@ def _read(root: Fields, source: str) -> Spec:
     if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
         r_load = math.inf
     else:
-        r_load = lo.quantity("resistance", "resistance", positive=True)
-    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0))
+        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
+    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
 
     te = root.sub("temperature", ("min", "max", "nominal"), required=False)
     if te is None:
         temperature = TemperatureReq(298.15, 298.15, 298.15)
     else:
-        tmin = te.quantity("min", "temperature")
-        tmax = te.quantity("max", "temperature")
-        for key, value in (("min", tmin), ("max", tmax)):
-            if value <= 0:
-                raise te.error(key, "must be above absolute zero")
+        tmin = te.quantity("min", "temperature", bounds=TEMPERATURE_K)
+        tmax = te.quantity("max", "temperature", bounds=TEMPERATURE_K)
         if tmin > tmax:
             raise te.error("min", f"must not exceed temperature.max (got {tmin - 273.15:g} degC > "
                                   f"{tmax - 273.15:g} degC)")
-        tnom = te.quantity("nominal", "temperature", default=min(max(298.15, tmin), tmax))
+        tnom = te.quantity("nominal", "temperature", default=min(max(298.15, tmin), tmax), bounds=TEMPERATURE_K)
         if not tmin <= tnom <= tmax:
             raise te.error("nominal", "must lie within temperature.min..max")
         temperature = TemperatureReq(tmin, tmax, tnom)
@@ -319,7 +336,7 @@ def _read(root: Fields, source: str) -> Spec:
 
     spec = Spec(
         name=name,
-        description=root.text("description", default=""),
+        description=root.text("description", default="", multiline=True),
         topology=topology,
         frequency=frequency,
         amplitude=amplitude,
