@@ -9,8 +9,6 @@ Every refusal names file:line:column.
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from dataclasses import dataclass
 from pathlib import Path

@@ -75,6 +75,9 @@ class Values(Mapping):
     def __repr__(self) -> str:
         return f"Values({self._d!r})"
 
+    def __reduce__(self):   # pickled as its items (verification runs in worker processes)
+        return (Values, (self._d,))
+
     def replace(self, **changes) -> "Values":
         return Values({**self._d, **changes})
 

@@ -25,7 +25,7 @@ from partpick.physics.rational import Rational, const, parallel
 
 __all__ = ["SLOTS", "BUFFERED", "STAGE_ROLES", "BIAS_ROLES", "stage_gain", "has_buffer", "slots_for",
            "supplies", "output", "output_admittance", "to_load", "channels_used", "stage_load_admittance",
-           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts", "rail_flags",
+           "impedance_c", "admittance_c", "fixed_parts", "rail_flags",
            "reference_flag", "draw"]
 
 SLOTS = (

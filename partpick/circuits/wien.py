@@ -165,6 +165,7 @@ class WienBridge:
     arm_r = (1e3, 470e3)        # arm resistances, ohm: above op-amp loading, below bias/stray trouble
     arm_c_min = 100e-12         # arm capacitors, F: well above stray capacitance
     arm_ratio = 1.25            # Rs/Rp and Cp/Cs within 1/1.25..1.25: required gain near 3
+    required_gain_range = (1 + 2 / 1.25, 1 + 2 * 1.25)   # what those arms need, V/V
 
     def network_table(self, rf, cf, ln_lo: float, ln_hi: float, r_bounds=None, shelf=None) -> NetTable:
         """Every arm set (Rs, Cs, Rp, Cp) of one family pair with ln f0 in [ln_lo, ln_hi]
