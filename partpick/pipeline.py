@@ -220,9 +220,10 @@ def _hold_text(spec: Spec, searcher: Searcher) -> str:
     if searcher.best_hold is None or searcher.best_hold[2] >= spec.yield_min_frac:
         return ""
     rfa, cfa, hold = searcher.best_hold
-    return (f"even centred on the target, the best allowed families ({rfa.id} resistors {rfa.tolerance_frac:.2%}, "
-            f"{cfa.id} capacitors {cfa.tolerance_frac:.2%}) hold +/-{spec.frequency.tolerance_frac:.2%} in about "
-            f"{hold:.0%} of builds; allow a tighter family or plan a trim")
+    return (f"even centred on the target, the best allowed families ({rfa.id} resistors "
+            f"{rfa.tolerance_frac * 100:.3g} %, {cfa.id} capacitors {cfa.tolerance_frac * 100:.3g} %) hold "
+            f"+/-{spec.frequency.tolerance_frac * 100:.3g} % in about {hold * 100:.0f} % of builds; allow a tighter "
+            f"family or plan a trim")
 
 
 def _shelf_shortfall(bom: Bom, shelf, builds: int, catalog: Catalog) -> str:

@@ -93,7 +93,7 @@ def design_legend(d, spec, catalog) -> str:
         "margin: small-signal startup margin at the nominal point (loop gain at the phase-zero frequency - 1); "
         f"yield: share of {samples} Monte Carlo builds meeting every requirement",
         f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
-        "stage: the output stage (none, follower, gain, attenuator)"])
+        "stage: the output stage (none, follower, gain, attenuator, buffered-attenuator: a divider then a follower)"])
 
 
 def design_json(spec_path, d) -> str:
