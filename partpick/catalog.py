@@ -1,8 +1,10 @@
-"""Part families: resistors, capacitors, op-amps and limiter elements.
+"""Part families: resistors, capacitors, op-amps, limiter elements and the parts of the
+JFET amplitude control (JFETs, detector diodes, voltage references:
+:mod:`partpick.actives`).
 
 A catalog is a folder of YAML files; each file may hold any of the sections
-``resistors``, ``capacitors``, ``opamps`` and ``limiters`` (see DEVELOPERS.md for the
-format). Loading validates every field and turns it into SI floats held in frozen
+``resistors``, ``capacitors``, ``opamps``, ``limiters``, ``jfets``, ``diodes`` and
+``references`` (see DEVELOPERS.md for the format). Loading validates every field and turns it into SI floats held in frozen
 records; the rest of partpick never sees the YAML. Resistor and capacitor values
 come from IEC 60063 series (:mod:`partpick.series`) within each family's range.
 """
@@ -16,6 +18,7 @@ from pathlib import Path
 from typing import Iterable
 
 from partpick import series
+from partpick.actives import ALLOWED as _ACTIVE_FIELDS, READERS as _ACTIVE_READERS, Common, Diode, Jfet, Reference
 from partpick.errors import CatalogError, InputError
 from partpick.yamlsrc import Fields, read_yaml
 
@@ -25,12 +28,17 @@ __all__ = [
     "CapacitorFamily",
     "OpAmp",
     "Limiter",
+    "Jfet",
+    "Diode",
+    "Reference",
     "Catalog",
     "load_catalog",
     "default_catalog_dir",
 ]
 
-KINDS = ("resistors", "capacitors", "opamps", "limiters")
+KINDS = ("resistors", "capacitors", "opamps", "limiters", "jfets", "diodes", "references")
+# kinds every circuit needs; the others only the amplitude controls that use them
+CORE_KINDS = ("resistors", "capacitors", "opamps")
 DISTRIBUTIONS = ("uniform", "normal")
 LIMITER_KINDS = ("diode", "zener-pair", "led")
 
@@ -194,7 +202,7 @@ class Limiter:
     where: str = field(default="", compare=False)
 
 
-Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter
+Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter | Jfet | Diode | Reference
 
 
 @dataclass(frozen=True, slots=True)
@@ -208,6 +216,9 @@ class Catalog:
     currency: str
     sources: tuple[str, ...]
     demo: bool
+    jfets: tuple[Jfet, ...] = ()
+    diodes: tuple[Diode, ...] = ()
+    references: tuple[Reference, ...] = ()
 
     def of_kind(self, kind: str) -> tuple[Family, ...]:
         return getattr(self, kind)
@@ -310,6 +321,9 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
         currency=currency[0] if currency else "USD",
         sources=tuple(sources),
         demo=demo,
+        jfets=tuple(families["jfets"]),
+        diodes=tuple(families["diodes"]),
+        references=tuple(families["references"]),
     )
 
 
@@ -535,9 +549,24 @@ class _Limiters(_Reader):
         )
 
 
+class _Active(_Reader):
+    """A kind of :mod:`partpick.actives`: the shared fields here, its own there."""
+
+    def __init__(self, kind: str) -> None:
+        self.allowed = ("id", "description", "package", "price") + _ACTIVE_FIELDS[kind]
+        self.reader = _ACTIVE_READERS[kind]
+
+    def read(self, rec: Fields):
+        price = _price(rec)
+        common = Common(_id(rec), rec.text("description", default=""), rec.text("package", default=""),
+                        _cost(price, "unit"), _cost(price, "line", default=0.0), _where(rec))
+        return self.reader(rec, common)
+
+
 _READERS: dict[str, _Reader] = {
     "resistors": _Resistors(),
     "capacitors": _Capacitors(),
     "opamps": _OpAmps(),
     "limiters": _Limiters(),
+    **{kind: _Active(kind) for kind in _ACTIVE_READERS},
 }

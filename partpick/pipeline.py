@@ -168,11 +168,11 @@ def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = 
     ``cycles`` periods (default: enough to settle)."""
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
-    from partpick.verify import operating_conditions, predict, transient_cycles_for
+    from partpick.verify import cycles_to_settle, operating_conditions, predict
 
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
     if cycles is None:
         point = predict(circuit, cond)
-        cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
+        cycles = cycles_to_settle(circuit, point, max(point.osc_peak_v, 1e-3)) if point.starts else 60
     return to_spice(build_netlist(circuit, cond), cycles=cycles)

@@ -221,17 +221,20 @@ class AmplitudeControl(Protocol):
     slots: tuple[Slot, ...]
     port: str
 
-    def branch(self, c: Circuit, temp_k: float):
-        """The control branch (:class:`partpick.physics.loop.Branch`) at temp_k (K):
-        its small-signal form is what the linear analysis closes the loop with."""
+    def branch(self, c: Circuit, temp_k: float, cond: "Conditions | None" = None):
+        """The control branch (:class:`partpick.physics.loop.Branch`, or an object with
+        its interface) at temp_k (K), at rest under ``cond``: its small-signal form is
+        what the linear analysis closes the loop with."""
 
     def balance(self, c: Circuit, cond: Conditions, loop, lin, *, kmax: int = 21, start=None):
         """The settled oscillation (:class:`partpick.physics.harmonic.BalanceResult`) at
         ``cond`` given the loop and its linear analysis, or None when the control does
         not set the amplitude (the transient simulation then answers)."""
 
-    def netlist(self, c: Circuit, a: str, b: str) -> list:
-        """Elements of the control between port nodes a and b."""
+    def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
+        """Elements of the control between port nodes a and b; ``nodes`` names the
+        others it may tie to: 'out' (the oscillator output), 'ref' (the signal
+        reference), 'vcc' and 'neg' (the rails)."""
 
     def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
         """Part-to-part spread of the amplitude it sets, relative (3 sigma)."""

@@ -14,9 +14,12 @@ import dataclasses
 import functools
 import math
 
+import numpy as np
+
 from partpick.circuits.base import Circuit, Conditions, Slot, Values
 from partpick.circuits.options import (AMP_SLOPE_MAX, CtlOption, dt_of, merge_lines, nearest, sigma, slope,
                                        values_of, z_of)
+from partpick.physics.envelope import START_V, limiter_settling
 from partpick.physics.harmonic import describing_amplitude, harmonic_balance
 from partpick.physics.junction import forward_voltage, limiter_table
 from partpick.physics.linear import analyse_linear
@@ -48,8 +51,9 @@ class DiodeLimiter:
     name = "diode-limiter"
     slots = SLOTS
     port = "feedback"
+    slow = False        # sets the amplitude within a few cycles of reaching it
 
-    def branch(self, c: Circuit, temp_k: float) -> Branch:
+    def branch(self, c: Circuit, temp_k: float, cond=None) -> Branch:
         """The pair (tabulated i(v) at temp_k, K) with its capacitance, behind Rd."""
         lim = c.part("limiter")
         rd = c.value("rd")
@@ -63,7 +67,7 @@ class DiodeLimiter:
         return harmonic_balance(loop, self.branch(c, cond.temp_k), lin, cond.rails(c.supply_kind), kmax=kmax,
                                 start=start)
 
-    def netlist(self, c: Circuit, a: str, b: str) -> list:
+    def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
         """Rd (R5) from a, then the pair (D1) to b; the pair straight across without Rd."""
         els: list = []
         if c.value("rd") > 0:
@@ -72,6 +76,17 @@ class DiodeLimiter:
         lim = c.part("limiter")
         els.append(LimiterX("D1", a, b, lim, pair_capacitance(lim)))
         return els
+
+    def settling(self, c: Circuit, cond, loop, lin, hb, band: tuple[float, float], start_v: float = START_V,
+                 clip_v: float = math.inf):
+        """The envelope from start_v to the settled amplitude (V at the output; band in
+        V there): :func:`partpick.physics.envelope.limiter_settling` with the pair's
+        describing function; None when there is no settled oscillation."""
+        if hb is None:
+            return None
+        p = np.array([2j * math.pi * hb.freq_hz / loop.w_ref])
+        per = complex(loop.probe("osc", p, np.ones(1), np.full(1, lin.marginal_g_s))[0])
+        return limiter_settling(loop, self.branch(c, cond.temp_k), hb.osc_peak_v, per, band, start_v, clip_v)
 
     def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
         """The forward-voltage spread (3 sigma) relative to the forward voltage at the

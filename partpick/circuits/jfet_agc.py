@@ -1,0 +1,220 @@
+"""The JFET amplitude control: an n-channel JFET's channel as a voltage-controlled
+resistor at the topology's 'ground' port (for the Wien bridge across Rg, from the
+inverting input to the reference), so more channel conductance means more gain; a peak
+detector (diode, hold capacitor, bleed resistor) at the oscillator output; and either
+the hold node driving the gate directly (the amplitude is then set by the JFET's
+pinch-off) or an error integrator comparing the hold with a reference divider (the
+amplitude is then set by the reference).
+
+Parts: the JFET Q1, optionally behind a series resistor R10; the gate network R11
+(drain to gate) and R12 (control node to gate): two equal resistors feed half the
+drain-source voltage back to the gate and cancel the channel's square-law term (the JFET
+voltage-controlled-resistor application notes); without R11 the gate follows the control
+node through R12 (or directly). Detector: D3, hold capacitor C5 and bleed resistor R13
+to the reference; without an integrator D3 points from the hold to the output (the hold
+goes negative, as the gate must), with one it points from the output to the hold.
+Integrator: op-amp channel U1B (U1C beside a buffer), input resistor R14, capacitor C6
+with the zero R15 in series, C7 across them (takes the ripple off the proportional
+path), clamp diode D4 from its output to its inverting input (so
+it cannot wind up to the rail while the oscillation builds), the non-inverting input on
+the divider R16 / R17 from the positive rail or from the voltage reference U2 (biased by
+R18).
+
+At rest the JFET conducts most (its gate at zero or a little above), so the circuit
+starts whenever that gain exceeds what the network needs.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+
+from partpick.circuits import periphery
+from partpick.circuits.base import Circuit, Conditions, Slot
+from partpick.physics.agc import Agc, Integrator, rest_branch, settled
+from partpick.physics.agc_dynamics import agc_settling
+from partpick.physics.detector import Detector
+from partpick.physics.envelope import START_V
+from partpick.physics.jfet import VcrBranch, jfet_at
+from partpick.physics.junction import junctions_at
+from partpick.physics.netlist import Capacitor, DiodeX, JfetX, OpAmpX, Resistor, VSource
+from partpick.physics.opamp import swing_limits
+
+__all__ = ["JfetAgc", "CONTROL", "SLOTS", "model"]
+
+SLOTS = (
+    Slot("jfet", "jfets", "Q1", "JFET, the variable resistor across the gain network's ground leg"),
+    Slot("agc_rs", "resistors", "R10", "in series with the JFET channel", optional=True),
+    Slot("agc_rla", "resistors", "R11", "gate feedback from the drain (linearisation)", optional=True),
+    Slot("agc_rlb", "resistors", "R12", "gate resistor from the control node", optional=True),
+    Slot("detector", "diodes", "D3", "peak detector diode"),
+    Slot("agc_ch", "capacitors", "C5", "detector hold capacitor"),
+    Slot("agc_rb", "resistors", "R13", "detector bleed resistor"),
+    Slot("agc_ri", "resistors", "R14", "integrator input resistor", optional=True),
+    Slot("agc_ci", "capacitors", "C6", "integrator capacitor", optional=True),
+    Slot("agc_rz", "resistors", "R15", "integrator zero, in series with its capacitor", optional=True),
+    Slot("agc_cp", "capacitors", "C7", "across the integrator's feedback: filters the detector's ripple",
+         optional=True),
+    Slot("clamp", "diodes", "D4", "integrator clamp diode", optional=True),
+    Slot("agc_rr1", "resistors", "R16", "reference divider, upper", optional=True),
+    Slot("agc_rr2", "resistors", "R17", "reference divider, lower", optional=True),
+    Slot("vref", "references", "U2", "voltage reference", optional=True),
+    Slot("agc_rrb", "resistors", "R18", "voltage reference bias resistor", optional=True),
+)
+
+T0_K = 298.15
+
+
+def has_integrator(c: Circuit) -> bool:
+    return c.value("agc_ci") > 0
+
+
+def reference_source_v(c: Circuit, cond: Conditions) -> float:
+    """The voltage the reference divider hangs from, against the signal reference (V):
+    the voltage reference's, or the positive rail's."""
+    ref = c.part("vref")
+    if ref is not None:
+        return ref.voltage_v
+    vcc, _, sig = cond.rails(c.supply_kind)
+    return vcc - sig
+
+
+def v_plus(c: Circuit, cond: Conditions) -> float:
+    """The integrator's reference: the divider's output, V against the signal reference."""
+    r1, r2 = c.value("agc_rr1"), c.value("agc_rr2")
+    return reference_source_v(c, cond) * r2 / (r1 + r2)
+
+
+def model(c: Circuit, cond: Conditions, i_max_a: float = math.inf) -> Agc:
+    """The control of ``c`` at ``cond`` as the physics sees it (:class:`Agc`); i_max_a:
+    the current the op-amp's output can spare for the detector (A)."""
+    temp = cond.temp_k
+    r_la = c.value("agc_rla")
+    vcr = VcrBranch(jfet_at(c.part("jfet"), temp), c.value("agc_rs"), r_la if r_la > 0 else math.inf,
+                    c.value("agc_rlb"))
+    integ = has_integrator(c)
+    det = Detector(junctions_at(c.part("detector"), temp)[0], integ, c.value("agc_ch"),
+                   ((1.0 / c.value("agc_rb"), 0.0),), i_max_a)
+    it = None
+    if integ:
+        clamp = c.part("clamp")
+        it = Integrator(c.value("agc_ri"), c.value("agc_ci"), c.value("agc_rz"), v_plus(c, cond), c.opamp,
+                        swing_limits(c.opamp, cond.rails(c.supply_kind)),
+                        junctions_at(clamp, temp)[0] if clamp is not None else None, c.value("agc_cp"))
+    return Agc(vcr, det, it)
+
+
+def integrator_channel(c: Circuit) -> str:
+    """The op-amp channel of the integrator: the one after the topology's and the
+    output buffer's."""
+    used = c.topology.channels + (1 if periphery.has_buffer(c) else 0)
+    return "U1" + chr(ord("A") + used)
+
+
+class JfetAgc:
+    """The JFET amplitude control (see module docstring)."""
+
+    name = "jfet-agc"
+    slots = SLOTS
+    port = "ground"
+    slow = True         # settles over many cycles: its own dynamics say how long
+
+    def op_channels(self, roles) -> int:
+        """Op-amp channels the control uses, given the roles a BOM fills."""
+        return 1 if "agc_ci" in set(roles) else 0
+
+    def branch(self, c: Circuit, temp_k: float, cond: Conditions | None = None):
+        """The branch at rest (the control node at its DC operating point), for the
+        linear analysis: :func:`partpick.physics.agc.rest_branch`."""
+        cond = cond or Conditions(15.0, temp_k, math.inf)
+        return rest_branch(model(c, cond))
+
+    def balance(self, c: Circuit, cond: Conditions, loop, lin, *, kmax: int = 21, start=None):
+        """The settled oscillation (:func:`partpick.physics.agc.settled`)."""
+        if start is None:
+            return _solved(c, cond)[2]
+        hb, _ = settled(loop, model(c, cond), lin, cond.rails(c.supply_kind), start=start)
+        return hb
+
+    def settling(self, c: Circuit, cond: Conditions, loop, lin, hb, band: tuple[float, float],
+                 start_v: float = START_V, clip_v: float = math.inf):
+        """The envelope from power-on (:func:`partpick.physics.agc_dynamics.agc_settling`);
+        band (V) at the oscillator output; None when it does not start."""
+        loop, lin, hb, st = _solved(c, cond)
+        if st is None:
+            return None
+        return agc_settling(loop, model(c, cond), st, hb.osc_peak_v, hb.freq_hz, band, start_v=start_v,
+                            clip_v=clip_v)
+
+    def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
+        """The branch from port node a (R10, the JFET's drain) to b (its source), the
+        gate network, the detector at the oscillator output and, with an integrator,
+        the integrator and its reference (see module docstring for the designators)."""
+        nodes = nodes or {}
+        out, ref = nodes.get("out", "out"), nodes.get("ref", b)
+        vcc, neg = nodes.get("vcc", "vcc"), nodes.get("neg", "vee")
+        v = c.value
+        els: list = []
+        drain = a
+        if v("agc_rs") > 0:
+            drain = "qd"
+            els.append(Resistor("R10", a, drain, v("agc_rs")))
+        ctl = "hc"
+        gate = "qg" if v("agc_rlb") > 0 else ctl
+        els.append(JfetX("Q1", drain, gate, b, c.part("jfet")))
+        if v("agc_rla") > 0:
+            els.append(Resistor("R11", drain, gate, v("agc_rla")))
+        if v("agc_rlb") > 0:
+            els.append(Resistor("R12", gate, ctl, v("agc_rlb")))
+        det = c.part("detector")
+        hold = "hh" if has_integrator(c) else ctl
+        pair = (out, hold) if has_integrator(c) else (hold, out)
+        els += [DiodeX("D3", pair[0], pair[1], det, det.cj_f),
+                Capacitor("C5", hold, ref, v("agc_ch")),
+                Resistor("R13", hold, ref, v("agc_rb"))]
+        if not has_integrator(c):
+            return els
+        u = integrator_channel(c)
+        els += [Resistor("R14", hold, "im", v("agc_ri")),
+                OpAmpX(u, "ip", "im", ctl, vcc, neg, c.opamp)]
+        if v("agc_rz") > 0:
+            els += [Capacitor("C6", "im", "iz", v("agc_ci")), Resistor("R15", "iz", ctl, v("agc_rz"))]
+        else:
+            els.append(Capacitor("C6", "im", ctl, v("agc_ci")))
+        if v("agc_cp") > 0:
+            els.append(Capacitor("C7", "im", ctl, v("agc_cp")))
+        clamp = c.part("clamp")
+        if clamp is not None:
+            els.append(DiodeX("D4", ctl, "im", clamp, clamp.cj_f))
+        src = vcc
+        if c.part("vref") is not None:
+            src = "vk"
+            els += [Resistor("R18", vcc, src, v("agc_rrb")), VSource("VREF", src, ref, c.part("vref").voltage_v)]
+        els += [Resistor("R16", src, "ip", v("agc_rr1")), Resistor("R17", "ip", ref, v("agc_rr2"))]
+        return els
+
+    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
+        """Part-to-part spread of the amplitude (3 sigma, relative): the detector
+        diode's forward-voltage spread against the amplitude it detects, and the
+        reference's tolerance when there is one."""
+        det = c.part("detector")
+        ref = c.part("vref")
+        tol = (ref.tolerance_frac if ref.distribution == "normal" else ref.tolerance_frac * math.sqrt(3)) \
+            if ref is not None else 0.0
+        amp = 1.0
+        return math.hypot(det.vf_spread_v / amp, tol)
+
+
+@functools.lru_cache(maxsize=64)
+def _solved(c: Circuit, cond: Conditions):
+    """(loop, linear result, settled oscillation, control state) of ``c`` at ``cond``:
+    verification asks for the oscillation and its settling one after the other."""
+    from partpick.circuits import build_loop, linear
+
+    loop = build_loop(c, cond)
+    lin = linear(c, cond, loop)
+    hb, st = settled(loop, model(c, cond), lin, cond.rails(c.supply_kind))
+    return loop, lin, hb, st
+
+
+CONTROL = JfetAgc()
