@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
-                               margin_fn, periphery)
+                               margin_fn, periphery, rest_conductance)
 from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult
 from partpick.physics.linear import LinearResult
@@ -204,7 +204,7 @@ def worst_case_margin(c: Circuit, tolerances: dict[str, float], pull: float = 0.
     the end of its tolerance that lowers it (the directions from the sign of its
     sensitivity in the topology's own equations), plus ``pull`` (the margin the
     op-amp and limiter leakage cost, from the linear analysis)."""
-    fn = margin_fn(c.topology)
+    fn = margin_fn(c.topology, c.control.port, rest_conductance(c))
     sens = log_sensitivities(c.values, fn)
     corner = dict(c.values)
     for role, s in sens.items():

@@ -20,7 +20,8 @@ from partpick.physics.netlist import Kick, Netlist
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
            "topology", "control", "all_slots", "slots_for", "control_for_roles", "check_spec", "make_circuit",
-           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn"]
+           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn",
+           "rest_conductance"]
 
 TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY,)}
 CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, jfet_agc.CONTROL, clipping.CONTROL)}
@@ -154,6 +155,16 @@ def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, floa
     return out
 
 
-def margin_fn(topo):
-    """The ideal-op-amp loop-gain ratio gain / required gain as a function of values."""
+def margin_fn(topo, port: str | None = None, g_s: float = 0.0):
+    """The ideal-op-amp loop-gain ratio gain / required gain as a function of values;
+    with g_s (S) the conductance a control adds at ``port`` at rest."""
+    if g_s:
+        return lambda v: topo.port_gain(v, port, g_s) / topo.required_gain(v)
     return lambda v: topo.gain(v) / topo.required_gain(v)
+
+
+def rest_conductance(c: Circuit) -> float:
+    """The conductance (S) the amplitude control of ``c`` adds at its port at rest (0
+    for a control that does not conduct at small signal)."""
+    rest = getattr(c.control, "rest_conductance", None)
+    return rest(c) if rest is not None else 0.0

@@ -149,8 +149,12 @@ class Circuit:
 
     @property
     def gain(self) -> float:
-        """Small-signal amplifier gain with the amplitude control at rest, V/V."""
-        return float(self.topology.gain(self.values))
+        """Small-signal amplifier gain with the amplitude control at rest, V/V (with the
+        conductance a control that conducts at rest adds at its port)."""
+        rest = getattr(self.control, "rest_conductance", None)
+        if rest is None:
+            return float(self.topology.gain(self.values))
+        return float(self.topology.port_gain(self.values, self.control.port, rest(self)))
 
     @property
     def ideal_margin(self) -> float:
@@ -236,8 +240,9 @@ class AmplitudeControl(Protocol):
         others it may tie to: 'out' (the oscillator output), 'ref' (the signal
         reference), 'vcc' and 'neg' (the rails)."""
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
-        """Part-to-part spread of the amplitude it sets, relative (3 sigma)."""
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond: "Conditions | None" = None) -> float:
+        """Part-to-part spread of the amplitude it sets, relative (3 sigma), at temp_k
+        (K) under ``cond`` when the amplitude depends on the supply."""
 
 
 @dataclass(frozen=True, slots=True)

@@ -44,7 +44,7 @@ class Clipping:
         return Settling(t_up, t_up if band[0] <= clip_v <= band[1] else math.inf, 0.0, 1.0, t,
                         np.array([start_v, clip_v]))
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond=None) -> float:
         return 0.0
 
 

@@ -88,7 +88,7 @@ class DiodeLimiter:
         per = complex(loop.probe("osc", p, np.ones(1), np.full(1, lin.marginal_g_s))[0])
         return limiter_settling(loop, self.branch(c, cond.temp_k), hb.osc_peak_v, per, band, start_v, clip_v)
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond=None) -> float:
         """The forward-voltage spread (3 sigma) relative to the forward voltage at the
         knee current, where the limiter works."""
         lim = c.part("limiter")

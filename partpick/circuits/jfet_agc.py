@@ -18,7 +18,9 @@ with the zero R15 in series, C7 across them (takes the ripple off the proportion
 path), clamp diode D4 from its output to its inverting input (so
 it cannot wind up to the rail while the oscillation builds), the non-inverting input on
 the divider R16 / R17 from the positive rail or from the voltage reference U2 (biased by
-R18).
+R18), optionally through the diode D5 biased by R19 to the reference: D5 drops what the
+detector diode drops and drifts as it does, so the amplitude keeps still over
+temperature (the classic compensation of a rectifier's diode by a matched one).
 
 At rest the JFET conducts most (its gate at zero or a little above), so the circuit
 starts whenever that gain exceeds what the network needs.
@@ -28,6 +30,8 @@ from __future__ import annotations
 
 import functools
 import math
+
+import numpy as np
 
 from partpick.circuits import periphery
 from partpick.circuits.base import Circuit, Conditions, Slot
@@ -40,7 +44,7 @@ from partpick.physics.junction import junctions_at
 from partpick.physics.netlist import Capacitor, DiodeX, JfetX, OpAmpX, Resistor, VSource
 from partpick.physics.opamp import swing_limits
 
-__all__ = ["JfetAgc", "CONTROL", "SLOTS", "model"]
+__all__ = ["JfetAgc", "CONTROL", "SLOTS", "model", "solved", "v_plus", "has_integrator"]
 
 SLOTS = (
     Slot("jfet", "jfets", "Q1", "JFET, the variable resistor across the gain network's ground leg"),
@@ -60,6 +64,8 @@ SLOTS = (
     Slot("agc_rr2", "resistors", "R17", "reference divider, lower", optional=True),
     Slot("vref", "references", "U2", "voltage reference", optional=True),
     Slot("agc_rrb", "resistors", "R18", "voltage reference bias resistor", optional=True),
+    Slot("comp", "diodes", "D5", "compensating diode in the reference path", optional=True),
+    Slot("agc_rc", "resistors", "R19", "compensating diode's bias resistor", optional=True),
 )
 
 T0_K = 298.15
@@ -79,10 +85,27 @@ def reference_source_v(c: Circuit, cond: Conditions) -> float:
     return vcc - sig
 
 
-def v_plus(c: Circuit, cond: Conditions) -> float:
-    """The integrator's reference: the divider's output, V against the signal reference."""
+def v_plus(c: Circuit, cond: Conditions, src_v: float | None = None) -> float:
+    """The integrator's reference, V against the signal reference: the divider's
+    output, less the compensating diode's drop when there is one (the divider's
+    Thevenin source V_th behind R16 || R17, then D5 and R19 to the reference:
+    V_th - I (R_th + R19) = V_D5(I), solved by bisection); src_v: the voltage the
+    divider hangs from (default: the circuit's)."""
     r1, r2 = c.value("agc_rr1"), c.value("agc_rr2")
-    return reference_source_v(c, cond) * r2 / (r1 + r2)
+    v_th = (reference_source_v(c, cond) if src_v is None else src_v) * r2 / (r1 + r2)
+    comp = c.part("comp")
+    if comp is None:
+        return v_th
+    j = junctions_at(comp, cond.temp_k)[0]
+    r_th, rc = r1 * r2 / (r1 + r2), c.value("agc_rc")
+    lo, hi = 0.0, max(v_th, 0.0) / (r_th + rc)
+    for _ in range(80):
+        i = 0.5 * (lo + hi)
+        if v_th - i * (r_th + rc) > float(j.voltage(np.array([i]))[0]):
+            lo = i
+        else:
+            hi = i
+    return 0.5 * (lo + hi) * rc
 
 
 def model(c: Circuit, cond: Conditions, i_max_a: float = math.inf) -> Agc:
@@ -129,10 +152,15 @@ class JfetAgc:
         cond = cond or Conditions(15.0, temp_k, math.inf)
         return rest_branch(model(c, cond))
 
+    def rest_conductance(self, c: Circuit) -> float:
+        """The branch's conductance at rest (S): the real part of its small-signal
+        admittance at the topology's f0, the JFET at its rest DC point."""
+        return _rest_conductance(c)
+
     def balance(self, c: Circuit, cond: Conditions, loop, lin, *, kmax: int = 21, start=None):
         """The settled oscillation (:func:`partpick.physics.agc.settled`)."""
         if start is None:
-            return _solved(c, cond)[2]
+            return solved(c, cond)[2]
         hb, _ = settled(loop, model(c, cond), lin, cond.rails(c.supply_kind), start=start)
         return hb
 
@@ -140,7 +168,7 @@ class JfetAgc:
                  start_v: float = START_V, clip_v: float = math.inf):
         """The envelope from power-on (:func:`partpick.physics.agc_dynamics.agc_settling`);
         band (V) at the oscillator output; None when it does not start."""
-        loop, lin, hb, st = _solved(c, cond)
+        loop, lin, hb, st = solved(c, cond)
         if st is None:
             return None
         return agc_settling(loop, model(c, cond), st, hb.osc_peak_v, hb.freq_hz, band, start_v=start_v,
@@ -190,23 +218,63 @@ class JfetAgc:
         if c.part("vref") is not None:
             src = "vk"
             els += [Resistor("R18", vcc, src, v("agc_rrb")), VSource("VREF", src, ref, c.part("vref").voltage_v)]
-        els += [Resistor("R16", src, "ip", v("agc_rr1")), Resistor("R17", "ip", ref, v("agc_rr2"))]
+        tap = "ip"
+        if c.part("comp") is not None:
+            tap = "it"
+            els += [DiodeX("D5", tap, "ip", c.part("comp"), c.part("comp").cj_f), Resistor("R19", "ip", ref, v("agc_rc"))]
+        els += [Resistor("R16", src, tap, v("agc_rr1")), Resistor("R17", tap, ref, v("agc_rr2"))]
         return els
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
-        """Part-to-part spread of the amplitude (3 sigma, relative): the detector
-        diode's forward-voltage spread against the amplitude it detects, and the
-        reference's tolerance when there is one."""
+    def options(self, topology, spec, rfam, jfets, diodes, references, cfams, opamp, f_hz: float, amp_targets,
+                **kw) -> list:
+        """The search hook (:func:`partpick.circuits.jfet_design.options`, whose
+        docstring states the contract)."""
+        from partpick.circuits import jfet_design
+
+        return jfet_design.options(topology, spec, rfam, jfets, diodes, references, cfams, opamp, f_hz, amp_targets,
+                                   **kw)
+
+    def spread_model(self, c: Circuit, cond: Conditions):
+        """The builds' share of the control's part spreads for the Monte Carlo
+        (:func:`partpick.circuits.jfet_spread.spread_model`)."""
+        from partpick.circuits.jfet_spread import spread_model
+
+        return spread_model(c, cond)
+
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond: Conditions | None = None) -> float:
+        """Part-to-part spread of the amplitude (3 sigma, relative): with an integrator
+        the detector diode's forward-voltage spread and the reference's tolerance on the
+        divider's output (A = V+ + V_drop); without one the JFET's pinch-off range
+        (the hold, so the amplitude, follows VTO volt for volt, and the gate network
+        doubles it when linearised)."""
         det = c.part("detector")
+        cond = cond or Conditions(15.0, temp_k, math.inf)
+        hb = solved(c, cond)[2]
+        if hb is None:
+            return 0.0
+        amp = hb.osc_peak_v
+        if not has_integrator(c):
+            j = c.part("jfet")
+            gain = 2.0 if c.value("agc_rla") > 0 else 1.0
+            return gain * max(j.vto_v - j.vto_min_v, j.vto_max_v - j.vto_v) / amp
         ref = c.part("vref")
-        tol = (ref.tolerance_frac if ref.distribution == "normal" else ref.tolerance_frac * math.sqrt(3)) \
-            if ref is not None else 0.0
-        amp = 1.0
-        return math.hypot(det.vf_spread_v / amp, tol)
+        tol = 0.0
+        if ref is not None:
+            tol = ref.tolerance_frac * (1.0 if ref.distribution == "normal" else math.sqrt(3.0))
+        comp = c.part("comp")
+        return math.sqrt(det.vf_spread_v ** 2 + (tol * v_plus(c, cond)) ** 2
+                         + (comp.vf_spread_v if comp is not None else 0.0) ** 2) / amp
+
+
+@functools.lru_cache(maxsize=256)
+def _rest_conductance(c: Circuit) -> float:
+    w = 2 * math.pi * c.f0_hz
+    br = CONTROL.branch(c, T0_K, Conditions(15.0, T0_K, math.inf))
+    return float(br.rational(w)(1j).real)
 
 
 @functools.lru_cache(maxsize=64)
-def _solved(c: Circuit, cond: Conditions):
+def solved(c: Circuit, cond: Conditions):
     """(loop, linear result, settled oscillation, control state) of ``c`` at ``cond``:
     verification asks for the oscillation and its settling one after the other."""
     from partpick.circuits import build_loop, linear

@@ -63,7 +63,11 @@ class CtlOption:
     with its slope per neper of gain excess; loss (margin loss from its tolerances,
     nepers); ln_amp_tmin / ln_amp_tmax: ln amplitude at the temperature ends; k_amp:
     |amplitude slope| times z; sigma_g: standard deviation of ln(gain) from the
-    tolerances; vf_spread: amplitude spread from the control's parts at the yield's z."""
+    tolerances; vf_spread: amplitude spread from the control's parts at the yield's z;
+    families: (role, family id) of each value whose family is not r_family (a
+    capacitor of the control); settle_s: the settling time the control predicts (s, 0
+    when it sets the amplitude within a few cycles); channels: op-amp channels the
+    control adds (an integrator)."""
 
     values: Values
     parts: tuple
@@ -83,6 +87,9 @@ class CtlOption:
     k_amp: float = 0.0
     sigma_g: float = 0.0
     vf_spread: float = 0.0
+    families: tuple = ()
+    settle_s: float = 0.0
+    channels: int = 0
 
     def part(self, role: str) -> str | None:
         return dict(self.parts).get(role)

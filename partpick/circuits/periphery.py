@@ -55,8 +55,10 @@ def has_buffer(c: Circuit) -> bool:
 
 
 def channels_used(c: Circuit) -> int:
-    """Op-amp channels the whole circuit needs: the topology's plus the buffer's."""
-    return c.topology.channels + (1 if has_buffer(c) else 0)
+    """Op-amp channels the whole circuit needs: the topology's, the buffer's and the
+    amplitude control's."""
+    own = getattr(c.control, "op_channels", None)
+    return c.topology.channels + (1 if has_buffer(c) else 0) + (own(c.values) if own is not None else 0)
 
 
 def stage_gain(c: Circuit) -> float:

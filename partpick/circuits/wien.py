@@ -65,6 +65,13 @@ class WienBridge:
         """Small-signal non-inverting gain 1 + Rf/Rg (amplitude control at rest)."""
         return 1.0 + v["rf"] / v["rg"]
 
+    def port_gain(self, v: Mapping[str, np.ndarray], port: str, g_s) -> np.ndarray:
+        """The gain with a conductance g_s (S) at ``port``: across Rf (its resistance
+        falls) or across Rg (its conductance adds to Rg's)."""
+        if port == "ground":
+            return 1.0 + v["rf"] * (1.0 / v["rg"] + g_s)
+        return 1.0 + 1.0 / (1.0 / v["rf"] + g_s) / v["rg"]
+
     # -- the loop at the control port ------------------------------------------------------------
     def loop(self, c: Circuit, cond: Conditions, w_ref: float | None = None) -> Loop:
         """The small-signal equations at the control's port (see :meth:`_feedback_loop`

@@ -301,16 +301,17 @@ def _newton(f, x0: np.ndarray, steps: np.ndarray, limits: np.ndarray, iters: int
     return x, ok
 
 
-def _control_start(prob: _Problem, w: float, g_need: float, lo: float, hi: float) -> float:
-    """A control voltage in [lo, hi] at which the branch's small-signal conductance
-    is g_need (S), by bisection (the conductance grows with the control voltage)."""
-    vcr = replace(prob.agc.vcr, z_ctl=prob._zc(w))
-    for _ in range(60):
-        mid = 0.5 * (lo + hi)
-        vd, vg = dc_point(vcr, mid)
-        g = float(np.real(branch_network(vcr, w, small_signal(vcr, vd, vg)).y(1j)))
-        lo, hi = (mid, hi) if g < g_need else (lo, mid)
-    return 0.5 * (lo + hi)
+def _control_start(prob: _Problem, g_need: float) -> float:
+    """A control voltage (V) at which the branch's conductance is about g_need (S): the
+    channel conductance that leaves, behind the series resistor, 2 BETA (V_GS - VTO)
+    solved for V_GS, and the gate network's DC divider back to the control node (a
+    starting point for Newton)."""
+    vcr = prob.agc.vcr
+    p = vcr.jfet
+    g_ch = 1.0 / max(1.0 / max(g_need, 1e-12) - vcr.r_ser_ohm, 1e-3)
+    vgs = min(p.vto_v + g_ch / (2 * p.beta), 0.3)
+    share = vcr.r_la_ohm / (vcr.r_la_ohm + vcr.r_lb_ohm) if vcr.linearised else 1.0
+    return vgs / share
 
 
 def _amp_for_mean(prob: _Problem, w: float, target: float, a0: float) -> tuple[float, HoldState]:
@@ -343,13 +344,11 @@ def settled(loop: Loop, agc: Agc, lin, rails: tuple[float, float, float], *, kma
         return None, None
     prob = _Problem(loop, agc, kmax)
     it = agc.integrator
-    p = agc.vcr.jfet
     w = 2 * math.pi * lin.marginal_hz
-    lo = it.swing[0] if it is not None else 3 * p.vto_v - 1.0
     if start is not None and start.state:
         amp, w, u = start.state
     else:
-        amp, u = None, _control_start(prob, w, lin.marginal_g_s, lo, 0.4)
+        amp, u = None, _control_start(prob, lin.marginal_g_s)
     if it is not None:
         amp, hold = _amp_for_mean(prob, w, it.v_plus_v, amp or it.v_plus_v + 0.6)
         x = np.array([w, u])

@@ -64,8 +64,9 @@ class CycleMap:
         # dense where the channel conducts (the control voltage pinches it off at VTO,
         # at 2 VTO when the gate sees half of it), sparse beyond
         pinch = vcr.jfet.vto_v * (vcr.r_la_ohm + vcr.r_lb_ohm) / vcr.r_la_ohm if vcr.linearised else vcr.jfet.vto_v
-        dense = np.linspace(max(pinch - 0.3, lo), min(0.8, hi), 121)
-        self.vc_grid = np.unique(np.concatenate([np.linspace(lo, hi, 33), dense, [state.vc_v]]))
+        dense = np.linspace(max(pinch - 0.3, lo), min(0.8, hi), 61)
+        near = state.vc_v + np.linspace(-0.2, 0.2, 9)
+        self.vc_grid = np.unique(np.concatenate([np.linspace(lo, hi, 17), dense, near]))
 
         def branch_at(vc: float) -> JfetBranch:
             vd, vg = dc_point(vcr, vc)

@@ -1,0 +1,451 @@
+"""The design rule of the JFET amplitude control: from a target (frequency, amplitude,
+THD, settling time, supply, temperatures) and the allowed parts to standard values for
+every slot, checked with the control's own physics.
+
+Steps (each a rule of the JFET voltage-controlled-resistor application notes and of
+loop design, with the choices made explicit):
+
+1. **The branch** (series resistor R10, Rg, Rf): the weakest JFET of the family (VTO at
+   its smallest magnitude, BETA at its minimum, at the hot end) must still start the
+   oscillation with the margin the tolerances need; the ground leg without the JFET
+   must give less gain than the network needs (so every JFET can bring the gain down);
+   the operating channel resistance r_op then follows. Candidates are scored by a
+   first-order THD estimate (the channel's residual harmonics through the series
+   resistor and Rf), the best confirmed by the physics.
+2. **The gate network**: two equal resistors (linearisation) of 100 kohm order, far
+   above the channel and the series resistor.
+3. **The detector**: the bleed resistor for about 10 uA of hold current, the hold
+   capacitor for a release time constant R13 C5 of a tenth of the settling time (at
+   least ten periods).
+4. **The loop**: the envelope's gain sigma_v = d sigma / d V_C (from the loop), the
+   detector gain dV_H / dA = 1, the PI integrator: natural frequency w_n from the
+   settling time, damping 0.9: tau_i = R14 C6 = sigma_v A / w_n^2, tau_z = R15 C6 =
+   2 zeta / w_n (the second-order PI loop, any control text, e.g. Franklin, Powell and
+   Emami-Naeini, Feedback Control of Dynamic Systems, "PI control"); C7 puts a pole at
+   six times the crossover, which takes the detector's ripple off the proportional path.
+5. **The reference**: the divider R16 / R17 from the positive rail (a fixed supply) or
+   from a voltage reference (a supply with a range), at the hold's mean for the target
+   amplitude, the pair of standard values nearest the ratio.
+
+Then the settled oscillation and the settling envelope are computed for the design; the
+integrator is made faster (or slower, for THD) until both hold, in a few steps.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from partpick.circuits.base import Conditions
+from partpick.circuits.options import nearest
+from partpick.physics.jfet import jfet_at
+from partpick.physics.opamp import swing_limits
+
+__all__ = ["Target", "AgcDesign", "design", "options", "target_for", "THD_SHARE"]
+
+MARGIN_FLOOR = 0.004         # gain excess beyond the worst tolerance corner (as the search keeps)
+GATE_R = 220e3               # gate network, ohm: far above the channel and R10
+HOLD_CURRENT = 10e-6         # detector bleed current, A
+ZETA = 0.9                   # the integrator loop's damping
+POLE_RATIO = 6.0             # C7's pole over the loop's crossover
+
+
+@dataclass(frozen=True, slots=True)
+class Target:
+    """What the control must do: f_hz (Hz), amp_v (V peak at the oscillator output),
+    thd_max (fraction), settle_max_s (s, None: no limit), temps_k (min, nominal, max),
+    supply (kind, min V, max V), tol_loss: the gain the network and gain resistors may
+    lose to tolerances and drift (fraction), amp_tol: the amplitude's tolerance
+    (fraction)."""
+
+    f_hz: float
+    amp_v: float
+    thd_max: float
+    settle_max_s: float | None
+    temps_k: tuple[float, float, float]
+    supply: tuple[str, float, float]
+    tol_loss: float = 0.02
+    amp_tol: float = 0.05
+
+
+@dataclass(frozen=True, slots=True)
+class AgcDesign:
+    """A design: values (role -> ohm, F), parts (role -> catalog record), and what the
+    physics predicts at the nominal point (amp_v, thd, settle_s, overshoot, damping,
+    margin_weak: the weakest JFET's startup margin), or why none was found (why)."""
+
+    values: dict = field(default_factory=dict)
+    parts: dict = field(default_factory=dict)
+    amp_v: float = math.nan
+    freq_hz: float = math.nan
+    thd: float = math.nan
+    settle_s: float = math.nan
+    overshoot: float = math.nan
+    damping: float = math.nan
+    margin_weak: float = math.nan
+    why: str = ""
+
+    @property
+    def ok(self) -> bool:
+        return not self.why
+
+
+def _corners(jfet, temps_k):
+    """(weakest r_on, strongest BETA at its VTO) over the part spread and temperature:
+    r_DS(on) = 1 / (2 BETA |VTO|)."""
+    weak = jfet.with_parameters(jfet.vto_max_v, jfet.beta_min_a_per_v2)
+    strong = jfet.with_parameters(jfet.vto_min_v, jfet.beta_max_a_per_v2)
+    r_weak = max(jfet_at(weak, t).r_on_ohm for t in temps_k)
+    return weak, strong, r_weak
+
+
+def _thd_estimate(p, r_ser: float, r_op: float, rf: float, amp_v: float, per_port: float, lin: bool) -> float:
+    """First-order THD of the channel alone: its harmonic current at V_DS = the port's
+    share across the channel, through the series resistor to the virtual ground and Rf
+    to the output (see module docstring)."""
+    vd = amp_v / per_port * r_op / (r_ser + r_op)
+    g = 1.0 / r_op
+    if lin:
+        i_h = g * p.lam * vd * vd * 8 / (15 * math.pi)         # |V| V: third harmonic
+    else:
+        i_h = p.beta * vd * vd / 2                               # V^2: second harmonic
+    return rf * i_h * r_op / (r_ser + r_op) / amp_v
+
+
+def _branch_candidates(topo, tgt: Target, jfet, rvals, lin: bool):
+    """(THD estimate, R10, Rg, Rf, r_op) for the gain network and series resistor, best
+    estimate first (see module docstring, step 1)."""
+    weak, strong, r_weak = _corners(jfet, tgt.temps_k)
+    k_req = topo.reference_required_gain
+    need = tgt.tol_loss + MARGIN_FLOOR
+    per_port = topo.osc_per_port(topo.gain_values(10e3, 20e3), "ground")
+    p_strong = jfet_at(strong, tgt.temps_k[0])
+    out = []
+    for rf in sorted({nearest(rvals, x) for x in (10e3, 22e3, 47e3)}):
+        # ground-leg conductance (fixed part 1/Rg plus the branch) the network needs,
+        # and what the weakest JFET at rest must give
+        g_op = topo.port_conductance_needed(topo.gain_values(math.inf, rf), "ground")
+        g_start = g_op * (1 + need * k_req / (k_req - 1))
+        for rs in rvals:
+            if not 5 * r_weak <= rs <= 1.0 / g_op:
+                continue
+            g_rg_min = g_start - 1.0 / (rs + r_weak)
+            if g_rg_min <= 0:
+                continue
+            # the largest Rg that still starts the weakest part: the least margin, so the
+            # channel works furthest from pinch-off
+            below = [v for v in rvals if v <= 1.0 / g_rg_min]
+            if not below:
+                continue
+            rg = below[-1]
+            if 1.0 / rg >= g_op:
+                continue
+            r_op = 1.0 / (g_op - 1.0 / rg) - rs
+            # the strongest part must stay well inside its triode region at r_op
+            vgst = 1.0 / (2 * p_strong.beta * r_op)
+            vd = tgt.amp_v / per_port * r_op / (rs + r_op)
+            if vd > 0.5 * vgst * (2 if lin else 1):
+                continue
+            thd = _thd_estimate(p_strong, rs, r_op, rf, tgt.amp_v, per_port, lin)
+            out.append((thd, rs, rg, rf, r_op))
+    out.sort()
+    return out
+
+
+def _cap(cfams, want_f: float):
+    """(value F, family) nearest want_f on a log scale among the allowed non-polarised
+    families, the cheaper on near ties (10 % bins)."""
+    best = None
+    for fam in cfams:
+        if "electrolytic" in fam.dielectric.lower():
+            continue
+        vals = fam.values()
+        if not vals:
+            continue
+        v = nearest(vals, want_f)
+        key = (round(abs(math.log(v / want_f)) / 0.1), fam.unit_price(v), v)
+        if best is None or key < best[0]:
+            best = (key, v, fam)
+    return (best[1], best[2]) if best else (None, None)
+
+
+def _divider(rvals, want_v: float, achieved, guess) -> tuple[float, float]:
+    """(upper, lower) standard values whose divider gives the reference want_v (V):
+    for each lower value between 1 and 22 kohm the two standard upper values around
+    the one ``guess(lower)`` (the divider ratio) asks for, judged by
+    ``achieved(upper, lower)`` (V). Two values of one series give ratios in steps of
+    that series, so the reference lands within half a step."""
+    best = None
+    for lo in (v for v in rvals if 1e3 <= v <= 22e3):
+        want_up = lo * (1 / guess(lo) - 1)
+        above = [v for v in rvals if v >= want_up][:1]
+        below = [v for v in rvals if v < want_up][-1:]
+        for up in above + below:
+            err = abs(achieved(up, lo) / want_v - 1)
+            if best is None or err < best[0]:
+                best = (err, up, lo)
+    return best[1], best[2]
+
+
+DIODE_TEMPCO = 2e-3     # V/K, a silicon junction's forward-voltage drift (handbook figure, order of magnitude)
+
+
+def _compensate(tgt: Target, diode) -> bool:
+    """Whether the detector diode's drift over the temperature range would take more
+    than a third of the amplitude tolerance: then a compensating diode pays."""
+    dt = max(tgt.temps_k[2] - tgt.temps_k[1], tgt.temps_k[1] - tgt.temps_k[0])
+    return DIODE_TEMPCO * dt / tgt.amp_v > tgt.amp_tol / 3
+
+
+def _sigma_slope(loop, vcr, vc: float) -> float:
+    """d sigma / d V_C (1/(V s)) of the envelope at control voltage vc (V)."""
+    from partpick.physics.envelope import growth_rate
+    from partpick.physics.jfet import JfetBranch, dc_point, small_signal
+
+    def sig(x):
+        vd, vg = dc_point(vcr, x)
+        return growth_rate(loop, JfetBranch(vcr, small_signal(vcr, vd, vg)))
+
+    h = 0.02
+    return (sig(vc + h) - sig(vc - h)) / (2 * h)
+
+
+def design(topo, tgt: Target, jfet, diode, reference, rfam, cfams, opamp, *, linearise: bool = True,
+           integrator: bool = True) -> AgcDesign:
+    """A design for ``tgt`` (see module docstring) with the JFET ``jfet``, the detector
+    and clamp diode ``diode``, the voltage reference ``reference`` (None: the divider
+    hangs from the positive rail, which suits a fixed supply), resistors of ``rfam``,
+    capacitors of ``cfams``, on ``topo``'s reference network with ``opamp``; the first
+    candidate that meets THD and settling, else the best tried with ``why`` set."""
+    from partpick.circuits import build_loop, linear
+    from partpick.circuits.jfet_agc import CONTROL, model, reference_source_v, v_plus
+    from partpick.physics.agc import settled
+    from partpick.physics.detector import hold_waveform
+
+    rvals = rfam.values()
+    cands = _branch_candidates(topo, tgt, jfet, rvals, linearise)
+    if not cands:
+        return AgcDesign(why="no series resistor and Rg let the weakest JFET start and keep the strongest in its "
+                             "triode region")
+    kind, s_min, s_max = tgt.supply
+    cond = Conditions(0.5 * (s_min + s_max), tgt.temps_k[1], math.inf)
+    period = 1.0 / tgt.f_hz
+    budget = tgt.settle_max_s or 200 * period
+    parts = {"opamp": opamp, "jfet": jfet, "detector": diode}
+    tried = None
+    # the estimate is first order: keep the candidates within a factor three of the limit
+    for _, rs, rg, rf, r_op in [c_ for c_ in cands if c_[0] < 3 * tgt.thd_max][:3]:
+        gv = topo.gain_values(rg, rf)
+        vals = {**gv, "agc_rs": rs, "agc_rlb": nearest(rvals, GATE_R)}
+        if linearise:
+            vals["agc_rla"] = vals["agc_rlb"]
+        rb = nearest(rvals, max(tgt.amp_v - 0.5, 0.2) / HOLD_CURRENT)
+        ch, ch_fam = _cap(cfams, max(10 * period, budget / 10) / rb)
+        if ch is None:
+            return AgcDesign(why="no allowed capacitor family for the detector's hold capacitor")
+        vals.update(agc_rb=rb, agc_ch=ch)
+        fams = {"agc_ch": ch_fam.id}
+        c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
+        loop = build_loop(c, cond)
+        p = model(c, cond).vcr
+        vc_op = (1 / (p.jfet.beta * r_op) + 2 * p.jfet.vto_v) if linearise else (1 / (2 * p.jfet.beta * r_op)
+                                                                                   + p.jfet.vto_v)
+        w_n = min(12 / (ZETA * budget), 2 * math.pi * tgt.f_hz / 30)
+        last_thd = None
+        for _ in range(4 if integrator else 1):
+            if integrator:
+                k = _sigma_slope(loop, p, vc_op) * tgt.amp_v
+                tau_i, tau_z = k / w_n ** 2, 2 * ZETA / w_n
+                ci, ci_fam = _cap(cfams, tau_i / 330e3)
+                ri = nearest(rvals, tau_i / ci)
+                rz = nearest(rvals, tau_z / ci)
+                cp, cp_fam = _cap(cfams, 1 / (POLE_RATIO * 2 * ZETA * w_n * rz))
+                vals.update(agc_ri=ri, agc_ci=ci, agc_rz=rz, agc_cp=cp)
+                fams.update(agc_ci=ci_fam.id, agc_cp=cp_fam.id)
+                parts["clamp"] = diode
+                if reference is not None:
+                    parts["vref"] = reference
+                    vals["agc_rrb"] = nearest(rvals, (s_min - reference.voltage_v) / (2 * reference.min_current_a))
+                # the reference divider at the hold's mean for the target amplitude
+                probe = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts,
+                                       {**vals, "agc_rr1": 9e3, "agc_rr2": 1e3})
+                det = model(probe, cond).hold_detector()
+                src = reference_source_v(probe, cond)
+                mean = tgt.amp_v - 0.5
+                for _ in range(3):
+                    det = det.__class__(det.junction, det.positive, det.hold_f,
+                                        det.loads[:-1] + ((1 / ri, mean),))
+                    mean = hold_waveform(det, tgt.amp_v, tgt.f_hz).mean_v
+                drop = 0.0
+                if _compensate(tgt, diode):
+                    # D5 at the current that drops what the detector drops: they drift alike
+                    j = det.junction
+                    i_c = float(j.current(np.array([tgt.amp_v - mean]))[0])
+                    parts["comp"] = diode
+                    vals["agc_rc"] = nearest(rvals, mean / i_c)
+                    drop = tgt.amp_v - mean
+                else:
+                    parts.pop("comp", None)
+                    vals.pop("agc_rc", None)
+                i_rc = mean / vals["agc_rc"] if "agc_rc" in vals else 0.0
+
+                def pick(want: float) -> None:
+                    def achieved(up, lo):
+                        return v_plus(topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts,
+                                                     {**vals, "agc_rr1": up, "agc_rr2": lo}), cond)
+
+                    def guess(lo):
+                        return min((want + drop + i_rc * lo) / src, 0.95)
+
+                    vals["agc_rr1"], vals["agc_rr2"] = _divider(rvals, want, achieved, guess)
+
+                pick(mean)
+            c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
+            lin_res = linear(c, cond)
+            hb, st = settled(loop, model(c, cond), lin_res, cond.rails(kind))
+            for _ in range(2):
+                if hb is None or not integrator or abs(hb.osc_peak_v / tgt.amp_v - 1) < 5e-4:
+                    break
+                # the output's DC offset and the ripple move the detector a little: aim
+                # the divider again with the amplitude the physics found (dA / dV+ = 1)
+                pick(v_plus(c, cond) + tgt.amp_v - hb.osc_peak_v)
+                c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
+                hb, st = settled(loop, model(c, cond), lin_res, cond.rails(kind))
+            if hb is None or not hb.converged:
+                break
+            lo_sw, hi_sw = swing_limits(opamp, cond.rails(kind))
+            swing = min(hi_sw, -lo_sw)
+            stl = CONTROL.settling(c, cond, loop, lin_res, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
+                                   clip_v=swing)
+            got = AgcDesign(dict(vals), {**parts, "_families": fams}, hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
+                            stl.settle_s, stl.overshoot, stl.damping, lin_res.margin)
+            tried = got
+            slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s
+            if hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= 0.3:
+                return got
+            if not slow and last_thd is not None and hb.osc_thd > 0.8 * last_thd:
+                break       # a slower loop no longer helps: the channel itself distorts
+            last_thd = None if slow else hb.osc_thd
+            w_n *= 1.6 if slow else 1 / 1.6
+    if tried is None:
+        return AgcDesign(why="the physics found no settled oscillation for the candidates")
+    return AgcDesign(tried.values, tried.parts, tried.amp_v, tried.freq_hz, tried.thd, tried.settle_s,
+                     tried.overshoot, tried.damping, tried.margin_weak,
+                     why=f"best tried: THD {tried.thd * 100:.3g} %, settling {tried.settle_s * 1e3:.3g} ms, "
+                         f"damping {tried.damping:.2g}")
+
+
+def target_for(spec, f_hz: float, amp_v: float, rfam, z: float) -> Target:
+    """The design target for ``spec`` at the oscillator amplitude amp_v (V peak) and
+    f_hz (Hz): its THD limit (the share the search allows), settling time,
+    temperatures and supply; the tolerance loss of the network and gain resistors at
+    the yield's quantile z (three ratios of two parts each, first-order)."""
+    from partpick.circuits.options import dt_of, sigma
+
+    t = spec.temperature
+    s = spec.supply
+    loss = z * math.sqrt(3 * 2) * sigma(rfam) + 2 * rfam.tempco_per_k * dt_of(spec)
+    return Target(f_hz, amp_v, spec.max_thd_frac * THD_SHARE, spec.settling_max_s, (t.min_k, t.nominal_k, t.max_k),
+                  (s.kind, s.min_v, s.max_v), loss, spec.amplitude.tolerance_frac)
+
+
+THD_SHARE = 0.8     # share of the THD limit a design may use at its nominal point
+
+
+def options(topology, spec, rfam, jfets, diodes, references, cfams, opamp, f_hz: float, amp_targets,
+            *, linearise=(True, False)) -> list:
+    """The search hook: control options of one resistor family.
+
+    Contract. One :class:`~partpick.circuits.options.CtlOption` per JFET family of
+    ``jfets``, oscillator amplitude of ``amp_targets`` (V peak) and choice of
+    ``linearise`` the design rule (:func:`design`) can build with the cheapest diode of
+    ``diodes`` (detector and clamp) and, when the supply has a range, the cheapest
+    reference of ``references`` (a fixed supply uses its positive rail), on
+    ``topology``'s reference network at f_hz (Hz) with ``opamp``:
+
+    - values: the topology's gain network and every value of the control (ohm, F);
+      parts: ('jfet', id), ('detector', id), ('clamp', id) and ('vref', id) when used;
+      r_family: the family of every resistor, families: (role, capacitor family id);
+    - ln_g: ln of the small-signal gain at rest, with the nominal JFET's branch at rest
+      across the ground leg (what the startup margin is measured with);
+      ln1m_ref: ln of that gain over the reference's required gain;
+    - ln_amp: ln of the oscillator amplitude (V) the physics settles at on the reference
+      network; s_amp = k_amp = 0: the integrator holds the amplitude whatever the gain
+      excess (the search need not pair it with a particular network);
+      ln_amp_tmin / ln_amp_tmax: at the temperature ends (the detector diode's drift);
+    - thd: THD at the oscillator output on the reference network; s_thd, pull, s_pull:
+      0 (the control holds the gain at the loop's need: the harmonic pull is below
+      1e-6); loss: the startup margin (nepers) the weakest JFET of the family at the hot
+      end loses against the nominal one, plus the gain resistors' tolerance spread;
+      sigma_g: standard deviation of ln(gain) from the gain resistors; vf_spread: the
+      amplitude's spread from the control's own parts at the yield's z (reference,
+      divider, detector diode);
+    - settle_s: settling time from power-on (s); channels: 1 (the integrator's op-amp
+      channel); lines: the purchasing lines of the gain network and the control.
+
+    Each option costs a few design iterations with the full physics (about a second):
+    call it once per family and cache.
+    """
+    from partpick.circuits.options import CtlOption, merge_lines, sigma, z_of
+
+    out = []
+    z = z_of(spec)
+    diode = min(diodes, key=lambda d: d.price_unit) if diodes else None
+    if diode is None or not jfets:
+        return out
+    fixed = spec.supply.min_v == spec.supply.max_v
+    ref = None
+    if not fixed:
+        usable = [r for r in references if r.voltage_v < 0.8 * spec.supply.min_v]
+        if not usable:
+            return out
+        ref = min(usable, key=lambda r: r.price_unit)
+    for jfet in jfets:
+        for amp in amp_targets:
+            for lin in linearise:
+                tgt = target_for(spec, f_hz, amp, rfam, z)
+                d = design(topology, tgt, jfet, diode, ref, rfam, cfams, opamp, linearise=lin)
+                if not d.ok:
+                    continue
+                out.append(_option(topology, spec, rfam, d, tgt, CtlOption, merge_lines, sigma, z))
+    return out
+
+
+def _option(topology, spec, rfam, d: AgcDesign, tgt: Target, CtlOption, merge_lines, sigma, z):
+    """The CtlOption of a design (see :func:`options`)."""
+    from partpick.circuits import build_loop, linear
+    from partpick.circuits.base import Values
+    from partpick.circuits.jfet_agc import CONTROL, solved
+
+    parts = {k: v for k, v in d.parts.items() if not k.startswith("_")}
+    fams = d.parts.get("_families", {})
+    gv = {k: d.values[k] for k in topology.gain_values(1.0, 1.0)}
+    c = topology.reference(tgt.f_hz, gv, parts["opamp"], CONTROL.name, parts, d.values)
+    kind, s_min, s_max = tgt.supply
+    ends = []
+    for t in (tgt.temps_k[0], tgt.temps_k[2]):
+        hb = solved(c, Conditions(0.5 * (s_min + s_max), t, math.inf))[2]
+        ends.append(math.log(hb.osc_peak_v) if hb is not None else math.log(d.amp_v))
+    # the gain at rest with the nominal and the weakest JFET
+    cond = Conditions(0.5 * (s_min + s_max), tgt.temps_k[1], math.inf)
+    k_ref = topology.reference_required_gain
+    lin = linear(c, cond, build_loop(c, cond))
+    g_rest = k_ref * (1 + lin.margin)
+    weak, _, _ = _corners(parts["jfet"], tgt.temps_k)
+    cw = topology.reference(tgt.f_hz, gv, parts["opamp"], CONTROL.name, {**parts, "jfet": weak}, d.values)
+    g_weak = k_ref * (1 + linear(cw, Conditions(cond.supply_v, tgt.temps_k[2], math.inf)).margin)
+    loss_g = z * math.sqrt(2) * sigma(rfam) + 2 * rfam.tempco_per_k * (tgt.temps_k[2] - tgt.temps_k[1])
+    det = parts["detector"]
+    ref = parts.get("vref")
+    ref_sig = (ref.tolerance_frac / (3 if ref.distribution == "normal" else math.sqrt(3))) if ref else 0.0
+    v_p = d.amp_v - 0.5
+    spread = z * math.sqrt((v_p / d.amp_v) ** 2 * (ref_sig ** 2 + 2 * sigma(rfam) ** 2)
+                           + (det.vf_spread_v / 3 / d.amp_v) ** 2)
+    lines = [(rfam.id, v, 1) for k, v in d.values.items() if k not in fams] + \
+            [(fams[k], d.values[k], 1) for k in fams] + [(p.id, 0.0, 1) for k, p in parts.items() if k != "opamp"]
+    return CtlOption(Values(d.values), tuple((k, p.id) for k, p in parts.items() if k != "opamp"), rfam.id,
+                     math.log(g_rest), math.log(g_rest / k_ref), math.log(d.amp_v), 0.0, d.thd, 0.0, 0.0, 0.0,
+                     math.log(g_rest / g_weak) + loss_g, merge_lines(lines), ends[0], ends[1], 0.0,
+                     math.sqrt(2) * sigma(rfam), spread, tuple(fams.items()), d.settle_s, 1)
