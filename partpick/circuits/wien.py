@@ -133,7 +133,8 @@ class WienBridge:
         alpha = Q0 g1 + Ro yg + A, gamma = Q0 Rf + Ro, Q0 = 1 + Ro Yx - A beta; the
         loop gain broken at the non-inverting input is L = A beta G / D with
         G = g1 + Rf Y and D = G (1 + Ro Yx) + Ro (yg + Y) + A, so
-        d0 = g1 (1 + Ro Yx) + Ro yg + A and d1 = Rf (1 + Ro Yx) + Ro.
+        d0 = g1 (1 + Ro Yx) + Ro yg + A and d1 = Rf (1 + Ro Yx) + Ro; a drawn current J
+        adds Ro J to the constraint (inject = Ro).
         """
         rf = c.value("rf")
         yg = 1.0 / c.value("rg")
@@ -147,6 +148,7 @@ class WienBridge:
         gamma = q0.scale(rf) + const(ro)
         d0 = ryx.scale(g1) + const(ro * yg) + a
         d1 = ryx.scale(rf) + const(ro)
+        # a current J drawn from the output adds Ro J to X = Vo + Ro Iout: eta = Ro
         cv_i = yx.scale(g1) + const(yg)              # output current per Vn
         ci_i = yx.scale(rf) + one                    # ... per I
         tl = periphery.to_load(c, cond, w)
@@ -156,7 +158,7 @@ class WienBridge:
             ("U1A.iout", cv_i, ci_i),
             ("U1A.x", const(g1) + cv_i.scale(ro), const(rf) + ci_i.scale(ro)),
         )
-        return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),))
+        return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),), const(ro))
 
     def _network(self, c: Circuit, w: float):
         """(beta = Zp / (Zs + Zp), the network's input admittance 1 / (Zs + Zp)) in p = s / w."""

@@ -265,12 +265,28 @@ class _Problem:
         dc = float(np.real(self.loop.probe("osc", p0, np.array([v0]), np.array([y0 * v0 + s0]))[0]))
         return {"v": v, "i": i_port, "y": y, "src": src, "vds": vds, "vgs_dc": vg0, "ich": ich, "dc": dc}
 
-    def residual(self, w: float, amp: float, vc: float, e: np.ndarray) -> tuple[complex, dict]:
+    def drawn(self, hold: HoldState) -> np.ndarray:
+        """Harmonics 1..K of the current the detector draws from the output (A)."""
+        spec = np.fft.rfft(hold.i_a) / hold.i_a.size
+        return 2 * spec[1: self.ks.size + 1]
+
+    def inject(self, w: float, ks) -> np.ndarray:
+        """The loop's coefficient of a current drawn from the output, at k w (0 when the
+        topology does not give it)."""
+        if self.loop.inject is None:
+            return np.zeros(len(ks), dtype=complex)
+        return self.loop.inject(1j * w * np.asarray(ks) / self.loop.w_ref)
+
+    def residual(self, w: float, amp: float, vc: float, e: np.ndarray, jd: np.ndarray | None = None
+                 ) -> tuple[complex, dict]:
+        """The loop equation at the fundamental, alpha + gamma Y1 (+ eta J1 / V1 for the
+        detector's current drawn from the output), scaled by |alpha|."""
         r = self.respond(w, amp, vc, e)
         p1 = np.array([1j * w / self.loop.w_ref])
         al, ga = (complex(x[0]) for x in self.loop.coefficients(p1))
         y1 = r["i"][0] / r["v"][0]
-        return (al + ga * y1) / abs(al), r
+        extra = complex(self.inject(w, [1])[0] * jd[0] / r["v"][0]) if jd is not None else 0.0
+        return (al + ga * y1 + extra) / abs(al), r
 
 
 def _newton(f, x0: np.ndarray, steps: np.ndarray, limits: np.ndarray, iters: int = 40, tol: float = 1e-11):
@@ -354,8 +370,8 @@ def settled(loop: Loop, agc: Agc, lin, rails: tuple[float, float, float], *, kma
         x = np.array([w, u])
         ok = False
         for _ in range(8):
-            e = prob.ripple(hold, x[0])
-            x, ok = _newton(lambda z: prob.residual(z[0], amp, z[1], e)[0], x, np.array([1e-7 * x[0], 1e-7]),
+            e, jd = prob.ripple(hold, x[0]), prob.drawn(hold)
+            x, ok = _newton(lambda z: prob.residual(z[0], amp, z[1], e, jd)[0], x, np.array([1e-7 * x[0], 1e-7]),
                             np.array([0.02 * x[0], 0.3]))
             prob.dc = prob.respond(x[0], amp, x[1], e)["dc"]
             amp_new, hold = _amp_for_mean(prob, x[0], it.v_plus_v, amp)
@@ -372,7 +388,8 @@ def settled(loop: Loop, agc: Agc, lin, rails: tuple[float, float, float], *, kma
         def f(z):
             hold = prob.hold(math.exp(z[1]), z[0], start=cache.get("v"))
             cache["v"] = hold.v_v
-            return prob.residual(z[0], math.exp(z[1]), hold.mean_v, np.array(hold.harmonics[:kmax]))[0]
+            return prob.residual(z[0], math.exp(z[1]), hold.mean_v, np.array(hold.harmonics[:kmax]),
+                                 prob.drawn(hold))[0]
 
         x = np.array([w, math.log(amp)])
         for _ in range(6):
@@ -387,7 +404,7 @@ def settled(loop: Loop, agc: Agc, lin, rails: tuple[float, float, float], *, kma
         hold = prob.hold(amp, w)
         vc = hold.mean_v
     e = prob.ripple(hold, w)
-    _, r = prob.residual(w, amp, vc, e)
+    _, r = prob.residual(w, amp, vc, e, prob.drawn(hold))
     return _result(prob, w, amp, vc, r, hold, e, rails, ok), AgcState(
         vc, float(r["vgs_dc"]), hold, tuple(e), float(np.max(np.abs(r["vds"]))), complex(r["i"][0] / r["v"][0]),
         prob.dc)
@@ -404,9 +421,11 @@ def _result(prob: _Problem, w: float, amp: float, vc: float, r: dict, hold: Hold
     p = 1j * w * ks / loop.w_ref
     al, ga = loop.coefficients(p)
     v, i = r["v"].copy(), r["i"].copy()
-    # harmonics 2..K: the sources drive the loop
+    # harmonics 2..K: the sources drive the loop, and so does the detector's current
+    # drawn from the output (its pulses have every harmonic)
     y, src = r["y"][1:], r["src"][1:]
-    v[1:] = -ga[1:] * src / (al[1:] + ga[1:] * y)
+    drive = ga[1:] * src + prob.inject(w, ks[1:]) * prob.drawn(hold)[1:]
+    v[1:] = -drive / (al[1:] + ga[1:] * y)
     i[1:] = y * v[1:] + src
     wave = lambda z: np.real(z @ prob.basis)  # noqa: E731
     osc, load = loop.probe("osc", p, v, i), loop.probe("load", p, v, i)

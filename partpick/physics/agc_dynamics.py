@@ -264,7 +264,8 @@ def agc_settling(loop: Loop, agc: Agc, state: AgcState, amp_v: float, freq_hz: f
         amps.append(math.exp(y[0]))
         if k % window == 0 and k >= 2 * window:
             last = np.array(amps[-window:])
-            if last.max() - last.min() < quiet * last.mean():
+            # still, and at the settled amplitude (not held at the op-amp's swing)
+            if last.max() - last.min() < quiet * last.mean() and abs(last.mean() / amp_v - 1) < 0.03:
                 break
     amp = np.array(amps)
     amp *= amp_v / amp[-1]
