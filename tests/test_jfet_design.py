@@ -132,10 +132,9 @@ def test_design_rule_meets_its_target(demo_catalog):
 def test_demo_bom_is_what_the_design_rule_makes(demo_catalog):
     """specs/boms/clean-tone-1k-jfet.yaml: the design rule's values on 1 kHz arms."""
     _, _, d = _demo_design(demo_catalog)
-    parts = {k: v for k, v in d.parts.items() if not k.startswith("_")}
-    c = make_circuit("wien-bridge", "jfet-agc", {**ARMS, **d.values}, parts)
+    c = make_circuit("wien-bridge", "jfet-agc", {**ARMS, **d.values}, d.parts)
     fams = {r: "mf-1" for r in {**ARMS, **d.values}}
-    fams.update(cs="c0g-1", cp="c0g-1", **d.parts["_families"], **{k: v.id for k, v in parts.items()})
+    fams.update(cs="c0g-1", cp="c0g-1", **d.families, **{k: v.id for k, v in d.parts.items()})
     made = bom_from_circuit(c, fams)
     recorded = load_bom(BOM, demo_catalog)
     assert made.lines == recorded.lines

@@ -108,16 +108,15 @@ def v_plus(c: Circuit, cond: Conditions, src_v: float | None = None) -> float:
     return 0.5 * (lo + hi) * rc
 
 
-def model(c: Circuit, cond: Conditions, i_max_a: float = math.inf) -> Agc:
-    """The control of ``c`` at ``cond`` as the physics sees it (:class:`Agc`); i_max_a:
-    the current the op-amp's output can spare for the detector (A)."""
+def model(c: Circuit, cond: Conditions) -> Agc:
+    """The control of ``c`` at ``cond`` as the physics sees it (:class:`Agc`)."""
     temp = cond.temp_k
     r_la = c.value("agc_rla")
     vcr = VcrBranch(jfet_at(c.part("jfet"), temp), c.value("agc_rs"), r_la if r_la > 0 else math.inf,
                     c.value("agc_rlb"))
     integ = has_integrator(c)
     det = Detector(junctions_at(c.part("detector"), temp)[0], integ, c.value("agc_ch"),
-                   ((1.0 / c.value("agc_rb"), 0.0),), i_max_a)
+                   ((1.0 / c.value("agc_rb"), 0.0),))
     it = None
     if integ:
         clamp = c.part("clamp")

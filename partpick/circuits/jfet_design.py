@@ -34,7 +34,7 @@ integrator is made faster (or slower, for THD) until both hold, in a few steps.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -72,12 +72,14 @@ class Target:
 
 @dataclass(frozen=True, slots=True)
 class AgcDesign:
-    """A design: values (role -> ohm, F), parts (role -> catalog record), and what the
-    physics predicts at the nominal point (amp_v, thd, settle_s, overshoot, damping,
-    margin_weak: the weakest JFET's startup margin), or why none was found (why)."""
+    """A design: values (role -> ohm, F), parts (role -> catalog record), families (role
+    -> capacitor family id), and what the physics predicts at the nominal point (amp_v,
+    thd, settle_s, overshoot, damping, margin_weak: the nominal JFET's startup margin),
+    or why none was found (why)."""
 
     values: dict = field(default_factory=dict)
     parts: dict = field(default_factory=dict)
+    families: dict = field(default_factory=dict)
     amp_v: float = math.nan
     freq_hz: float = math.nan
     thd: float = math.nan
@@ -192,7 +194,7 @@ def _divider(rvals, want_v: float, achieved, guess) -> tuple[float, float]:
 DIODE_TEMPCO = 2e-3     # V/K, a silicon junction's forward-voltage drift (handbook figure, order of magnitude)
 
 
-def _compensate(tgt: Target, diode) -> bool:
+def _compensate(tgt: Target) -> bool:
     """Whether the detector diode's drift over the temperature range would take more
     than a third of the amplitude tolerance: then a compensating diode pays."""
     dt = max(tgt.temps_k[2] - tgt.temps_k[1], tgt.temps_k[1] - tgt.temps_k[0])
@@ -212,6 +214,88 @@ def _sigma_slope(loop, vcr, vc: float) -> float:
     return (sig(vc + h) - sig(vc - h)) / (2 * h)
 
 
+class _Build:
+    """The design being made: the topology, target, parts and the resistor and
+    capacitor families, and its values (role -> ohm, F) and capacitor families."""
+
+    def __init__(self, topo, tgt: Target, parts: dict, rvals, cfams, gv: dict) -> None:
+        from partpick.circuits.jfet_agc import CONTROL
+
+        self.topo, self.tgt, self.parts, self.rvals, self.cfams = topo, tgt, parts, rvals, cfams
+        self.vals, self.fams = dict(gv), {}
+        self.gv = gv
+        self.control = CONTROL.name
+        kind, s_min, s_max = tgt.supply
+        self.cond = Conditions(0.5 * (s_min + s_max), tgt.temps_k[1], math.inf)
+
+    def circuit(self, **extra):
+        return self.topo.reference(self.tgt.f_hz, self.gv, self.parts["opamp"], self.control, self.parts,
+                                   {**self.vals, **extra})
+
+    def cap(self, role: str, want_f: float) -> bool:
+        v, fam = _cap(self.cfams, want_f)
+        if v is None:
+            return False
+        self.vals[role], self.fams[role] = v, fam.id
+        return True
+
+    def integrator(self, loop, vcr, vc_op: float, w_n: float) -> bool:
+        """The PI integrator for the natural frequency w_n (rad/s) and damping ZETA
+        around the operating control voltage vc_op (V): step 4 of the module
+        docstring."""
+        k = _sigma_slope(loop, vcr, vc_op) * self.tgt.amp_v
+        tau_i, tau_z = k / w_n ** 2, 2 * ZETA / w_n
+        if not self.cap("agc_ci", tau_i / 330e3):
+            return False
+        ci = self.vals["agc_ci"]
+        self.vals.update(agc_ri=nearest(self.rvals, tau_i / ci), agc_rz=nearest(self.rvals, tau_z / ci))
+        return self.cap("agc_cp", 1 / (POLE_RATIO * 2 * ZETA * w_n * self.vals["agc_rz"]))
+
+    def reference(self, diode, reference) -> None:
+        """The reference divider (and the compensating diode): step 5."""
+        from partpick.circuits.jfet_agc import model, reference_source_v
+        from partpick.physics.detector import hold_waveform
+
+        tgt = self.tgt
+        self.parts["clamp"] = diode
+        if reference is not None:
+            self.parts["vref"] = reference
+            self.vals["agc_rrb"] = nearest(self.rvals, (tgt.supply[1] - reference.voltage_v)
+                                           / (2 * reference.min_current_a))
+        probe = self.circuit(agc_rr1=9e3, agc_rr2=1e3)
+        det = model(probe, self.cond).hold_detector()
+        self.src = reference_source_v(probe, self.cond)
+        # the hold's mean for the target amplitude, the integrator's input at that mean
+        mean = tgt.amp_v - 0.5
+        for _ in range(3):
+            det = replace(det, loads=det.loads[:-1] + ((1 / self.vals["agc_ri"], mean),))
+            mean = hold_waveform(det, tgt.amp_v, tgt.f_hz).mean_v
+        self.drop = 0.0
+        self.parts.pop("comp", None)
+        self.vals.pop("agc_rc", None)
+        if _compensate(tgt):
+            # D5 at the current that drops what the detector drops: they drift alike
+            i_c = float(det.junction.current(np.array([tgt.amp_v - mean]))[0])
+            self.parts["comp"] = diode
+            self.vals["agc_rc"] = nearest(self.rvals, mean / i_c)
+            self.drop = tgt.amp_v - mean
+        self.aim(mean)
+
+    def aim(self, want_v: float) -> None:
+        """The divider pair that gives the reference want_v (V)."""
+        from partpick.circuits.jfet_agc import v_plus
+
+        i_rc = want_v / self.vals["agc_rc"] if "agc_rc" in self.vals else 0.0
+
+        def achieved(up, lo):
+            return v_plus(self.circuit(agc_rr1=up, agc_rr2=lo), self.cond)
+
+        def guess(lo):
+            return min((want_v + self.drop + i_rc * lo) / self.src, 0.95)
+
+        self.vals["agc_rr1"], self.vals["agc_rr2"] = _divider(self.rvals, want_v, achieved, guess)
+
+
 def design(topo, tgt: Target, jfet, diode, reference, rfam, cfams, opamp, *, linearise: bool = True,
            integrator: bool = True) -> AgcDesign:
     """A design for ``tgt`` (see module docstring) with the JFET ``jfet``, the detector
@@ -219,122 +303,89 @@ def design(topo, tgt: Target, jfet, diode, reference, rfam, cfams, opamp, *, lin
     hangs from the positive rail, which suits a fixed supply), resistors of ``rfam``,
     capacitors of ``cfams``, on ``topo``'s reference network with ``opamp``; the first
     candidate that meets THD and settling, else the best tried with ``why`` set."""
-    from partpick.circuits import build_loop, linear
-    from partpick.circuits.jfet_agc import CONTROL, model, reference_source_v, v_plus
-    from partpick.physics.agc import settled
-    from partpick.physics.detector import hold_waveform
-
+    if not integrator:
+        return AgcDesign(why="the rule designs the control with an integrator only: without one the loop's gain "
+                             "is sigma_v A, set by the pinch-off, too fast for a peak detector that samples once a "
+                             "cycle unless the hold capacitor is large, and then the amplitude bounces (damping "
+                             "near 0.1)")
     rvals = rfam.values()
     cands = _branch_candidates(topo, tgt, jfet, rvals, linearise)
     if not cands:
         return AgcDesign(why="no series resistor and Rg let the weakest JFET start and keep the strongest in its "
                              "triode region")
-    kind, s_min, s_max = tgt.supply
-    cond = Conditions(0.5 * (s_min + s_max), tgt.temps_k[1], math.inf)
-    period = 1.0 / tgt.f_hz
-    budget = tgt.settle_max_s or 200 * period
-    parts = {"opamp": opamp, "jfet": jfet, "detector": diode}
     tried = None
     # the estimate is first order: keep the candidates within a factor three of the limit
     for _, rs, rg, rf, r_op in [c_ for c_ in cands if c_[0] < 3 * tgt.thd_max][:3]:
-        gv = topo.gain_values(rg, rf)
-        vals = {**gv, "agc_rs": rs, "agc_rlb": nearest(rvals, GATE_R)}
-        if linearise:
-            vals["agc_rla"] = vals["agc_rlb"]
-        rb = nearest(rvals, max(tgt.amp_v - 0.5, 0.2) / HOLD_CURRENT)
-        ch, ch_fam = _cap(cfams, max(10 * period, budget / 10) / rb)
-        if ch is None:
-            return AgcDesign(why="no allowed capacitor family for the detector's hold capacitor")
-        vals.update(agc_rb=rb, agc_ch=ch)
-        fams = {"agc_ch": ch_fam.id}
-        c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
-        loop = build_loop(c, cond)
-        p = model(c, cond).vcr
-        vc_op = (1 / (p.jfet.beta * r_op) + 2 * p.jfet.vto_v) if linearise else (1 / (2 * p.jfet.beta * r_op)
-                                                                                   + p.jfet.vto_v)
-        w_n = min(12 / (ZETA * budget), 2 * math.pi * tgt.f_hz / 30)
-        last_thd = None
-        for _ in range(4 if integrator else 1):
-            if integrator:
-                k = _sigma_slope(loop, p, vc_op) * tgt.amp_v
-                tau_i, tau_z = k / w_n ** 2, 2 * ZETA / w_n
-                ci, ci_fam = _cap(cfams, tau_i / 330e3)
-                ri = nearest(rvals, tau_i / ci)
-                rz = nearest(rvals, tau_z / ci)
-                cp, cp_fam = _cap(cfams, 1 / (POLE_RATIO * 2 * ZETA * w_n * rz))
-                vals.update(agc_ri=ri, agc_ci=ci, agc_rz=rz, agc_cp=cp)
-                fams.update(agc_ci=ci_fam.id, agc_cp=cp_fam.id)
-                parts["clamp"] = diode
-                if reference is not None:
-                    parts["vref"] = reference
-                    vals["agc_rrb"] = nearest(rvals, (s_min - reference.voltage_v) / (2 * reference.min_current_a))
-                # the reference divider at the hold's mean for the target amplitude
-                probe = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts,
-                                       {**vals, "agc_rr1": 9e3, "agc_rr2": 1e3})
-                det = model(probe, cond).hold_detector()
-                src = reference_source_v(probe, cond)
-                mean = tgt.amp_v - 0.5
-                for _ in range(3):
-                    det = det.__class__(det.junction, det.positive, det.hold_f,
-                                        det.loads[:-1] + ((1 / ri, mean),))
-                    mean = hold_waveform(det, tgt.amp_v, tgt.f_hz).mean_v
-                drop = 0.0
-                if _compensate(tgt, diode):
-                    # D5 at the current that drops what the detector drops: they drift alike
-                    j = det.junction
-                    i_c = float(j.current(np.array([tgt.amp_v - mean]))[0])
-                    parts["comp"] = diode
-                    vals["agc_rc"] = nearest(rvals, mean / i_c)
-                    drop = tgt.amp_v - mean
-                else:
-                    parts.pop("comp", None)
-                    vals.pop("agc_rc", None)
-                i_rc = mean / vals["agc_rc"] if "agc_rc" in vals else 0.0
-
-                def pick(want: float) -> None:
-                    def achieved(up, lo):
-                        return v_plus(topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts,
-                                                     {**vals, "agc_rr1": up, "agc_rr2": lo}), cond)
-
-                    def guess(lo):
-                        return min((want + drop + i_rc * lo) / src, 0.95)
-
-                    vals["agc_rr1"], vals["agc_rr2"] = _divider(rvals, want, achieved, guess)
-
-                pick(mean)
-            c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
-            lin_res = linear(c, cond)
-            hb, st = settled(loop, model(c, cond), lin_res, cond.rails(kind))
-            for _ in range(2):
-                if hb is None or not integrator or abs(hb.osc_peak_v / tgt.amp_v - 1) < 5e-4:
-                    break
-                # the output's DC offset and the ripple move the detector a little: aim
-                # the divider again with the amplitude the physics found (dA / dV+ = 1)
-                pick(v_plus(c, cond) + tgt.amp_v - hb.osc_peak_v)
-                c = topo.reference(tgt.f_hz, gv, opamp, CONTROL.name, parts, vals)
-                hb, st = settled(loop, model(c, cond), lin_res, cond.rails(kind))
-            if hb is None or not hb.converged:
-                break
-            lo_sw, hi_sw = swing_limits(opamp, cond.rails(kind))
-            swing = min(hi_sw, -lo_sw)
-            stl = CONTROL.settling(c, cond, loop, lin_res, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
-                                   clip_v=swing)
-            got = AgcDesign(dict(vals), {**parts, "_families": fams}, hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
-                            stl.settle_s, stl.overshoot, stl.damping, lin_res.margin)
-            tried = got
-            slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s
-            if hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= 0.3:
-                return got
-            if not slow and last_thd is not None and hb.osc_thd > 0.8 * last_thd:
-                break       # a slower loop no longer helps: the channel itself distorts
-            last_thd = None if slow else hb.osc_thd
-            w_n *= 1.6 if slow else 1 / 1.6
+        b = _Build(topo, tgt, {"opamp": opamp, "jfet": jfet, "detector": diode}, rvals, cfams,
+                   topo.gain_values(rg, rf))
+        got = _tune(b, rs, r_op, linearise, diode, reference)
+        if got is None:
+            continue
+        if got.ok:
+            return got
+        tried = got
     if tried is None:
-        return AgcDesign(why="the physics found no settled oscillation for the candidates")
-    return AgcDesign(tried.values, tried.parts, tried.amp_v, tried.freq_hz, tried.thd, tried.settle_s,
-                     tried.overshoot, tried.damping, tried.margin_weak,
-                     why=f"best tried: THD {tried.thd * 100:.3g} %, settling {tried.settle_s * 1e3:.3g} ms, "
-                         f"damping {tried.damping:.2g}")
+        return AgcDesign(why="no allowed capacitor family fits, or the physics found no settled oscillation")
+    return tried
+
+
+def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) -> AgcDesign | None:
+    """Steps 2 to 5 for one branch, then the physics: the loop made faster while the
+    settling is too slow, slower while the THD is too high (the ripple's share), a few
+    times; the last try (with ``why``) when none holds, None when none could be built."""
+    from partpick.circuits import build_loop, linear
+    from partpick.circuits.jfet_agc import CONTROL, model, v_plus
+    from partpick.physics.agc import settled
+
+    tgt, rvals = b.tgt, b.rvals
+    period = 1.0 / tgt.f_hz
+    budget = tgt.settle_max_s or 200 * period
+    b.vals.update(agc_rs=rs, agc_rlb=nearest(rvals, GATE_R))
+    if linearise:
+        b.vals["agc_rla"] = b.vals["agc_rlb"]
+    b.vals["agc_rb"] = nearest(rvals, max(tgt.amp_v - 0.5, 0.2) / HOLD_CURRENT)
+    if not b.cap("agc_ch", max(10 * period, budget / 10) / b.vals["agc_rb"]):
+        return None
+    loop = build_loop(b.circuit(), b.cond)
+    vcr = model(b.circuit(), b.cond).vcr
+    p = vcr.jfet
+    vc_op = (1 / (p.beta * r_op) + 2 * p.vto_v) if linearise else (1 / (2 * p.beta * r_op) + p.vto_v)
+    w_n = min(12 / (ZETA * budget), 2 * math.pi * tgt.f_hz / 30)
+    kind = tgt.supply[0]
+    lo_sw, hi_sw = swing_limits(b.parts["opamp"], b.cond.rails(kind))
+    last, got = None, None
+    for _ in range(4):
+        if not b.integrator(loop, vcr, vc_op, w_n):
+            return got
+        b.reference(diode, reference)
+        c = b.circuit()
+        lin = linear(c, b.cond)
+        hb, _ = settled(loop, model(c, b.cond), lin, b.cond.rails(kind))
+        for _ in range(2):
+            if hb is None or abs(hb.osc_peak_v / tgt.amp_v - 1) < 5e-4:
+                break
+            # the output's DC offset and the ripple move the detector a little: aim the
+            # divider again with the amplitude the physics found (dA / dV+ = 1)
+            b.aim(v_plus(c, b.cond) + tgt.amp_v - hb.osc_peak_v)
+            c = b.circuit()
+            hb, _ = settled(loop, model(c, b.cond), lin, b.cond.rails(kind))
+        if hb is None or not hb.converged:
+            return got
+        stl = CONTROL.settling(c, b.cond, loop, lin, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
+                               clip_v=min(hi_sw, -lo_sw))
+        slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s
+        ok = hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= 0.3
+        why = "" if ok else (f"best tried: THD {hb.osc_thd * 100:.3g} %, settling {stl.settle_s * 1e3:.3g} ms, "
+                             f"damping {stl.damping:.2g}")
+        got = AgcDesign(dict(b.vals), dict(b.parts), dict(b.fams), hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
+                        stl.settle_s, stl.overshoot, stl.damping, lin.margin, why)
+        if ok:
+            return got
+        if not slow and last is not None and hb.osc_thd > 0.8 * last:
+            break       # a slower loop no longer helps: the channel itself distorts
+        last = None if slow else hb.osc_thd
+        w_n *= 1.6 if slow else 1 / 1.6
+    return got
 
 
 def target_for(spec, f_hz: float, amp_v: float, rfam, z: float) -> Target:
@@ -419,8 +470,7 @@ def _option(topology, spec, rfam, d: AgcDesign, tgt: Target, CtlOption, merge_li
     from partpick.circuits.base import Values
     from partpick.circuits.jfet_agc import CONTROL, solved
 
-    parts = {k: v for k, v in d.parts.items() if not k.startswith("_")}
-    fams = d.parts.get("_families", {})
+    parts, fams = d.parts, d.families
     gv = {k: d.values[k] for k in topology.gain_values(1.0, 1.0)}
     c = topology.reference(tgt.f_hz, gv, parts["opamp"], CONTROL.name, parts, d.values)
     kind, s_min, s_max = tgt.supply

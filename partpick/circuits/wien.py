@@ -410,6 +410,19 @@ class WienBridge:
         # Rg leaves the junction to the left, clear of the Wien network below
         d.add(elm.Resistor().at(top).left(2.6).label(label("rg")))
         d.add(elm.Ground())
+        # a control at the ground port: R10 and the JFET's channel beside Rg, the rest
+        # of the control as a note
+        if label("jfet"):
+            d.add(elm.Line().at(top).up(1.6))
+            if label("agc_rs"):
+                d.add(elm.Resistor().left(2.6).label(label("agc_rs"), loc="bottom"))
+            else:
+                d.add(elm.Line().left(2.6))
+            q = d.add(elm.JFetN().right().anchor("drain").reverse().label(label("jfet"), loc="left"))
+            d.add(elm.Ground().at(q.source))
+            d.add(elm.Line().at(q.gate).up(1.4))
+            d.add(elm.Dot(open=True).label("gate: " + ", ".join(filter(None, (label("agc_rla"), label("agc_rlb"))))
+                                           + " from the control node", loc="right"))
         # control branch across Rf
         if label("limiter"):
             d.add(elm.Line().at(top).up(1.6))
@@ -441,6 +454,12 @@ class WienBridge:
         d.add(elm.Line().at(out).right(1.2))
         d.add(elm.Dot(open=True).label(note, loc="bottom"))
         d.add(elm.Gap().right(3.5))  # room for the note inside the drawing's bounds
+        if label("jfet"):
+            parts = [label(r) for r in ("detector", "agc_ch", "agc_rb", "agc_ri", "agc_ci", "agc_rz", "agc_cp", "clamp",
+                                        "agc_rr1", "agc_rr2", "vref", "agc_rrb", "comp", "agc_rc") if label(r)]
+            rows = [", ".join(parts[k:k + 5]) for k in range(0, len(parts), 5)]
+            d.add(elm.Label().at((plus.x - 3.4, plus.y - 7.2)).label(
+                "amplitude control (detector, integrator, reference):\n" + "\n".join(rows), loc="right"))
         if supply_kind == "single":
             d.add(elm.Label().at((plus.x - 3.4, plus.y - 6.0)).label(
                 f"single supply: reference = mid-rail from {label('bias_top')} / {label('bias_bottom')}, "

@@ -255,6 +255,9 @@ def agc_settling(loop: Loop, agc: Agc, state: AgcState, amp_v: float, freq_hz: f
     m = CycleMap(loop, agc, state, amp_v, freq_hz, clip_v)
     zeta, decay = m.damping()
     y = m.initial(min(start_v, amp_v))
+    if decay <= 0:
+        # the settled point is unstable: the amplitude swings in a limit cycle for ever
+        return Settling(math.inf, math.inf, math.inf, zeta, np.zeros(1), np.full(1, start_v))
     window = max(int(10.0 / max(decay, 1e-9) / m.period), 20)
     quiet = 0.1 * (band[1] - band[0]) / 2 / amp_v          # relative
     limit = min(max_cycles, max(40 * window, 2000))

@@ -40,15 +40,12 @@ class Detector:
     charges on positive peaks, to about A - Vf), else cathode at the output (the hold
     goes to about -(A - Vf)); hold_f: the hold capacitor (F) to the signal reference;
     loads: (conductance S, voltage V) of each resistor from the hold node to a fixed
-    voltage (relative to the signal reference); i_max_a: the most current the output
-    can give the diode (A): an op-amp's output current limit less what its own load
-    takes, which a large hold capacitor meets while the amplitude grows fast."""
+    voltage (relative to the signal reference)."""
 
     junction: Junction
     positive: bool
     hold_f: float
     loads: tuple[tuple[float, float], ...]
-    i_max_a: float = math.inf
 
     @property
     def g_load_s(self) -> float:
@@ -67,9 +64,6 @@ class Detector:
         i = j.current(vf)
         gd = (i + j.is_a) / (j.n * j.vt)
         g = gd / (1.0 + gd * j.rs_ohm)
-        if math.isfinite(self.i_max_a):
-            over = i > self.i_max_a
-            i, g = np.where(over, self.i_max_a, i), np.where(over, 0.0, g)
         return (i, -g) if self.positive else (-i, -g)
 
 
