@@ -42,7 +42,7 @@ from partpick.physics.harmonic import BalanceResult
 from partpick.physics.jfet import JfetBranch, VcrBranch, branch_network, channel, dc_point, small_signal
 from partpick.physics.junction import Junction
 from partpick.physics.loop import Loop
-from partpick.physics.opamp import open_loop_gain, output_resistance, regime as opamp_regime, swing_limits
+from partpick.physics.opamp import loop_figures, open_loop_gain, output_resistance
 from partpick.physics.rational import Rational, const
 
 __all__ = ["Integrator", "Agc", "AgcState", "control_impedance", "integrator_gain", "rest_control", "rest_branch",
@@ -429,19 +429,8 @@ def _result(prob: _Problem, w: float, amp: float, vc: float, r: dict, hold: Hold
     i[1:] = y * v[1:] + src
     wave = lambda z: np.real(z @ prob.basis)  # noqa: E731
     osc, load = loop.probe("osc", p, v, i), loop.probe("load", p, v, i)
-    regime = "limiter"
-    main = None
-    for a in loop.amps:
-        x = loop.probe(a.x, p, v, i)
-        x_t, io_t = wave(x), wave(loop.probe(a.iout, p, v, i))
-        slew = float(np.max(np.abs(wave(1j * ks * w * x))))
-        io_pk = float(np.max(np.abs(io_t)))
-        reg = opamp_regime(a.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(a.opamp, rails),
-                           iout_peak_a=io_pk)
-        if regime == "limiter":
-            regime = reg
-        if main is None:
-            main = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+    regime, main = loop_figures(loop.amps, rails, lambda name: loop.probe(name, p, v, i), wave,
+                                lambda z: wave(1j * ks * w * z))
     it = prob.agc.integrator
     ripple_pk = float(np.sum(np.abs(e)))
     if it is not None and regime == "limiter" and not (it.swing[0] < vc - ripple_pk and vc + ripple_pk < it.swing[1]):
