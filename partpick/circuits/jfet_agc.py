@@ -147,7 +147,9 @@ class JfetAgc:
 
     def branch(self, c: Circuit, temp_k: float, cond: Conditions | None = None):
         """The branch at rest (the control node at its DC operating point), for the
-        linear analysis: :func:`partpick.physics.agc.rest_branch`."""
+        linear analysis: :func:`partpick.physics.agc.rest_branch`. Without ``cond`` a
+        15 V supply stands in: the rest state depends on the supply only through the
+        reference, and the gate junctions clamp the JFET's gate whatever it is."""
         cond = cond or Conditions(15.0, temp_k, math.inf)
         return rest_branch(model(c, cond))
 

@@ -74,7 +74,7 @@ class Target:
 class AgcDesign:
     """A design: values (role -> ohm, F), parts (role -> catalog record), families (role
     -> capacitor family id), and what the physics predicts at the nominal point (amp_v,
-    thd, settle_s, overshoot, damping, margin_weak: the nominal JFET's startup margin),
+    thd, settle_s, overshoot, damping, margin: the nominal JFET's startup margin),
     or why none was found (why)."""
 
     values: dict = field(default_factory=dict)
@@ -86,7 +86,7 @@ class AgcDesign:
     settle_s: float = math.nan
     overshoot: float = math.nan
     damping: float = math.nan
-    margin_weak: float = math.nan
+    margin: float = math.nan
     why: str = ""
 
     @property

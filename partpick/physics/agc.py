@@ -18,10 +18,13 @@ ripple, so the settled oscillation is found in two steps.
    integrator the amplitude is fixed by the detector (its mean equals the reference)
    and the unknown is V_C; without one V_C is the hold's mean and the unknown is A.
 2. **Harmonics** to first order: the channel's nonlinear current J_k at harmonic k
-   (the V_DS^2 term, LAMBDA, and the ripple's modulation of the channel) and the
-   control node's ripple E_k drive the linear network; the loop equation at k w gives
-   the port voltage V_k = -gamma (T_J J_k + T_E E_k) / (alpha + gamma Y_k), and the
-   probes give the output's harmonics. Ripple at f modulating the gain by a depth m
+   (the V_DS^2 term, LAMBDA, and the ripple's modulation of the channel), the control
+   node's ripple E_k and the detector's current pulses D_k drawn from the output (when
+   the loop gives the coefficient eta of such a current) drive the linear network; the
+   loop equation at k w gives the port voltage
+   V_k = -(gamma (T_J J_k + T_E E_k) + eta D_k) / (alpha + gamma Y_k), and the probes
+   give the output's harmonics. At DC the branch's own current (the gate network's,
+   the channel's mean) through the network offsets the output, which the detector sees. Ripple at f modulating the gain by a depth m
    gives sidebands at 0 and 2f, near m/2 of the fundamental (amplitude modulation:
    any communications text, e.g. Haykin, Communication Systems, "amplitude modulation").
 

@@ -2,30 +2,34 @@
 cycle, by the envelope equation (:mod:`partpick.physics.envelope`) with the control's own
 states.
 
-A peak detector samples: once a cycle, at the peak, its diode charges the hold in a
-short pulse, then the hold and the integrator evolve linearly until the next peak. So
-the model is a map from one peak to the next (period T = 2 pi / w):
+A peak detector samples: around each peak its diode charges the hold in a short pulse,
+between peaks the hold and the integrator evolve linearly. So one period (T = 2 pi / w)
+is stepped in 32 stretches, each with:
 
-- the pulse: with the diode's exponential law and a sine of peak A, the charge equation
-  C dV/dt = Is exp((A cos(w t) - V) / (n Vt)) integrates in closed form over the pulse,
-  exp(V+ / n Vt) = exp(V- / n Vt) + (2 pi Is / (C w n Vt)) I0(A / n Vt) (I0 the modified
-  Bessel function, from the integral of exp(x cos theta) over a period; the peak-rectifier
-  analysis of any electronics text, written out for the exponential diode);
-- between pulses the hold (bleed resistor, integrator input) and the integrator (its
-  feedback network: capacitor, zero resistor, the capacitor across them, the clamp diode
-  as a limit, the op-amp's swing) are linear within each mode (normal, clamped,
-  saturated): exact matrix exponentials over T / 16;
-- the envelope: ln A grows by the integral of sigma(V_C) over the cycle, sigma the real
-  part of the loop's dominant natural frequency with the JFET linearised at the DC point
-  the control voltage V_C sets (gate junctions included); it stops at the op-amp's swing.
+- the linear part: the hold (bleed resistor, integrator input) and the integrator (its
+  feedback network: capacitor, zero resistor, the capacitor across them; the clamp
+  diode as a limit; the op-amp's swing) are linear within each mode (free, clamped,
+  saturated): exact matrix exponentials;
+- the detector's charge over the stretch: with the diode's exponential law the charge
+  equation C dV/dt = Is exp((A cos(w t) + V_dc - V) / (n Vt)) integrates in closed form,
+  exp(V_end / n Vt) = exp(V_start / n Vt) + (Is / (C w n Vt)) * integral of
+  exp((A cos(theta) + V_dc) / n Vt) over the stretch (Gauss-Legendre nodes; over a whole
+  period the integral is 2 pi I0(A / n Vt), I0 the modified Bessel function: the
+  peak-rectifier analysis of any electronics text, written out for the exponential
+  diode; V_dc the output's DC offset);
+- the envelope: ln A grows by sigma(V_C) weighted by 2 sin^2 of the phase (a resonator
+  takes energy from a changed gain in proportion to its velocity squared, mean weight
+  1), sigma the real part of the loop's dominant natural frequency with the JFET
+  linearised at the DC point the control voltage V_C sets (gate junctions included),
+  shifted so it vanishes at the settled V_C of :func:`partpick.physics.agc.settled`;
+  growth stops at the op-amp's swing.
 
-The pulse map and sigma are shifted by the small constants that put the map's fixed
-point exactly at the settled state of :func:`partpick.physics.agc.settled` (its periodic
-detector solution includes the diode's series resistance, which the closed form leaves
-out). The damping ratio comes from the map linearised at that fixed point (eigenvalues
-mu of one period, lambda = ln(mu) / T). The start is the DC operating point, as in the
+The damping ratio comes from the map of one period linearised at its settled point
+(eigenvalues mu, lambda = ln(mu) / T). The start is the DC operating point, as in the
 transient simulators: the hold at its loads' level, the integrator at its clamp or its
-upper swing limit, the oscillation at start_v.
+upper swing limit, the oscillation at start_v. The closed-form charge leaves out the
+diode's series resistance, so the map settles a few parts in a thousand from the
+harmonic-balance amplitude; :func:`agc_settling` scales the envelope onto it.
 """
 
 from __future__ import annotations
