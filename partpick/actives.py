@@ -14,7 +14,7 @@ guarantees, read as a normal spread truncated there (3 sigma at the wider side).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from partpick.yamlsrc import Fields
 
@@ -34,6 +34,8 @@ class Common:
     price_unit: float
     price_line: float
     where: str
+    maker: str = ""
+    maker_part: str = ""
 
 
 @dataclass(frozen=True, slots=True)
@@ -64,6 +66,8 @@ class Jfet:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
     @property
     def r_on_ohm(self) -> float:
@@ -72,26 +76,25 @@ class Jfet:
 
     def with_parameters(self, vto_v: float, beta_a_per_v2: float) -> "Jfet":
         """The same part with another VTO (V) and BETA (A/V^2): one build of the spread."""
-        return Jfet(self.id, self.description, vto_v, self.vto_min_v, self.vto_max_v, beta_a_per_v2,
-                    self.beta_min_a_per_v2, self.beta_max_a_per_v2, self.lambda_per_v, self.is_a, self.cgs_f,
-                    self.cgd_f, self.vto_tempco_v_per_k, self.beta_tce_per_k, self.package, self.price_unit,
-                    self.price_line, self.where)
+        return replace(self, vto_v=vto_v, beta_a_per_v2=beta_a_per_v2)
 
 
 @dataclass(frozen=True, slots=True)
 class Diode:
     """A single small-signal diode (a detector or clamp), Shockley junction with series
-    resistance: is_a (A), n, rs_ohm (ohm), cj_f (F, constant), eg_j (J) and xti for
-    Is(T) by the SPICE law; vf_spread_v: part-to-part forward-voltage spread at a fixed
-    current (3 sigma, V). ``kind`` is 'diode', so the junction physics reads it like
-    one junction of a limiter pair."""
+    resistance: is_a (A), n, rs_ohm (ohm), eg_j (J) and xti for Is(T) by the SPICE law;
+    its capacitance as SPICE's junction charge parameters (cjo_f F, vj_v V, m, fc,
+    tt_s s; the catalog gives one constant capacitance: CJO with M = 0);
+    vf_spread_v: part-to-part forward-voltage spread at a fixed current (3 sigma, V).
+    ``kind`` is 'diode', so the junction physics reads it like one junction of a
+    limiter pair."""
 
     id: str
     description: str
     is_a: float
     n: float
     rs_ohm: float
-    cj_f: float
+    cjo_f: float
     eg_j: float
     xti: float
     vf_spread_v: float
@@ -101,6 +104,17 @@ class Diode:
     where: str = field(default="", compare=False)
     kind: str = "diode"
     parts: int = 1
+    vj_v: float = 1.0
+    m: float = 0.0
+    fc: float = 0.5
+    tt_s: float = 0.0
+    maker: str = ""
+    maker_part: str = ""
+
+    @property
+    def cj_f(self) -> float:
+        """The junction's (constant) capacitance, F."""
+        return self.cjo_f
 
 
 @dataclass(frozen=True, slots=True)
@@ -120,6 +134,8 @@ class Reference:
     price_unit: float
     price_line: float
     where: str = field(default="", compare=False)
+    maker: str = ""
+    maker_part: str = ""
 
 
 def _range(rec: Fields, key: str, dim: str, **kw) -> tuple[float, float, float]:
@@ -157,7 +173,7 @@ def _diode(rec: Fields, c: Common) -> Diode:
         is_a=rec.quantity("saturation_current", "current", positive=True),
         n=rec.number("emission", minimum=0.5, maximum=10.0),
         rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0),
-        cj_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0),
+        cjo_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0),
         eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19),
         xti=rec.number("xti", default=3.0, minimum=0.0, maximum=10.0),
         vf_spread_v=rec.quantity("forward_voltage_spread", "voltage", nonnegative=True, default=0.0),

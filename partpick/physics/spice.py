@@ -198,8 +198,9 @@ def _diode_lines(el: DiodeX, temp_k: float) -> list[str]:
     capacitance as a capacitor."""
     a, k = _check_node(el.a), _check_node(el.k)
     mod = "pp_" + _sanitise(el.name) + "_d"
+    j = junctions_at(el.diode, temp_k)[0]
     lines = [f"* {el.name}: diode '{el.diode.id}' at {_num(temp_k - 273.15)} degC",
-             _diode_model(mod, junctions_at(el.diode, temp_k)[0]),
+             f".model {mod} D(IS={_num(j.is_a)} N={_num(j.n)} RS={_num(j.rs_ohm)} CJO=0)",
              f"{_designator('D', el.name)} {a} {k} {mod}"]
     if el.cap_f > 0:
         lines.append(f"{_designator('C', el.name)} {a} {k} {_num(el.cap_f)}")
