@@ -10,7 +10,6 @@ once more as a whole (THD, amplitude, frequency against what `check` said).
 from __future__ import annotations
 
 import dataclasses
-import math
 import re
 import subprocess
 
