@@ -361,13 +361,13 @@ def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = 
     frequency, amplitude and THD at the load."""
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
-    from partpick.verify import operating_conditions, predict, transient_cycles_for
+    from partpick.verify import cycles_to_settle, operating_conditions, predict
 
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
     point = predict(circuit, cond)
     if cycles is None:
-        cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
+        cycles = cycles_to_settle(circuit, point, max(point.osc_peak_v, 1e-3)) if point.starts else 60
     target = units.format_quantity(spec.frequency.target_hz, "frequency")
     amp = units.Amplitude(point.load_peak_v, "pk").as_kind(spec.amplitude.target.kind)
     predicted = (f"predicted {units.format_quantity(float(f'{point.freq_hz:.6g}'), 'frequency')}, "

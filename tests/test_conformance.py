@@ -29,7 +29,7 @@ from partpick.circuits import (CONTROLS, TOPOLOGIES, Conditions, all_slots, buil
                                periphery)
 from partpick.physics.ngspice import ngspice_available, run_ngspice
 from partpick.physics.waveform import analyse
-from partpick.verify import predict, transient_cycles_for
+from partpick.verify import cycles_to_settle, predict
 from tests import mna
 
 
@@ -39,6 +39,13 @@ def _wien(cat, control, **extra):
     if control == "diode-limiter":
         parts["limiter"] = cat.find("limiters", "d-si-signal")
         values.setdefault("rd", 4.7e3)
+    if control == "jfet-agc":
+        # the JFET across Rg behind R10, the gate linearised, an integrator with its zero,
+        # ripple capacitor and clamp, the reference divider from the positive rail
+        parts.update(jfet=cat.find("jfets", "jf-n-gp"), detector=cat.find("diodes", "dd-si-signal"),
+                     clamp=cat.find("diodes", "dd-si-signal"))
+        values.update(rg=47e3, rf=26e3, agc_rs=22e3, agc_rla=220e3, agc_rlb=220e3, agc_ch=68e-9, agc_rb=220e3,
+                      agc_ri=150e3, agc_ci=680e-9, agc_rz=15e3, agc_cp=68e-9, agc_rr1=12e3, agc_rr2=1e3)
     return make_circuit("wien-bridge", control, values, parts, stage="follower")
 
 
@@ -46,6 +53,7 @@ def _wien(cat, control, **extra):
 EXAMPLES = {
     ("wien-bridge", "diode-limiter"): lambda cat: _wien(cat, "diode-limiter"),
     ("wien-bridge", "none"): lambda cat: _wien(cat, "none", rf=26e3),
+    ("wien-bridge", "jfet-agc"): lambda cat: _wien(cat, "jfet-agc"),
 }
 COND = Conditions(12.0, 298.15, 10e3, 100e-12)
 
@@ -129,7 +137,7 @@ def test_loop_against_symbolic_netlist(pair, demo_catalog):
 def test_netlist_in_ngspice_agrees_with_prediction(pair, demo_catalog):
     c = EXAMPLES[pair](demo_catalog)
     point = predict(c, COND)
-    cycles = transient_cycles_for(point.lin, c.f0_hz, max(point.osc_peak_v, 0.05)) if point.starts else 80
+    cycles = cycles_to_settle(c, point, max(point.osc_peak_v, 0.05)) if point.starts else 80
     t, v = run_ngspice(build_netlist(c, COND), cycles=cycles)
     st = analyse(t, v["load"])
     assert (st is not None and st.peak_v > 0.05 and not st.decaying) == point.starts
