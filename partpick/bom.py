@@ -267,7 +267,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             if ROLES[role] != (kind, dim):
                 raise fail(f"mixes roles of different kinds ({roles[0]}, {role}) on one line", "role")
             lines.append(BomLine(ref, role, get("family"), value))
-    supply, stage = _shape_of(lines, meta["topology"], channels)
+    supply, stage = _shape_of(lines, meta["topology"], channels, meta["control"] or None)
     meta["supply"] = meta["supply"] if "supply" in meta_lines else supply
     meta["stage"] = meta["stage"] if "stage" in meta_lines else stage
     bom = _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
@@ -276,14 +276,15 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
                     | {"parts": rows[0][0]})
 
 
-def _shape_of(lines: list[BomLine], topology: str, channels: int) -> tuple[str, str]:
+def _shape_of(lines: list[BomLine], topology: str, channels: int, control: str | None = None) -> tuple[str, str]:
     """(supply kind, output stage) of a CSV without '# supply:' and '# stage:' lines: a
     single supply when it lists the bias parts, a buffered stage when the op-amp has one
-    channel more than the topology uses, a gain stage or attenuator when it lists the
-    stage resistors."""
+    channel more than the topology and the amplitude control use, a gain stage or
+    attenuator when it lists the stage resistors."""
     roles = {ln.role for ln in lines}
     supply = "single" if set(BIAS_ROLES) <= roles else "dual"
-    buffered = channels > TOPOLOGIES[topology].channels
+    own = getattr(CONTROLS[control or control_for_roles(topology, roles)], "op_channels", None)
+    buffered = channels > TOPOLOGIES[topology].channels + (own(roles) if own else 0)
     if set(STAGE_ROLES) & roles:
         return supply, "gain" if buffered else "attenuator"
     return supply, "follower" if buffered else "none"

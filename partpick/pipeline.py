@@ -27,6 +27,7 @@ from partpick.circuits import balance, build_loop, check_spec, linear, periphery
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
+from partpick.search.designed import designed_batch
 from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.refusal import default_notes, explain_refusal, structural_refusal
 from partpick.search.problem import Problem, build_problem
@@ -64,12 +65,13 @@ def candidate_bom(c: Candidate, spec: Spec, problem: Problem, fixed=()) -> Bom:
     for role, fam, v in fixed:
         values[role], families[role] = v, fam
     lines = []
-    for slot in slots_for(problem.topology.name, problem.control.name, c.stage, spec.supply.kind):
+    control = c.control or problem.control.name
+    for slot in slots_for(problem.topology.name, control, c.stage, spec.supply.kind):
         if slot.role in c.parts:
             lines.append(BomLine(slot.designator, slot.role, c.parts[slot.role], 0.0))
         elif values.get(slot.role):
             lines.append(BomLine(slot.designator, slot.role, families[slot.role], values[slot.role]))
-    return Bom(tuple(lines), spec.supply.kind, c.stage, problem.topology.name, problem.control.name)
+    return Bom(tuple(lines), spec.supply.kind, c.stage, problem.topology.name, control)
 
 
 def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
@@ -106,21 +108,24 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         raise InfeasibleError(*early)
     t1 = time.perf_counter()
     timings["setup"] = t1 - t0
-    batches = [b for lim in problem.limiters for gf in problem.r_families
-               if (b := searcher.configurations(lim, gf)) is not None]
-    pool = _Pool(batches)
-    searched = pool.size
-    t_search = time.perf_counter() - t1
     verified: list[Ranked] = []
     budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
-    while len(verified) < budget:
-        c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
-        if c is None or _certified(verified, c, n, rank_by) or c.yield_est < _hopeless(spec):
-            break   # (the pool comes in yield order: what follows cannot pass either)
-        verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem,
-                                samples, seed + 1, fixed))
-        if progress is not None:
-            progress(len(verified), max(n, len(verified)))
+    searched, t_search = 0, 0.0
+    for phase in _phases(spec, catalog, stock, problem, searcher, fixed, nearest is None):
+        if problem.fallback and sum(r.verdict.passed for r in verified) >= n:
+            break   # 'auto': the limiter gave the designs asked
+        t_s = time.perf_counter()
+        pool = _Pool(phase())
+        searched += pool.size
+        t_search += time.perf_counter() - t_s
+        while len(verified) < budget:
+            c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
+            if c is None or _certified(verified, c, n, rank_by) or c.yield_est < _hopeless(spec):
+                break   # (the pool comes in yield order: what follows cannot pass either)
+            verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
+                                    problem, samples, seed + 1, fixed))
+            if progress is not None:
+                progress(len(verified), max(n, len(verified)))
     t2 = time.perf_counter()
     timings["search"] = t_search
     timings["verify"] = t2 - t1 - t_search
@@ -134,6 +139,24 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
+
+
+def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, fixed, bare: bool) -> list:
+    """The search's batches in the order they are verified: the limiter's
+    configurations, then the designs of the controls with a design hook (each phase a
+    function, so that a phase not needed costs nothing)."""
+    def surface():
+        return [b for lim in problem.limiters for gf in problem.r_families
+                if (b := searcher.configurations(lim, gf)) is not None]
+
+    def hooked():
+        def cost(c: Candidate) -> float:
+            return bom_cost(candidate_bom(c, spec, problem, fixed), catalog, stock)[0]
+        return [b for ctl in problem.designed if (b := designed_batch(searcher, ctl, cost)) is not None]
+
+    if problem.designed and not (problem.fallback and bare):
+        return [surface, hooked]
+    return [surface]   # (the runs that explain a refusal leave a fallback out: its designs take seconds each)
 
 
 def _reach(problem: Problem) -> tuple[float, float]:

@@ -1,5 +1,5 @@
 """The JFET control from the user's side: the spec and catalog fields it brings, its
-design rule and search hook, and the demo design of specs/jfet/clean-tone-1k.yaml from
+design rule and search hook, and the demo design of specs/clean-tone-1k.yaml from
 the design rule through `partpick check` and `partpick netlist` to ngspice.
 
 Each physics figure here is judged by the control's own verification, already checked
@@ -29,7 +29,7 @@ from partpick.physics.waveform import analyse
 from partpick.spec import Spec, check_parts
 from tests.conftest import CATALOGS, ROOT, VALID_SPEC
 
-SPEC = ROOT / "specs" / "jfet" / "clean-tone-1k.yaml"
+SPEC = ROOT / "specs" / "clean-tone-1k.yaml"
 BOM = ROOT / "specs" / "boms" / "clean-tone-1k-jfet.yaml"
 ARMS = {"rs": 10.7e3, "cs": 15e-9, "rp": 10.5e3, "cp": 15e-9}   # 1 kHz with the op-amp's pull, E96 and E24 values
 

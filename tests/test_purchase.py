@@ -21,7 +21,7 @@ import pytest
 from partpick.bom import Bom, BomLine, parse_bom
 from partpick.circuits import build_netlist
 from partpick.export.purchase import COLUMN_LEGEND, PURCHASE_COLUMNS, bom_to_purchase_csv
-from partpick.physics.netlist import Capacitor, LimiterX, OpAmpX, Resistor
+from partpick.physics.netlist import Capacitor, DiodeX, JfetX, LimiterX, OpAmpX, Resistor
 from partpick.pipeline import design, evaluate_bom
 from partpick.spec import Spec
 from partpick.stock import load_stock
@@ -65,6 +65,8 @@ def netlist_parts(bom: Bom, spec: Spec, catalog) -> tuple[dict[str, int], int]:
         elif isinstance(el, LimiterX):
             n = int(el.name[1:])
             refs[el.name], refs[f"D{n + 1}"] = 1, 1  # the pair: two diodes, D1 and D2
+        elif isinstance(el, (JfetX, DiodeX)):
+            refs[el.name] = 1
         elif isinstance(el, OpAmpX):
             channels += 1
             per_package = el.opamp.channels

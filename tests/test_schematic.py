@@ -38,7 +38,7 @@ BASES = {  # (BOM, spec for the operating point)
 NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED")
 SUPPLIES = ("VCC", "VEE")
 JFET_BOM = SPECS / "boms" / "clean-tone-1k-jfet.yaml"
-JFET_SPEC = SPECS / "jfet" / "clean-tone-1k.yaml"
+JFET_SPEC = SPECS / "clean-tone-1k.yaml"
 
 
 def variant(bom: Bom, stage: str, limiter: str | None, rd: float = 0.0) -> Bom:

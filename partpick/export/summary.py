@@ -61,12 +61,12 @@ def design_table(d, catalog, spec, stock=None) -> str:
         lim = r.bom.control_part()
         rows.append([i, "pass" if s["passed"] else "FAIL", shown.frequency(s["frequency_hz"]),
                      f"{s['frequency_error'] * 100:+.3f} %",
-                     shown.amplitude(s["amplitude_load_peak_v"], spec), f"{s['thd'] * 100:.2f} %",
+                     shown.amplitude(s["amplitude_load_peak_v"], spec), _thd(s["thd"]),
                      f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
                      f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim.family if lim else "-",
                      r.bom.stage])
     lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
-                               f"cost {catalog.currency}", "parts", "op-amp", "limiter", "stage"], rows,
+                               f"cost {catalog.currency}", "parts", "op-amp", "control", "stage"], rows,
                               right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
     lines.append(design_legend(d, spec, catalog))
     best = d.ranked[0]
@@ -83,6 +83,12 @@ def design_table(d, catalog, spec, stock=None) -> str:
     return "\n".join(lines)
 
 
+def _thd(frac: float) -> str:
+    """THD in percent to three significant figures (a JFET control's 0.00231 % and a
+    limiter's 2.21 % alike)."""
+    return f"{frac * 100:#.3g}".rstrip(".") + " %" if frac == frac else "-"
+
+
 def design_legend(d, spec, catalog) -> str:
     """What each column of the design table means, and which operating point it is at."""
     samples = next((r.mc.samples for r in d.ranked if r.mc is not None), 0)
@@ -93,6 +99,7 @@ def design_legend(d, spec, catalog) -> str:
         "margin: small-signal startup margin at the nominal point (loop gain at the phase-zero frequency - 1); "
         f"yield: share of {samples} Monte Carlo builds meeting every requirement",
         f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
+        "control: the amplitude control's part (the diode limiter, or the JFET of a JFET control); "
         "stage: the output stage (none, follower, gain, attenuator, buffered-attenuator: a divider then a follower)"])
 
 

@@ -275,6 +275,9 @@ def agc_settling(loop: Loop, agc: Agc, state: AgcState, amp_v: float, freq_hz: f
             if last.max() - last.min() < quiet * last.mean() and abs(last.mean() / amp_v - 1) < 0.03:
                 break
     amp = np.array(amps)
+    if not (math.isfinite(amp[-1]) and amp[-1] > 0):
+        # the envelope died away (or ran off) in the map: it never settles at amp_v
+        return Settling(math.inf, math.inf, math.inf, zeta, np.arange(amp.size) * m.period, amp)
     amp *= amp_v / amp[-1]
     t = np.arange(amp.size) * m.period
     first, settle = band_times(t, amp, *band)

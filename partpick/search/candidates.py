@@ -41,6 +41,7 @@ class Candidate:
     s_thd: float = 0.0          # d THD / d m
     pull: float = 0.0           # the control's own frequency pull (ln)
     simulated: bool = False     # yield_est comes from the Monte Carlo model, not the closed form
+    control: str = ""           # the amplitude control's registry name ("": the problem's limiter control)
 
     def key(self) -> tuple:
         """The search's own order: estimated yield to YIELD_STEP, then cost."""

@@ -36,7 +36,7 @@ from partpick.search.problem import REF_T, Problem
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo
 from partpick.verify import package_limit
 
-__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO"]
+__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits"]
 
 M_GRID = np.geomspace(0.003, 0.2, 16)   # gain excesses (nepers) the feedback resistors are chosen for
 RG_TARGET = 10e3         # ohm: the gain network's level (see DEVELOPERS.md, search rules)
@@ -208,7 +208,7 @@ class Searcher:
         vo, thd, m = amp["vo"], amp["thd"], amp["m"]
         osc_max = min(op.swing_v, 0.2 * op.opamp.slew_v_per_s / (2 * math.pi * self.f_t))
         typical_sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
-        s_m = _m_sigma(p, gf, amp["gain"], typical_sk, op.loss, op.opamp.gbw_spread_frac)
+        s_m = m_sigma(p, gf, amp["gain"], typical_sk, op.loss, op.opamp.gbw_spread_frac)
         with np.errstate(invalid="ignore", divide="ignore"):
             s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2)
             # margins in standard deviations: the search's proxy for each share of the yield
@@ -299,7 +299,7 @@ class Searcher:
         i_osc = vo.max(axis=0) * self._osc_admittance(vals, r_fb, r_gnd, kinds, ra, rb)
         i_load = np.where(buffered, load.max(axis=0) * self.y_load, 0.0)
         ilim = p.current_share * op["current"]
-        s_m = _m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
+        s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
         with np.errstate(invalid="ignore", divide="ignore"):
             s_a = np.sqrt((ev["dln_vo"] * s_m) ** 2 + (vf_rel / 3) ** 2)
             y = (frequency_share(err, sig_f, drift, p.tol_f) * phi(m / s_m)
@@ -364,6 +364,9 @@ class Searcher:
         from dataclasses import replace
 
         from partpick.tolerance import Model, monte_carlo, variation
+
+        if c.simulated:
+            return c      # placed with its own control's figures (search/designed.py)
 
         p = self.problem
         topo = p.topology
@@ -460,7 +463,7 @@ class Searcher:
         return y + extra
 
 
-def _m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
+def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
     """Standard deviation of the gain excess over builds (nepers): the gain network's
     ratio (two resistors of the family, each with the topology's sensitivity of ln gain),
     the arms' required gain, the op-amp's gain-bandwidth spread acting on its loss
@@ -474,7 +477,7 @@ def _m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread
     return np.sqrt(s_g ** 2 + np.asarray(sigma_lnk) ** 2 + s_op ** 2 + s_t ** 2)
 
 
-def _r_limits(op) -> tuple[float, float]:
+def r_limits(op) -> tuple[float, float]:
     """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance,
     and below the value at which its bias current drops 5 mV."""
     r_max = min(1e6, 5e-3 / op.input_bias_a) if op.input_bias_a > 0 else 1e6
@@ -485,8 +488,8 @@ def _r_limits(op) -> tuple[float, float]:
 _OP_FIELDS = {
     "pull": lambda o: o.pull, "loss": lambda o: o.loss, "swing": lambda o: o.swing_v,
     "current": lambda o: o.opamp.output_current_a, "gbw_spread": lambda o: o.opamp.gbw_spread_frac,
-    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, "r_min": lambda o: _r_limits(o.opamp)[0],
-    "r_max": lambda o: _r_limits(o.opamp)[1],
+    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, "r_min": lambda o: r_limits(o.opamp)[0],
+    "r_max": lambda o: r_limits(o.opamp)[1],
 }
 
 

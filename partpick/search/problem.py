@@ -75,6 +75,8 @@ class Problem:
     current_share: float                   # of an op-amp's output current a design may plan for (output_current)
     dropped: tuple[tuple[str, str], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    designed: tuple = ()                   # controls with a design hook to search (search/designed.py)
+    fallback: bool = False                 # ... only when the limiter's designs are not enough ('auto')
 
     @property
     def rails_min(self) -> tuple[float, float, float]:
@@ -127,6 +129,12 @@ def build_problem(spec: Spec, catalog: Catalog, stock=None) -> Problem:
     """The problem for ``spec``: targets, statistics and the screened parts."""
     topo = TOPOLOGIES[spec.topology]
     ctl = CONTROLS["diode-limiter"]
+    # the controls the spec lets the search use: the limiter, searched over its surface,
+    # and those that design themselves through a hook; 'auto' tries the hooked ones when
+    # the limiter does not give the designs asked (their first design costs seconds)
+    hooked = tuple(c for c in CONTROLS.values() if hasattr(c, "search_designs"))
+    choice = spec.amplitude_control
+    designed = () if choice == "diode" else hooked if choice == "auto" else (CONTROLS[choice],)
     dropped: list[tuple[str, str]] = []
     notes: list[str] = []
     shelf = stock if (stock is not None and spec.stock is not None and spec.stock.mode == "only") else None
@@ -144,7 +152,7 @@ def build_problem(spec: Spec, catalog: Catalog, stock=None) -> Problem:
             continue
         ops.append(_op_info(topo, op, spec, 0.02))
     lims = []
-    for lim in catalog.limiters:
+    for lim in (catalog.limiters if choice in ("auto", "diode") else ()):
         if spec.parts.limiters is not None and lim.id not in spec.parts.limiters:
             continue
         if shelf is not None and shelf.quantity(lim.id) <= 0:
@@ -160,4 +168,4 @@ def build_problem(spec: Spec, catalog: Catalog, stock=None) -> Problem:
                    math.log(spec.frequency.target_hz), spec.frequency.tolerance_frac, spec.amplitude.peak_v,
                    spec.amplitude.tolerance_frac, spec.max_thd_frac, y, z, (t.min_k, t.nominal_k, t.max_k),
                    spec.derating.thd_share * spec.max_thd_frac, spec.derating.output_current, tuple(dropped),
-                   tuple(notes))
+                   tuple(notes), designed, choice == "auto")
