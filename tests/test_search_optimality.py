@@ -254,3 +254,64 @@ def test_design_returns_the_exhaustive_best(tmp_path, demo_catalog, name):
     best = next(iter(tier.values()))
     assert signature(got.bom) in tier, f"design's #1 {describe(got)}; exhaustive best {describe(best)}"
     assert got.cost == pytest.approx(tier[signature(got.bom)].cost, abs=1e-9)
+
+
+# -- the shipped demo specs: #1 does not depend on -n ------------------------------------------
+
+DEMO_SPECS = sorted(p.name for p in SPECS.glob("*.yaml"))
+_N_DEPENDS = {
+    "audio-tone-1k.yaml": (
+        "-n 1 stops verifying after the first pass: #1 is oa-jfet-4m, rs 109k, rp 89.8k, cs=cp 1.6n, rf 22.3k, "
+        "rd 105k, attenuator 294/19.8k, cost 2.533, yield 99.80 %; with -n 5, 10 and 50 #1 is oa-gp-bip, rs "
+        "87.6k, rp 88.7k, cs 2n, cp 1.6n, rf 18k, rd 74.1k, attenuator 360/27k, cost 2.266, yield 99.87 % -- the "
+        "yields tie, so the cheaper is #1 by the ranking rule; its estimated yield put it behind the other"),
+}
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [pytest.param(n, marks=[pytest.mark.xfail(strict=True, reason=_N_DEPENDS[n])]
+                                               if n in _N_DEPENDS else [], id=n) for n in DEMO_SPECS])
+def test_first_does_not_depend_on_n(demo_catalog, name):
+    spec = Spec.from_yaml(SPECS / name)
+    firsts = {n: design(spec, demo_catalog, results=n).ranked[0] for n in (1, 5, 10, 50)}
+    sigs = {n: (signature(r.bom), round(r.cost, 9)) for n, r in firsts.items()}
+    assert len(set(sigs.values())) == 1, "; ".join(f"-n {n}: {describe(r)}" for n, r in firsts.items())
+
+
+# -- more parts allowed never makes #1 worse ---------------------------------------------------
+
+SUPERSETS = [
+    # (demo spec, the line of its parts list, the subset, the superset)
+    ("seismic-cal-20hz.yaml", "  limiters: all", "  limiters: [led-red]", "  limiters: [led-red, d-si-signal]"),
+    ("carrier-50khz.yaml", "  limiters: all", "  limiters: [d-si-signal]", "  limiters: all"),
+    ("lvdt-exciter.yaml", "  capacitors: [c0g-1, pp-2]", "  capacitors: [c0g-1]", "  capacitors: [c0g-1, pp-2]"),
+    ("audio-tone-1k.yaml", "  opamps: all", "  opamps: [oa-gp-bip]", "  opamps: [oa-gp-bip, oa-jfet-4m]"),
+]
+
+
+def _variant(tmp_path: Path, name: str, line: str, new: str, tag: str) -> Spec:
+    text = (SPECS / name).read_text(encoding="utf-8")
+    assert line in text
+    path = tmp_path / f"{tag}-{name}"
+    path.write_text(text.replace(line, new), encoding="utf-8")
+    return Spec.from_yaml(path)
+
+
+def _first(spec: Spec, catalog):
+    try:
+        return design(spec, catalog).ranked[0]
+    except InfeasibleError:
+        return None
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name,line,subset,superset", SUPERSETS, ids=[f"{s[0][:-5]}:{s[2].strip()}" for s in SUPERSETS])
+def test_more_parts_never_worsen_first(tmp_path, demo_catalog, name, line, subset, superset):
+    small = _variant(tmp_path, name, line, subset, "subset")
+    large = _variant(tmp_path, name, line, superset, "superset")
+    a, b = _first(small, demo_catalog), _first(large, demo_catalog)
+    assert a is not None, f"{name} with {subset.strip()} must design for the comparison to mean anything"
+    assert b is not None, f"{name} designs with {subset.strip()} ({describe(a)}) but refuses with {superset.strip()}"
+    tier = {signature(r.bom) for r in best_tier([a, b], large.rank_by)}
+    assert signature(b.bom) in tier, (f"with {superset.strip()} #1 is {describe(b)}, worse by the ranking rule "
+                                      f"than {describe(a)} with {subset.strip()}")
