@@ -150,7 +150,7 @@ def describe(r) -> str:
 # -- the reduced spaces ------------------------------------------------------------------------
 # Each is a requirement a user could write and a drawer they could have: a few stocked values
 # with their own unit prices (a shelf part without one costs nothing), dual supplies. The
-# resistor values of a shelf lie within a factor of about 2.3 of each other, so no
+# resistor values of a shelf lie within a factor of about 3 of each other, so no
 # assignment puts a gain far above what the limiter holds (such a BOM would fall to the
 # transient solver and cost seconds to verify, not change what the test shows).
 
