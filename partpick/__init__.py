@@ -12,6 +12,14 @@ Public API (each a plain function of its inputs; only loaders and writers touch 
 Importing ``partpick`` loads no heavy module (no ortools, no matplotlib).
 """
 
+import os as _os
+
+# partpick's linear algebra is small matrices (tens of unknowns) solved many times: a
+# BLAS thread pool only adds hand-over cost, and on a busy machine its spinning threads
+# slowed harmonic balance tenfold (measured). One thread each, unless the user set it.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    _os.environ.setdefault(_var, "1")
+
 __version__ = "0.1.0"
 
 __all__ = ["__version__"]

@@ -25,20 +25,21 @@ from __future__ import annotations
 
 import csv
 import io
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
-from partpick import units
+from partpick import series, units
 from partpick.catalog import Catalog
 from partpick.circuits import (CONTROLS, STAGES, SUPPLY_KINDS, TOPOLOGIES, Circuit, all_slots, control_for_roles,
                                designators, make_circuit, slots_for)
 from partpick.circuits.periphery import BIAS_ROLES, BUFFERED, STAGE_ROLES
 from partpick.errors import InputError
 from partpick.pricing import maker_part
-from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_text
+from partpick.spec import Spec
+from partpick.yamlsrc import Fields, did_you_mean, parse_yaml, read_csv_rows, read_text
 
 __all__ = ["ROLES", "BomLine", "Bom", "BomError", "load_bom", "parse_bom", "bom_to_yaml", "bom_to_csv",
-           "bom_from_circuit", "part_data", "value_text"]
+           "bom_from_circuit", "part_data", "value_text", "check_bom_fits"]
 
 # role -> (kind of family, value dimension or None), from the plug-ins' slots
 ROLES = {role: (slot.kind, slot.dim) for role, slot in all_slots().items()}
@@ -71,6 +72,8 @@ class Bom:
     stage: str
     topology: str = _DEFAULT_TOPOLOGY
     control: str = "diode-limiter"
+    source: str = field(default="", compare=False)
+    where: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     def line(self, role: str) -> BomLine | None:
         for ln in self.lines:
@@ -99,8 +102,11 @@ class Bom:
 
     @property
     def channels(self) -> int:
-        """Op-amp channels the circuit uses: the topology's and the output buffer's."""
-        return TOPOLOGIES[self.topology].channels + (1 if self.stage in BUFFERED else 0)
+        """Op-amp channels the circuit uses: the topology's, the output buffer's and the
+        amplitude control's (an integrator)."""
+        own = getattr(CONTROLS[self.control], "op_channels", None)
+        extra = own(ln.role for ln in self.lines) if own is not None else 0
+        return TOPOLOGIES[self.topology].channels + (1 if self.stage in BUFFERED else 0) + extra
 
     def to_circuit(self, catalog: Catalog) -> Circuit:
         """The circuit with exact catalog values (families must exist in ``catalog``)."""
@@ -141,8 +147,44 @@ def parse_bom(text: str, source: str, catalog: Catalog) -> Bom:
         family = rec.text("family")
         _check_family(catalog, kind, family, lambda m: rec.error("family", m))
         value = rec.quantity("value", dim, positive=True) if dim else 0.0
+        if dim:
+            _check_value(catalog.find(kind, family), dim, value, rec.node.items["value"][1].text,
+                         lambda m: rec.error("value", m))
         lines.append(BomLine(rec.text("ref", default=DESIGNATORS[role]), role, family, value))
-    return _complete(_shaped(tuple(lines), supply, stage, topology, control), lambda m: root.error("parts", m))
+    where = {key: root.line_of(key) for key in ("topology", "supply", "stage", "parts")}
+    bom = _complete(_shaped(tuple(lines), supply, stage, topology, control), lambda m: root.error("parts", m))
+    return _located(bom, source, where)
+
+
+def _located(bom: Bom, source: str, where: dict) -> Bom:
+    return Bom(bom.lines, bom.supply_kind, bom.stage, bom.topology, bom.control, source, where)
+
+
+def _check_value(fam, dim: str, value: float, text: str, fail) -> None:
+    """Refuse a value outside its family's range or off its series, with the values it
+    could have meant (a bare '47' is 47 F or 47 ohm: the prefixes that land in range)."""
+    lo, hi = (fam.min_ohm, fam.max_ohm) if dim == "resistance" else (fam.min_f, fam.max_f)
+    shown = units.format_quantity(value, dim)
+    if not lo * (1 - 1e-9) <= value <= hi * (1 + 1e-9):
+        hint = ""
+        bare = text.strip()
+        if bare.replace(".", "", 1).isdigit():
+            near = [f"'{bare}{p}'" for p in ("p", "n", "u", "m", "k", "M", "G")
+                    if _parses_within(f"{bare}{p}", dim, lo, hi)]
+            hint = f"; a bare number is in {units.unit_symbol(dim)}: did you mean {' or '.join(near)}?" if near else ""
+        raise fail(f"{shown} is outside the range of family {fam.id} ({units.format_quantity(lo, dim)} .. "
+                   f"{units.format_quantity(hi, dim)}){hint}")
+    if not series.is_preferred(fam.series, value):
+        below, above = series.neighbours(fam.series, value)
+        raise fail(f"{shown} is off the {fam.series} series of family {fam.id}; the nearest values are "
+                   f"{units.format_quantity(below, dim)} and {units.format_quantity(above, dim)}")
+
+
+def _parses_within(text: str, dim: str, lo: float, hi: float) -> bool:
+    try:
+        return lo <= units.parse_quantity(text, dim) <= hi
+    except InputError:
+        return False
 
 
 def _shaped(lines: tuple[BomLine, ...], supply: str, stage: str, topology: str, control: str | None) -> Bom:
@@ -162,7 +204,7 @@ def _check_family(catalog: Catalog, kind: str, family: str, fail) -> None:
 
 def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
     meta = {"supply": "dual", "stage": "none", "topology": _DEFAULT_TOPOLOGY, "control": ""}
-    written = set()  # the shape lines the file has
+    meta_lines: dict[str, int] = {}  # the shape lines the file has, and where
     rows = []
     for lineno, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.strip()
@@ -172,7 +214,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             key, _, val = stripped[1:].partition(":")
             if key.strip() in meta:
                 meta[key.strip()] = val.strip()
-                written.add(key.strip())
+                meta_lines[key.strip()] = lineno
             continue
         rows.append((lineno, raw))
     if not rows:
@@ -183,7 +225,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
     if meta["topology"] not in TOPOLOGIES or (meta["control"] and meta["control"] not in CONTROLS):
         raise BomError(f"'# topology:' must be one of {', '.join(TOPOLOGIES)} and '# control:' one of "
                        f"{', '.join(CONTROLS)}", source=source, line=1)
-    reader = list(csv.reader(io.StringIO("\n".join(r for _, r in rows))))
+    reader = read_csv_rows(rows, source, BomError)
     # the purchasing form (bom_to_purchase_csv) names its columns 'designators' and 'roles'
     aliases = {"designator": "ref", "designators": "ref", "roles": "role"}
     header = [aliases.get(h.strip().lower(), h.strip().lower()) for h in reader[0]]
@@ -218,6 +260,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
                 raise fail(exc.message, "value") from None
             if value <= 0:
                 raise fail("must be > 0", "value")
+            _check_value(catalog.find(kind, get("family")), dim, value, get("value"), lambda m: fail(m, "value"))
         if len(roles) == 1:
             refs = [",".join(refs) if refs and (len(refs) == 1 or kind == "limiters") else DESIGNATORS[roles[0]]]
         for ref, role in zip(refs, roles):
@@ -225,10 +268,12 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
                 raise fail(f"mixes roles of different kinds ({roles[0]}, {role}) on one line", "role")
             lines.append(BomLine(ref, role, get("family"), value))
     supply, stage = _shape_of(lines, meta["topology"], channels)
-    meta["supply"] = meta["supply"] if "supply" in written else supply
-    meta["stage"] = meta["stage"] if "stage" in written else stage
-    return _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
-                     lambda m: BomError(m, source=source, line=rows[0][0]))
+    meta["supply"] = meta["supply"] if "supply" in meta_lines else supply
+    meta["stage"] = meta["stage"] if "stage" in meta_lines else stage
+    bom = _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
+                    lambda m: BomError(m, source=source, line=rows[0][0]))
+    return _located(bom, source, {key: meta_lines.get(key, 1) for key in ("topology", "supply", "stage")}
+                    | {"parts": rows[0][0]})
 
 
 def _shape_of(lines: list[BomLine], topology: str, channels: int) -> tuple[str, str]:
@@ -264,6 +309,18 @@ def _complete(bom: Bom, fail) -> Bom:
     if bom.supply_kind == "single" and abs(bom.value("bias_top") - bom.value("bias_bottom")) > 1e-9 * bom.value("bias_top"):
         raise fail("needs equal bias_top and bias_bottom resistors (mid-rail bias)")
     return bom
+
+
+def check_bom_fits(bom: Bom, spec: Spec) -> None:
+    """Refuse a BOM built for another circuit than the spec asks for: another topology
+    or another supply kind (a dual-supply BOM has no bias network for a single supply,
+    and its sine would be centred on 0 V)."""
+    for key, have, want, what in (("topology", bom.topology, spec.topology, "topology"),
+                                  ("supply", bom.supply_kind, spec.supply.kind, "supply kind")):
+        if have != want:
+            raise BomError(f"is {have}, but {spec.source} asks for {what} {want}; design or edit the BOM "
+                           f"for a {want} {'supply' if key == 'supply' else 'circuit'}",
+                           source=bom.source or None, line=bom.where.get(key), field=key)
 
 
 def bom_from_circuit(c: Circuit, families: dict[str, str]) -> Bom:

@@ -9,36 +9,66 @@ the spec (with the reason), 2 bad input (one line naming file, line and field).
 from __future__ import annotations
 
 import functools
+import os
 import sys
 from pathlib import Path
 
 import click
 
 from partpick import __version__
+from partpick import inputs as opt
 from partpick.catalog import KINDS, default_catalog_dir, load_catalog
-from partpick.errors import PartpickError
-from partpick.fileio import write_atomic
+from partpick.errors import PartpickError, failure, one_line
+from partpick.fileio import exit_on_signals
 from partpick.inputs import catalog_for, load_inputs as _inputs
 from partpick.starter import STARTER_SPEC
 
 __all__ = ["main"]
 
 
+def _fail(message: str, code: int):
+    # a refusal (exit 1) keeps its lines: what binds, then the nearest designs; each
+    # line is still made safe to print
+    lines = message.split("\n") if code == 1 else [message]
+    click.echo("error: " + "\n".join(one_line(line, shorten=False) for line in lines), err=True)
+    sys.exit(code)
+
+
 def _guarded(func):
-    """Turn partpick's errors into one line on stderr and the matching exit code."""
+    """Turn any error into one line on stderr and its exit code (:func:`errors.failure`);
+    PARTPICK_DEBUG=1 lets an unexpected one show its traceback."""
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         try:
             return func(*args, **kwargs)
-        except PartpickError as exc:
-            click.echo(f"error: {exc}", err=True)
-            sys.exit(exc.exit_code)
+        except (Exception, KeyboardInterrupt) as exc:
+            if os.environ.get("PARTPICK_DEBUG") and not isinstance(exc, PartpickError):
+                raise
+            _fail(*failure(exc))
 
     return wrapper
 
 
-_PATH = click.Path(path_type=Path)
+class _Group(click.Group):
+    """click, with its usage errors as one line (``error: ... (see 'partpick x --help')``,
+    exit 2), and SIGTERM and SIGHUP cleaned up after like Ctrl-C."""
+
+    def main(self, *args, **kwargs):
+        kwargs.pop("standalone_mode", None)
+        exit_on_signals()
+        try:
+            return super().main(*args, standalone_mode=False, **kwargs)
+        except click.exceptions.Exit as exc:
+            sys.exit(exc.exit_code)
+        except click.Abort:
+            _fail("interrupted", 130)
+        except click.ClickException as exc:
+            ctx = getattr(exc, "ctx", None)
+            _fail(exc.format_message() + (f" (see '{ctx.command_path} --help')" if ctx else ""), exc.exit_code)
+
+
+_PATH = click.Path(path_type=Path, readable=False)  # partpick reads and says why not itself
 _spec_argument = click.argument("spec_path", metavar="SPEC", type=_PATH)
 _bom_argument = click.argument("bom_path", metavar="BOM", type=_PATH)
 _force_option = click.option("--force", is_flag=True, help="Overwrite files that already exist.")
@@ -48,21 +78,13 @@ _catalog_option = click.option(
     "--catalog", "catalog_paths", multiple=True, type=_PATH,
     help="Catalog folder or file (repeatable). Default: the spec's 'catalogs', "
          "$PARTPICK_CATALOGS, ./catalogs, or the shipped demo catalog.")
-_samples_option = click.option("--samples", type=click.IntRange(100, 10_000_000), default=20_000, show_default=True,
-                               help="Monte Carlo builds per candidate (seeded: reruns agree).")
+_samples_option = click.option("--samples", type=int, default=20_000, show_default=True,
+                               help=f"Monte Carlo builds per candidate, {opt.SAMPLES[0]} .. {opt.SAMPLES[1]} "
+                                    "(seeded: reruns agree).")
+_seed_help = f"seed, 0 .. {opt.SEED_MAX}."
 
 
-def _progress(enabled: bool, what: str):
-    """A progress line on stderr when it is a terminal."""
-    if not (enabled and sys.stderr.isatty()):
-        return None
-
-    def progress(done, total):
-        click.echo(f"\r{what}: {done}/{total}", err=True, nl=done >= total)
-    return progress
-
-
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, "--version", prog_name="partpick")
 def main() -> None:
     """partpick: standard-value parts for a sine oscillator, from a YAML spec,
@@ -123,7 +145,10 @@ def spec_check(spec_path, catalog_paths, fmt) -> None:
 @_guarded
 def init(path, force) -> None:
     """Write a commented starter spec to PATH (default spec.yaml)."""
-    write_atomic(path, STARTER_SPEC, force=force)
+    from partpick.export.files import plan_one
+
+    plan, path = plan_one(path, "PATH", force=force)
+    plan.write(path, STARTER_SPEC)
     click.echo(f"wrote {path}; edit it, then run: partpick spec check {path}")
 
 
@@ -137,27 +162,27 @@ def init(path, force) -> None:
                                                  "settled state and report what it shows.")
 @_format_option
 @_samples_option
-@click.option("--seed", type=int, default=1, show_default=True, help="Monte Carlo seed.")
+@click.option("--seed", type=int, default=1, show_default=True, help=f"Monte Carlo {_seed_help}")
 @_guarded
 def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> None:
     """Verify the design in BOM against SPEC: each requirement with its predicted value,
     limit, verdict and margin. Exit 1 when a requirement fails."""
     import json
 
-    from partpick.bom import load_bom
     from partpick.export.verdict import check_data, check_text, transient_text
     from partpick.pipeline import evaluate_bom
     from partpick.verify import transient_check
 
+    opt.check_seed(seed)
+    opt.check_samples(samples)
     spec, cat, stock = _inputs(spec_path, catalog_paths)
-    r = evaluate_bom(load_bom(bom_path, cat), spec, cat, stock, samples=samples, seed=seed)
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        r = evaluate_bom(bom, spec, cat, stock, samples=samples, seed=seed)
+        tran = transient_check(r.circuit, r.verdict.nominal.cond) if transient and fmt != "json" else None
     if fmt == "json":
         click.echo(json.dumps(check_data(spec_path, bom_path, r), indent=2, default=lambda x: None))
     else:
-        click.echo(check_text(spec_path, bom_path, r, spec))
-        if transient:
-            click.echo("")
-            click.echo(transient_text(transient_check(r.circuit, r.verdict.nominal.cond), spec))
+        click.echo(check_text(spec_path, bom_path, r, spec) + ("\n\n" + transient_text(tran, spec) if tran else ""))
     if not r.verdict.passed:
         sys.exit(1)
 
@@ -175,16 +200,15 @@ def check(spec_path, bom_path, catalog_paths, transient, fmt, samples, seed) -> 
 def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
     """Write a SPICE netlist of the design in BOM, ready to run (.tran), with a
     behavioural op-amp subcircuit from the catalog data."""
-    from partpick.bom import load_bom
+    from partpick.export.files import plan_one
     from partpick.pipeline import netlist_text
 
+    opt.check_number("--cycles", cycles, opt.CYCLES)
+    plan, out = plan_one(out, "--out", force=force) if str(out) != "-" else (None, out)
     spec, cat, _ = _inputs(spec_path, catalog_paths)
-    text = netlist_text(load_bom(bom_path, cat), spec, cat, cycles)
-    if str(out) == "-":
-        click.echo(text, nl=False)
-    else:
-        write_atomic(out, text, force=force)
-        click.echo(f"wrote {out}")
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        text = netlist_text(bom, spec, cat, cycles)
+    click.echo(text, nl=False) if plan is None else click.echo(f"wrote {plan.write(out, text)}")
 
 
 # -- design -------------------------------------------------------------------------------------
@@ -199,10 +223,10 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--out", "out_dir", type=_PATH, default=None,
               help="Write one BOM file per candidate (YAML) into this folder.")
 @_force_option
-@click.option("--time-limit", type=float, default=10.0, show_default=True, help="Solver time limit per round, s.")
-@click.option("--workers", type=click.IntRange(1, 64), default=2, show_default=True, help="Solver threads.")
-@click.option("--seed", type=int, default=0, show_default=True, help="Solver random seed (results are deterministic).")
-@click.option("--explain", is_flag=True, help="Also say which op-amps and limiters were dropped, and why.")
+@click.option("--seed", type=int, default=0, show_default=True, help="Monte Carlo seed (reruns agree).")
+@click.option("--explain", is_flag=True, help="Also say which parts were left out and why, and the rules in force.")
+@click.option("--why-not", "why_not", type=click.IntRange(1, 50), default=None,
+              help="On a refusal, show this many nearest designs (default 3).")
 @_samples_option
 @click.option("--plots", "plots_dir", type=_PATH, default=None,
               help="Write frequency and amplitude histograms of the top candidate as PNG (needs the plot extra).")
@@ -211,51 +235,31 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--quiet", "-q", is_flag=True, help="Only the summary line (and errors).")
 @click.option("--verbose", "-v", is_flag=True, help="Also the dropped parts and the time of each stage.")
 @_guarded
-def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, time_limit, workers, seed, explain,
+def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, seed, explain, why_not,
                samples, plots_dir, report_path, quiet, verbose):
     """Search standard values for SPEC and print ranked, verified bills of materials."""
     from partpick.export import summary as out_
+    from partpick.export.files import plan_design, write_design
+    from partpick.export.terminal import colour_enabled, coloured_verdicts, progress as progress_line
     from partpick.pipeline import design
-    from partpick.spec import RANK_KEYS
 
+    opt.check_seed(seed)
+    keys = opt.rank_keys(rank_by)
     spec, cat, stock = _inputs(spec_path, catalog_paths)
-    keys = None
-    if rank_by:
-        keys = tuple(k.strip() for k in rank_by.split(",") if k.strip())
-        bad = [k for k in keys if k not in RANK_KEYS]
-        if bad:
-            raise click.BadParameter(f"unknown key(s) {', '.join(bad)}; expected {', '.join(RANK_KEYS)}",
-                                     param_hint="--rank-by")
-    progress = _progress(not quiet, f"verifying candidates (physics + {samples} Monte Carlo builds each)")
-    explain = explain or verbose
-    d = design(spec, cat, stock=stock, results=results, time_limit_s=time_limit, workers=workers, seed=seed,
-               rank_by=keys, samples=samples, progress=progress)
+    n = results or spec.results
+    opt.check_samples(samples, n)
+    files = plan_design(spec, spec_path, out_dir=out_dir, plots_dir=plots_dir, report_path=report_path, results=n,
+                        force=force)
+    with progress_line(not quiet, f"verifying candidates (physics + {samples} Monte Carlo builds each)") as progress:
+        d = design(spec, cat, stock=stock, results=results, seed=seed, rank_by=keys, samples=samples,
+                   progress=progress, nearest=why_not or 3)
     notes = fmt != "text"  # side messages go to stderr when stdout carries data
     text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose, stock=stock)
-    if fmt == "text" and sys.stdout.isatty():  # colour only on a terminal
-        for word, colour in (("pass", "green"), ("FAIL", "red")):
-            text = text.replace(f" {word} ", f" {click.style(word, fg=colour)} ")
-    click.echo(text)
-    if explain:
+    click.echo(coloured_verdicts(text) if fmt == "text" and colour_enabled() else text)
+    if explain or verbose:
         click.echo("\n" + out_.explain_text(d, spec), err=notes)
-    if report_path is not None:
-        from partpick.export.report import render_report
-        from partpick.verify import nominal_spectrum
-
-        best = d.ranked[0]
-        spectrum = nominal_spectrum(best.circuit, best.verdict.nominal.cond)
-        write_atomic(report_path, render_report(spec, d, cat, stock=stock, spectrum=spectrum), force=force)
-        click.echo(f"wrote {report_path}", err=notes)
-    if plots_dir is not None and d.ranked[0].mc is not None:
-        from partpick.export.plots import histograms
-
-        path = histograms(d.ranked[0].mc, spec, Path(plots_dir) / f"{spec.name}-01-histograms.png", force=force)
-        click.echo(f"wrote {path}", err=notes)
-    if out_dir is not None:
-        from partpick.export.files import write_candidates
-
-        write_candidates(d, spec, spec_path, cat, out_dir, force=force, stock=stock)
-        click.echo(f"wrote {len(d.ranked)} BOM file(s) to {out_dir}", err=notes)
+    for line in write_design(files, d, spec, spec_path, cat, stock=stock):
+        click.echo(line, err=notes)
 
 
 # -- swap, tradeoff, report ---------------------------------------------------------------------
@@ -273,21 +277,22 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
 def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path, force, samples) -> None:
     """Replace the parts of BOM that are not on the shelf by stocked parts, re-verify, and
     print old against new. Exit 1 when no substitution meets SPEC."""
-    from partpick.bom import bom_to_yaml, load_bom
+    from partpick.bom import bom_to_yaml
+    from partpick.export.files import plan_one
     from partpick.export.swap_view import swap_text
     from partpick.stock import load_stock
     from partpick.swap import swap
 
+    opt.check_samples(samples)
+    plan, out_path = plan_one(out_path, "--out", force=force) if out_path is not None else (None, None)
     spec, cat, _ = _inputs(spec_path, catalog_paths)
-    bom = load_bom(bom_path, cat)
     stock = load_stock(stock_path, cat)
-    res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
+    with opt.physics_of(opt.load_bom_for(bom_path, spec, cat)) as bom:
+        res = swap(spec, cat, bom, stock, all_lines=all_lines, samples=samples)
     click.echo(swap_text(res, stock, cat, bom_path, stock_path, spec))
-    if out_path is not None:
-        write_atomic(out_path, bom_to_yaml(res.after.bom, header=f"partpick swap of {bom_path} to {stock_path}",
-                                           catalog=cat),
-                     force=force)
-        click.echo(f"wrote {out_path}")
+    if plan is not None:
+        header = f"partpick swap of {bom_path} to {stock_path}"
+        click.echo(f"wrote {plan.write(out_path, bom_to_yaml(res.after.bom, header=header, catalog=cat))}")
 
 
 @main.command("tradeoff")
@@ -301,17 +306,21 @@ def swap_cmd(spec_path, bom_path, stock_path, all_lines, catalog_paths, out_path
 @_guarded
 def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> None:
     """Cost against accuracy: the designs no other is both cheaper and more accurate than."""
+    from partpick.export.files import plan_tradeoff_plot
+    from partpick.export.terminal import progress as progress_line
     from partpick.export.tradeoff_view import tradeoff_json, tradeoff_text
     from partpick.tradeoff import tradeoff
 
+    opt.check_samples(samples)
     spec, cat, stock = _inputs(spec_path, catalog_paths)
-    points, front = tradeoff(spec, cat, stock=stock, samples=samples, progress=_progress(True, "design runs"))
+    plan, png = plan_tradeoff_plot(spec, spec_path, plots_dir, force=force) if plots_dir is not None else (None, None)
+    with progress_line(True, "design runs") as progress:
+        points, front = tradeoff(spec, cat, stock=stock, samples=samples, progress=progress)
     click.echo(tradeoff_json(points, front) if fmt == "json" else tradeoff_text(spec, cat, points, front, samples))
-    if plots_dir is not None:
+    if plan is not None:
         from partpick.export.plots import front_plot
 
-        path = front_plot(points, front, spec, Path(plots_dir) / f"{spec.name}-tradeoff.png", force=force)
-        click.echo(f"wrote {path}", err=fmt != "text")
+        click.echo(f"wrote {plan.done(front_plot(points, front, spec, png, force=force))}", err=fmt != "text")
 
 
 @main.command("report")
@@ -324,17 +333,13 @@ def tradeoff_cmd(spec_path, catalog_paths, plots_dir, force, samples, fmt) -> No
 @_guarded
 def report_cmd(spec_path, catalog_paths, out, force, samples) -> None:
     """Design SPEC, compute its cost-accuracy front, and write one self-contained HTML page."""
-    from partpick.export.report import render_report
+    from partpick.export.files import plan_report, report_html
     from partpick.pipeline import design
     from partpick.tradeoff import tradeoff
-    from partpick.verify import nominal_spectrum
 
+    opt.check_samples(samples)
     spec, cat, stock = _inputs(spec_path, catalog_paths)
+    plan, out = plan_report(spec, spec_path, out, force=force)
     d = design(spec, cat, stock=stock, samples=samples)
     points, front = tradeoff(spec, cat, stock=stock, samples=samples, extra=d.ranked)
-    best = d.ranked[0]
-    spectrum = nominal_spectrum(best.circuit, best.verdict.nominal.cond)
-    out = out or Path(f"{spec.name}-report.html")
-    write_atomic(out, render_report(spec, d, cat, points=points, front=front, stock=stock, spectrum=spectrum),
-                 force=force)
-    click.echo(f"wrote {out}")
+    click.echo(f"wrote {plan.write(out, report_html(spec, d, cat, stock=stock, points=points, front=front))}")

@@ -1,43 +1,56 @@
 """The whole design job as one library call: ``design(spec, catalog)``, and the exact
 evaluation of one BOM, ``evaluate_bom``. Receives parsed inputs and reads no files.
 
-spec + catalog (+ stock) -> search space (from the plug-ins' hooks) -> CP-SAT proposals
--> exact verification and Monte Carlo -> ranking. Each stage is timed
-(``Design.timings``) so benchmarks can report them.
+spec + catalog (+ stock) -> the problem (:mod:`partpick.search.problem`) -> the best
+estimated design of every configuration (:mod:`partpick.search.enumerate`) -> for the
+leading ones, exact physics at the nominal point and a refinement of the values with
+what it measured (the pull on the frequency network, the amplitude on the stage ratio)
+-> verification and Monte Carlo -> ranking (:mod:`partpick.rank`). Verification runs in
+the search's order until the leader is certified: no configuration left unverified
+could beat it even with optimistic figures. Each stage is timed (``Design.timings``).
 """
 
 from __future__ import annotations
 
-import dataclasses
+import heapq
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
 
 from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
-from partpick.circuits import TOPOLOGIES, check_spec, slots_for
+from partpick.circuits import balance, build_loop, check_spec, linear, periphery, slots_for
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
-from partpick.search.solver import solve
-from partpick.search.space import Pick, Space, build_space
+from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
+from partpick.refusal import default_notes, explain_refusal, structural_refusal
+from partpick.search.problem import Problem, build_problem
 from partpick.spec import Spec, check_parts
 from partpick.tolerance import with_yield
-from partpick.verify import verify
+from partpick.verify import operating_conditions, verify
 
-__all__ = ["Design", "design", "pick_to_bom", "evaluate_bom", "netlist_text"]
+__all__ = ["Design", "design", "candidate_bom", "evaluate_bom", "netlist_text"]
 
-RETUNE = 3  # leading candidates whose frequency network is retuned with the verified pull
+MAX_VERIFY = 40          # verifications at most per design run (the note says when it binds)
+BARE_VERIFY = 6          # ... in the runs that work out why a spec does not design
+OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 
 
 @dataclass(frozen=True, slots=True)
 class Design:
-    """Ranked, verified candidates (best first), the search space's notes and the time
-    each stage took (s)."""
+    """Ranked, verified candidates (best first), the notes of the search (parts left
+    out and why), how many configurations were searched and verified, and the time each
+    stage took (s)."""
 
     ranked: tuple[Ranked, ...]
-    space: Space
+    notes: tuple[str, ...] = ()
+    searched: int = 0
+    verified: int = 0
     timings: dict = field(default_factory=dict, hash=False, compare=False)
 
     @property
@@ -45,35 +58,40 @@ class Design:
         return tuple(r for r in self.ranked if r.verdict.passed)
 
 
-def pick_to_bom(p: Pick, spec: Spec, space: Space) -> Bom:
-    """The BOM of a solver pick: every slot of the circuit's shape filled from the
-    pick's options, the op-amp and (single supply) the fixed bias and coupling parts."""
-    caps = {s.role for s in TOPOLOGIES[space.topology].slots if s.kind == "capacitors"}
-    values = {**p.net.values, **p.ctl.values, **p.stage.values}
-    family = {role: (p.net.c_family if role in caps else p.net.r_family) for role in p.net.values}
-    family.update({role: p.ctl.r_family for role in p.ctl.values})
-    family.update({role: p.stage.r_family for role in p.stage.values})
-    actives = {**dict(p.ctl.parts), "opamp": p.op.opamp}
-    for role, fam, v in space.fixed:
-        family[role], values[role] = fam, v
+def candidate_bom(c: Candidate, spec: Spec, problem: Problem, fixed=()) -> Bom:
+    """The BOM of a search candidate: every slot of its circuit's shape, in slot order."""
+    values, families = dict(c.values), dict(c.families)
+    for role, fam, v in fixed:
+        values[role], families[role] = v, fam
     lines = []
-    for slot in slots_for(space.topology, space.control, p.stage.kind, spec.supply.kind):
-        if slot.role in actives:
-            lines.append(BomLine(slot.designator, slot.role, actives[slot.role], 0.0))
+    for slot in slots_for(problem.topology.name, problem.control.name, c.stage, spec.supply.kind):
+        if slot.role in c.parts:
+            lines.append(BomLine(slot.designator, slot.role, c.parts[slot.role], 0.0))
         elif values.get(slot.role):
-            lines.append(BomLine(slot.designator, slot.role, family[slot.role], values[slot.role]))
-    return Bom(tuple(lines), spec.supply.kind, p.stage.kind, space.topology, space.control)
+            lines.append(BomLine(slot.designator, slot.role, families[slot.role], values[slot.role]))
+    return Bom(tuple(lines), spec.supply.kind, c.stage, problem.topology.name, problem.control.name)
 
 
-def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None, time_limit_s: float = 10.0,
-           workers: int = 2, seed: int = 0, rank_by: tuple[str, ...] | None = None,
-           samples: int = 20_000, progress=None) -> Design:
+def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
+    fixed = ()
+    if spec.supply.kind == "single":
+        fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
+    price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
+    kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
+    return Searcher(problem, price, kinds), fixed
+
+
+def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
+           rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
+           nearest: int | None = 3) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
     Raises :class:`InfeasibleError` when no candidate can meet the spec, naming the
-    requirement that binds and what is achievable. ``progress(done, total)`` is called
-    as candidates are verified (physics and Monte Carlo).
+    requirements that bind, what the best allowed design reaches and what would make
+    it design, with the ``nearest`` failing designs (:mod:`partpick.refusal`; None:
+    a bare refusal, as the runs that work this out use). ``progress(done, total)`` is
+    called as candidates are verified (physics and Monte Carlo).
     """
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
@@ -81,58 +99,231 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     check_spec(spec)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
-    space = build_space(spec, catalog, stock=stock)
+    problem = build_problem(spec, catalog, stock)
+    searcher, fixed = _searcher(spec, catalog, stock, problem)
+    early = structural_refusal(spec, catalog, problem, searcher.pairs, _reach(problem), _hold_text(spec, searcher))
+    if early is not None:
+        raise InfeasibleError(*early)
     t1 = time.perf_counter()
-    timings["enumerate"] = t1 - t0
-    picks = solve(space, n + 2, time_limit_s=time_limit_s, workers=workers, seed=seed)
-    t2 = time.perf_counter()
-    timings["solve"] = t2 - t1
-    if not picks:
-        raise InfeasibleError("the solver found no candidate within its time limit; raise it or relax the spec",
-                              ("search",))
-    total = len(picks) + RETUNE
-    done = [0]
-
-    def verified(p: Pick) -> Ranked:
-        out = _verified(p, spec, space, catalog, samples, seed + 1, stock)
-        done[0] += 1
+    timings["setup"] = t1 - t0
+    batches = [b for lim in problem.limiters for gf in problem.r_families
+               if (b := searcher.configurations(lim, gf)) is not None]
+    pool = _Pool(batches)
+    searched = pool.size
+    t_search = time.perf_counter() - t1
+    verified: list[Ranked] = []
+    budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
+    while len(verified) < budget:
+        c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
+        if c is None or _certified(verified, c, n, rank_by) or c.yield_est < _hopeless(spec):
+            break   # (the pool comes in yield order: what follows cannot pass either)
+        verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem,
+                                samples, seed + 1, fixed))
         if progress is not None:
-            progress(done[0], total)
-        return out
-
-    items = [verified(p) for p in picks]
-    # The solver aimed with the surrogate's pull; verification measured the real one.
-    # Retune the frequency network of the leading candidates with it (same families, same
-    # required gain), so the built circuit lands closer still, and let verification judge
-    # again.
-    topo = TOPOLOGIES[space.topology]
-    price = Pricer(catalog).unit
-    for r in rank(items, rank_by)[:RETUNE]:
-        p = r.pick
-        if not r.verdict.nominal.starts:
-            continue
-        pull = math.log(r.verdict.nominal.freq_hz) - p.net.ln_f0
-        op = p.op
-        net = topo.retune(spec, catalog, p.net, pull, (math.exp(op.ln_r_min), math.exp(op.ln_r_max)), price)
-        if net is not None:
-            items.append(verified(dataclasses.replace(p, net=net)))
-    t3 = time.perf_counter()
-    timings["verify"] = t3 - t2
-    ranked = rank(items, rank_by)[:n]
-    timings["rank"] = time.perf_counter() - t3
+            progress(len(verified), max(n, len(verified)))
+    t2 = time.perf_counter()
+    timings["search"] = t_search
+    timings["verify"] = t2 - t1 - t_search
+    notes = tuple(f"{i}: {w}" for i, w in problem.dropped) + default_notes(spec)
+    ranked = rank(verified, rank_by)
+    timings["rank"] = time.perf_counter() - t2
     if not any(r.verdict.passed for r in ranked):
-        raise InfeasibleError(_verified_failure(ranked), tuple(sorted({c.field for r in ranked
-                                                                       for c in r.verdict.failed()})))
-    return Design(tuple(ranked), space, timings)
+        if nearest is None:
+            raise InfeasibleError("no design meets the spec")
+        raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed))
+    if len(verified) >= MAX_VERIFY:
+        notes += (f"verification stopped at {MAX_VERIFY} candidates",)
+    return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
+
+
+def _reach(problem: Problem) -> tuple[float, float]:
+    """The textbook frequencies the allowed families' arms reach, Hz (lowest, highest)."""
+    spans = [problem.topology.reach_hz(r_fam, c_fam, problem.shelf) for r_fam in problem.r_families
+             for c_fam in problem.c_families]
+    spans = [x for x in spans if all(map(math.isfinite, x))]
+    return (min(x[0] for x in spans), max(x[1] for x in spans)) if spans else (math.nan, math.nan)
+
+
+class _Pool:
+    """The search's candidates in its order (Candidate.key), best first: every
+    configuration's best row from the batches, made into a Candidate only when it comes
+    up, then re-placed by the Monte Carlo model of its yield before it is taken."""
+
+    def __init__(self, batches) -> None:
+        self.batches = batches
+        keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else []
+        src = np.concatenate([np.full(len(b), i) for i, b in enumerate(batches)]) if batches else np.zeros(0, int)
+        row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
+        order = np.lexsort(tuple(reversed(keys))) if batches else np.zeros(0, int)
+        self.src, self.row = src[order], row[order]
+        self.keys = [k[order] for k in keys]
+        self.size = int(order.size)
+        self.at = 0
+        self.placed: list = []      # heap of (key, seq, simulated candidate)
+
+    def _head_key(self) -> tuple | None:
+        if self.at >= self.size:
+            return None
+        return tuple(float(k[self.at]) for k in self.keys)
+
+    def next(self, simulate) -> Candidate | None:
+        """The best candidate left, with its simulated yield (None when none is left)."""
+        while True:
+            head = self._head_key()
+            if self.placed and (head is None or self.placed[0][0] <= head):
+                return heapq.heappop(self.placed)[2]
+            if head is None:
+                return None
+            c = simulate(self.batches[self.src[self.at]].candidate(int(self.row[self.at])))
+            heapq.heappush(self.placed, (c.key(), self.at, c))
+            self.at += 1
+
+
+def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, failing, nearest: int,
+             seed: int) -> tuple[str, tuple[str, ...]]:
+    """The why-not of a refused spec (:func:`partpick.refusal.explain_refusal`), with
+    what the parts allowed cannot do named first."""
+    from partpick.refusal import SAMPLES
+
+    def run(s: Spec, keys=None, st=stock) -> list[Bom]:
+        try:
+            return [r.bom for r in design(s, catalog, stock=st, results=3, rank_by=keys, samples=SAMPLES, seed=seed,
+                                          nearest=None).passing]
+        except InfeasibleError:
+            return []
+
+    def evaluate(s: Spec, bom: Bom) -> Ranked:
+        return evaluate_bom(bom, s, catalog, stock, samples=SAMPLES, seed=seed + 1)
+
+    more = []
+    for kind in ("resistors", "capacitors", "opamps", "limiters"):
+        if spec.parts.of_kind(kind) is not None:
+            boms = run(replace(spec, parts=replace(spec.parts, **{kind: None})))
+            new = sorted({ln.family for b in boms[:1] for ln in b.lines} - set(spec.parts.of_kind(kind)))
+            new = [f for f in new if any(f == x.id for x in catalog.of_kind(kind))]
+            if new:
+                more.append((f"allow {kind} {', '.join(new)}", "the search designs with it"))
+    lead = []
+    if problem.shelf is not None:
+        boms = run(replace(spec, stock=replace(spec.stock, mode="prefer")))
+        if boms:
+            lead.append(("stock quantities", _shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
+    hold = _hold_text(spec, searcher)
+    if hold:
+        more.append(("the frequency tolerance", hold))
+    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead)
+
+
+def _hold_text(spec: Spec, searcher: Searcher) -> str:
+    """When even the best allowed family pair, centred on the target, misses the
+    frequency yield: what it holds, and what to do."""
+    if searcher.best_hold is None or searcher.best_hold[2] >= spec.yield_min_frac:
+        return ""
+    rfa, cfa, hold = searcher.best_hold
+    return (f"even centred on the target, the best allowed families ({rfa.id} resistors "
+            f"{rfa.tolerance_frac * 100:.3g} %, {cfa.id} capacitors {cfa.tolerance_frac * 100:.3g} %) hold "
+            f"+/-{spec.frequency.tolerance_frac * 100:.3g} % in about {hold * 100:.0f} % of builds; allow a tighter "
+            f"family or plan a trim")
+
+
+def _shelf_shortfall(bom: Bom, shelf, builds: int, catalog: Catalog) -> str:
+    """What the shelf lacks for ``bom`` (the best design with the catalog behind the
+    shelf): each value it runs out of, with the designators that need it."""
+    need: dict = {}
+    for ln in bom.lines:
+        need.setdefault((ln.family, ln.value), []).append(ln.ref)
+    resistors = {r.id for r in catalog.resistors}
+    short = []
+    for (fam, value), refs in need.items():
+        have = shelf.quantity(fam, value)
+        if have < len(refs) * builds:
+            what = (units.format_quantity(value, "resistance" if fam in resistors else "capacitance") + " "
+                    if value else "")
+            short.append(f"{what}{fam} for {', '.join(refs)} (needs {len(refs) * builds} for {builds} board(s), the "
+                         f"shelf has {have})")
+    return ("the shelf runs out of " + "; ".join(short) + ": with those added (or stock mode 'prefer') the best "
+            "design uses them")
+
+
+def _hopeless(spec: Spec) -> float:
+    """The estimated yield below which no candidate is verified: the estimates have
+    come out up to about 8 % pessimistic (lower than the Monte Carlo of verification),
+    more where the spec's own failure budget is large."""
+    return spec.yield_min_frac - max(0.08, 1.5 * (1 - spec.yield_min_frac))
+
+
+def _certified(verified: list[Ranked], c: Candidate, n: int, rank_by) -> bool:
+    """Whether the verification may stop before candidate ``c`` (the best of those left
+    by the search's order): n candidates pass, and ``c`` could not beat the n-th of
+    them even if its yield turned out OPTIMISM better than estimated, its frequency
+    landed exactly and its THD a fifth lower -- nor could any candidate after it, which
+    the search ranks no better."""
+    passing = rank([r for r in verified if r.verdict.passed], rank_by)
+    if len(passing) < n:
+        return False
+    nth = passing[n - 1]
+    for key in tuple(rank_by) + ("cost",):
+        if key == "yield":
+            ours, theirs, res = min(1.0, c.yield_est + OPTIMISM), nth.yield_frac, 0.002
+            if ours > theirs + res:
+                return False
+            if ours < theirs - res:
+                return True
+        elif key == "cost":
+            return c.cost >= nth.cost
+        elif key == "thd":
+            if 0.8 * c.thd < nth.thd * 0.95:
+                return False
+        # frequency error, amplitude error, margin, parts: refinement makes these
+        # equal to within resolution for any candidate; the next key decides
+    return True
+
+
+def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed):
+    bom = candidate_bom(c, spec, problem, fixed)
+    circuit = bom.to_circuit(catalog)
+    cond = operating_conditions(spec)["nominal"]
+    loop = build_loop(circuit, cond)
+    lin = linear(circuit, cond, loop)
+    hb = balance(circuit, cond, lin, loop=loop)
+    return circuit, hb
+
+
+def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searcher: Searcher, fixed) -> Candidate:
+    """The candidate with what exact physics at the nominal point measured put back:
+    the frequency network re-chosen for the measured pull (the cheapest of the same
+    required-gain bin landing within resolution), the stage ratio re-chosen for the
+    measured amplitude."""
+    circuit, hb = _nominal(c, spec, catalog, problem, fixed)
+    if hb is None or hb.regime != "limiter":
+        return c
+    values = dict(c.values)
+    pull = math.log(hb.freq_hz / circuit.f0_hz)
+    net = searcher.retune_network(c, pull)
+    if net is not None:
+        values.update(net)
+    if c.stage in STAGE_RATIO:
+        pair = searcher.restage(c, hb.load_peak_v)
+        if pair is not None:
+            values.update(zip(periphery.STAGE_ROLES, pair))
+    if values == c.values:
+        return c
+    return replace(c, values=values, cost=searcher.price.design_cost(values, c.families, c.parts, c.stage))
+
+
+def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem, samples: int, seed: int,
+            fixed) -> Ranked:
+    r = evaluate_bom(candidate_bom(c, spec, problem, fixed), spec, catalog, stock, samples=samples, seed=seed)
+    return replace(r, pick=c)
 
 
 def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples: int = 20_000,
-                 seed: int = 1, pick: Pick | None = None) -> Ranked:
+                 seed: int = 1) -> Ranked:
     """Verify one BOM exactly (physics at every operating point, Monte Carlo yield) as a
     ranked item."""
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
-    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating)
+    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=_points(circuit, spec))
     mc = wc = None
     if v.nominal.starts:
         v, mc, wc = with_yield(v, circuit, bom, catalog, spec, samples=samples, seed=seed)
@@ -141,33 +332,26 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
     thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)
-    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, pick.objective if pick else 0.0, pick, mc, wc)
+    return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, 0.0, None, mc, wc)
 
 
-def _verified(p: Pick, spec: Spec, space: Space, catalog: Catalog, samples: int, seed: int, stock=None) -> Ranked:
-    """Exact verification of one solver pick, with its Monte Carlo yield."""
-    return evaluate_bom(pick_to_bom(p, spec, space), spec, catalog, stock, samples=samples, seed=seed, pick=p)
+_POINTS: dict = {}   # predictions by (circuit, operating points): the why-not's runs judge one BOM often
 
 
-def _verified_failure(ranked: list[Ranked]) -> str:
-    """Which requirement the best candidates still miss after exact verification."""
-    counts: dict[str, int] = {}
-    for r in ranked:
-        for c in r.verdict.failed():
-            counts[c.name] = counts.get(c.name, 0) + 1
-    worst = max(counts, key=counts.get)
-    best = ranked[0]
-    def q(x: float) -> str:  # the value with its unit, 4 digits
-        return units.format_quantity(x, c.dim, 4) if math.isfinite(x) else "-"
+def _points(circuit, spec: Spec) -> dict:
+    """The predictions at the spec's operating points (shared by specs that differ
+    only in their limits: the physics does not read them)."""
+    from partpick.verify import predict
 
-    fails = []
-    for c in best.verdict.failed():
-        limit = " .. ".join(q(x) for x in (c.low, c.high) if x is not None)
-        fails.append(f"{c.name}: {q(c.value)} (limit {'>= ' if c.high is None else '<= ' if c.low is None else ''}"
-                     f"{limit})")
-    fails = "; ".join(fails)
-    return (f"no verified candidate meets the spec; '{worst}' fails in {counts[worst]} of {len(ranked)}; "
-            f"the best candidate misses {fails}")
+    conds = operating_conditions(spec)
+    key = (circuit, tuple(conds.items()))
+    if key not in _POINTS:
+        if len(_POINTS) > 256:
+            _POINTS.clear()
+        nominal = predict(circuit, conds["nominal"])
+        _POINTS[key] = {name: nominal if name == "nominal" else predict(circuit, cond, near=nominal)
+                        for name, cond in conds.items()}
+    return dict(_POINTS[key])
 
 
 def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = None) -> str:
@@ -177,13 +361,13 @@ def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = 
     frequency, amplitude and THD at the load."""
     from partpick.circuits import build_netlist
     from partpick.physics.spice import to_spice
-    from partpick.verify import operating_conditions, predict, transient_cycles_for
+    from partpick.verify import cycles_to_settle, operating_conditions, predict
 
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
     point = predict(circuit, cond)
     if cycles is None:
-        cycles = transient_cycles_for(point.lin, circuit.f0_hz, max(point.osc_peak_v, 1e-3)) if point.starts else 60
+        cycles = cycles_to_settle(circuit, point, max(point.osc_peak_v, 1e-3)) if point.starts else 60
     target = units.format_quantity(spec.frequency.target_hz, "frequency")
     amp = units.Amplitude(point.load_peak_v, "pk").as_kind(spec.amplitude.target.kind)
     predicted = (f"predicted {units.format_quantity(float(f'{point.freq_hz:.6g}'), 'frequency')}, "

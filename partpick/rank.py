@@ -1,8 +1,12 @@
-"""Ranking verified candidates by the spec's ``rank_by`` order.
+"""Ranking verified candidates by the spec's ``rank_by`` order, the way a buyer would.
 
-Candidates that meet every requirement come first. Within each group the keys apply
-in order: yield (Monte Carlo, higher first), frequency error, amplitude error, THD, startup
-margin (higher first), cost, part count (lower first).
+Candidates that meet every requirement come first. Within each group the keys apply in
+order -- yield (Monte Carlo, higher first), frequency error, amplitude error, THD,
+startup margin (higher first), cost, part count (lower first) -- but a difference
+smaller than what the Monte Carlo builds can tell apart is a tie, so the next key
+decides: two yields within two binomial standard errors of the estimate (at least 0.2
+%), two nominal errors or THDs within half the spread the builds themselves show. Cost
+and part count follow the spec's keys when it does not name them.
 """
 
 from __future__ import annotations
@@ -43,31 +47,71 @@ class Ranked:
         return self.mc.yield_frac if self.mc is not None else 0.0
 
 
-def _key(r: Ranked, rank_by: tuple[str, ...]) -> tuple:
+# what a key is, per candidate: (value to minimise, resolution). The resolution is what
+# the Monte Carlo builds can tell apart: two yields within two standard errors of the
+# binomial estimate (and 0.2 % at least), two nominal errors within half the builds'
+# own spread of that figure. Cost and part count are exact.
+def _figure(r: Ranked, key: str) -> tuple[float, float]:
     v = r.verdict
-    values = {
-        "yield": -r.yield_frac,
-        "frequency_error": abs(r.freq_error) if math.isfinite(r.freq_error) else math.inf,
-        "amplitude_error": abs(r.amp_error) if math.isfinite(r.amp_error) else math.inf,
-        "thd": r.thd if math.isfinite(r.thd) else math.inf,
-        "startup_margin": -v.nominal.lin.margin,
-        "cost": r.cost,
-        "parts": r.parts,
-    }
-    keys = list(rank_by) + [k for k in ("frequency_error", "cost", "parts") if k not in rank_by]
-    # frequency error and yield are compared in coarse steps so that a cheaper part
-    # is not passed over for an imperceptible gain (0.01 % and 0.1 % of margin).
-    coarse = {"frequency_error": 1e-4, "yield": 2e-3, "amplitude_error": 1e-3, "thd": 1e-4}
-    out = [0 if v.passed else 1]
-    for k in keys:
-        step = coarse.get(k)
-        out.append(round(values[k] / step) if step and math.isfinite(values[k]) else values[k])
-    # last, the BOM itself: equal candidates come out in the same order on every run
-    return tuple(out) + (r.surrogate, tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines))
+    mc = r.mc
+    stats = mc.stats if mc is not None else {}
+
+    def spread(name: str, scale: float = 1.0) -> float:
+        st = stats.get(name)
+        return 0.5 * st["std"] / scale if st and scale else 0.0
+
+    if key == "yield":
+        p = r.yield_frac
+        n = mc.samples if mc is not None else 1
+        return -p, max(2 * math.sqrt(max(p * (1 - p), 1e-12) / n), 0.002)
+    if key == "frequency_error":
+        f = v.nominal.freq_hz if v.nominal.starts else math.nan
+        return (abs(r.freq_error) if math.isfinite(r.freq_error) else math.inf,
+                max(spread("frequency_hz", f), 1e-4) if math.isfinite(f) else 1e-4)
+    if key == "amplitude_error":
+        a = v.nominal.load_peak_v
+        return (abs(r.amp_error) if math.isfinite(r.amp_error) else math.inf,
+                max(spread("amplitude_v", a), 1e-3) if a > 0 else 1e-3)
+    if key == "thd":
+        return (r.thd if math.isfinite(r.thd) else math.inf, max(spread("thd"), 0.05 * r.thd if r.thd > 0 else 1e-4))
+    if key == "startup_margin":
+        return -v.nominal.lin.margin, max(spread("margin"), 1e-4)
+    if key == "cost":
+        return r.cost, 1e-9
+    return float(r.parts), 0.0
+
+
+KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")
+
+
+def _tiers(items: list[Ranked], keys: tuple[str, ...]) -> list[Ranked]:
+    """Order by the keys lexicographically, each compared to its resolution: the items
+    within the resolution of the best form a tier, ordered by the next key; then the
+    rest, tiered again from their own best (a partition, so the order is transitive)."""
+    if not keys or len(items) <= 1:
+        return sorted(items, key=_final)
+    key, rest = keys[0], keys[1:]
+    figs = {id(r): _figure(r, key) for r in items}
+    pool = sorted(items, key=lambda r: (figs[id(r)][0], _final(r)))
+    out: list[Ranked] = []
+    while pool:
+        best, res = figs[id(pool[0])]
+        tier = [r for r in pool if figs[id(r)][0] <= best + res] if math.isfinite(best) else pool
+        taken = {id(r) for r in tier}
+        pool = [r for r in pool if id(r) not in taken]
+        out += _tiers(tier, rest)
+    return out
+
+
+def _final(r: Ranked) -> tuple:
+    """Equal on every key: the cheaper, then the one with fewer parts, then the BOM's
+    own text, so equal candidates come out in the same order on every run."""
+    return (r.cost, r.parts, tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines))
 
 
 def rank(items: list[Ranked], rank_by: tuple[str, ...]) -> list[Ranked]:
-    """Sort by pass/fail, then the ``rank_by`` keys; equal BOMs keep the first."""
+    """Candidates that meet the spec first, then the ``rank_by`` keys with ties inside
+    what the builds can tell apart (see the module docstring); equal BOMs keep the first."""
     seen = set()
     unique = []
     for r in items:
@@ -75,4 +119,7 @@ def rank(items: list[Ranked], rank_by: tuple[str, ...]) -> list[Ranked]:
         if sig not in seen:
             seen.add(sig)
             unique.append(r)
-    return sorted(unique, key=lambda r: _key(r, rank_by))
+    keys = tuple(rank_by) + tuple(k for k in ("cost", "parts") if k not in rank_by)
+    passing = [r for r in unique if r.verdict.passed]
+    failing = [r for r in unique if not r.verdict.passed]
+    return _tiers(passing, keys) + _tiers(failing, keys)

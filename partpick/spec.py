@@ -12,13 +12,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from partpick import units
-from partpick.catalog import KINDS, Catalog
+from partpick.catalog import CORE_KINDS, KINDS, Catalog
 from partpick.derating import RULES, Derating, read_derating
 from partpick.errors import SpecError
 from partpick.yamlsrc import Fields, Mapping, did_you_mean, parse_yaml, read_text
 
 __all__ = [
-    "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES",
+    "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES", "AMPLITUDE_CONTROLS",
+    "MIN_THD",
     "FrequencyReq", "AmplitudeReq", "SupplyReq", "LoadReq", "TemperatureReq", "PartsChoice",
     "StockRef", "Spec", "check_parts",
 ]
@@ -26,14 +27,34 @@ __all__ = [
 DEFAULT_TOPOLOGY = "wien-bridge"   # the name only: the circuit registry validates it (circuits.check_spec)
 SUPPLY_KINDS = ("dual", "single")
 RANK_KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")
-OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator")
+OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator", "buffered-attenuator")
 STOCK_MODES = ("prefer", "only")
 DEFAULT_RANK = ("yield", "frequency_error", "cost")
+# auto: the search picks the control; the words name the registry's controls
+AMPLITUDE_CONTROLS = ("auto", "diode", "jfet-agc")
+# the parts each choice of control needs families of
+_CONTROL_KINDS = {"auto": (), "diode": ("limiters",), "jfet-agc": ("jfets", "diodes")}
+MIN_THD = 5e-5    # the lowest THD limit partpick verifies (0.005 %): its harmonic models hold to about there
 _OPEN_WORDS = ("open", "none")
+
+# What partpick designs, as ranges every spec value must lie in (SI), so the physics never
+# sees a zero, a subnormal or an absurd magnitude. Wide on purpose: the search says what
+# binds inside them. Facts of the trade, no published source: RC oscillators from a
+# fraction of a hertz to some megahertz; op-amp circuits on supplies up to a few hundred
+# volts; signal loads of ohms to teraohms and up to microfarads; the temperature range
+# over which parts are rated and the junction and tempco models hold.
+FREQUENCY_HZ = (1e-3, 10e6)
+AMPLITUDE_PEAK_V = (1e-3, 1e3)
+SUPPLY_V = (0.5, 200.0)
+LOAD_OHM = (0.1, 1e12)
+LOAD_F = (0.0, 10e-6)
+TEMPERATURE_K = (173.15, 473.15)     # -100 degC .. 200 degC
+MIN_FRACTION = 1e-6                  # 1 ppm: the smallest tolerance, THD or yield read
+SETTLING_S = (1e-6, 1e4)             # settling limits: a microsecond to a few hours
 
 _TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "temperature",
         "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs",
-        "derating")
+        "derating", "amplitude_control", "settling")
 
 
 @dataclass(frozen=True, slots=True)
@@ -113,6 +134,9 @@ class PartsChoice:
     capacitors: tuple[str, ...] | None = None
     opamps: tuple[str, ...] | None = None
     limiters: tuple[str, ...] | None = None
+    jfets: tuple[str, ...] | None = None
+    diodes: tuple[str, ...] | None = None
+    references: tuple[str, ...] | None = None
 
     def of_kind(self, kind: str) -> tuple[str, ...] | None:
         return getattr(self, kind)
@@ -133,7 +157,10 @@ class Spec:
 
     max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9);
     yield_min_frac: share of builds that must meet every requirement (fraction);
-    builds: number of boards built from one BOM (for stock quantities).
+    builds: number of boards built from one BOM (for stock quantities);
+    amplitude_control: 'auto' (the search chooses), 'diode' or 'jfet-agc';
+    settling_max_s: the longest time from power-on until the amplitude stays within its
+    tolerance (s), or None when the spec sets no limit.
     """
 
     name: str
@@ -154,6 +181,8 @@ class Spec:
     output_stage: str
     catalogs: tuple[Path, ...]
     derating: Derating = Derating()
+    amplitude_control: str = "auto"
+    settling_max_s: float | None = None
     source: str = field(default="<spec>", compare=False)
     where: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
@@ -192,6 +221,8 @@ class Spec:
             ("temperature.max", t.max_k, "K"),
             ("temperature.nominal", t.nominal_k, "K"),
             ("distortion.max_thd", self.max_thd_frac, "1"),
+            ("amplitude_control", self.amplitude_control, ""),
+            ("settling.max", self.settling_max_s if self.settling_max_s is not None else "none", "s"),
             ("yield.min", self.yield_min_frac, "1"),
         ]
         for kind in KINDS:
@@ -219,6 +250,9 @@ def _record(where: dict, fields: Fields, *keys: str) -> None:
 def _fraction(fields: Fields, key: str, *, maximum: float, default: float | None = None,
               inclusive: bool = False) -> float:
     value = fields.quantity(key, "fraction", positive=True, default=default)
+    if value < MIN_FRACTION:
+        raise fields.error(key, f"must be at least {units.format_quantity(MIN_FRACTION, 'fraction')} "
+                                f"(got {units.format_quantity(value, 'fraction')})")
     if value > maximum or (value == maximum and not inclusive):
         bound = "<=" if inclusive else "<"
         raise fields.error(key, f"must be {bound} {maximum * 100:g} % (got {value * 100:g} %)")
@@ -240,16 +274,19 @@ def _read(root: Fields, source: str) -> Spec:
     topology = root.text("topology", default=DEFAULT_TOPOLOGY)
 
     fr = root.sub("frequency", ("target", "tolerance"))
-    frequency = FrequencyReq(fr.quantity("target", "frequency", positive=True),
+    frequency = FrequencyReq(fr.quantity("target", "frequency", positive=True, bounds=FREQUENCY_HZ),
                              _fraction(fr, "tolerance", maximum=0.5))
 
     am = root.sub("amplitude", ("target", "tolerance"))
     amplitude = AmplitudeReq(am.amplitude("target"), _fraction(am, "tolerance", maximum=1.0))
+    if not AMPLITUDE_PEAK_V[0] <= amplitude.peak_v <= AMPLITUDE_PEAK_V[1]:
+        lo, hi = (units.format_quantity(v, "voltage") for v in AMPLITUDE_PEAK_V)
+        raise am.error("target", f"must lie within {lo} .. {hi} peak (got {am.node.items['target'][1].text})")
 
     su = root.sub("supply", ("kind", "min", "max"))
     kind = su.text("kind", choices=SUPPLY_KINDS)
-    smin = su.quantity("min", "voltage", positive=True)
-    smax = su.quantity("max", "voltage", positive=True, default=smin)
+    smin = su.quantity("min", "voltage", positive=True, bounds=SUPPLY_V)
+    smax = su.quantity("max", "voltage", positive=True, default=smin, bounds=SUPPLY_V)
     if smin > smax:
         raise su.error("min", f"must not exceed supply.max (got {smin:g} V > {smax:g} V)")
     supply = SupplyReq(kind, smin, smax)
@@ -258,28 +295,31 @@ def _read(root: Fields, source: str) -> Spec:
     if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
         r_load = math.inf
     else:
-        r_load = lo.quantity("resistance", "resistance", positive=True)
-    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0))
+        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
+    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
 
     te = root.sub("temperature", ("min", "max", "nominal"), required=False)
     if te is None:
         temperature = TemperatureReq(298.15, 298.15, 298.15)
     else:
-        tmin = te.quantity("min", "temperature")
-        tmax = te.quantity("max", "temperature")
-        for key, value in (("min", tmin), ("max", tmax)):
-            if value <= 0:
-                raise te.error(key, "must be above absolute zero")
+        tmin = te.quantity("min", "temperature", bounds=TEMPERATURE_K)
+        tmax = te.quantity("max", "temperature", bounds=TEMPERATURE_K)
         if tmin > tmax:
             raise te.error("min", f"must not exceed temperature.max (got {tmin - 273.15:g} degC > "
                                   f"{tmax - 273.15:g} degC)")
-        tnom = te.quantity("nominal", "temperature", default=min(max(298.15, tmin), tmax))
+        tnom = te.quantity("nominal", "temperature", default=min(max(298.15, tmin), tmax), bounds=TEMPERATURE_K)
         if not tmin <= tnom <= tmax:
             raise te.error("nominal", "must lie within temperature.min..max")
         temperature = TemperatureReq(tmin, tmax, tnom)
 
     di = root.sub("distortion", ("max_thd",), required=False)
     max_thd = _fraction(di, "max_thd", maximum=1.0) if di is not None else 0.05
+    if max_thd < MIN_THD * (1 - 1e-9):
+        raise di.error("max_thd", f"must be >= {MIN_THD * 100:g} %, the lowest THD partpick verifies "
+                                  f"(got {max_thd * 100:g} %)")
+
+    se = root.sub("settling", ("max",), required=False)
+    settling = se.quantity("max", "time", positive=True, bounds=SETTLING_S) if se is not None else None
 
     yi = root.sub("yield", ("min",), required=False)
     yield_min = _fraction(yi, "min", maximum=1.0, inclusive=True) if yi is not None else 0.99
@@ -319,7 +359,7 @@ def _read(root: Fields, source: str) -> Spec:
 
     spec = Spec(
         name=name,
-        description=root.text("description", default=""),
+        description=root.text("description", default="", multiline=True),
         topology=topology,
         frequency=frequency,
         amplitude=amplitude,
@@ -336,26 +376,32 @@ def _read(root: Fields, source: str) -> Spec:
         output_stage=root.text("output_stage", choices=OUTPUT_STAGES, default="auto"),
         catalogs=_relative_paths(root, "catalogs", base),
         derating=read_derating(root, "derating", base),
+        amplitude_control=root.text("amplitude_control", choices=AMPLITUDE_CONTROLS, default="auto"),
+        settling_max_s=settling,
         source=source,
         where=where,
     )
     _record(where, root, *_TOP)
-    for sub in (fr, am, su, lo, te, di, yi):
+    for sub in (fr, am, su, lo, te, di, yi, se):
         if sub is not None:
             _record(where, sub, *sub.allowed)
     return spec
 
 
 def check_parts(spec: Spec, catalog: Catalog) -> None:
-    """Refuse family ids the catalog does not hold, and kinds left with no family.
+    """Refuse family ids the catalog does not hold, and kinds left with no family (the
+    kinds every circuit needs, and those of the amplitude control the spec names).
 
     Raises :class:`SpecError` at the spec line of the offending id.
     """
+    needed = CORE_KINDS + _CONTROL_KINDS[spec.amplitude_control]
+    if spec.amplitude_control == "auto" and not all(catalog.ids(k) for k in _CONTROL_KINDS["jfet-agc"]):
+        needed += _CONTROL_KINDS["diode"]  # without the JFET control's parts, 'auto' means the limiter
     for kind in KINDS:
         ids = spec.parts.of_kind(kind)
         known = catalog.ids(kind)
         if ids is None:
-            if not known:
+            if not known and kind in needed:
                 raise SpecError(f"needs at least one {kind[:-1]} family, and the catalog has none "
                                 f"(read {', '.join(catalog.sources)})", source=spec.source,
                                 line=spec.line_of("parts"), field=f"parts.{kind}")

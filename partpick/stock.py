@@ -3,14 +3,12 @@
 Columns (header row required, any order): ``family``, ``value``, ``quantity``, and
 optionally ``unit_price`` (overrides the catalog price) and ``note`` (location or
 remark). ``value`` is a resistance or capacitance for those families (SI prefixes or
-RKM code) and empty for op-amps and limiters. Lines starting with ``#`` are comments.
-Every refusal names file:line:column.
+RKM code) and empty for active parts (op-amps, limiters, JFETs, diodes, references).
+Lines starting with ``#`` are comments. Every refusal names file:line:column.
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -18,7 +16,7 @@ from pathlib import Path
 from partpick import series, units
 from partpick.catalog import Catalog
 from partpick.errors import StockError, UnitError
-from partpick.yamlsrc import did_you_mean, read_text
+from partpick.yamlsrc import did_you_mean, read_csv_rows, read_text
 
 __all__ = ["StockItem", "Stock", "load_stock", "parse_stock"]
 
@@ -69,15 +67,15 @@ def parse_stock(text: str, source: str, catalog: Catalog) -> Stock:
     if not lines:
         raise StockError("is empty; expected a header row 'family,value,quantity[,unit_price][,note]'",
                          source=source, line=1)
-    try:
-        rows = list(csv.reader(io.StringIO("\n".join(ln for _, ln in lines))))
-    except csv.Error as exc:
-        raise StockError(f"is not valid CSV: {exc}", source=source) from None
+    rows = read_csv_rows(lines, source, StockError)
     header_line, header = lines[0][0], [h.strip() for h in rows[0]]
     for col, name in enumerate(header, start=1):
         if name not in _COLUMNS:
             raise StockError(f"unknown column '{name}'; expected {', '.join(_COLUMNS)}"
                              + did_you_mean(name, _COLUMNS), source=source, line=header_line, column=col)
+        if name in header[:col - 1]:
+            raise StockError(f"repeats column '{name}' (first in column {header.index(name) + 1})",
+                             source=source, line=header_line, column=col)
     for name in _REQUIRED:
         if name not in header:
             raise StockError(f"missing column '{name}'", source=source, line=header_line)
@@ -112,18 +110,17 @@ def _item(row, index, line, source, catalog: Catalog, before: list[StockItem]) -
             value = units.parse_quantity(text, _VALUE_DIM[kind])
         except UnitError as exc:
             raise fail(exc.message, col, "value") from None
+        if not value > 0:
+            raise fail(f"must be > 0 {units.unit_symbol(_VALUE_DIM[kind])} (got '{text}')", col, "value")
         lo, hi = (fam.min_ohm, fam.max_ohm) if kind == "resistors" else (fam.min_f, fam.max_f)
         if not series.is_preferred(fam.series, value) or not lo * (1 - 1e-9) <= value <= hi * (1 + 1e-9):
             raise fail(f"'{text}' is not an {fam.series} value within the range of family '{family}'", col, "value")
     elif text not in ("", "-"):
         raise fail(f"must be empty for {kind} (got '{text}')", col, "value")
     qty_text, col = cell("quantity")
-    try:
-        quantity = int(qty_text)
-    except ValueError:
-        raise fail(f"must be a whole number (got '{qty_text}')", col, "quantity") from None
-    if quantity < 0:
-        raise fail(f"must be >= 0 (got {quantity})", col, "quantity")
+    if not qty_text.isdigit() or len(qty_text) > 9:
+        raise fail(f"must be a whole number 0 .. 999999999 (got '{qty_text}')", col, "quantity")
+    quantity = int(qty_text)
     price_text, col = cell("unit_price")
     price = None
     if price_text:
@@ -131,7 +128,7 @@ def _item(row, index, line, source, catalog: Catalog, before: list[StockItem]) -
             price = float(price_text)
         except ValueError:
             raise fail(f"must be a number (got '{price_text}')", col, "unit_price") from None
-        if not math.isfinite(price) or price < 0:
+        if not math.isfinite(price) or not 0 <= price <= 1e9:
             raise fail(f"must be a price >= 0 (got '{price_text}')", col, "unit_price")
     for other in before:
         if other.family == family and math.isclose(other.value, value, rel_tol=1e-9):

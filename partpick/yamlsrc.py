@@ -9,6 +9,7 @@ the raw scalar text and parses quantities itself (:mod:`partpick.units`), so
 
 from __future__ import annotations
 
+import csv
 import difflib
 import math
 from dataclasses import dataclass
@@ -19,8 +20,10 @@ import yaml
 
 from partpick import units
 from partpick.errors import InputError, UnitError
+from partpick.fileio import read_bytes
 
-__all__ = ["Scalar", "Mapping", "Sequence", "Node", "read_yaml", "parse_yaml", "Fields", "read_text", "did_you_mean"]
+__all__ = ["Scalar", "Mapping", "Sequence", "Node", "read_yaml", "parse_yaml", "Fields", "read_text", "did_you_mean",
+           "read_csv_rows"]
 
 _MAX_DEPTH = 32
 
@@ -59,21 +62,28 @@ Node = Scalar | Mapping | Sequence
 
 
 def read_text(path: str | Path, error_cls: type[InputError] = InputError) -> str:
-    """Read a UTF-8 text file; unreadable or undecodable files raise ``error_cls``."""
+    """Read a UTF-8 text file (a regular file, bounded: :func:`partpick.fileio.read_bytes`);
+    unreadable or undecodable files raise ``error_cls``."""
     source = str(path)
-    try:
-        data = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise error_cls("file not found", source=source) from None
-    except IsADirectoryError:
-        raise error_cls("is a directory, expected a file", source=source) from None
-    except OSError as exc:
-        raise error_cls(f"cannot read file ({exc.strerror or exc})", source=source) from None
+    data = read_bytes(path, error_cls)
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         line = data[: exc.start].count(b"\n") + 1
         raise error_cls("is not UTF-8 text", source=source, line=line) from None
+
+
+def read_csv_rows(lines: list[tuple[int, str]], source: str, error_cls: type[InputError]) -> list[list[str]]:
+    """The cells of CSV ``lines`` ((line number, text) pairs, one record each): a cell
+    the csv module refuses (an unclosed quote, a cell over its size limit) is
+    ``error_cls`` at its line."""
+    rows = []
+    for line, text in lines:
+        try:
+            rows.append(next(csv.reader([text]), []))
+        except csv.Error as exc:
+            raise error_cls(f"is not valid CSV: {exc}", source=source, line=line) from None
+    return rows
 
 
 def read_yaml(path: str | Path, error_cls: type[InputError] = InputError) -> Node:
@@ -90,14 +100,38 @@ def parse_yaml(text: str, source: str, error_cls: type[InputError] = InputError)
         line = mark.line + 1 if mark is not None else None
         problem = (exc.problem or exc.context or "invalid YAML").strip()
         raise error_cls(f"is not valid YAML: {problem}", source=source, line=line) from None
-    except (yaml.YAMLError, RecursionError) as exc:
+    except yaml.reader.ReaderError as exc:
+        line = text.count("\n", 0, exc.position) + 1
+        what = f"U+{exc.character:04X}" if isinstance(exc.character, int) else repr(exc.character)
+        raise error_cls(f"holds the non-printable character {what}, which YAML does not allow; remove it",
+                        source=source, line=line) from None
+    except RecursionError:
+        raise error_cls(f"nests deeper than {_MAX_DEPTH} levels", source=source, line=_too_deep(text)) from None
+    except yaml.YAMLError as exc:
         raise error_cls(f"is not valid YAML: {exc.__class__.__name__}", source=source) from None
     if root is None:
         raise error_cls("is empty; expected a YAML mapping of fields", source=source, line=1)
-    return _convert(root, source, error_cls, set(), 0)
+    return _convert(root, source, error_cls, set(), 0, "")
 
 
-def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: set, depth: int) -> Node:
+def _too_deep(text: str) -> int | None:
+    """The line where the nesting first passes the limit, found with PyYAML's scanner
+    (which does not recurse)."""
+    opens = (yaml.BlockMappingStartToken, yaml.BlockSequenceStartToken, yaml.FlowMappingStartToken,
+             yaml.FlowSequenceStartToken)
+    closes = (yaml.BlockEndToken, yaml.FlowMappingEndToken, yaml.FlowSequenceEndToken)
+    depth = 0
+    try:
+        for token in yaml.scan(text, Loader=yaml.SafeLoader):
+            depth += isinstance(token, opens) - isinstance(token, closes)
+            if depth > _MAX_DEPTH:
+                return token.start_mark.line + 1
+    except yaml.YAMLError:
+        return None
+    return None
+
+
+def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: set, depth: int, path: str) -> Node:
     line = node.start_mark.line + 1
     # A repeated node object means an alias (*name): refused, so one bad anchor
     # cannot blow a small file up into a huge tree.
@@ -107,9 +141,14 @@ def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: se
         raise error_cls(f"nests deeper than {_MAX_DEPTH} levels", source=source, line=line)
     seen.add(id(node))
     if isinstance(node, yaml.ScalarNode):
+        bad = next((c for c in node.value if 0xD800 <= ord(c) <= 0xDFFF), None)
+        if bad is not None:
+            raise error_cls(f"holds a lone surrogate U+{ord(bad):04X} (an escape such as '\\ud83d' that is half of "
+                            "a character); write the character itself", source=source, line=line, field=path or None)
         return Scalar(node.value, node.tag, line, quoted=node.style in ("'", '"'))
     if isinstance(node, yaml.SequenceNode):
-        return Sequence(tuple(_convert(n, source, error_cls, seen, depth + 1) for n in node.value), line)
+        return Sequence(tuple(_convert(n, source, error_cls, seen, depth + 1, f"{path}[{i}]")
+                              for i, n in enumerate(node.value)), line)
     items: dict = {}
     for key_node, value_node in node.value:
         key_line = key_node.start_mark.line + 1
@@ -118,8 +157,9 @@ def _convert(node: yaml.Node, source: str, error_cls: type[InputError], seen: se
         key = key_node.value
         if key in items:
             first = items[key][0]
-            raise error_cls(f"duplicate key '{key}' (first on line {first})", source=source, line=key_line)
-        items[key] = (key_line, _convert(value_node, source, error_cls, seen, depth + 1))
+            raise error_cls(f"duplicate key '{key}' (first on line {first})", source=source, line=key_line,
+                            field=f"{path}.{key}" if path else key)
+        items[key] = (key_line, _convert(value_node, source, error_cls, seen, depth + 1, f"{path}.{key}" if path else key))
     return Mapping(items, line)
 
 
@@ -224,8 +264,11 @@ class Fields:
         required: bool = True,
         positive: bool = False,
         nonnegative: bool = False,
+        bounds: tuple[float, float] | None = None,
     ) -> float | None:
-        """A quantity in SI (see :func:`partpick.units.parse_quantity`)."""
+        """A quantity in SI (see :func:`partpick.units.parse_quantity`), within ``bounds``
+        (SI, inclusive; for magnitudes that keep the physics in a sane range) when
+        given. A fraction must carry its unit: a bare ``0.3`` could mean 0.3 % or 30 %."""
         if not self.has(key):
             if default is not None or not required:
                 return default
@@ -237,10 +280,16 @@ class Fields:
             value = units.parse_quantity(node.text, dim)
         except UnitError as exc:
             raise self.error(key, exc.message) from None
+        if dim == "fraction" and node.tag.endswith((":int", ":float")):
+            raise self.error(key, f"needs its unit: write '{node.text.strip()} %' or "
+                                  f"'{units.format_quantity(value, 'fraction')}' (got bare {node.text.strip()})")
         if positive and not value > 0:
             raise self.error(key, f"must be > 0 {units.unit_symbol(dim)} (got {node.text})")
         if nonnegative and not value >= 0:
             raise self.error(key, f"must be >= 0 {units.unit_symbol(dim)} (got {node.text})")
+        if bounds is not None and not bounds[0] <= value <= bounds[1]:
+            lo, hi = (units.format_quantity(b, dim) for b in bounds)
+            raise self.error(key, f"must lie within {lo} .. {hi} (got {node.text})")
         return value
 
     def number(
@@ -277,8 +326,10 @@ class Fields:
             raise self.error(key, f"must be > 0 V (got {node.text})")
         return amp
 
-    def text(self, key: str, *, choices: Iterable[str] | None = None, default: str | None = None) -> str:
-        """A plain word, optionally one of ``choices``."""
+    def text(self, key: str, *, choices: Iterable[str] | None = None, default: str | None = None,
+             multiline: bool = False) -> str:
+        """A plain word (one line of printable text, or several with ``multiline``),
+        optionally one of ``choices``."""
         if not self.has(key):
             if default is not None:
                 return default
@@ -287,6 +338,8 @@ class Fields:
         value = node.text.strip()
         if not value:
             raise self.error(key, "must not be empty")
+        if not (value.replace("\n", " ").replace("\t", " ") if multiline else value).isprintable():
+            raise self.error(key, f"must be one line of printable text (got '{value}')")
         if choices is not None:
             choices = tuple(choices)
             if value not in choices:
@@ -335,12 +388,16 @@ class Fields:
         if isinstance(node, Scalar):
             if node.text.strip() == all_word:
                 return None
+            if not node.text.strip().isprintable():
+                raise self.error(key, f"must be a name of printable text (got '{node.text}')")
             return ((node.text.strip(), node.line),) if node.text.strip() else self._names_error(key)
         if isinstance(node, Sequence):
             out = []
             for item in node.items:
                 if not isinstance(item, Scalar) or not item.text.strip() or item.is_null:
                     raise self.error(key, f"must list names, got {_kind_name(item)}", line=item.line)
+                if not item.text.strip().isprintable():
+                    raise self.error(key, f"must list names of printable text (got '{item.text}')", line=item.line)
                 out.append((item.text.strip(), item.line))
             return tuple(out)  # an empty list allows nothing of this kind (the search says so)
         return self._names_error(key)

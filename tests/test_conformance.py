@@ -8,8 +8,9 @@
 - its loop (what the physics solves) has the same natural frequencies as that
   derivation with the op-amps' small-signal model;
 - its netlist simulated by ngspice agrees with partpick's prediction;
-- its search hooks agree with brute force: the solver's top N equals exhaustive
-  enumeration on a reduced space, and every option's figures equal the equations.
+- its search hooks agree with its equations: every table row's figures and the gain
+  network's conductances and slopes (the search against brute force is in
+  tests/test_search_optimality.py).
 
 Every registered topology and every control that fits one of its ports needs an example
 in EXAMPLES below.
@@ -28,7 +29,7 @@ from partpick.circuits import (CONTROLS, TOPOLOGIES, Conditions, all_slots, buil
                                periphery)
 from partpick.physics.ngspice import ngspice_available, run_ngspice
 from partpick.physics.waveform import analyse
-from partpick.verify import predict, transient_cycles_for
+from partpick.verify import cycles_to_settle, predict
 from tests import mna
 
 
@@ -38,6 +39,13 @@ def _wien(cat, control, **extra):
     if control == "diode-limiter":
         parts["limiter"] = cat.find("limiters", "d-si-signal")
         values.setdefault("rd", 4.7e3)
+    if control == "jfet-agc":
+        # the JFET across Rg behind R10, the gate linearised, an integrator with its zero,
+        # ripple capacitor and clamp, the reference divider from the positive rail
+        parts.update(jfet=cat.find("jfets", "jf-n-gp"), detector=cat.find("diodes", "dd-si-signal"),
+                     clamp=cat.find("diodes", "dd-si-signal"))
+        values.update(rg=47e3, rf=26e3, agc_rs=22e3, agc_rla=220e3, agc_rlb=220e3, agc_ch=68e-9, agc_rb=220e3,
+                      agc_ri=150e3, agc_ci=680e-9, agc_rz=15e3, agc_cp=68e-9, agc_rr1=12e3, agc_rr2=1e3)
     return make_circuit("wien-bridge", control, values, parts, stage="follower")
 
 
@@ -45,6 +53,7 @@ def _wien(cat, control, **extra):
 EXAMPLES = {
     ("wien-bridge", "diode-limiter"): lambda cat: _wien(cat, "diode-limiter"),
     ("wien-bridge", "none"): lambda cat: _wien(cat, "none", rf=26e3),
+    ("wien-bridge", "jfet-agc"): lambda cat: _wien(cat, "jfet-agc"),
 }
 COND = Conditions(12.0, 298.15, 10e3, 100e-12)
 
@@ -128,7 +137,7 @@ def test_loop_against_symbolic_netlist(pair, demo_catalog):
 def test_netlist_in_ngspice_agrees_with_prediction(pair, demo_catalog):
     c = EXAMPLES[pair](demo_catalog)
     point = predict(c, COND)
-    cycles = transient_cycles_for(point.lin, c.f0_hz, max(point.osc_peak_v, 0.05)) if point.starts else 80
+    cycles = cycles_to_settle(c, point, max(point.osc_peak_v, 0.05)) if point.starts else 80
     t, v = run_ngspice(build_netlist(c, COND), cycles=cycles)
     st = analyse(t, v["load"])
     assert (st is not None and st.peak_v > 0.05 and not st.decaying) == point.starts
@@ -151,40 +160,66 @@ parts: {{resistors: [mf-1], capacitors: [c0g-1], opamps: [oa-jfet-4m, oa-audio-1
 """
 
 
-@pytest.fixture(scope="module")
-def spaces(demo_catalog):
-    from partpick.search.space import build_space
-    from partpick.spec import Spec
-
-    return {name: build_space(Spec.from_text(SPEC.format(topology=name), "conformance.yaml"), demo_catalog)
-            for name in TOPOLOGIES}
-
-
 @pytest.mark.parametrize("name", list(TOPOLOGIES))
-def test_search_hooks_against_brute_force(name, spaces):
-    from partpick.search.solver import solve
-    from partpick.search.space import enumerate_best
-
-    space = spaces[name]
+def test_search_hooks_agree_with_the_equations(name, demo_catalog):
+    """The tables and gain-network hooks the search reads carry what the topology's own
+    equations give (f0, required gain, gain), checked row by row and by finite
+    differences; the search's optimality against brute force is in
+    tests/test_search_optimality.py."""
     topo = TOPOLOGIES[name]
-    for net in space.nets:  # every option carries what its values give by the equations
-        assert net.ln_f0 == pytest.approx(math.log(topo.f0_hz(net.values)), abs=1e-12)
-        assert net.ln_k == pytest.approx(math.log(topo.required_gain(net.values)), abs=1e-12)
-    for ctl in space.ctls:
-        assert ctl.ln_g == pytest.approx(math.log(topo.gain(ctl.values)), abs=1e-12)
-    # a reduced space: every k-th option plus those of the full space's best choices, so it
-    # holds good BOMs and plenty of bad ones
-    best = solve(space, 6)
+    rf, cf = demo_catalog.find("resistors", "mf-1"), demo_catalog.find("capacitors", "c0g-1")
+    ln_f = math.log(2e3)
+    table = topo.network_table(rf, cf, ln_f - 0.02, ln_f + 0.02)
+    assert len(table) > 100
+    rng = np.random.default_rng(3)
+    for i in rng.choice(len(table), 50, replace=False):
+        values = dict(zip(table.roles, table.values[i]))
+        assert table.ln_f0[i] == pytest.approx(math.log(topo.f0_hz(values)), abs=1e-12)
+        assert table.ln_k[i] == pytest.approx(math.log(topo.required_gain(values)), abs=1e-12)
+        assert ln_f - 0.02 - 1e-12 <= table.ln_f0[i] <= ln_f + 0.02 + 1e-12
+    assert np.all(np.diff(table.ln_f0) >= 0)
+    r_gnd = 10e3
+    for k_need, r_fb in ((2.9, 22e3), (3.0, 21e3), (3.4, 26.1e3)):
+        gv = topo.gain_values(r_gnd, r_fb)
+        gain = float(topo.gain(gv))
+        g = float(topo.port_conductance(r_gnd, r_fb, k_need))
+        # the branch conductance g across the port brings the gain to the required one
+        loaded = topo.gain_values(r_gnd, 1 / (1 / r_fb + g))
+        assert float(topo.gain(loaded)) == pytest.approx(k_need, rel=1e-12)
+        # slope of that conductance in the gain excess m = ln(G/K), at a fixed K
+        h = 1e-6
+        up = float(topo.port_conductance(r_gnd, r_fb, k_need * math.exp(-h)))
+        assert float(topo.port_conductance_slope(r_gnd, r_fb, k_need)) == pytest.approx((up - g) / h, rel=1e-4)
+        # d ln G / d ln R of the gain resistors
+        bumped = float(topo.gain(topo.gain_values(r_gnd, r_fb * (1 + h))))
+        assert float(topo.gain_sensitivity(gain)) == pytest.approx(math.log(bumped / gain) / math.log1p(h), rel=1e-4)
 
-    def keep(items, extra, count):
-        return tuple(dict.fromkeys([*items[:count], *extra]))
 
-    small = dataclasses.replace(space, nets=keep(space.nets[::max(len(space.nets) // 25, 1)], [p.net for p in best], 40),
-                                ctls=keep(space.ctls, [p.ctl for p in best], 12),
-                                stages=keep(space.stages, [p.stage for p in best], 4))
-    assert len(small.nets) * len(small.ctls) * len(small.stages) * len(small.ops) >= 500
-    exhaustive = enumerate_best(small, 5)
-    assert exhaustive, "the reduced space must hold feasible choices for the comparison to mean anything"
-    ours = solve(small, 5)
-    assert [p.objective for p in ours] == [p.objective for p in exhaustive]
-    assert {p.key() for p in ours} == {p.key() for p in exhaustive}
+def test_wien_harmonic_transfer_against_the_divider():
+    """thd_transfer rests on the Wien network's transfer at n times the oscillation
+    frequency, 1 / (K + j p (n - 1/n)): checked against Zp / (Zs + Zp) written out with
+    sympy for unequal arms."""
+    import sympy as sp
+
+    rs, cs, rp, cp, n = sp.symbols("rs cs rp cp n", positive=True)
+    w = n / sp.sqrt(rs * rp * cs * cp)
+    zs = rs + 1 / (sp.I * w * cs)
+    zp = rp / (1 + sp.I * w * rp * cp)
+    beta = zp / (zs + zp)
+    k = 1 + rs / rp + cp / cs
+    p = sp.sqrt(rs * cp / (rp * cs))
+    closed = 1 / (k + sp.I * p * (n - 1 / n))
+    for vals in ({rs: 10e3, cs: 10e-9, rp: 12e3, cp: 8.2e-9, n: 3}, {rs: 4.7e3, cs: 22e-9, rp: 3.9e3, cp: 27e-9, n: 5}):
+        assert complex(beta.subs(vals).evalf()) == pytest.approx(complex(closed.subs(vals).evalf()), rel=1e-12)
+    topo = TOPOLOGIES["wien-bridge"]
+    # equal arms at gain 3 are the reference: no change
+    assert float(topo.thd_transfer(np.array([3.0]))[0]) == pytest.approx(1.0)
+    arms = np.array([[10e3, 10e-9, 12e3, 8.2e-9]])
+    kk = 1 + 10e3 / 12e3 + 8.2 / 10
+    pp = math.sqrt(10e3 * 8.2e-9 / (12e3 * 10e-9))
+    s3 = 3 - 1 / 3
+
+    def t(k, p):
+        return (k - 1) ** 2 / k * math.sqrt(k ** 2 + (p * s3) ** 2) / (p * s3)
+
+    assert float(topo.thd_transfer(np.array([kk]), arms)[0]) == pytest.approx(t(kk, pp) / t(3, 1), rel=1e-12)

@@ -54,8 +54,9 @@ def test_every_demo_spec_gets_passing_ranked_boms(designs, path):
 @pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
 def test_top_candidate_lands_on_target_in_ngspice(designs, path):
     # The built circuit (nominal parts, nominal supply and temperature) in the
-    # independent simulator: within 0.3 % of the target frequency, and within the
-    # amplitude tolerance at the load.
+    # independent simulator: where partpick predicts it (0.15 %), well inside the
+    # frequency tolerance (a quarter of it: the ranking may trade nominal error inside
+    # the tolerance for cost), and within the amplitude tolerance at the load.
     spec = Spec.from_yaml(path)
     best = designs[path.stem].ranked[0]
     cond = operating_conditions(spec)["nominal"]
@@ -64,7 +65,8 @@ def test_top_candidate_lands_on_target_in_ngspice(designs, path):
     t, v = run_ngspice(build_netlist(best.circuit, cond), cycles=cycles)
     st = analyse(t, v["load"])
     assert st is not None and st.settled
-    assert st.freq_hz == pytest.approx(spec.frequency.target_hz, rel=0.003)
+    assert st.freq_hz == pytest.approx(point.freq_hz, rel=0.0015)
+    assert st.freq_hz == pytest.approx(spec.frequency.target_hz, rel=spec.frequency.tolerance_frac / 4)
     assert st.peak_v == pytest.approx(spec.amplitude.peak_v, rel=spec.amplitude.tolerance_frac)
 
 
@@ -160,7 +162,12 @@ def test_yield_ranks_and_filters():
     spec = Spec.from_yaml(SPECS / "lvdt-exciter.yaml")
     passing = [c for c in data if c["passed"]]
     assert passing
-    assert [c["yield"] for c in passing] == sorted((c["yield"] for c in passing), reverse=True)
+    # yields closer than the builds can tell apart (two binomial standard errors, at
+    # least 0.2 %: README, "How ranking works") are ties that cost decides; beyond that
+    # a higher yield always ranks first
+    for a, b in zip(passing, passing[1:]):
+        res = max(2 * (a["yield"] * (1 - a["yield"]) / 5000) ** 0.5, 0.002)
+        assert a["yield"] >= b["yield"] - res or a["yield"] > b["yield"]
     for c in data:
         assert c["samples"] == 5000
         assert (c["yield"] >= spec.yield_min_frac) or not c["passed"]
@@ -183,6 +190,6 @@ def test_quiet_verbose_and_report_flag(tmp_path):
     loud = run("design", SPECS / "seismic-cal-20hz.yaml", "--catalog", CATALOGS, "-v", "-n", "2", "--samples", "2000",
                "--report", rep)
     assert loud.exit_code == 0
-    assert "time per stage: enumerate" in loud.output and "not considered:" in loud.output
+    assert "time per stage: setup" in loud.output and "not considered:" in loud.output
     assert "\x1b[" not in loud.output  # no colour when not on a terminal
     assert 'id="verdict"' in rep.read_text(encoding="utf-8")

@@ -87,7 +87,9 @@ def test_report_renders_in_chromium(tmp_path, path):
     schematic = re.search(r'<div id="schematic">(.*?)</div>', html, re.S).group(1)
     assert schematic.lstrip().startswith("<svg")
     words = {w for t in re.findall(r">([^<>]+)<", schematic) for w in t.split()}
-    assert len(rows) >= 8
+    # at least the arms' resistor and capacitor, the gain network, the limiter and the
+    # op-amp (equal values share a purchasing line: R1,R2)
+    assert len(rows) >= 5
     for row in rows:
         cell = dict(zip(head, row))
         for ref in cell["designators"].split(","):
@@ -105,7 +107,9 @@ def test_report_renders_in_chromium(tmp_path, path):
     shot = tmp_path / "schematic.png"
     _chromium(tmp_path, f"--screenshot={shot}", "--window-size=1100,760", alone.as_uri())
     tiles = _ink_tiles(shot, 3, 3)
-    assert sum(map(sum, tiles)) >= 7, tiles
+    # a drawing, not an empty frame: ink in every band, across at least two thirds (a
+    # design without an output stage is the narrowest)
+    assert all(sum(row) >= 2 for row in tiles), tiles
 
 
 def yaml_fields(path) -> dict:

@@ -1,11 +1,11 @@
 """What the plug-ins' search hooks offer the search, and the small statistics they share.
 
-A topology offers **network options** (values of its frequency-setting slots with the
-figures the search needs: ln f0, the required gain, the tolerance losses), an amplitude
-control offers **control options** (its slots and the topology's gain network, with a
-surrogate of the amplitude, THD and frequency pull it sets), the periphery offers
-**stage options**. Each lists the purchasing lines it adds as (family, value, quantity).
-Logarithms are natural: frequencies in ln Hz, amplitudes in ln V, gains in nepers.
+A topology offers **network tables** (:class:`NetTable`: values of its
+frequency-setting slots with the figures the search needs: ln f0, the required gain, the
+tolerance spreads); an amplitude control that has a design rule of its own offers
+**control designs** (:class:`ControlDesign`: its slots and the gain network it needs,
+with what its physics predicts: amplitude, THD, pull, settling). Logarithms are natural:
+frequencies in ln Hz, amplitudes in ln V, gains in nepers.
 """
 
 from __future__ import annotations
@@ -14,99 +14,81 @@ import math
 from dataclasses import dataclass
 from statistics import NormalDist
 
-from partpick.circuits.base import Values
-
-__all__ = ["NetOption", "CtlOption", "StageOption", "merge_lines", "nearest", "sigma", "z_of", "dt_of",
-           "cap_tempco", "values_of", "resistor_families", "arm_capacitor_families", "SLOPE", "slope",
-           "AMP_SLOPE_MAX", "DM_MAX"]
-
-SLOPE = 1000                # surrogate slopes are kept as multiples of 1/SLOPE
-DM_MAX = 0.02               # nepers: how far from its reference gain excess a linearised surrogate is trusted
-AMP_SLOPE_MAX = 25.0        # ln amplitude per neper of gain excess: steeper designs are too fragile to build
+import numpy as np
 
 
-def slope(x: float) -> float:
-    """A slope rounded to 1/SLOPE: the surrogate is defined with it, so the solver's
-    integer model and the float evaluation use the same number."""
-    return round(x * SLOPE) / SLOPE
+__all__ = ["NetTable", "ControlDesign", "nearest", "sigma", "z_of", "dt_of", "cap_tempco", "values_of",
+           "allowed_families", "resistor_families", "arm_capacitor_families"]
 
 
-@dataclass(frozen=True, slots=True)
-class NetOption:
-    """A frequency-setting network: values (role -> ohm, F), its resistor and capacitor
-    families, ln_f0 (ln Hz), ln_k = ln(required gain), loss (worst-case margin loss from
-    its tolerances, nepers), r_max / r_min (ohm, its largest and smallest resistor),
-    lines, drift (frequency drift bound over temperature, nepers), spread (frequency
-    spread from the tolerances at the yield's z, nepers), sigma_k (standard deviation
-    of ln(required gain) from the tolerances)."""
+@dataclass(frozen=True, slots=True, eq=False)
+class NetTable:
+    """Every frequency-setting network of one family pair in a frequency window, as
+    arrays over its rows: values (n, len(roles)) in ohm and F; ln_f0 (ln Hz); ln_k
+    (ln of the required gain); sigma_lnk (standard deviation of ln k from the parts'
+    tolerances); unit_cost (sum of unit prices); sorted by ln_f0. families gives each
+    role's family id; sigma_lnf is the relative standard deviation of f0 from the
+    tolerances (the same for every row: JCGM 100 first-order propagation)."""
 
-    values: Values
-    r_family: str
-    c_family: str
-    ln_f0: float
-    ln_k: float
-    loss: float
-    r_max: float
-    r_min: float
-    lines: tuple
-    drift: float = 0.0
-    spread: float = 0.0
-    sigma_k: float = 0.0
+    roles: tuple[str, ...]
+    families: tuple[str, ...]
+    values: np.ndarray
+    ln_f0: np.ndarray
+    ln_k: np.ndarray
+    sigma_lnk: np.ndarray
+    unit_cost: np.ndarray
+    sigma_lnf: float
+
+    def __len__(self) -> int:
+        return self.ln_f0.size
 
 
 @dataclass(frozen=True, slots=True)
-class CtlOption:
-    """A gain network with its amplitude control: values (role -> ohm), parts (role ->
-    family id of each active part), the resistor family; ln_g = ln(small-signal gain);
-    surrogate at the gain excess ln1m_ref (nepers): ln_amp (ln of the oscillator
-    output amplitude, V), thd (fraction), pull (relative harmonic frequency pull), each
-    with its slope per neper of gain excess; loss (margin loss from its tolerances,
-    nepers); ln_amp_tmin / ln_amp_tmax: ln amplitude at the temperature ends; k_amp:
-    |amplitude slope| times z; sigma_g: standard deviation of ln(gain) from the
-    tolerances; vf_spread: amplitude spread from the control's parts at the yield's z."""
+class ControlDesign:
+    """One complete amplitude control a control's search hook offers (the JFET
+    control's: :func:`partpick.circuits.jfet_search.search_designs`), judged by the
+    control's own physics on the topology's equal-arm reference network at the hook's
+    frequency, with the hook's op-amp.
 
-    values: Values
-    parts: tuple
-    r_family: str
-    ln_g: float
-    ln1m_ref: float
-    ln_amp: float
-    s_amp: float
+    control: the control's registry name; slots: (role, value, family id) of every slot
+    the control fills, value in ohm or F (0.0 for an active part, whose catalog id is the
+    family id); gain: (role, value) of the gain network it needs (the topology's
+    ``gain_values``, ohm, all of family gain_family); amp_v: the oscillator output's
+    amplitude (V peak) at the minimum, nominal and maximum temperature; thd: THD at the
+    oscillator output at the nominal temperature (fraction); pull: ln of the settled
+    frequency over the loop's marginal one (the control's own pull; the op-amp's is in
+    the marginal frequency); amp_per_excess: d ln(amplitude) / d(gain excess), the gain
+    excess in nepers (how much a gain network's tolerance moves the amplitude); amp_spread:
+    the amplitude's spread from the control's own parts (3 sigma, relative); settle_s:
+    power-on until the amplitude stays within +/-2 % of its settled value (s); channels:
+    op-amp channels the control adds; margin: ln of the small-signal gain at rest (the
+    nominal parts at the nominal temperature) over the reference network's need;
+    start_loss: nepers of that margin the weakest part of the control's spread loses at
+    the hot end (the gain network's own tolerances not included); note: what it is, in
+    words."""
+
+    control: str
+    slots: tuple[tuple[str, float, str], ...]
+    gain_family: str
+    gain: tuple[tuple[str, float], ...]
+    amp_v: tuple[float, float, float]
     thd: float
-    s_thd: float
     pull: float
-    s_pull: float
-    loss: float
-    lines: tuple
-    ln_amp_tmin: float = 0.0
-    ln_amp_tmax: float = 0.0
-    k_amp: float = 0.0
-    sigma_g: float = 0.0
-    vf_spread: float = 0.0
+    amp_per_excess: float
+    amp_spread: float
+    settle_s: float
+    channels: int
+    margin: float
+    start_loss: float
+    note: str = ""
 
-    def part(self, role: str) -> str | None:
-        return dict(self.parts).get(role)
+    def values(self) -> dict[str, float]:
+        """Every value the design sets, control and gain network (role -> ohm or F)."""
+        return {**dict(self.gain), **{r: v for r, v, _ in self.slots if v}}
 
-
-@dataclass(frozen=True, slots=True)
-class StageOption:
-    """An output stage: kind, values (role -> ohm), resistor family, ln of its gain into
-    the load, ln of the load current per volt at the oscillator output (ln S), lines."""
-
-    kind: str
-    values: Values
-    r_family: str
-    ln_gain: float
-    ln_y: float
-    lines: tuple
-
-
-def merge_lines(lines) -> tuple:
-    """((family, value, quantity), ...) with equal (family, value) merged: one line each."""
-    merged: dict[tuple[str, float], int] = {}
-    for fam, value, qty in lines:
-        merged[(fam, value)] = merged.get((fam, value), 0) + qty
-    return tuple((f, v, q) for (f, v), q in merged.items())
+    def families(self) -> dict[str, str]:
+        """The family (or, for an active part, the catalog id) of every role it fills."""
+        return {**{r: self.gain_family for r, _ in self.gain}, **{r: f for r, _, f in self.slots}}
 
 
 def nearest(values, target: float) -> float:
@@ -144,10 +126,15 @@ def values_of(fam, shelf=None) -> tuple[float, ...]:
     return vals if shelf is None else tuple(v for v in vals if shelf.quantity(fam.id, v) > 0)
 
 
+def allowed_families(spec, catalog, kind: str) -> list:
+    """The families of ``kind`` (a catalog section) the spec allows."""
+    ids = spec.parts.of_kind(kind)
+    return [f for f in catalog.of_kind(kind) if ids is None or f.id in ids]
+
+
 def resistor_families(spec, catalog) -> list:
     """The resistor families the spec allows."""
-    allowed = spec.parts.resistors
-    return [r for r in catalog.resistors if allowed is None or r.id in allowed]
+    return allowed_families(spec, catalog, "resistors")
 
 
 def arm_capacitor_families(spec, catalog) -> list:

@@ -3,7 +3,9 @@ the load, and on a single supply the mid-rail bias and the output coupling capac
 
 Output stages: 'none' (the oscillator output drives the load), 'follower' (a unity-gain
 buffer on a spare op-amp channel), 'gain' (a non-inverting stage, gain 1 + Rb/Ra, Ra to
-the reference), 'attenuator' (Ra in series, Rb to the reference). On a single supply a
+the reference), 'attenuator' (Ra in series, Rb to the reference), 'buffered-attenuator'
+(that divider, then a follower that drives the load: a heavy load behind a limiter whose
+amplitude is larger than the load wants). On a single supply a
 divider of two equal resistors decoupled by a capacitor makes the mid-rail reference
 and a coupling capacitor feeds the ground-referenced load.
 """
@@ -14,8 +16,8 @@ import math
 
 import numpy as np
 
-from partpick.circuits.base import Circuit, Conditions, Slot, Values
-from partpick.circuits.options import AMP_SLOPE_MAX, DM_MAX, StageOption, merge_lines, nearest, values_of
+from partpick.circuits.base import Circuit, Conditions, Slot
+from partpick.circuits.options import nearest
 from partpick.errors import InfeasibleError
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor, VSource
 from partpick.physics.opamp import open_loop_gain, output_resistance
@@ -23,7 +25,7 @@ from partpick.physics.rational import Rational, const, parallel
 
 __all__ = ["SLOTS", "BUFFERED", "STAGE_ROLES", "BIAS_ROLES", "stage_gain", "has_buffer", "slots_for",
            "supplies", "output", "output_admittance", "to_load", "channels_used", "stage_load_admittance",
-           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts", "rail_flags",
+           "impedance_c", "admittance_c", "fixed_parts", "rail_flags",
            "reference_flag", "draw"]
 
 SLOTS = (
@@ -35,7 +37,9 @@ SLOTS = (
     Slot("bias_c", "capacitors", "C3", "mid-rail bias decoupling capacitor"),
     Slot("coupling_c", "capacitors", "C4", "output coupling capacitor"),
 )
-BUFFERED = ("follower", "gain")            # stages that take an op-amp channel
+STAGE_KINDS = ("none", "follower", "gain", "attenuator", "buffered-attenuator")
+BUFFERED = ("follower", "gain", "buffered-attenuator")   # stages that take an op-amp channel
+RATIO_STAGES = ("gain", "attenuator", "buffered-attenuator")  # stages with a resistor pair
 STAGE_ROLES = ("stage_ra", "stage_rb")
 BIAS_ROLES = ("bias_top", "bias_bottom", "bias_c", "coupling_c")
 
@@ -43,7 +47,7 @@ BIAS_ROLES = ("bias_top", "bias_bottom", "bias_c", "coupling_c")
 def slots_for(stage: str, supply_kind: str) -> tuple[Slot, ...]:
     """The periphery slots a circuit with this stage and supply uses."""
     roles = ["opamp"]
-    if stage in ("gain", "attenuator"):
+    if stage in RATIO_STAGES:
         roles += list(STAGE_ROLES)
     if supply_kind == "single":
         roles += list(BIAS_ROLES)
@@ -56,8 +60,10 @@ def has_buffer(c: Circuit) -> bool:
 
 
 def channels_used(c: Circuit) -> int:
-    """Op-amp channels the whole circuit needs: the topology's plus the buffer's."""
-    return c.topology.channels + (1 if has_buffer(c) else 0)
+    """Op-amp channels the whole circuit needs: the topology's, the buffer's and the
+    amplitude control's."""
+    own = getattr(c.control, "op_channels", None)
+    return c.topology.channels + (1 if has_buffer(c) else 0) + (own(c.values) if own is not None else 0)
 
 
 def stage_gain(c: Circuit) -> float:
@@ -65,7 +71,7 @@ def stage_gain(c: Circuit) -> float:
     ra, rb = c.value("stage_ra"), c.value("stage_rb")
     if c.stage == "gain":
         return 1.0 + rb / ra
-    if c.stage == "attenuator":
+    if c.stage in ("attenuator", "buffered-attenuator"):
         return rb / (ra + rb)
     return 1.0
 
@@ -103,6 +109,11 @@ def output(c: Circuit, cond: Conditions, drive: str, ref: str, neg: str, channel
         els += [Resistor("R6", drive, "ao", c.value("stage_ra")),
                 Resistor("R7", "ao", ref, c.value("stage_rb"))]
         drive = "ao"
+    elif c.stage == "buffered-attenuator":
+        els += [Resistor("R6", drive, "ad", c.value("stage_ra")),
+                Resistor("R7", "ad", ref, c.value("stage_rb")),
+                OpAmpX(channel, "ad", "so", "so", "vcc", neg, op)]
+        drive = "so"
     load = drive
     if c.supply_kind == "single":
         load = "load"
@@ -159,6 +170,8 @@ def output_admittance(c: Circuit, cond: Conditions, w_ref: float) -> Rational | 
         rb = const(c.value("stage_rb"))
         shunt = rb if zd is None else parallel(rb, zd)
         return (const(c.value("stage_ra")) + shunt).inv()
+    if c.stage == "buffered-attenuator":
+        return const(1.0 / (c.value("stage_ra") + c.value("stage_rb")))
     return None
 
 
@@ -173,6 +186,10 @@ def to_load(c: Circuit, cond: Conditions, w_ref: float) -> Rational:
         rb = const(c.value("stage_rb"))
         shunt = rb if zd is None else parallel(rb, zd)
         return shunt / (const(c.value("stage_ra")) + shunt) * coupling
+    divider = const(1.0)
+    if c.stage == "buffered-attenuator":
+        ra, rb = c.value("stage_ra"), c.value("stage_rb")
+        divider = const(rb / (ra + rb))
     a = open_loop_gain(c.opamp, w_ref)
     ro = output_resistance(c.opamp)
     yl = const(0.0) if zd is None else zd.inv()
@@ -182,7 +199,7 @@ def to_load(c: Circuit, cond: Conditions, w_ref: float) -> Rational:
         b = const(ra / (ra + rb))
         yl = yl + const(1.0 / (ra + rb))
     # Vso (1 + Ro Yl) = A (Vin - b Vso)
-    return a / (const(1.0) + yl.scale(ro) + a * b) * coupling
+    return divider * a / (const(1.0) + yl.scale(ro) + a * b) * coupling
 
 
 def stage_load_admittance(c: Circuit, load_r_ohm: float, load_c_f: float, f_hz: float) -> float:
@@ -195,59 +212,6 @@ def stage_load_admittance(c: Circuit, load_r_ohm: float, load_c_f: float, f_hz: 
 
 
 # -- search hooks ---------------------------------------------------------------------------------
-
-def stage_options(spec, rf, kinds: tuple[str, ...], shelf=None) -> list[StageOption]:
-    """Output stages of one resistor family, with their gain into the load."""
-    r_load = spec.load.resistance_ohm
-    y_load = (0.0 if math.isinf(r_load) else 1 / r_load) + 2 * math.pi * spec.frequency.target_hz * spec.load.capacitance_f
-    ln_y = math.log(max(y_load, 1e-9))
-    values = [v for v in values_of(rf, shelf) if 1e3 <= v <= 1e6]
-    out = []
-    if not values:
-        kinds = tuple(k for k in kinds if k in ("none", "follower"))
-    base = nearest(values, 10e3) if values else 0.0
-    if "none" in kinds:
-        out.append(StageOption("none", Values(), rf.id, 0.0, ln_y, ()))
-    if "follower" in kinds:
-        out.append(StageOption("follower", Values(), rf.id, 0.0, -20.0, ()))
-    if "gain" in kinds:
-        for rb in values:
-            gain = 1 + rb / base
-            if 1.05 <= gain <= 8:
-                out.append(StageOption("gain", Values({"stage_ra": base, "stage_rb": rb}), rf.id, math.log(gain),
-                                       -20.0, merge_lines([(rf.id, base, 1), (rf.id, rb, 1)])))
-    if "attenuator" in kinds:
-        for ra in values:
-            shunt = base if math.isinf(r_load) else base * r_load / (base + r_load)
-            gain = shunt / (ra + shunt)
-            if 0.05 <= gain <= 0.95:
-                out.append(StageOption("attenuator", Values({"stage_ra": ra, "stage_rb": base}), rf.id,
-                                       math.log(gain), -math.log(ra + shunt),
-                                       merge_lines([(rf.id, ra, 1), (rf.id, base, 1)])))
-    return out
-
-
-def useful_stages(stages: list[StageOption], ctls, rfams, a) -> list[StageOption]:
-    """The stages worth offering: 'none' and 'follower' once, and from the cheapest
-    family's scaling stages the few whose gain maps some control option's amplitude
-    nearest the target (the others only repeat what those do at the same cost)."""
-    cheapest = min(rfams, key=lambda r: r.price_unit).id
-    out, seen = [], set()
-    for s in stages:
-        if s.kind in ("none", "follower") and s.kind not in seen:
-            seen.add(s.kind)
-            out.append(s)
-    want = math.log(a.peak_v)
-    scaling = [s for s in stages if s.kind in ("gain", "attenuator") and s.r_family == cheapest]
-    chosen: set[int] = set()
-    for g in ctls:
-        need = want - g.ln_amp
-        if abs(need) < 0.02:
-            continue  # no stage needed for this one
-        near = sorted(range(len(scaling)), key=lambda i: abs(scaling[i].ln_gain - need))[:2]
-        chosen.update(i for i in near if abs(scaling[i].ln_gain - need) < 0.05 + AMP_SLOPE_MAX * DM_MAX / 4)
-    return out + [scaling[i] for i in sorted(chosen)]
-
 
 def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str, float], ...]:
     """Single supply: the mid-rail divider, its decoupling and the output coupling
@@ -293,7 +257,8 @@ def reference_flag(supply_kind: str) -> str | None:
 
 def draw(sheet, out, stage: str, supply_kind: str) -> None:
     """Draw on ``sheet`` (:class:`partpick.export.schematic.Sheet`) from the oscillator
-    output ``out``: the output stage (U1B with R6, R7; or R6, R7 as an attenuator), on a
+    output ``out``: the output stage (U1B with R6, R7; R6, R7 as an attenuator, or as a
+    divider before the buffer U1B), on a
     single supply the coupling capacitor C4 (its + towards the op-amp, which sits at
     mid-rail) and the bias network R8, R9, C3 making VREF, the output connector, and a
     note on the supply pins' decoupling and any spare channel, as in :func:`supplies`
@@ -301,9 +266,15 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
     x0, y0 = out
     drive = out
     if stage in BUFFERED:
-        x = x0 + 4.0
+        src = out
+        if stage == "buffered-attenuator":   # the divider first, the buffer after it
+            src = (x0 + 2.6, y0)
+            sheet.resistor("stage_ra", out, src)
+            sheet.resistor("stage_rb", src, (src[0], y0 - 2.8), loc="bottom")
+            sheet.reference((src[0], y0 - 2.8))
+        x = src[0] + 4.0
         pins = sheet.opamp("U1B", f"U1B\n{sheet.value('opamp')}", (x, y0))
-        sheet.wire(out, pins["in2"])
+        sheet.wire(src, pins["in2"])
         jo = (pins["out"][0] + 0.6, pins["out"][1])
         top = pins["in1"][1] + 1.65
         sheet.wire(pins["out"], jo)
@@ -335,11 +306,17 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
     op = sheet.family("opamp")
     notes = ["Supply: +V" + (" and -V" if supply_kind == "dual" else "") + " to every op-amp package, each pin "
              "decoupled to ground with 100 nF ceramic at the pin (not in the BOM)."]
-    if channels > 1:
+    packages = -(-channels // op.channels)
+    spare = packages * op.channels - channels
+    if channels == 2:
         notes.append(f"U1A, U1B: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
                      f"{sheet.value('opamp')} {'package' if op.channels > 1 else 'packages'}.")
-    if op.channels > channels:
-        notes.append(f"U1 has {op.channels - channels} spare channel(s): tie each +input to the reference and "
+    elif channels > 2:     # an amplitude control's own channel besides
+        names = ", ".join(f"U1{chr(ord('A') + k)}" for k in range(channels))
+        notes.append(f"{names}: {'one' if packages == 1 else packages} {sheet.value('opamp')} "
+                     f"{'package' if packages == 1 else 'packages'} ({op.channels} channel(s) each).")
+    if spare > 0:
+        notes.append(f"U1 has {spare} spare channel(s): tie each +input to the reference and "
                      "the output to its -input.")
     if supply_kind == "single":
         notes.append("VREF: mid-rail made by R8, R9 and C3; ground symbols are 0 V.")

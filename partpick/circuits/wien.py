@@ -2,8 +2,10 @@
 
 Series arm Rs + Cs from the op-amp output to the non-inverting input, shunt arm
 Rp || Cp from there to the reference (ground, or the mid-rail bias on a single
-supply). Non-inverting gain 1 + Rf/Rg; the amplitude control sits at the 'feedback'
-port, across Rf, and brings the gain down as the amplitude grows.
+supply). Non-inverting gain 1 + Rf/Rg. Two control ports: 'feedback', across Rf (a
+limiter there brings the gain down as it conducts), and 'ground', across Rg, from the
+inverting input to the reference (a variable resistor there, such as a JFET channel,
+raises the gain as its conductance grows).
 
 Network (any circuits text, e.g. Sedra and Smith, Microelectronic Circuits, chapter
 on sinusoidal oscillators): beta(s) = Zp / (Zs + Zp), f0 = 1 / (2 pi sqrt(Rs Rp Cs Cp)),
@@ -18,8 +20,8 @@ from collections.abc import Mapping
 import numpy as np
 
 from partpick.circuits import periphery
-from partpick.circuits.base import Circuit, Conditions, Core, Slot, Values
-from partpick.circuits.options import NetOption, cap_tempco, dt_of, merge_lines, nearest, sigma, values_of, z_of
+from partpick.circuits.base import Circuit, Conditions, Core, Slot
+from partpick.circuits.options import (NetTable, sigma, values_of)
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
 from partpick.physics.opamp import open_loop_gain, output_resistance
@@ -47,7 +49,7 @@ class WienBridge:
     network_name = "Wien network"
     slots = SLOTS
     channels = 1
-    ports = ("feedback",)
+    ports = ("feedback", "ground")
     network_roles = ARM_ROLES   # the frequency-setting slots
 
     # -- equations, vectorised over builds (role -> array of values) ------------------------
@@ -63,8 +65,26 @@ class WienBridge:
         """Small-signal non-inverting gain 1 + Rf/Rg (amplitude control at rest)."""
         return 1.0 + v["rf"] / v["rg"]
 
+    def port_gain(self, v: Mapping[str, np.ndarray], port: str, g_s) -> np.ndarray:
+        """The gain with a conductance g_s (S) at ``port``: across Rf (its resistance
+        falls) or across Rg (its conductance adds to Rg's)."""
+        if port == "ground":
+            return 1.0 + v["rf"] * (1.0 / v["rg"] + g_s)
+        return 1.0 + 1.0 / (1.0 / v["rf"] + g_s) / v["rg"]
+
     # -- the loop at the control port ------------------------------------------------------------
     def loop(self, c: Circuit, cond: Conditions, w_ref: float | None = None) -> Loop:
+        """The small-signal equations at the control's port (see :meth:`_feedback_loop`
+        and :meth:`_ground_loop`)."""
+        w = w_ref or 2 * math.pi * c.f0_hz
+        beta, yx = self._network(c, w)
+        y_out = periphery.output_admittance(c, cond, w)
+        if y_out is not None:
+            yx = yx + y_out
+        make = self._ground_loop if c.control.port == "ground" else self._feedback_loop
+        return make(c, cond, w, beta, yx)
+
+    def _feedback_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
         """The small-signal equations at the 'feedback' port (a branch across Rf): the
         op-amp's A0, GBW, optional second pole and output resistance, the load, the
         output stage's input and, on a single supply, the coupling capacitor. The bias
@@ -79,11 +99,6 @@ class WienBridge:
         Q0 = 1 + Ro Yx - A beta; the loop gain broken at the non-inverting input is
         L = beta A (1 + Rg y) / ((1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y), y = yf + Y.
         """
-        w = w_ref or 2 * math.pi * c.f0_hz
-        beta, yx = self._network(c, w)
-        y_out = periphery.output_admittance(c, cond, w)
-        if y_out is not None:
-            yx = yx + y_out
         rg = c.value("rg")
         yf = const(1.0 / c.value("rf"))
         a = open_loop_gain(c.opamp, w)
@@ -106,6 +121,44 @@ class WienBridge:
             ("U1A.x", g1 + cv_i.scale(ro), const(rg) + ci_i.scale(ro)),
         )
         return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),))
+
+    def _ground_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
+        """The small-signal equations at the 'ground' port (a branch across Rg, from the
+        inverting input to the reference; its current raises the gain).
+
+        With the branch voltage Vn (the inverting input) and current I, the current
+        through Rf is yg Vn + I (yg = 1/Rg), so Vo = g1 Vn + Rf I with g1 = 1 + Rf yg;
+        the output current Iout = Yx Vo + yg Vn + I, X = Vo + Ro Iout and
+        X = A (beta Vo - Vn). Hence alpha Vn + gamma I = 0 with
+        alpha = Q0 g1 + Ro yg + A, gamma = Q0 Rf + Ro, Q0 = 1 + Ro Yx - A beta; the
+        loop gain broken at the non-inverting input is L = A beta G / D with
+        G = g1 + Rf Y and D = G (1 + Ro Yx) + Ro (yg + Y) + A, so
+        d0 = g1 (1 + Ro Yx) + Ro yg + A and d1 = Rf (1 + Ro Yx) + Ro; a drawn current J
+        adds Ro J to the constraint (inject = Ro).
+        """
+        rf = c.value("rf")
+        yg = 1.0 / c.value("rg")
+        a = open_loop_gain(c.opamp, w)
+        ro = output_resistance(c.opamp)
+        one = const(1.0)
+        q0 = one + yx.scale(ro) - a * beta
+        g1 = 1.0 + rf * yg                           # Vo per Vn at I = 0
+        ryx = one + yx.scale(ro)
+        alpha = q0.scale(g1) + const(ro * yg) + a
+        gamma = q0.scale(rf) + const(ro)
+        d0 = ryx.scale(g1) + const(ro * yg) + a
+        d1 = ryx.scale(rf) + const(ro)
+        # a current J drawn from the output adds Ro J to X = Vo + Ro Iout: eta = Ro
+        cv_i = yx.scale(g1) + const(yg)              # output current per Vn
+        ci_i = yx.scale(rf) + one                    # ... per I
+        tl = periphery.to_load(c, cond, w)
+        probes = (
+            ("osc", const(g1), const(rf)),
+            ("load", tl.scale(g1), tl.scale(rf)),
+            ("U1A.iout", cv_i, ci_i),
+            ("U1A.x", const(g1) + cv_i.scale(ro), const(rf) + ci_i.scale(ro)),
+        )
+        return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),), const(ro))
 
     def _network(self, c: Circuit, w: float):
         """(beta = Zp / (Zs + Zp), the network's input admittance 1 / (Zs + Zp)) in p = s / w."""
@@ -131,7 +184,7 @@ class WienBridge:
             Resistor("R4", "out", "nn", v("rf")),
             OpAmpX("U1A", "np", "nn", "out", "vcc", neg, c.opamp),
         )
-        return Core(els, "out", {"feedback": ("out", "nn")}, "np", v("cp"))
+        return Core(els, "out", {"feedback": ("out", "nn"), "ground": ("nn", ref)}, "np", v("cp"))
 
     # -- what verification asks of the topology -----------------------------------------------
     def input_swing_v(self, c: Circuit, osc_peak_v: float) -> float:
@@ -164,30 +217,32 @@ class WienBridge:
     # -- search hooks ----------------------------------------------------------------------------
     arm_r = (1e3, 470e3)        # arm resistances, ohm: above op-amp loading, below bias/stray trouble
     arm_c_min = 100e-12         # arm capacitors, F: well above stray capacitance
-    max_options = 90            # arm sets handed to the solver per family pair
+    arm_ratio = 1.25            # Rs/Rp and Cp/Cs within 1/1.25..1.25: required gain near 3
+    required_gain_range = (1 + 2 / 1.25, 1 + 2 * 1.25)   # what those arms need, V/V
 
-    def network_options(self, spec, rf, cf, ln_lo: float, ln_hi: float, price, r_bounds=None,
-                        centres: np.ndarray | None = None, half_width: float = 0.0, shelf=None) -> list[NetOption]:
-        """Arm sets of one family pair with ln f0 in [ln_lo, ln_hi]: a sorted
-        meet-in-the-middle over ln(Rs Rp) and ln(Cs Cp), ratios kept near 1 so the
-        required gain stays near 3."""
-        r_bounds = r_bounds or self.arm_r
-        r = np.array([v for v in values_of(rf, shelf)
-                      if max(self.arm_r[0], r_bounds[0]) <= v <= min(self.arm_r[1], r_bounds[1])])
+    def network_table(self, rf, cf, ln_lo: float, ln_hi: float, r_bounds=None, shelf=None) -> NetTable:
+        """Every arm set (Rs, Cs, Rp, Cp) of one family pair with ln f0 in [ln_lo, ln_hi]
+        (ln Hz), Rs/Rp and Cp/Cs within 1/arm_ratio..arm_ratio, resistors within arm_r
+        and r_bounds, capacitors from arm_c_min: a sorted meet-in-the-middle over
+        ln(Rs Rp) and ln(Cs Cp), nothing pruned."""
+        lo_r, hi_r = r_bounds or self.arm_r
+        r = np.array([v for v in values_of(rf, shelf) if max(self.arm_r[0], lo_r) <= v <= min(self.arm_r[1], hi_r)])
         c = np.array([v for v in values_of(cf, shelf) if v >= self.arm_c_min])
+        roles = ("rs", "cs", "rp", "cp")
+        empty = NetTable(roles, (rf.id, cf.id, rf.id, cf.id), np.zeros((0, 4)), *(np.zeros(0) for _ in range(4)),
+                         0.0)
         if r.size == 0 or c.size == 0:
-            return []
+            return empty
+        q = self.arm_ratio * (1 + 1e-9)
         ri, rj = np.meshgrid(np.arange(r.size), np.arange(r.size), indexing="ij")
-        rat = r[ri] / r[rj]
-        keep = (rat >= 0.8) & (rat <= 1.25)
+        keep = (r[ri] / r[rj] >= 1 / q) & (r[ri] / r[rj] <= q)
         rs_i, rp_i = ri[keep], rj[keep]
         ci, cj = np.meshgrid(np.arange(c.size), np.arange(c.size), indexing="ij")
-        crat = c[cj] / c[ci]
-        keep = (crat >= 0.8) & (crat <= 1.25)
+        keep = (c[cj] / c[ci] >= 1 / q) & (c[cj] / c[ci] <= q)
         cs_i, cp_i = ci[keep], cj[keep]
         lr = np.log(r[rs_i]) + np.log(r[rp_i])
         lc = np.log(c[cs_i]) + np.log(c[cp_i])
-        order = np.argsort(lc)
+        order = np.argsort(lc, kind="stable")
         lc_sorted = lc[order]
         # ln f0 = -ln(2 pi) - (lr + lc)/2  in [ln_lo, ln_hi]  <=>  lc in [a - lr, b - lr]
         a_ = -2 * (ln_hi + math.log(2 * math.pi))
@@ -196,92 +251,73 @@ class WienBridge:
         hi = np.searchsorted(lc_sorted, b_ - lr, side="right")
         counts = hi - lo
         if counts.sum() == 0:
-            return []
+            return empty
         ki = np.repeat(np.arange(lr.size), counts)
         offs = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
         ci_ = order[np.repeat(lo, counts) + offs]
-        rs, rp = r[rs_i[ki]], r[rp_i[ki]]
-        cs, cp = c[cs_i[ci_]], c[cp_i[ci_]]
+        vals = np.column_stack([r[rs_i[ki]], c[cs_i[ci_]], r[rp_i[ki]], c[cp_i[ci_]]])
         ln_f0 = -math.log(2 * math.pi) - 0.5 * (lr[ki] + lc[ci_])
-        if centres is not None:
-            # only arm sets that some gain network and op-amp pull onto the target
-            near = np.min(np.abs(ln_f0[:, None] - centres[None, :]), axis=1) <= half_width
-            ki, ci_, ln_f0 = ki[near], ci_[near], ln_f0[near]
-            if ki.size == 0:
-                return []
-            rs, rp = r[rs_i[ki]], r[rp_i[ki]]
-            cs, cp = c[cs_i[ci_]], c[cp_i[ci_]]
-        cost = 2 * rf.price_unit + np.array([cf.unit_price(x) for x in cs]) + np.array([cf.unit_price(x) for x in cp]) \
-            if rs.size < 5000 else 2 * rf.price_unit + 2 * np.interp(np.log(cs * cp) / 2, np.log(c),
-                                                                     [cf.unit_price(x) for x in c])
-        # Keep the cheapest few in each narrow frequency bin, so the whole reachable band
-        # stays covered for every pull the solver may pair with it; equal values (one BOM
-        # line) win ties.
-        distinct = (rs != rp).astype(int) + (cs != cp).astype(int)
-        width = max(half_width / 4, 1e-6) if centres is not None else (ln_hi - ln_lo) / max(self.max_options // 9, 1)
-        b = np.floor((ln_f0 - ln_lo) / width).astype(int)
-        # ... and in each third of a decade of impedance, since op-amps bound it differently
-        b = b * 100 + np.floor(np.log10(np.maximum(rs, rp)) * 3).astype(int)
-        pick = np.lexsort((distinct, cost, b))
-        rank = np.zeros(pick.size, dtype=int)
-        sb = b[pick]
-        for i in range(1, pick.size):
-            rank[i] = rank[i - 1] + 1 if sb[i] == sb[i - 1] else 0
-        keep = pick[rank < 1]
-        if keep.size > self.max_options and centres is not None:
-            # too many: keep the ones the pulls land closest to the target
-            dist = np.min(np.abs(ln_f0[keep][:, None] - centres[None, :]), axis=1)
-            keep = keep[np.argsort(dist, kind="stable")[:self.max_options]]
-        dt = dt_of(spec)
-        # f0 ~ (Rs Rp Cs Cp)^(-1/2): each pair of parts drifts by its tempco bound over dt
-        c_tc = (cap_tempco(cf) + abs(cf.tempco_per_k)) if not cf.has_band else cap_tempco(cf)
-        drift = (rf.tempco_per_k + c_tc) * dt
+        srt = np.argsort(ln_f0, kind="stable")
+        vals, ln_f0 = vals[srt], ln_f0[srt]
+        rs, cs, rp, cp = vals.T
+        k = 1 + rs / rp + cp / cs
         u_r, u_c = sigma(rf), sigma(cf)
-        z = z_of(spec)
-        # f0 ~ (Rs Rp Cs Cp)^(-1/2): first-order propagation (JCGM 100, the GUM)
-        f_spread = z * 0.5 * math.sqrt(2 * u_r ** 2 + 2 * u_c ** 2)
-        out: list[NetOption] = []
-        for j in keep:
-            rs_, rp_, cs_, cp_ = float(rs[j]), float(rp[j]), float(cs[j]), float(cp[j])
-            kk = 1 + rs_ / rp_ + cp_ / cs_
-            # margin the arms can lose: the tolerance spread at the yield's z (the Monte Carlo
-            # confirms), plus the two parts of each ratio drifting apart over temperature
-            sigma_k = math.sqrt((rs_ / rp_) ** 2 * 2 * u_r ** 2 + (cp_ / cs_) ** 2 * 2 * u_c ** 2) / kk
-            loss = z * sigma_k + (rs_ / rp_ * 2 * rf.tempco_per_k * dt + cp_ / cs_ * 2 * cap_tempco(cf) * dt) / kk
-            lines = merge_lines([(rf.id, rs_, 1), (rf.id, rp_, 1), (cf.id, cs_, 1), (cf.id, cp_, 1)])
-            out.append(NetOption(Values({"rs": rs_, "cs": cs_, "rp": rp_, "cp": cp_}), rf.id, cf.id, float(ln_f0[j]),
-                                 math.log(kk), loss, max(rs_, rp_), min(rs_, rp_), lines, drift, f_spread, sigma_k))
-        return out
+        sigma_lnk = np.sqrt((rs / rp) ** 2 * 2 * u_r ** 2 + (cp / cs) ** 2 * 2 * u_c ** 2) / k
+        price_c = np.interp(np.log(c), np.log(c), [cf.unit_price(x) for x in c])
+        cost = 2 * rf.price_unit + np.interp(np.log(cs), np.log(c), price_c) + np.interp(np.log(cp), np.log(c), price_c)
+        return NetTable(roles, (rf.id, cf.id, rf.id, cf.id), vals, ln_f0, np.log(k), sigma_lnk, cost,
+                        0.5 * math.sqrt(2 * u_r ** 2 + 2 * u_c ** 2))
 
-    def retune(self, spec, catalog, net: NetOption, pull: float, r_bounds: tuple[float, float],
-               price) -> NetOption | None:
-        """Arm values of the same families that land closest on target once the pull
-        measured by verification (``pull``: ln of verified over textbook frequency) is
-        known, keeping the required gain within 0.2 % (so margin and amplitude stay put);
-        the cheapest among the closest. None when no arm set does better."""
-        rf = catalog.find("resistors", net.r_family)
-        cf = catalog.find("capacitors", net.c_family)
-        target = math.log(spec.frequency.target_hz) - pull
-        found = self.network_options(spec, rf, cf, target - 0.01, target + 0.01, price, r_bounds,
-                                     np.array([target]), 0.001)
-        found = [a for a in found if abs(a.ln_k - net.ln_k) <= 0.002]
-        if not found:
-            return None
+    def reach_hz(self, rf, cf, shelf=None) -> tuple[float, float]:
+        """The lowest and highest textbook frequency equal arms of the two families
+        make within arm_r and from arm_c_min, Hz (for a refusal)."""
+        r = [v for v in values_of(rf, shelf) if self.arm_r[0] <= v <= self.arm_r[1]]
+        c = [v for v in values_of(cf, shelf) if v >= self.arm_c_min]
+        if not r or not c:
+            return math.nan, math.nan
+        return 1 / (2 * math.pi * max(r) * max(c)), 1 / (2 * math.pi * min(r) * min(c))
 
-        def score(a: NetOption):
-            return (round(abs(a.ln_f0 - target) / 1e-4), sum(price(f, v) * q for f, v, q in a.lines))
+    def port_conductance(self, rg: np.ndarray, rf: np.ndarray, k_eff: np.ndarray) -> np.ndarray:
+        """Conductance the control branch across Rf must supply for a loop gain of one
+        when the network needs gain k_eff, S: 1/(Rg (K - 1)) - 1/Rf."""
+        return 1.0 / (rg * (k_eff - 1.0)) - 1.0 / rf
 
-        best = min(found, key=score)
-        return best if abs(best.ln_f0 - target) < abs(net.ln_f0 - target) else None
+    def gain_sensitivity(self, gain: np.ndarray) -> np.ndarray:
+        """d ln G / d ln R of each gain resistor (opposite signs): (G - 1) / G."""
+        return (gain - 1) / gain
 
-    def gain_ratios(self, values, rg: float, m_floor: float, shelf=None) -> list[float]:
-        """Feedback resistors for a ladder of gain excesses over equal arms (gain 3):
-        Rf near 2 Rg (1 + m) for m = 1, 2, 4, 8 times m_floor; from the shelf, every
-        stocked Rf in that range."""
-        ladder = (m_floor, 2 * m_floor, 4 * m_floor, 8 * m_floor)
-        if shelf is None:
-            return sorted({nearest(values, rg * 2 * (1 + m)) for m in ladder})
-        return sorted({v for v in values if 2 * (1 + m_floor / 2) <= v / rg <= 2 * (1 + 10 * m_floor)})
+    def port_conductance_slope(self, rg: np.ndarray, rf: np.ndarray, k_eff: np.ndarray) -> np.ndarray:
+        """d g / d m, S per neper: how the conductance the branch must supply
+        (port_conductance) grows with the gain excess m = ln(G / K), G = 1 + Rf/Rg fixed:
+        K = G e^-m, so d g / d m = K / (Rg (K - 1)^2)."""
+        return k_eff / (rg * (k_eff - 1) ** 2)
+
+    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None) -> np.ndarray:
+        """How much more of the control branch's harmonic current reaches the output as
+        distortion than on the equal-arm reference (gain 3), for the same drive of the
+        branch; third harmonic, ideal op-amp. A current I injected across Rf gives
+        Vo = -I Rf' / (1 - K beta) with Rf' = Rg (K - 1) at balance, and the branch's
+        fundamental is g Vo (1 - 1/K); beta at n times the oscillation frequency is
+        1 / (K + j p (n - 1/n)) with p = sqrt(Rs Cp / (Rp Cs)) (the Wien network's
+        transfer Zp / (Zs + Zp), written out for unequal arms; checked against sympy in
+        tests/test_conformance.py). arms: rows (Rs, Cs, Rp, Cp), or None for arms of
+        equal ratios (Rs/Rp = Cp/Cs = (K - 1)/2)."""
+        k = np.asarray(k_eff, float)
+        if arms is None:
+            p = (k - 1) / 2
+        else:
+            arms = np.asarray(arms, float)
+            p = np.sqrt(arms[:, 0] * arms[:, 3] / (arms[:, 2] * arms[:, 1]))
+        s = 3 - 1 / 3
+
+        def t(k, p):
+            return (k - 1) ** 2 / k * np.sqrt(k ** 2 + (p * s) ** 2) / (p * s)
+
+        return t(k, p) / t(3.0, 1.0)
+
+    def osc_per_port_k(self, k_eff: np.ndarray) -> np.ndarray:
+        """Output amplitude per amplitude across Rf at required gain k_eff: Vo = Vf K/(K-1)."""
+        return k_eff / (k_eff - 1.0)
 
     reference_required_gain = 3.0   # what the equal-arm reference network needs
 
@@ -309,18 +345,26 @@ class WienBridge:
         return circuit(r, c, r, c, 10e3, 22e3, catalog.find("opamps", opamp_id), catalog.find("limiters", limiter_id),
                        **kw)
 
+    def reference_gain_values(self, rg: float, g_s: float) -> dict[str, float]:
+        """The gain network of the equal-arm reference (gain 3 needed) whose control
+        branch must supply g_s (S) for a loop gain of one: 1/Rf = 1/(2 Rg) - g_s."""
+        return {"rg": rg, "rf": 1.0 / (1.0 / (2 * rg) - g_s)}
+
     def gain_values(self, rg: float, rf: float) -> dict[str, float]:
         """The gain network's values by role."""
         return {"rg": rg, "rf": rf}
 
-    def port_conductance_needed(self, gv: dict) -> float:
-        """Conductance the control branch must add across Rf for a loop gain of one on
-        equal arms (gain 3), S."""
+    def port_conductance_needed(self, gv: dict, port: str = "feedback") -> float:
+        """Conductance the control branch must add at ``port`` for a loop gain of one on
+        equal arms (gain 3), S: across Rf 1/(2 Rg) - 1/Rf; across Rg 2/Rf - 1/Rg."""
+        if port == "ground":
+            return 2 / gv["rf"] - 1 / gv["rg"]
         return 1 / (gv["rg"] * 2) - 1 / gv["rf"]
 
-    def osc_per_port(self, gv: dict) -> float:
-        """Output amplitude per amplitude across the port on equal arms: Vo = 1.5 Vf at gain 3."""
-        return 1.5
+    def osc_per_port(self, gv: dict, port: str = "feedback") -> float:
+        """Output amplitude per amplitude across the port on equal arms at gain 3:
+        Vo = 1.5 Vf across Rf, Vo = 3 Vn across Rg."""
+        return 3.0 if port == "ground" else 1.5
 
     def reference(self, f_hz: float, gv: dict, opamp, control: str = "none", parts: dict | None = None,
                   control_values: dict | None = None) -> Circuit:
@@ -340,8 +384,8 @@ class WienBridge:
         shunt arm Rp || Cp at the +input and the series arm Rs + Cs from the output back
         to it. Returns where the others attach: 'out' (the oscillator output, for the
         output stage) and each port's (end at the output side, end at the -input side,
-        which way is clear: +1 up) for the amplitude control, as the netlist's
-        'feedback' port = ('out', 'nn')."""
+        which way is clear: +1 up) for the amplitude control, as the netlist's ports:
+        'feedback' = ('out', 'nn') across Rf, 'ground' = ('nn', reference) across Rg."""
         pins = sheet.opamp("U1A", f"U1A\n{sheet.value('opamp')}", (0.0, -0.625))
         x_fb, x_out, y_rf, y_arm = 4.6, 5.4, 3.0, -5.6
         out = (x_out, pins["out"][1])
@@ -363,7 +407,8 @@ class WienBridge:
         sheet.capacitor("cs", (-4.2, y_arm), (0.2, y_arm), loc="bottom")
         sheet.resistor("rs", (0.2, y_arm), (x_out, y_arm), loc="bottom")
         sheet.wire((x_out, y_arm), out)
-        return {"out": out, "ports": {"feedback": ((x_fb, y_rf), (-0.3, y_rf), 1.0)}}
+        return {"out": out, "ports": {"feedback": ((x_fb, y_rf), (-0.3, y_rf), 1.0),
+                                      "ground": ((-1.0, y_rf), (-3.5, y_rf), 1.0)}}
 
 
 TOPOLOGY = WienBridge()

@@ -6,6 +6,7 @@ import io
 from pathlib import Path
 
 from partpick.errors import InputError
+from partpick.fileio import write_atomic
 
 __all__ = ["histograms", "front_plot"]
 
@@ -36,14 +37,7 @@ def _save(fig, path: Path, force: bool) -> Path:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=110)
     plt.close(fig)
-    path = Path(path)
-    if path.exists() and not force:
-        raise InputError("already exists; pass --force to overwrite it", source=str(path))
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_suffix(".png.tmp")
-    tmp.write_bytes(buf.getvalue())
-    tmp.replace(path)
-    return path
+    return write_atomic(path, buf.getvalue(), force=force)
 
 
 def front_plot(points, front, spec, path: Path, *, force: bool = False) -> Path:

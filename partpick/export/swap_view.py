@@ -11,7 +11,7 @@ __all__ = ["swap_text"]
 
 
 def swap_text(res, stock, catalog, bom_path, stock_path, spec) -> str:
-    out = []
+    out = [f"note: {res.skipped}"] if res.skipped else []
     if not res.changed:
         out.append(f"every part of {bom_path} is on the shelf ({stock_path}); nothing to swap")
     rows = []

@@ -40,7 +40,7 @@ import numpy as np
 
 from partpick.physics.linear import LinearResult
 from partpick.physics.loop import Branch, Loop
-from partpick.physics.opamp import regime as opamp_regime, swing_limits
+from partpick.physics.opamp import loop_figures
 
 __all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude"]
 
@@ -354,11 +354,13 @@ def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 2
 
 
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
-                     kmax: int = 21, start: BalanceResult | None = None) -> BalanceResult | None:
+                     kmax: int = 21, start: BalanceResult | None = None, escalate: int = 2) -> BalanceResult | None:
     """Settled oscillation of the loop closed through a nonlinear branch; rails (V) are
     (positive rail, negative rail, signal reference) for the op-amps' swing. None when
     the circuit does not start or the branch cannot bring the loop gain down (then the
-    op-amps' swing sets the amplitude and the transient simulation must answer)."""
+    op-amps' swing sets the amplitude and the transient simulation must answer). When
+    the highest harmonics are not yet negligible the harmonics are doubled, at most
+    ``escalate`` times."""
     if branch.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
     a_df = describing_amplitude(branch.series_table, lin.marginal_g_s)
@@ -375,7 +377,7 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
         warm = np.asarray(warm)
         warm_even = np.asarray(even[0]) if even and even[0] else None
     series = getattr(branch.table, "element", None) is not None
-    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3):
+    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3)[:escalate + 1]:
         hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
@@ -399,21 +401,9 @@ def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
     full = lambda z: _full(z, hb.ks, kmax)  # noqa: E731
     vo_t = hb.synth @ _ri(vo)
     vl_t = hb.synth @ _ri(vl)
-    regime = "limiter"
-    main = None
-    for amp in loop.amps:
-        x = loop.probe(amp.x, p, vf, ik)
-        x_t = hb.synth @ _ri(x)
-        io_t = hb.synth @ _ri(loop.probe(amp.iout, p, vf, ik))
-        slew = float(np.max(np.abs(hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * x))))
-        io_pk = float(np.max(np.abs(io_t)))
-        r = opamp_regime(amp.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(amp.opamp, rails),
-                         iout_peak_a=io_pk)
-        if regime == "limiter":
-            regime = r
-        if main is None:
-            main = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
-    x_min, x_max, slew, io_pk, io_rms = main if main is not None else (0.0, 0.0, 0.0, 0.0, 0.0)
+    regime, (x_min, x_max, slew, io_pk, io_rms) = loop_figures(
+        loop.amps, rails, lambda name: loop.probe(name, p, vf, ik), lambda z: hb.synth @ _ri(z),
+        lambda z: hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * z))
     return BalanceResult(
         freq_hz=w * loop.w_ref / (2 * math.pi),
         osc_peak_v=float((vo_t.max() - vo_t.min()) / 2),

@@ -34,11 +34,10 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from scipy import constants, special
 
 from partpick.catalog import Limiter
 
-__all__ = ["T0_K", "thermal_voltage", "Junction", "junctions_at", "LimiterTable", "limiter_table",
+__all__ = ["T0_K", "thermal_voltage", "wright_omega", "Junction", "junctions_at", "LimiterTable", "limiter_table",
            "forward_voltage", "depletion_at"]
 
 T0_K = 298.15
@@ -48,9 +47,32 @@ _TREF_K = 300.15
 _EG_REF_EV = 1.1150877
 
 
+# Boltzmann constant (J/K) and elementary charge (C): exact in the 2019 SI (CODATA 2018).
+_K_B = 1.380649e-23
+_Q_E = 1.602176634e-19
+
+
 def thermal_voltage(temp_k: float) -> float:
-    """Vt = k T / q, V (CODATA 2018 exact constants, scipy.constants)."""
-    return constants.k * temp_k / constants.e
+    """Vt = k T / q, V (CODATA 2018 exact constants)."""
+    return _K_B * temp_k / _Q_E
+
+
+def wright_omega(z: np.ndarray) -> np.ndarray:
+    """The Wright omega function for real z: the w with w + ln w = z (Corless and
+    Jeffrey, "The Wright omega function", 2002). Start from ln(1 + e^z), then the
+    fourth-order iteration of Fritsch, Shafer and Crowley (CACM 16, 1973) that the
+    paper recommends; three steps reach double precision. Checked against
+    scipy.special.wrightomega in tests/test_junction.py."""
+    z = np.asarray(z, dtype=float)
+    tiny = z < -30.0            # there w = e^z (1 - e^z + ...) = e^z to double precision
+    zz = np.where(tiny, 0.0, z)
+    w = np.where(zz > 30.0, zz - np.log(np.maximum(zz, 1.0)), np.log1p(np.exp(np.minimum(zz, 30.0))))
+    for _ in range(4):
+        r = zz - w - np.log(w)
+        wp1 = 1.0 + w
+        t = wp1 * (wp1 + 2.0 * r / 3.0)
+        w = w * (1.0 + r / wp1 * (t - 0.5 * r) / (t - r))
+    return np.where(tiny, np.exp(np.clip(z, -745.0, -30.0)), w)
 
 
 @dataclass(frozen=True, slots=True)
@@ -110,7 +132,7 @@ class Junction:
         if self.rs_ohm <= 0:
             return self.is_a * np.expm1(np.minimum(v / nvt, 700.0))
         z = math.log(self.is_a * self.rs_ohm / nvt) + (v + self.is_a * self.rs_ohm) / nvt
-        return nvt / self.rs_ohm * np.real(special.wrightomega(z)) - self.is_a
+        return nvt / self.rs_ohm * wright_omega(z) - self.is_a
 
     def voltage(self, i: np.ndarray) -> np.ndarray:
         """Terminal voltage at current i (A, > -Is), V: n Vt ln(1 + i/Is) + i Rs."""
@@ -120,7 +142,7 @@ class Junction:
 
 def _is_at(is0: float, n: float, eg_j: float, xti: float, temp_k: float) -> float:
     ratio = temp_k / T0_K
-    return is0 * ratio ** (xti / n) * math.exp((ratio - 1) * eg_j / (n * constants.k * temp_k))
+    return is0 * ratio ** (xti / n) * math.exp((ratio - 1) * eg_j / (n * _K_B * temp_k))
 
 
 def _pb_shift(temp_k: float) -> float:

@@ -23,13 +23,23 @@ from partpick.catalog import OpAmp
 from partpick.physics.rational import Rational
 
 __all__ = ["open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
-           "SLEW_SHARE", "CURRENT_SHARE"]
+           "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss", "loop_figures"]
 
 # The linear model holds while the signal's slew stays under this share of the slew rate
 # and the output current under this share of the current limit (beyond them the output
 # stage distorts; common practice, no published source).
 SLEW_SHARE = 0.2
 CURRENT_SHARE = 0.7
+
+
+def ideal_opamp() -> OpAmp:
+    """An op-amp with no limits (1 THz gain-bandwidth, 180 dB, no headroom, 1 mohm
+    out), for reference networks on which a control's own behaviour is measured."""
+    return OpAmp(id="ideal", description="ideal op-amp", gbw_hz=1e12, a0=1e9, second_pole_hz=None,
+                 slew_v_per_s=1e15, supply_min_v=1.0, supply_max_v=1e6, headroom_high_v=0.0, headroom_low_v=0.0,
+                 output_current_a=1e3, output_resistance_ohm=1e-3, input_cm_low_v=-1e6, input_cm_high_v=-1e6,
+                 rail_to_rail_in=True, rail_to_rail_out=True, channels=4, quiescent_current_a=1e-6, input_bias_a=0.0,
+                 gbw_spread_frac=0.0, package="", price_unit=0.0, price_line=0.0)
 
 
 def output_resistance(op: OpAmp) -> float:
@@ -111,3 +121,34 @@ def regime(op: OpAmp, x_min_v: float, x_max_v: float, slew_v_per_s: float, limit
     if iout_peak_a is not None and iout_peak_a > CURRENT_SHARE * op.output_current_a:
         return "current"
     return "limiter"
+
+
+def class_b_loss(v_rail, v_pk, i_pk):
+    """Average output-stage loss, W, for a sine of v_pk (V peak) at i_pk (A peak) from
+    rails +/- v_rail (V) into a resistive load: 2 V I / pi - Vpk I / 2, the class-B
+    result of any power-amplifier text (vectorises over numpy arrays)."""
+    return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
+
+
+def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:
+    """The regime of a settled oscillation's op-amps (the first limit any of them meets,
+    :func:`regime`) and the first op-amp's (x min, x max, slew, peak output current, rms
+    output current) in V, V/s and A, for the op-amp probes ``amps`` of a loop
+    (:class:`partpick.physics.loop.AmpProbe`): probe(name) gives a probe's harmonics,
+    wave(harmonics) its samples over one period, rate(harmonics) those of its rate of
+    change."""
+    reg = "limiter"
+    main = None
+    for amp in amps:
+        x = probe(amp.x)
+        x_t = wave(x)
+        io_t = wave(probe(amp.iout))
+        slew = float(np.max(np.abs(rate(x))))
+        io_pk = float(np.max(np.abs(io_t)))
+        r = regime(amp.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(amp.opamp, rails),
+                   iout_peak_a=io_pk)
+        if reg == "limiter":
+            reg = r
+        if main is None:
+            main = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+    return reg, main if main is not None else (0.0, 0.0, 0.0, 0.0, 0.0)

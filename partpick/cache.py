@@ -1,0 +1,87 @@
+"""A cache of computed tables in the user's cache folder, keyed by content.
+
+Tables that depend only on part data (a limiter's harmonic-balance surface, say) are
+the same on every run; computing them once per machine saves most of a search's time.
+The folder is ``$PARTPICK_CACHE``, else ``$XDG_CACHE_HOME/partpick``, else
+``~/.cache/partpick``. A key is the SHA-256 of the inputs' text form (never a file path),
+so a changed catalog entry gets a new table. The cache is an optimisation only: a
+folder that cannot be read or written, or a damaged entry, just means the table is
+computed again.
+
+Tables for the shipped demo parts come with the package (``partpick/tables``, written
+by ``python -m partpick.circuits.limiter_surface CATALOG_DIR``), so a fresh install
+searches at full speed; they are found by the same content key, and a test recomputes
+one of them to catch a table gone stale.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["cache_dir", "shipped_dir", "content_key", "part_content", "load_arrays", "store_arrays"]
+
+_VERSION = "1"  # bump when a cached table's meaning changes
+
+
+def cache_dir() -> Path:
+    env = os.environ.get("PARTPICK_CACHE")
+    if env:
+        return Path(env)
+    base = os.environ.get("XDG_CACHE_HOME")
+    return (Path(base) if base else Path.home() / ".cache") / "partpick"
+
+
+def shipped_dir() -> Path:
+    """The tables that come with the package."""
+    return Path(__file__).resolve().parent / "tables"
+
+
+def content_key(*parts) -> str:
+    """A stable key for the given inputs (their repr, which for frozen dataclasses and
+    numbers is deterministic)."""
+    text = _VERSION + "\x1f" + "\x1f".join(repr(p) for p in parts)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
+
+
+def part_content(record, ignore=()) -> tuple:
+    """The fields of a catalog record that define the part (those that take part in its
+    equality: not where it was read from), less the names in ``ignore`` (what a table
+    does not depend on: names, prices, makers), for a key."""
+    import dataclasses
+
+    return tuple((f.name, getattr(record, f.name)) for f in dataclasses.fields(record)
+                 if f.compare and f.name not in ignore)
+
+
+def load_arrays(kind: str, key: str) -> dict[str, np.ndarray] | None:
+    """The arrays stored under (kind, key) with the package or in the cache, or None."""
+    for folder in (shipped_dir(), cache_dir()):
+        try:
+            with np.load(folder / kind / f"{key}.npz", allow_pickle=False) as data:
+                return {name: data[name] for name in data.files}
+        except (OSError, ValueError, EOFError):
+            continue
+    return None
+
+
+def store_arrays(kind: str, key: str, arrays: dict[str, np.ndarray], root: Path | None = None) -> None:
+    """Store arrays under (kind, key) in the cache (or under root), atomically; silently
+    skipped when the folder is not writable."""
+    folder = (root or cache_dir()) / kind
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{key}.", suffix=".npz", dir=folder)
+        try:
+            with os.fdopen(fd, "wb") as fh:
+                np.savez_compressed(fh, **arrays)
+            os.replace(tmp, folder / f"{key}.npz")
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
+    except OSError:
+        pass

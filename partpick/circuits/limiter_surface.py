@@ -1,0 +1,371 @@
+"""The diode limiter's surrogate for the search: harmonic balance on the topology's
+reference network, tabulated once per limiter part, and the describing function that
+carries it to other temperatures.
+
+Two numbers fix the steady state of a limiter branch on a given network: the series
+resistor rd and the conductance g the branch must supply on average for the loop gain
+to be one (the linear analysis's ``marginal_g_s``). The table holds, over r = rd / Rg
+and x = g Rg on the reference network (the topology's equal-arm network with
+Rg = 10 kohm, an ideal op-amp, 25 degC) at a few frequencies F_SLICES, the output
+peak, the THD and the frequency pull that harmonic balance finds
+(:func:`partpick.physics.harmonic.harmonic_balance`, the same solver verification
+uses; the pull includes what the junction capacitance does, which grows with
+frequency). Between grid points the surface is interpolated on log axes, and linearly
+in frequency between slices (capacitive effects grow in proportion to frequency while
+they are small); at another temperature the output is scaled by the ratio of the
+branch's describing-function amplitudes (Gelb and Vander Velde, Multiple-Input
+Describing Functions, 1968) at that temperature and at 25 degC, which moves with the
+junction's forward voltage. A slice depends only on the part, the topology and its
+frequency, so it is computed when first needed and cached in the user's cache folder
+(:mod:`partpick.cache`).
+
+Accuracy against direct harmonic balance on the reference is checked in
+tests/test_limiter_surface.py over the range the search uses.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from partpick.cache import content_key, load_arrays, part_content, store_arrays
+from partpick.physics.harmonic import harmonic_balance
+from partpick.physics.junction import limiter_table
+from partpick.physics.linear import LinearResult
+from partpick.physics.opamp import ideal_opamp
+
+__all__ = ["Surface", "surface", "compute", "ship", "df_table", "compute_df", "DF_T", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
+           "F_SLICES"]
+
+R_GRID = np.concatenate([[0.0], np.geomspace(0.01, 40.0, 25)])    # rd / Rg
+X_GRID = np.geomspace(3e-4, 0.32, 24)                               # Rg * conductance needed
+REF_RG = 10e3          # ohm
+REF_T = 298.15         # K
+F_SLICES = (200.0, 1e3, 3e3, 10e3, 30e3, 100e3, 300e3)   # Hz: the frequencies the surface is solved at
+_R0 = 2e-3             # r axis offset, so r = 0 sits on the log axis
+# V, the describing function's amplitude grid: 40 a decade (ln a is interpolated
+# linearly in ln N, within 0.4 % of a grid ten times as fine); below 10 mV a pair
+# conducts nothing worth limiting with
+_AMPS = np.geomspace(1e-2, 300.0, 180)
+# phase points of the describing-function integral (midpoint rule on a periodic
+# integrand: 32 agree with 256 to 1e-5)
+_THETA = 2 * np.pi * (np.arange(32) + 0.5) / 32
+
+
+@dataclass(frozen=True, slots=True)
+class Surface:
+    """The tabulated steady state over (R_GRID, X_GRID): vo (output peak at the
+    reference's gain of 3, V), thd (fraction), pull (ln of the frequency over the
+    marginal one), a_df (describing-function amplitude across the branch, V); NaN where
+    the branch cannot hold the loop (it cannot supply x, or does not let it start)."""
+
+    vo: np.ndarray          # held as vo (1 - g rd), see lookup
+    thd: np.ndarray
+    pull: np.ndarray
+    a_df: np.ndarray
+
+    def lookup(self, rd_ohm: np.ndarray, g_s: np.ndarray, rg_ohm: float = REF_RG) -> tuple[np.ndarray, ...]:
+        """(vo, thd, pull, a_df) at series resistances rd_ohm (ohm) and needed
+        conductances g_s (S), interpolated on the log axes; NaN outside the table.
+
+        The output is held as vo (1 - g rd): the branch cannot supply more than 1/rd,
+        and as g rd -> 1 the amplitude grows as 1 / (1 - g rd) (the pair's voltage plus
+        the drop across rd, vf (1 - g rd) ~ V_pair), which a grid cannot follow; the
+        product is smooth."""
+        q = np.asarray(g_s, float) * np.asarray(rd_ohm, float)
+        at = _coords(rd_ohm, g_s, rg_ohm)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            vo = np.exp(_bilinear(np.log(self.vo), at)) / np.where(q < 1, 1 - q, np.nan)
+            return (vo, np.exp(_bilinear(np.log(self.thd), at)), _bilinear(self.pull, at),
+                    np.exp(_bilinear(np.log(self.a_df), at)))
+
+
+def _coords(rd_ohm, g_s, rg_ohm: float):
+    """Where (rd_ohm, g_s) fall on the (R_GRID, X_GRID) log axes scaled by rg_ohm: cell
+    indices, fractions within the cell, and a mask of points off the table."""
+    u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        v = np.log(np.asarray(g_s, float) * rg_ohm)
+    ug = np.log(R_GRID + _R0)
+    vg = np.log(X_GRID)
+    i = np.clip(np.searchsorted(ug, u) - 1, 0, ug.size - 2)
+    j = np.clip(np.searchsorted(vg, v) - 1, 0, vg.size - 2)
+    tu = (u - ug[i]) / (ug[i + 1] - ug[i])
+    tv = (v - vg[j]) / (vg[j + 1] - vg[j])
+    outside = (tu < -1e-9) | (tu > 1 + 1e-9) | (tv < -1e-9) | (tv > 1 + 1e-9) | ~np.isfinite(u * v)
+    return i, j, tu, tv, outside
+
+
+def _bilinear(z: np.ndarray, at) -> np.ndarray:
+    """Bilinear interpolation of grid z at the coordinates ``at`` (_coords); NaN off it."""
+    i, j, tu, tv, outside = at
+    out = ((1 - tu) * (1 - tv) * z[i, j] + tu * (1 - tv) * z[i + 1, j] + (1 - tu) * tv * z[i, j + 1]
+           + tu * tv * z[i + 1, j + 1])
+    return np.where(outside, np.nan, out)
+
+
+def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float, start=None):
+    """Harmonic balance of the reference network at f_hz (Hz) with branch rd (ohm)
+    asked to supply x / REF_RG (S)."""
+    from partpick.circuits import Conditions, build_loop
+
+    gv = topology.reference_gain_values(REF_RG, x / REF_RG)
+    c = topology.reference(f_hz, gv, ideal_opamp(), control.name, {"limiter": lim}, {"rd": rd})
+    cond = Conditions(1e3, REF_T, math.inf)
+    loop = build_loop(c, cond)
+    br = control.branch(c, cond.temp_k)
+    # the reference's linear facts are known: it oscillates at f0 and the branch must
+    # supply x / Rg; harmonic balance only takes them as its starting point
+    if x / REF_RG <= br.g0_s / (1.0 + rd * br.g0_s) * 1.001:
+        return None  # the branch's own leakage already takes the gain excess: no oscillation
+    lin = LinearResult((), True, 1.0, f_hz, 0.0, f_hz, f_hz, x / REF_RG)
+    hb = harmonic_balance(loop, br, lin, cond.rails("dual"), kmax=11, start=start, escalate=1)
+    # a solution that collapsed to (almost) nothing is the trivial one, not an oscillation
+    ok = hb is not None and hb.converged and hb.regime == "limiter" and hb.osc_peak_v > 1e-4
+    return hb if ok else None
+
+
+def compute(topology, lim, control, f_hz: float) -> dict[str, np.ndarray]:
+    shape = (R_GRID.size, X_GRID.size)
+    vo, thd, pull = (np.full(shape, np.nan) for _ in range(3))
+    for a, r in enumerate(R_GRID):
+        prev = None
+        for b, x in enumerate(X_GRID):
+            hb = _reference_balance(topology, lim, r * REF_RG, x, control, f_hz, prev)
+            if hb is None and prev is not None:
+                hb = _reference_balance(topology, lim, r * REF_RG, x, control, f_hz)
+            prev = hb
+            if hb is not None:
+                vo[a, b] = hb.osc_peak_v * (1 - x * r)
+                thd[a, b], pull[a, b] = hb.osc_thd, math.log(hb.freq_hz / f_hz)
+    a_df = df_amplitude(lim, R_GRID[:, None] * REF_RG, X_GRID[None, :] / REF_RG, REF_T)
+    return {"vo": vo, "thd": thd, "pull": pull, "a_df": a_df}
+
+
+# what a limiter's surface does not depend on (a new field not named here only costs a
+# recomputation, never a stale table)
+_NOT_PHYSICS = ("id", "description", "vf_spread_v", "parts", "package", "price_unit", "price_line", "maker",
+                "maker_part")
+
+
+def _key(topology, lim, f_hz: float) -> str:
+    return content_key("limiter-surface-3", topology.name, part_content(lim, _NOT_PHYSICS), REF_RG, REF_T, f_hz,
+                       R_GRID.tolist(), X_GRID.tolist())
+
+
+@functools.lru_cache(maxsize=256)
+def surface(topology, lim, control, f_hz: float = F_SLICES[0]) -> Surface:
+    """The limiter part's surface on the topology at one frequency of F_SLICES (shipped
+    with the package for the demo parts, else computed once and cached on disk)."""
+    key = _key(topology, lim, f_hz)
+    arrays = load_arrays("limiter-surface", key)
+    if arrays is None or set(arrays) != {"vo", "thd", "pull", "a_df"}:
+        arrays = compute(topology, lim, control, f_hz)
+        store_arrays("limiter-surface", key, arrays)
+    return Surface(arrays["vo"], arrays["thd"], arrays["pull"], arrays["a_df"])
+
+
+@functools.lru_cache(maxsize=256)
+def surface_at(topology, lim, control, f_hz: float) -> Surface:
+    """The surface at f_hz (Hz): the lowest slice below it, else the two slices around
+    it blended linearly in frequency (output and THD on their log axes, as the lookup
+    interpolates them, so blending the tables is blending the lookups)."""
+    if f_hz <= F_SLICES[0]:
+        return surface(topology, lim, control, F_SLICES[0])
+    i = min(int(np.searchsorted(F_SLICES, f_hz)), len(F_SLICES) - 1)
+    lo, hi = F_SLICES[i - 1], F_SLICES[i]
+    t = min((f_hz - lo) / (hi - lo), 1.0)
+    a, b = surface(topology, lim, control, lo), surface(topology, lim, control, hi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return Surface(np.exp((1 - t) * np.log(a.vo) + t * np.log(b.vo)),
+                       np.exp((1 - t) * np.log(a.thd) + t * np.log(b.thd)),
+                       (1 - t) * a.pull + t * b.pull, a.a_df)
+
+
+@functools.lru_cache(maxsize=256)
+def _df_curve(lim, rd_ohm: float, temp_k: float) -> np.ndarray:
+    """Describing-function conductance (S) of the branch (the pair behind rd_ohm) at each
+    amplitude of _AMPS (V)."""
+    table = limiter_table(lim, rd_ohm, temp_k)
+    i = table.current(np.outer(_AMPS, np.cos(_THETA)))
+    return (i @ np.cos(_THETA)) * (2 / _THETA.size) / _AMPS
+
+
+def df_amplitude(lim, rd_ohm, g_s, temp_k: float) -> np.ndarray:
+    """Amplitude (V) across the branch (pair behind rd_ohm) at which its describing-
+    function conductance equals g_s (S); NaN where it never does. Vectorised over
+    rd_ohm and g_s (broadcast)."""
+    rd, g = np.broadcast_arrays(np.asarray(rd_ohm, float), np.asarray(g_s, float))
+    out = np.full(rd.shape, np.nan)
+    for value in np.unique(rd):
+        sel = rd == value
+        n_df = _df_curve(lim, float(value), float(temp_k))
+        # the conductance rises with amplitude for a junction pair: interpolate ln a in ln N
+        ok = np.flatnonzero(np.diff(n_df) > 0)
+        if ok.size == 0:
+            continue
+        lo = ok[0]
+        mono = np.maximum.accumulate(n_df[lo:])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ln_a = np.interp(np.log(g[sel]), np.log(np.maximum(mono, 1e-300)), np.log(_AMPS[lo:]),
+                             left=np.nan, right=np.nan)
+        out[sel] = np.exp(ln_a)
+    return out
+
+
+DF_T = np.arange(213.15, 443.16, 10.0)   # K: the temperatures the describing-function table holds
+
+
+@functools.lru_cache(maxsize=64)
+def df_table(lim) -> np.ndarray:
+    """ln of the describing-function amplitude (df_amplitude) of the pair behind
+    rd = R_GRID x REF_RG asked for g = X_GRID / REF_RG, at every temperature of DF_T:
+    array (DF_T, R_GRID, X_GRID); NaN where the branch cannot supply g. Shipped for the
+    demo parts and cached by content like the surface."""
+    key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
+                      DF_T.tolist())
+    arrays = load_arrays("limiter-df", key)
+    if arrays is None or "ln_a" not in arrays:
+        arrays = {"ln_a": compute_df(lim)}
+        store_arrays("limiter-df", key, arrays)
+    return arrays["ln_a"]
+
+
+def compute_df(lim) -> np.ndarray:
+    """The table df_table holds, computed."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.stack([np.log(df_amplitude(lim, R_GRID[:, None] * REF_RG, X_GRID[None, :] / REF_RG, float(t)))
+                         for t in DF_T])
+
+
+def _df_at(table: np.ndarray, temp_k: float) -> np.ndarray:
+    """The table's (R_GRID, X_GRID) slice at temp_k (K), linear in temperature."""
+    k = int(np.clip(np.searchsorted(DF_T, temp_k) - 1, 0, DF_T.size - 2))
+    t = (temp_k - DF_T[k]) / (DF_T[k + 1] - DF_T[k])
+    return (1 - t) * table[k] + t * table[k + 1]
+
+
+class Planner:
+    """The diode limiter's side of the search for one limiter part and one family of
+    series resistors (Rd): for rows of (needed conductance g, output per port amplitude)
+    it predicts, for every Rd choice, the output peak at each temperature, the THD, the
+    harmonic pull and their slopes in the gain excess, from the surface.
+
+    choices: Rd values (ohm), 0 first (the pair straight across the port).
+    """
+
+    def __init__(self, topology, lim, control, rd_values, temps_k, f_hz: float, rg_ohm: float = REF_RG) -> None:
+        self.lim = lim
+        self.surface = surface_at(topology, lim, control, f_hz)
+        self.choices = np.concatenate([[0.0], np.asarray(rd_values, float)])
+        self.temps_k = tuple(float(t) for t in temps_k)
+        self.rg = rg_ohm
+        table = df_table(lim)
+        ref = _df_at(table, REF_T)
+        self._df_shift = [_df_at(table, t) - ref for t in self.temps_k]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            self._ln_vo, self._ln_thd = np.log(self.surface.vo), np.log(self.surface.thd)
+
+    def _lookup(self, rd, g, vo: bool, thd: bool, pull: bool):
+        """What Surface.lookup gives, only the fields asked for (None for the others)."""
+        at = _coords(rd, g, self.rg)
+        out_vo = out_thd = out_pull = None
+        if vo:
+            q = np.asarray(g, float) * np.asarray(rd, float)
+            out_vo = np.exp(_bilinear(self._ln_vo, at)) / np.where(q < 1, 1 - q, np.nan)
+        if thd:
+            out_thd = np.exp(_bilinear(self._ln_thd, at))
+        if pull:
+            out_pull = _bilinear(self.surface.pull, at)
+        return out_vo, out_thd, out_pull
+
+    def thd(self, g_s: np.ndarray, thd_scale=1.0) -> np.ndarray:
+        """THD (fraction) of every Rd choice, array (n rows, n choices), for rows of
+        needed conductance g_s (S) and thd_scale (see evaluate): one lookup, for a
+        first screen before the full evaluation; NaN where the choice cannot hold the
+        loop."""
+        g_s = np.asarray(g_s, float)
+        rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            thd = self._lookup(rd, np.broadcast_to(g_s[:, None], rd.shape), False, True, False)[1]
+        return thd * (np.asarray(thd_scale, float)[:, None] if np.ndim(thd_scale) else thd_scale)
+
+    def evaluate(self, g_s: np.ndarray, dg_dm: np.ndarray, osc_per_port: np.ndarray, m: np.ndarray,
+                 choice=None, thd_scale=1.0) -> dict[str, np.ndarray]:
+        """Arrays (n rows, n choices), or (n rows,) for one choice index per row
+        (``choice`` an int or an array of ints), for rows of needed conductance g_s (S),
+        its slope dg_dm in the gain excess (S per neper), output per port amplitude and
+        gain excess m (nepers): vo<i> the output peak at temps_k[i] (V), thd, pull (ln),
+        dln_vo and dthd (d ln vo / d m, d thd / d m); NaN where the choice cannot hold
+        the loop. The amplitude and the THD follow the conductance the branch must
+        supply (the branch is driven alike, so its harmonic currents are the same share
+        of its fundamental); the network turns those currents into output harmonics in
+        its own proportion, which ``thd_scale`` (per row: the topology's
+        ``thd_transfer``) carries from the reference to the design's network. The
+        frequency pull follows the gain excess, so it is read at the reference's
+        conductance for the same excess."""
+        g_s = np.asarray(g_s, float)
+        m = np.asarray(m, float)
+        g_ref = (0.5 - 1.0 / (3.0 * np.exp(m) - 1.0)) / self.rg     # the reference (gain 3) at the same excess
+        if choice is None:
+            rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
+            g = np.broadcast_to(g_s[:, None], rd.shape)
+            g_ref = np.broadcast_to(g_ref[:, None], rd.shape)
+            scale = np.asarray(osc_per_port, float)[:, None] / 1.5   # the surface holds the reference's gain of 3
+            dg_dm = np.broadcast_to(np.asarray(dg_dm, float)[:, None], rd.shape)
+            t_scale = np.asarray(thd_scale, float)[..., None] if np.ndim(thd_scale) else thd_scale
+        else:
+            rd = np.broadcast_to(self.choices[np.asarray(choice)], g_s.shape)
+            g = g_s
+            scale = np.asarray(osc_per_port, float) / 1.5
+            t_scale = thd_scale
+        with np.errstate(invalid="ignore", divide="ignore"):
+            vo, thd, pull_g = self._lookup(rd, g, True, True, True)
+            pull = self._lookup(rd, g_ref, False, False, True)[2]
+            pull = np.where(np.isfinite(pull), pull, pull_g)   # the reference's excess off the table
+            dm = 0.002
+            vo2, thd2, _ = self._lookup(rd, g + dg_dm * dm, True, True, False)
+            thd, thd2 = thd * t_scale, thd2 * t_scale
+            out = {"thd": thd, "pull": pull, "dln_vo": np.log(vo2 / vo) / dm, "dthd": (thd2 - thd) / dm}
+            # the output at another temperature: scaled by the ratio of the branch's
+            # describing-function amplitudes there and at 25 degC (the table, in the
+            # branch's own units: rd and g as they are)
+            at = _coords(rd, g, REF_RG)
+            for i, t in enumerate(self.temps_k):
+                ratio = 1.0 if t == REF_T else np.exp(_bilinear(self._df_shift[i], at))
+                out[f"vo{i}"] = vo * scale * ratio
+        return out
+
+
+def ship(catalog_dir: str) -> int:
+    """Write every slice of every limiter in the catalogs under catalog_dir into the
+    package's tables (for the maintainers: run after a change to the physics or the
+    demo parts); returns how many were written."""
+    from partpick.cache import shipped_dir
+    from partpick.catalog import load_catalog
+    from partpick.circuits import CONTROLS, TOPOLOGIES
+
+    catalog = load_catalog(catalog_dir)
+    control = CONTROLS["diode-limiter"]
+    n = 0
+    for topology in TOPOLOGIES.values():
+        if not hasattr(topology, "reference_gain_values"):
+            continue  # no reference network to tabulate on
+        for lim in catalog.limiters:
+            key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
+                              DF_T.tolist())
+            store_arrays("limiter-df", key, {"ln_a": compute_df(lim)}, root=shipped_dir())
+            for f_hz in F_SLICES:
+                store_arrays("limiter-surface", _key(topology, lim, f_hz), compute(topology, lim, control, f_hz),
+                             root=shipped_dir())
+                n += 1
+    return n
+
+
+if __name__ == "__main__":
+    import sys
+
+    print(f"{ship(sys.argv[1] if len(sys.argv) > 1 else 'catalogs')} tables written")

@@ -1,0 +1,284 @@
+"""Why a spec does not design, and what would make it design.
+
+When no verified candidate meets the spec, each requirement that can be loosened
+(frequency tolerance, amplitude tolerance, THD limit, yield) is loosened alone to a
+generous value and the whole design run repeated: the requirements whose loosening
+alone lets a design through are the ones that bind. For each, the value the best
+allowed design reaches with every other requirement met is found by bisection on that
+requirement, each step an exact verification of the designs the loosened run found
+(so "relax X to Y" is checked: the design passes the spec with X at Y). When no single
+requirement binds, all four are loosened together and the nearest design says what it
+misses. A spec that restricts part families, or builds from the shelf alone, is also
+run with every family allowed, or with the catalog behind the shelf, and the parts
+that make the difference are named. The nearest failing designs follow, each with the
+requirements it misses and by how much.
+
+Loosening a requirement only enlarges what passes, so the figure reported for another
+requirement cannot get worse when one is relaxed (up to the search's own resolution).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+from partpick import units
+from partpick.spec import Spec
+
+__all__ = ["RELAXABLE", "Relaxation", "relaxed", "requirement_value", "explain_refusal", "default_notes", "miss_text",
+           "structural_refusal"]
+
+# requirement -> (how loose a run may make it, how it reads, unit dimension, tighter is smaller)
+# requirement -> (how loose a run may make it, how it reads, the ranking that puts the
+# designs best at it first, tighter is smaller)
+RELAXABLE = {
+    "frequency.tolerance": (0.10, "the tightest frequency tolerance any allowed design holds",
+                            ("yield", "frequency_error", "cost"), True),
+    "amplitude.tolerance": (0.50, "the tightest amplitude tolerance any allowed design holds",
+                            ("yield", "amplitude_error", "cost"), True),
+    "distortion.max_thd": (0.10, "the lowest THD any allowed design reaches", ("thd", "yield", "cost"), True),
+    "yield.min": (0.50, "the highest yield any allowed design reaches", ("yield", "cost"), False),
+}
+LADDER = (1.5, 3.0)   # steps (times the spec's value, towards the loose one) a loosened run is tried at
+BISECTIONS = 7        # steps of the bisection on a requirement (its result within about 2 %)
+SAMPLES = 4000        # Monte Carlo builds per verification while searching what would design
+
+
+@dataclass(frozen=True, slots=True)
+class Relaxation:
+    """One requirement loosened: field, reached (the best value an allowed design
+    reaches with everything else met, SI), advice (the round value to relax to)."""
+
+    field: str
+    reached: float
+    advice: float
+
+
+def requirement_value(spec: Spec, field: str) -> float:
+    """The spec's value of a relaxable requirement (fraction)."""
+    return {"frequency.tolerance": spec.frequency.tolerance_frac, "amplitude.tolerance": spec.amplitude.tolerance_frac,
+            "distortion.max_thd": spec.max_thd_frac, "yield.min": spec.yield_min_frac}[field]
+
+
+def relaxed(spec: Spec, field: str, value: float) -> Spec:
+    """The spec with one relaxable requirement set to value (fraction)."""
+    if field == "frequency.tolerance":
+        return replace(spec, frequency=replace(spec.frequency, tolerance_frac=value))
+    if field == "amplitude.tolerance":
+        return replace(spec, amplitude=replace(spec.amplitude, tolerance_frac=value))
+    if field == "distortion.max_thd":
+        return replace(spec, max_thd_frac=value)
+    return replace(spec, yield_min_frac=value)
+
+
+def default_notes(spec: Spec) -> tuple[str, ...]:
+    """Requirements the spec leaves at their default, said so wherever they matter."""
+    if spec.line_of("yield.min") is None and spec.source != "<spec>":
+        return (f"yield.min is the default {spec.yield_min_frac:.0%}: the spec does not set it",)
+    return ()
+
+
+def _round_up(x: float, tighter_smaller: bool) -> float:
+    """A round value (two significant digits) on the loose side of x."""
+    if x <= 0:
+        return x
+    k = 10 ** (math.floor(math.log10(x)) - 1)
+    return (math.ceil(x / k - 1e-9) if tighter_smaller else math.floor(x / k + 1e-9)) * k
+
+
+def _reach(spec: Spec, field: str, designs, check) -> Relaxation | None:
+    """The best value of ``field`` at which one of ``designs`` (BOMs) passes, by
+    bisection between the spec's value (fails) and the loose one (passes); check(spec,
+    bom) -> passes."""
+    loose, _, _, smaller = RELAXABLE[field]
+    best = None
+    for bom in designs:
+        lo, hi = requirement_value(spec, field), loose
+        if not check(relaxed(spec, field, hi), bom):
+            continue
+        for _ in range(BISECTIONS):
+            mid = math.sqrt(lo * hi) if smaller else 0.5 * (lo + hi)
+            if check(relaxed(spec, field, mid), bom):
+                hi = mid
+            else:
+                lo = mid
+        if best is None or (hi < best if smaller else hi > best):
+            best = hi
+    if best is None:
+        return None
+    advice = _round_up(best, smaller)
+    return Relaxation(field, best, advice)
+
+
+def _fmt(field: str, value: float) -> str:
+    sign = "+/-" if field.endswith("tolerance") else ""
+    return sign + units.format_quantity(float(f"{value:.3g}"), "fraction")
+
+
+def _q(x: float | None, dim: str, spec: Spec | None = None) -> str:
+    """x (SI) with its unit; a voltage at the load in the kind the spec wrote its
+    amplitude in (Vrms, Vpk, Vpp)."""
+    if x is None or not math.isfinite(x):
+        return "-"
+    if spec is not None and dim == "voltage":
+        return units.format_amplitude(units.Amplitude(x, "pk").as_kind(spec.amplitude.target.kind), 4)
+    return units.format_quantity(float(f"{x:.4g}"), dim)
+
+
+def miss_text(c, spec: Spec | None = None) -> str:
+    """A failed check: its value and its limit, with units (an amplitude at the load in
+    the spec's kind)."""
+    at_load = spec if c.field.startswith("amplitude") else None
+
+    def q(x):
+        return _q(x, c.dim, at_load)
+
+    limit = (f"{q(c.low)} .. {q(c.high)}" if c.low is not None and c.high is not None
+             else f">= {q(c.low)}" if c.low is not None else f"<= {q(c.high)}")
+    return f"{c.name} {q(c.value)} (limit {limit})"
+
+
+def _nearest_lines(failing, count: int, spec: Spec) -> list[str]:
+    """The nearest failing designs: fewest requirements missed, then by how far
+    (each shortfall relative to its limit), then the cheaper."""
+
+    def distance(r):
+        misses = r.verdict.failed()
+        far = sum(abs(c.margin) / max(abs(c.high if c.high is not None else c.low or 1.0), 1e-12) for c in misses
+                  if c.margin is not None and math.isfinite(c.margin))
+        return (len(misses), far, r.cost)
+
+    out = []
+    for i, r in enumerate(sorted(failing, key=distance)[:count], 1):
+        parts = ", ".join(dict.fromkeys(ln.family for ln in r.bom.lines))
+        misses = "; ".join(miss_text(c, spec) for c in r.verdict.failed())
+        out.append(f"  {i}. {parts} ({r.bom.stage} output stage), {r.cost:.3f} per board; misses: {misses}")
+    return out
+
+
+def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_more=None,
+                    leading=()) -> tuple[str, tuple[str, ...]]:
+    """The refusal message and the binding fields. failing: the verified candidates
+    that missed (Ranked); run(spec) -> the BOMs of a design run's passing designs
+    (empty on a refusal); evaluate(spec, bom) -> the BOM verified against spec
+    (Ranked); allow_more: [(what, advice)] from runs with more parts allowed;
+    leading: [(requirement, statement)] that bind before any tolerance does (the
+    shelf's quantities)."""
+
+    def check(s, bom) -> bool:
+        return evaluate(s, bom).verdict.passed
+
+    tried = []
+    lines = ["no design meets the spec"] + [f"  ({n})" for n in default_notes(spec)]
+    found: list[Relaxation] = []
+    for field, (loose, _, keys, smaller) in RELAXABLE.items():
+        now = requirement_value(spec, field)
+        if (now >= loose) if smaller else (now <= loose):
+            continue
+        # the loose run first (if it refuses, this requirement does not bind alone), then
+        # nearer steps, so that the designs bisected on are good at this requirement
+        boms = run(relaxed(spec, field, loose), keys)
+        for step in LADDER if boms else ():
+            value = now * step if smaller else 1 - (1 - now) * step
+            if (value >= loose) if smaller else (value <= loose):
+                break
+            nearer = run(relaxed(spec, field, value), keys)
+            if nearer:
+                boms = nearer
+                break
+        tried += boms[:3]
+        rel = _reach(spec, field, boms[:3], check) if boms else None
+        if rel is not None:
+            found.append(rel)
+    binding = tuple(w for w, _ in leading) + tuple(r.field for r in found)
+    lines += [f"{what} binds: {text}" for what, text in leading]
+    for k, rel in enumerate(found, len(leading)):
+        what = RELAXABLE[rel.field][1]
+        lines.append(f"{'or ' if k else ''}{rel.field} binds: {what} with every other requirement met is "
+                     f"{_fmt(rel.field, rel.reached)}; relax {rel.field} to {_fmt(rel.field, rel.advice)}")
+    if not found and not leading:
+        joint = spec
+        for field, (loose, _, _, smaller) in RELAXABLE.items():
+            now = requirement_value(spec, field)
+            joint = relaxed(joint, field, max(now, loose) if smaller else min(now, loose))
+        boms = run(joint, None)
+        tried += boms[:3]
+        if boms:
+            binding = tuple(RELAXABLE)
+            lines.append("no single requirement binds alone; with all four loosened the nearest design is below: "
+                         "relax the requirements it misses to what it reaches")
+        else:
+            lines.append("no allowed design oscillates within the supply, load and temperature given, even with "
+                         "the tolerances, the THD limit and the yield loosened")
+    for what, advice in (allow_more or ()):
+        lines.append(f"also: {what}: {advice}")
+    # the designs the loosened runs found, judged against the spec as written
+    failing = list(failing) + [evaluate(spec, bom) for bom in tried]
+    failing = [r for r in failing if not r.verdict.passed]
+    if failing:
+        lines.append("nearest designs (--why-not N shows N):")
+        lines += _nearest_lines(_unique(failing), nearest, spec)
+    return "\n".join(lines), binding
+
+
+def _unique(items):
+    seen, out = set(), []
+    for r in items:
+        key = tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines)
+        if key not in seen:
+            seen.add(key)
+            out.append(r)
+    return out
+
+
+def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str = "") -> tuple[str, tuple[str, ...]] | None:
+    """A refusal that needs no search: no op-amp, limiter or family allowed; no
+    op-amp that takes the supply, swings the amplitude or drives the load; no arm set
+    of the allowed families near the target frequency. None when the search must
+    answer. reach_hz: (lowest, highest) textbook frequency the allowed families'
+    arms reach, Hz; hold: what the best family pair holds when no pair can hold the
+    frequency tolerance (empty when one can)."""
+    notes = "".join(f" ({n})" for n in default_notes(spec))
+    for kind, word in (("opamps", "op-amp"), ("limiters", "limiter"), ("resistors", "resistor family"),
+                       ("capacitors", "capacitor family")):
+        if spec.parts.of_kind(kind) == ():
+            return (f"parts.{kind} binds: the spec allows no {word}; list at least one (the catalog has "
+                    f"{', '.join(x.id for x in catalog.of_kind(kind))}){notes}", (f"parts.{kind}",))
+    a = spec.amplitude
+    low = a.peak_v * (1 - a.tolerance_frac)
+    if not problem.ops:
+        reasons = "; ".join(f"{i}: {w}" for i, w in problem.dropped)
+        swings = [why for _, why in problem.dropped if why.startswith("swings")]
+        if swings:
+            best = max((_swing_of(op, spec) for op in catalog.opamps
+                        if spec.parts.opamps is None or op.id in spec.parts.opamps), default=(0.0, ""))
+            return (f"amplitude.target binds: {_q(a.peak_v, 'voltage')} peak at the load (at least "
+                    f"{_q(low, 'voltage')} peak within its tolerance) is more than any allowed op-amp swings: the "
+                    f"best ({best[1]}) swings {_q(best[0], 'voltage')} peak at the minimum supply; relax "
+                    f"amplitude.target to {_q(best[0] / (1 - a.tolerance_frac), 'voltage')} peak or raise the supply. "
+                    f"Left out: {reasons}{notes}", ("amplitude.target",))
+        return f"supply binds: no allowed op-amp can serve: {reasons}{notes}", ("supply",)
+    i_load = low / spec.load.resistance_ohm if spec.load.resistance_ohm > 0 else math.inf
+    best_i = max(op.opamp.output_current_a for op in problem.ops) * problem.current_share
+    if i_load > best_i:
+        return (f"load.resistance binds: {_q(low, 'voltage')} peak into {_q(spec.load.resistance_ohm, 'resistance')} "
+                f"takes {_q(i_load, 'current')}; the strongest allowed op-amp plans for {_q(best_i, 'current')} "
+                f"({problem.current_share:.0%} of its output current, derating rule output_current): raise "
+                f"load.resistance to {_q(low / best_i, 'resistance')} or add an external driver{notes}",
+                ("load.resistance",))
+    if not pairs and hold:
+        return f"frequency.tolerance binds: {hold}{notes}", ("frequency.tolerance",)
+    if not pairs:
+        lo, hi = reach_hz
+        return (f"frequency.target out of reach: the allowed resistor and capacitor families make arms from "
+                f"{_q(lo, 'frequency')} to {_q(hi, 'frequency')} (textbook f0), not "
+                f"{_q(spec.frequency.target_hz, 'frequency')}; allow other families{notes}", ("frequency.target",))
+    return None
+
+
+def _swing_of(op, spec: Spec) -> tuple[float, str]:
+    from partpick.circuits import Conditions
+    from partpick.physics.opamp import swing_limits
+
+    lo, hi = swing_limits(op, Conditions(spec.supply.min_v, 298.15, math.inf).rails(spec.supply.kind))
+    return min(-lo, hi), op.id

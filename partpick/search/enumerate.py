@@ -1,0 +1,513 @@
+"""The best design of every configuration, by exact enumeration over numpy arrays.
+
+A configuration is what a buyer tells designs apart by: the op-amp, the limiter part,
+the resistor family of the arms, the capacitor family, the resistor family of the gain
+network, the output stage kind and its resistor family. Within one, the values are
+chosen jointly: every arm set of the family pair in the frequency window (the
+topology's table, nothing pruned), every feedback resistor of the gain family that puts
+the gain excess where the loop can use it, every series resistor Rd of a log grid of
+the family, and the stage pair whose ratio is nearest the one that centres the
+amplitude over temperature.
+
+The amplitude side (Rf, Rd, stage) depends on the arms only through their required
+gain K, so it is scored once per (op-amp, limiter, gain family) on a fixed grid of K
+bins (0.4 % wide); each bin's best choices are then matched with the cheapest arm set
+of that bin whose frequency, with the op-amp's and the limiter's pull, lands within the
+frequency resolution of the target (a range-minimum query over the arm sets sorted by
+frequency), and the match is evaluated again exactly at that arm set's own K. Scores
+are estimates (:mod:`partpick.search.estimate` for the yield; the limiter's surface for
+amplitude, THD and pull); verification decides.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from partpick.circuits import periphery
+from partpick.circuits.limiter_surface import Planner
+from partpick.circuits.options import nearest, sigma, values_of
+from partpick.physics.opamp import class_b_loss
+from partpick.search.candidates import YIELD_STEP, Batch, Candidate
+from partpick.search.estimate import below_share, frequency_share, phi, window_share
+from partpick.search.prices import PriceBook
+from partpick.search.problem import REF_T, Problem
+from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo
+from partpick.verify import package_limit
+
+__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO"]
+
+M_GRID = np.geomspace(0.003, 0.2, 16)   # gain excesses (nepers) the feedback resistors are chosen for
+RG_TARGET = 10e3         # ohm: the gain network's level (see DEVELOPERS.md, search rules)
+RD_GRID = 24             # series resistor values per limiter, log-spaced from the family
+M_RANGE = (0.002, 0.25)  # nepers of gain excess the amplitude side considers
+SIMPSON = (1 / 6, 4 / 6, 1 / 6)   # the temperature is uniform over the range: weights of min, nominal, max
+HOPELESS_PAIR = 0.05     # a family pair whose best frequency share is this far under the yield is left out
+WINDOW_MARGIN = 0.01     # ln f: beyond the pulls and the tolerance, for the retuning with measured pulls
+
+
+class Searcher:
+    """The enumeration for one problem: shared tables, then configurations group by
+    group (an op-amp, a limiter, a gain family), each group's best design per
+    configuration."""
+
+    def __init__(self, problem: Problem, price: PriceBook, kinds: tuple[str, ...]) -> None:
+        self.problem = problem
+        self.price = price
+        self.kinds = kinds
+        spec = problem.spec
+        self.f_t = spec.frequency.target_hz
+        load_r = spec.load.resistance_ohm
+        self.load_r = load_r
+        self.y_load = (0.0 if math.isinf(load_r) else 1.0 / load_r) + 2 * math.pi * self.f_t * spec.load.capacitance_f
+        self._amp: dict = {}
+        self._ch: dict = {}
+        self._stages: dict = {}
+        self.stage_tables = {(k, f.id): memo(("stage", k, f, load_r, problem.shelf),
+                                              lambda k=k, f=f: StageTable(k, f, load_r, problem.shelf))
+                             for k in kinds if k in STAGE_RATIO for f in problem.r_families}
+        limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
+        self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id]}
+        # the bins of K with the op-amp's loss that an arm set (within the topology's arm
+        # ratio) and an op-amp reach
+        shifts = np.unique([int(round(op.loss / K_BIN)) for op in problem.ops] or [0])
+        k_lo, k_hi = problem.topology.required_gain_range
+        arm_bins = np.arange(math.floor(math.log(k_lo) / K_BIN), math.ceil(math.log(k_hi) / K_BIN) + 1)
+        self.ke_bins = np.unique(arm_bins[:, None] + shifts[None, :])
+        self._pairs = None
+        self.best_hold = None   # (resistor family, capacitor family, frequency share centred) of the best pair
+
+    @property
+    def pairs(self) -> list:
+        """The arm family pairs that can hold the frequency yield, each with its table of
+        arm sets in the frequency window the search needs (rfa, cfa, table, index,
+        drift, best frequency share): the window spans every pull an op-amp and an
+        amplitude-side row may put on the network, plus the tolerance (built on first
+        use, after the amplitude side)."""
+        if self._pairs is None:
+            self._pairs = self._build_pairs()
+        return self._pairs
+
+    def _build_pairs(self) -> list:
+        problem, price = self.problem, self.price
+        pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families
+                 if (a := self._amp_side(lim, gf)) is not None and a["pull"].size]
+        op_pull = [op.pull for op in problem.ops] or [0.0]
+        row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
+        row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
+        ln_lo = problem.ln_f - max(op_pull) - row_hi - problem.tol_f - WINDOW_MARGIN
+        ln_hi = problem.ln_f - min(op_pull) - row_lo + problem.tol_f + WINDOW_MARGIN
+        pairs = []
+        for rfa in problem.r_families:
+            for cfa in problem.c_families:
+                drift = problem.freq_drift(rfa, cfa)
+                best = frequency_share(np.array([0.0]), problem.freq_sigma(rfa, cfa), drift, problem.tol_f)[0]
+                if self.best_hold is None or best > self.best_hold[2]:
+                    self.best_hold = (rfa, cfa, best)
+                if best < problem.y_min - HOPELESS_PAIR:
+                    continue  # even centred on the target, the pair's tolerances break the frequency yield
+
+                def make(rfa=rfa, cfa=cfa):
+                    table = problem.topology.network_table(rfa, cfa, ln_lo, ln_hi, shelf=problem.shelf)
+                    return table, (ArmIndex(table, price, rfa, cfa) if len(table) else None)
+
+                table, index = memo(("arms", problem.topology.name, rfa, cfa, ln_lo, ln_hi, problem.shelf,
+                                      price.pricer.stock), make)
+                if len(table) == 0:
+                    continue
+                pairs.append((rfa, cfa, table, index, drift, best))
+        return pairs
+
+    def groups(self):
+        """(op, limiter, gain family) triples to search."""
+        p = self.problem
+        return [(op, lim, gf) for op in p.ops for lim in p.limiters for gf in p.r_families]
+
+    def _amp_side(self, lim, gf):
+        """The amplitude side of one limiter and gain family on the grid of required
+        gains K_eff (op-amp loss included): for each bin, the feedback resistors nearest
+        a log grid of gain excesses, each with every Rd of the planner. Arrays over the
+        rows (bin, Rf, Rd) that can meet the THD limit with the loop starting, sorted by
+        bin; shared by every op-amp."""
+        key = (lim.id, gf.id)
+        if key not in self._amp:
+            p = self.problem
+            self._amp[key] = memo(("amp", p.topology.name, lim, gf, p.shelf, self.f_t, p.temps_k, p.thd_aim,
+                                    self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf))
+        return self._amp[key]
+
+    def _amp_rows(self, lim, gf):
+        p = self.problem
+        topo, ctl = p.topology, p.control
+        gvals = np.array(values_of(gf, p.shelf))
+        if gvals.size == 0:
+            return None
+        r_gnd = nearest(gvals, RG_TARGET)
+        rd_pool = gvals[(gvals >= 0.003 * r_gnd) & (gvals <= 30 * r_gnd)]
+        if rd_pool.size > RD_GRID:
+            rd_pool = np.unique(rd_pool[np.round(np.linspace(0, rd_pool.size - 1, RD_GRID)).astype(int)])
+        planner = Planner(topo, lim, ctl, rd_pool, p.temps_k, self.f_t, r_gnd)
+        ke = np.exp(self.ke_bins * K_BIN)
+        g_all = topo.gain(topo.gain_values(r_gnd, gvals))
+        want = ke[:, None] * np.exp(M_GRID[None, :])                       # gains for the excess grid
+        j = np.clip(np.searchsorted(g_all, want), 1, g_all.size - 1)
+        j = np.where(np.abs(np.log(g_all[j - 1] / want)) <= np.abs(np.log(g_all[j] / want)), j - 1, j)
+        cells = np.unique(np.column_stack([np.repeat(np.arange(ke.size), M_GRID.size), j.ravel()]), axis=0)
+        kb, r_fb = cells[:, 0], gvals[cells[:, 1]]
+        gain = topo.gain(topo.gain_values(r_gnd, r_fb))
+        m = np.log(gain / ke[kb])
+        keep = (m >= M_RANGE[0]) & (m <= M_RANGE[1])
+        kb, r_fb, gain, m = kb[keep], r_fb[keep], gain[keep], m[keep]
+        gneed = topo.port_conductance(r_gnd, r_fb, ke[kb])
+        t_scale = topo.thd_transfer(ke[kb])
+        with np.errstate(invalid="ignore"):
+            # a row whose nominal THD is over what the design may aim at (derating rule thd_share)
+            cell, ird = np.nonzero(planner.thd(gneed, t_scale) <= p.thd_aim)   # sorted by cell, hence by bin
+        k_c = ke[kb[cell]]
+        ev = planner.evaluate(gneed[cell], topo.port_conductance_slope(r_gnd, r_fb[cell], k_c), topo.osc_per_port_k(k_c),
+                              m[cell], ird, thd_scale=t_scale[cell])
+        vo = np.stack([ev[f"vo{i}"] for i in range(3)])
+        ok = np.flatnonzero(np.all(np.isfinite(vo), axis=0) & np.isfinite(ev["thd"]))
+        cell, ird = cell[ok], ird[ok]
+        amp = {"planner": planner, "r_gnd": r_gnd, "bin": self.ke_bins[kb[cell]], "r_fb": r_fb[cell], "gain": gain[cell],
+               "m": m[cell], "ird": ird, "vo": vo[:, ok], "thd": ev["thd"][ok], "pull": ev["pull"][ok],
+               "s_amp": ev["dln_vo"][ok], "s_thd": ev["dthd"][ok],
+               "vf_rel": ctl.amplitude_spread_of(lim, p.temps_k[1])}
+        return amp
+
+    def amp_rg(self, lim, gf) -> float:
+        """The gain network's fixed resistor of a limiter and gain family, ohm."""
+        return self._amp_side(lim, gf)["r_gnd"]
+
+    def rd_choices(self, lim, gf) -> np.ndarray:
+        """The series resistors (ohm, 0 first) a limiter and gain family's rows index."""
+        return self._amp_side(lim, gf)["planner"].choices
+
+    def _stage_of(self, lim, gf, kind, sf):
+        """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter and gain
+        family (cached for this spec's load and amplitude)."""
+        key = (lim.id, gf.id, kind, sf.id)
+        if key not in self._stages:
+            self._stages[key] = self._stage(kind, sf, self._amp_side(lim, gf)["vo"])
+        return self._stages[key]
+
+    def _choices(self, op, lim, gf):
+        """The amplitude side's best rows per K bin for each stage kind and stage
+        family, for one op-amp (cached): (kind, stage family, rows, the arms' K bins,
+        stage ratio, Ra, Rb)."""
+        key = (op.id, lim.id, gf.id)
+        if key in self._ch:
+            return self._ch[key]
+        p = self.problem
+        amp = self._amp_side(lim, gf)
+        out = []
+        if amp is None or amp["m"].size == 0:
+            self._ch[key] = (amp, out)
+            return amp, out
+        vo, thd, m = amp["vo"], amp["thd"], amp["m"]
+        osc_max = min(op.swing_v, 0.2 * op.opamp.slew_v_per_s / (2 * math.pi * self.f_t))
+        typical_sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
+        s_m = _m_sigma(p, gf, amp["gain"], typical_sk, op.loss, op.opamp.gbw_spread_frac)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2)
+            # margins in standard deviations: the search's proxy for each share of the yield
+            z_core = np.minimum(m / s_m, (p.thd_max - thd) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
+            z_core = np.where(vo.max(axis=0) <= osc_max, z_core, -np.inf)
+        ln_tol = math.log1p(p.tol_a)
+        shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
+        cheapest = min(p.r_families, key=lambda f: f.price_unit)
+        for kind in self.kinds:
+            for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values())):
+                res = self._stage_of(lim, gf, kind, sf)
+                if res is None:
+                    continue
+                ratio, ra, rb = (np.broadcast_to(x, m.shape) for x in res)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    z_amp = np.min(ln_tol - np.abs(np.log(vo * ratio / p.amp_v)), axis=0) / s_a
+                    score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
+                rows = _best_rows(amp["bin"], score)
+                if rows.size:
+                    out.append((kind, sf, rows, amp["bin"][rows] - shift, ratio[rows], ra[rows], rb[rows]))
+        self._ch[key] = (amp, out)
+        return amp, out
+
+    def configurations(self, lim, gf) -> "Batch | None":
+        """The best estimated design of every configuration with this limiter and gain
+        family: every op-amp, arm family pair, stage kind and stage family at once. Each
+        amplitude-side choice is matched with the cheapest arm set of its K bin landing
+        within the frequency resolution of target (or the nearest one) and evaluated
+        again exactly at that arm set's K: one evaluation over all rows."""
+        amp = self._amp_side(lim, gf)
+        p = self.problem
+        groups, parts = [], []
+        for op in p.ops:
+            for kind, sf, rows, bins, ratio_c, ra_c, rb_c in self._choices(op, lim, gf)[1]:
+                parts.append((np.full(rows.size, len(groups)), rows, bins, ratio_c, ra_c, rb_c))
+                groups.append((op, kind, sf))
+        if not parts:
+            return None
+        grp, arow, kbin, ratio, ra, rb = (np.concatenate([x[i] for x in parts]) for i in range(6))
+        op_pull = np.array([g[0].pull for g in groups])
+        target = p.ln_f - op_pull[grp] - amp["pull"][arow]
+        found = []
+        for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
+            res = max(table.sigma_lnf, 2e-4)
+            arm = index.cheapest(kbin, target - res, target + res)
+            miss = arm < 0
+            if miss.any():
+                arm[miss] = index.nearest(kbin[miss], target[miss])
+            sel = np.flatnonzero(arm >= 0)
+            found.append((pi, sel, arm[sel]))
+        if not found or not sum(x[1].size for x in found):
+            return None
+        pair_i = np.concatenate([np.full(x[1].size, x[0]) for x in found])
+        row = np.concatenate([x[1] for x in found])
+        arm = np.concatenate([x[2] for x in found])
+
+        def per_arm(attr):
+            return np.concatenate([getattr(self.pairs[pi][2], attr)[a] for pi, _, a in found])
+
+        vals, ln_k, ln_f0, sig_k = per_arm("values"), per_arm("ln_k"), per_arm("ln_f0"), per_arm("sigma_lnk")
+        arm_cost = np.concatenate([self.pairs[pi][3].cost[self.pairs[pi][3].rank[a]] for pi, _, a in found])
+        sig_f = np.array([pr[2].sigma_lnf for pr in self.pairs])[pair_i]
+        drift = np.array([pr[4] for pr in self.pairs])[pair_i]
+        g_row = grp[row]
+        ops = [g[0] for g in groups]
+        kinds = np.array([periphery.STAGE_KINDS.index(g[1]) for g in groups])[g_row]
+        return self._score(lim, gf, amp, groups, g_row, kinds, arow[row], ratio[row], ra[row], rb[row],
+                           pair_i, vals, ln_k, ln_f0, sig_k, sig_f, drift, arm_cost,
+                           {name: np.array([f(o) for o in ops])[g_row] for name, f in self._op_fields.items()})
+
+    def _score(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, vals, ln_k, ln_f0, sig_k,
+               sig_f, drift, arm_cost, op) -> "Batch | None":
+        """Estimated figures of every matched row, and the best row of each
+        configuration (group x arm family pair) with its exact cost."""
+        p = self.problem
+        topo = p.topology
+        r_gnd, planner, vf_rel = amp["r_gnd"], amp["planner"], amp["vf_rel"]
+        r_fb, ird = amp["r_fb"][arow], amp["ird"][arow]
+        k = np.exp(ln_k + op["loss"])
+        gain = topo.gain(topo.gain_values(r_gnd, r_fb))
+        m = np.log(gain / k)
+        ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb, k), topo.port_conductance_slope(r_gnd, r_fb, k),
+                              topo.osc_per_port_k(k), m, ird, thd_scale=topo.thd_transfer(k, vals))
+        vo = np.stack([ev[f"vo{i}"] for i in range(3)])
+        err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
+        load = vo * ratio
+        buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
+        i_osc = vo.max(axis=0) * self._osc_admittance(vals, r_fb, r_gnd, kinds, ra, rb)
+        i_load = np.where(buffered, load.max(axis=0) * self.y_load, 0.0)
+        ilim = p.current_share * op["current"]
+        s_m = _m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            s_a = np.sqrt((ev["dln_vo"] * s_m) ** 2 + (vf_rel / 3) ** 2)
+            y = (frequency_share(err, sig_f, drift, p.tol_f) * phi(m / s_m)
+                 * below_share(ev["thd"], np.abs(ev["dthd"]) * s_m, p.thd_max)
+                 * sum(w * window_share(np.log(load[i] / p.amp_v), s_a, math.log1p(p.tol_a))
+                       for i, w in enumerate(SIMPSON)))
+            # the hottest package, as verification counts it: every channel's quiescent
+            # power, and the output stages of the channels in use (one per package when a
+            # buffer needs a second channel the package lacks)
+            span = p.spec.supply.span_max_v
+            osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
+            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), load.max(axis=0) / self.load_r), 0.0)
+            watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
+                                                                 np.maximum(osc_w, buf_w))
+            rr = vals[:, [0, 2]]
+            ok = (np.isfinite(y) & (y > 0) & (m > 0) & (ev["thd"] <= p.thd_aim) & (i_osc <= ilim) & (i_load <= ilim)
+                  & (rr.max(axis=1) <= op["r_max"]) & (rr.min(axis=1) >= op["r_min"])
+                  & (vo.max(axis=0) <= op["swing"]) & (watts <= op["limit_w"]))
+        idx = np.flatnonzero(ok)
+        if idx.size == 0:
+            return None
+        # a configuration is what a buyer tells designs apart by: the stage's resistor
+        # family is a choice inside it, like its values
+        same = {}
+        cfg_of = np.array([same.setdefault((g[0].id, g[1]), len(same)) for g in groups])
+        config = cfg_of[g_row[idx]] * len(self.pairs) + pair_i[idx]
+        tier = np.floor((1.0 - y[idx]) / YIELD_STEP)
+        order = idx[np.lexsort((np.abs(err[idx]), arm_cost[idx], tier, config))]
+
+        def slots(rows):
+            """(columns, op-amp per row, packages per row) of the passive slots (see
+            PriceBook.row_costs) for rows."""
+            ratio_stage = np.array([groups[g][1] in STAGE_RATIO for g in g_row[rows]], bool)
+            gvals = topo.gain_values(r_gnd, r_fb[rows])
+            fams = [self.pairs[q][2].families for q in pair_i[rows]]
+            columns = [(np.array([self.price.code(f[j]) for f in fams]), vals[rows, j]) for j in range(vals.shape[1])]
+            columns += [(self.price.code(gf.id), np.broadcast_to(v, rows.shape)) for v in gvals.values()]
+            columns.append((self.price.code(gf.id), planner.choices[ird[rows]]))
+            sf_code = np.array([self.price.code(groups[g][2].id) for g in g_row[rows]])
+            columns += [(sf_code, np.where(ratio_stage, ra[rows], 0.0)), (sf_code, np.where(ratio_stage, rb[rows], 0.0))]
+            ops = np.array([groups[g][0].id for g in g_row[rows]])
+            chans = np.array([groups[g][0].opamp.channels for g in g_row[rows]])
+            return columns, ops, -(-(topo.channels + buffered[rows].astype(int)) // chans)
+
+        if p.shelf is not None and order.size:
+            # building from the shelf alone: a row must find every part in the quantity
+            # its boards need (a value in three slots needs three a board)
+            order = order[self.price.fits(*slots(order), lim.id, p.shelf, p.spec.builds)]
+            if order.size == 0:
+                return None
+        cfg = cfg_of[g_row[order]] * len(self.pairs) + pair_i[order]
+        i = order[np.r_[True, cfg[1:] != cfg[:-1]]]      # the best row of each configuration
+        cost = self.price.row_costs(*slots(i), lim.id)
+        return Batch(self, lim, gf, groups, g_row[i], pair_i[i], vals[i], r_fb[i], ird[i], ra[i], rb[i], err[i],
+                     load[:, i], vo[1, i], ev["thd"][i], m[i], y[i], ev["dln_vo"][i], ev["dthd"][i], ev["pull"][i],
+                     cost)
+
+    def simulate(self, c: Candidate, samples: int = 4000) -> Candidate:
+        """The candidate with its yield estimated by the Monte Carlo model of
+        verification (:func:`partpick.tolerance.monte_carlo`) run on the search's own
+        figures: the same distributions and checks, only the physics estimated."""
+        from dataclasses import replace
+
+        from partpick.tolerance import Model, monte_carlo, variation
+
+        p = self.problem
+        topo = p.topology
+        op = next(o for o in p.ops if o.id == c.parts["opamp"])
+        values, tol, normal, tempco, band = variation(c.values, c.families, p.catalog)
+        m_ideal = float(topo.gain(values) / topo.required_gain(values)) - 1
+        m_lin = math.expm1(math.log1p(m_ideal) - op.loss)
+        temps = p.temps_k
+        ln_load = math.log(max(c.load_v[1], 1e-12))
+        dln = tuple(math.log(max(v, 1e-12)) - ln_load for v in c.load_v)
+        model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
+                      c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1], 1e-12),
+                      (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
+                      p.control.amplitude_spread_of(self._limiter(c), temps[1]))
+        y = monte_carlo(model, p.spec, samples=samples, seed=1).yield_frac
+        return replace(c, yield_est=y, simulated=True)
+
+    def _limiter(self, c: Candidate):
+        return next(lim for lim in self.problem.limiters if lim.id == c.parts["limiter"])
+
+    # -- refinement with what exact physics measured --------------------------------------------
+    def _pair(self, rfa_id: str, cfa_id: str):
+        for pair in self.pairs:
+            if pair[0].id == rfa_id and pair[1].id == cfa_id:
+                return pair
+        return None
+
+    def retune_network(self, c: Candidate, pull: float) -> dict | None:
+        """Values of the frequency network that land closer on target once the pull
+        (ln of the built over the textbook frequency, as exact physics measured it) is
+        known: the cheapest arm set of the same required-gain bin within the frequency
+        resolution, else the nearest one; None when none does better than the present."""
+        p = self.problem
+        pair = self._pair(c.signature[2], c.signature[3])
+        if pair is None:
+            return None
+        _, _, table, index, _, _ = pair
+        roles = table.roles
+        vals = {r: c.values[r] for r in roles}
+        ln_f0 = float(np.log(p.topology.f0_hz(vals)))
+        b = np.array([int(round(math.log(float(p.topology.required_gain(vals))) / K_BIN))])
+        target = np.array([p.ln_f - pull])
+        res = max(table.sigma_lnf, 2e-4)
+        arm = index.cheapest(b, target - res, target + res)
+        if arm[0] < 0:
+            arm = index.nearest(b, target)
+        if arm[0] < 0:
+            return None
+        new_err = abs(table.ln_f0[arm[0]] - target[0])
+        if new_err >= abs(ln_f0 - target[0]) or (abs(ln_f0 - target[0]) <= res and new_err <= res):
+            return None   # no closer, or both within resolution: keep the one the search priced
+        return dict(zip(roles, (float(v) for v in table.values[arm[0]])))
+
+    def restage(self, c: Candidate, load_peak_v: float) -> tuple[float, float] | None:
+        """The stage pair whose ratio brings the measured load amplitude (V peak) to the
+        target (_StageTable.pick); None when that is the present pair."""
+        table = self.stage_tables.get((c.stage, c.signature[6]))
+        if table is None or len(table) == 0 or load_peak_v <= 0:
+            return None
+        ra, rb = c.values["stage_ra"], c.values["stage_rb"]
+        now = table.gains[np.flatnonzero((table.ra == ra) & (table.rb == rb))]
+        if now.size == 0:
+            return None
+        j = int(table.pick(np.array([math.log(now[0] * self.problem.amp_v / load_peak_v)]))[0])
+        if (table.ra[j], table.rb[j]) == (ra, rb):
+            return None
+        return float(table.ra[j]), float(table.rb[j])
+
+    def _stage(self, kind, sf, vo):
+        """The stage ratio (and resistors) per amplitude-side choice: 1 without a pair,
+        else the family pair (_StageTable.pick) for the gain that centres the load
+        amplitude over temperature (the geometric mean of the ends)."""
+        if kind not in STAGE_RATIO:
+            return np.asarray(1.0), np.asarray(0.0), np.asarray(0.0)
+        table = self.stage_tables.get((kind, sf.id))
+        if table is None or len(table) == 0:
+            return None
+        with np.errstate(invalid="ignore", divide="ignore"):
+            pick = table.pick(np.log(self.problem.amp_v / np.sqrt(vo[0] * vo[2])))
+        return table.gains[pick], table.ra[pick], table.rb[pick]
+
+    def _osc_admittance(self, vals, r_fb, r_gnd, kinds, ra, rb) -> np.ndarray:
+        """Magnitude of what the oscillator op-amp drives at the target frequency, S:
+        the arms, the gain network and, without a buffer, the stage and the load (kinds:
+        index of each row's stage kind in periphery.STAGE_KINDS)."""
+        w = 2 * math.pi * self.f_t
+        z_arm = np.abs((vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3]))
+        y = 1 / z_arm + 1 / (r_fb + r_gnd)
+        kind = np.array(periphery.STAGE_KINDS)[kinds]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            shunt = rb if math.isinf(self.load_r) else rb * self.load_r / (rb + self.load_r)
+            extra = np.select([kind == "none", kind == "attenuator", kind == "buffered-attenuator"],
+                              [np.full(y.shape, self.y_load), 1 / (ra + shunt), 1 / (ra + rb)], 0.0)
+        return y + extra
+
+
+def _m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
+    """Standard deviation of the gain excess over builds (nepers): the gain network's
+    ratio (two resistors of the family, each with the topology's sensitivity of ln gain),
+    the arms' required gain, the op-amp's gain-bandwidth spread acting on its loss
+    (nepers; spread a fraction, 3 sigma), and the two gain resistors drifting apart over
+    temperature (uniform)."""
+    sens = problem.topology.gain_sensitivity(gain)
+    s_g = sens * math.sqrt(2) * sigma(gf)
+    s_op = np.asarray(loss) * np.asarray(gbw_spread) / 3
+    dt = max(abs(problem.temps_k[0] - REF_T), abs(problem.temps_k[2] - REF_T))
+    s_t = sens * 2 * gf.tempco_per_k * dt / math.sqrt(3)
+    return np.sqrt(s_g ** 2 + np.asarray(sigma_lnk) ** 2 + s_op ** 2 + s_t ** 2)
+
+
+def _r_limits(op) -> tuple[float, float]:
+    """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance,
+    and below the value at which its bias current drops 5 mV."""
+    r_max = min(1e6, 5e-3 / op.input_bias_a) if op.input_bias_a > 0 else 1e6
+    return max(20 * op.output_resistance_ohm, 1.0), r_max
+
+
+# per-row op-amp figures for the vectorised scoring
+_OP_FIELDS = {
+    "pull": lambda o: o.pull, "loss": lambda o: o.loss, "swing": lambda o: o.swing_v,
+    "current": lambda o: o.opamp.output_current_a, "gbw_spread": lambda o: o.opamp.gbw_spread_frac,
+    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, "r_min": lambda o: _r_limits(o.opamp)[0],
+    "r_max": lambda o: _r_limits(o.opamp)[1],
+}
+
+
+def _best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
+    """The amplitude-side rows worth matching with arm sets: per K bin (rows sorted by
+    bin), the best ``keep`` by score (the smallest margin in standard deviations), in
+    row order."""
+    idx = np.flatnonzero(np.isfinite(score))
+    if idx.size == 0:
+        return idx
+    b = bins[idx]
+    starts = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
+    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, b.size]))
+    work = score[idx].copy()
+    chosen = []
+    for _ in range(keep):
+        top = np.maximum.reduceat(work, starts)
+        hit = np.flatnonzero((work == top[seg]) & np.isfinite(work))
+        if hit.size == 0:
+            break
+        first = hit[np.r_[True, seg[hit][1:] != seg[hit][:-1]]]
+        chosen.append(idx[first])
+        work[first] = -np.inf
+    return np.sort(np.concatenate(chosen)) if chosen else idx[:0]

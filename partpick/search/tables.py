@@ -1,0 +1,169 @@
+"""Sorted tables the search looks values up in: the arm sets of a family pair by
+required-gain bin and frequency (the cheapest in any frequency range, by range-minimum
+query), and the resistor pairs of an output stage by gain; a per-process memo of
+tables that depend only on their inputs."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from partpick.circuits.options import values_of
+
+__all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable", "stage_table", "memo"]
+
+K_BIN = 0.004            # ln K bin width
+K_GRID = np.arange(round(math.log(2.4) / K_BIN), round(math.log(3.9) / K_BIN) + 1)   # bin numbers of the arms' K
+STAGE_RATIO = {"gain": (1.05, 10.0), "attenuator": (0.02, 0.95), "buffered-attenuator": (0.02, 0.95)}
+STAGE_RES = 0.003        # ln gain: stage pairs this close to the wanted gain are equal for the amplitude
+STAGE_LEVEL = 20e3       # ohm: among those, the pair whose Ra + Rb is nearest this (common practice, no
+                         # published source: low enough against stray capacitance and bias current,
+                         # high enough not to load the op-amp)
+_KEY_SPAN = 100.0        # ln f0 units between bins in the arm index's sort key (far more than any window)
+
+_MEMO: dict = {}   # tables one run shares with the next in the same process (the why-not's runs)
+
+
+def memo(key, make):
+    """The table under key, made once per process (the keys hold every input: the
+    frozen part records themselves, never just their ids)."""
+    if key not in _MEMO:
+        if len(_MEMO) > 512:
+            _MEMO.clear()
+        _MEMO[key] = make()
+    return _MEMO[key]
+
+
+class RangeMin:
+    """Index of the smallest cost in any range [a, z) of an array, by a sparse table
+    (range-minimum query: Bender and Farach-Colton, LATIN 2000), vectorised over
+    queries."""
+
+    def __init__(self, cost: np.ndarray) -> None:
+        self.cost = cost
+        n = cost.size
+        levels = [np.arange(n)]
+        j = 1
+        while (1 << j) <= n:
+            prev = levels[-1]
+            half = 1 << (j - 1)
+            a, b = prev[: n - (1 << j) + 1], prev[half: half + n - (1 << j) + 1]
+            levels.append(np.where(cost[a] <= cost[b], a, b))
+            j += 1
+        self.levels = levels
+
+    def argmin(self, a: np.ndarray, z: np.ndarray) -> np.ndarray:
+        """Position of the cheapest entry of each range [a, z); -1 where it is empty."""
+        out = np.full(np.shape(a), -1)
+        ok = z > a
+        if not ok.any():
+            return out
+        a, z = a[ok], z[ok]
+        j = np.floor(np.log2(z - a)).astype(int)
+        x, y = np.empty_like(a), np.empty_like(a)
+        for jj in np.unique(j):
+            sel = j == jj
+            x[sel] = self.levels[jj][a[sel]]
+            y[sel] = self.levels[jj][z[sel] - (1 << int(jj))]
+        out[ok] = np.where(self.cost[x] <= self.cost[y], x, y)
+        return out
+
+
+class StageTable:
+    """The resistor pairs of one stage kind and family sorted by stage gain; for a
+    wanted gain, the pair within STAGE_RES of it whose level (Ra + Rb) is nearest
+    STAGE_LEVEL, else the nearest gain."""
+
+    def __init__(self, kind: str, rfam, load_r: float, shelf=None) -> None:
+        self.gains, self.ra, self.rb = stage_table(kind, rfam, load_r, shelf)
+        self.ln_g = np.log(self.gains)
+        self._level = RangeMin(np.abs(np.log((self.ra + self.rb) / STAGE_LEVEL)))
+
+    def __len__(self) -> int:
+        return self.gains.size
+
+    def pick(self, want: np.ndarray) -> np.ndarray:
+        """Index of the pair for each wanted ln gain."""
+        ln_g = self.ln_g
+        w = np.where(np.isfinite(want), want, 0.0)
+        j = np.clip(np.searchsorted(ln_g, w), 1, ln_g.size - 1)
+        near = np.where(np.abs(ln_g[j - 1] - w) <= np.abs(ln_g[j] - w), j - 1, j)
+        best = self._level.argmin(np.searchsorted(ln_g, w - STAGE_RES, side="left"),
+                                  np.searchsorted(ln_g, w + STAGE_RES, side="right"))
+        return np.where(best >= 0, best, near)
+
+
+class ArmIndex:
+    """The arm sets of one family pair, grouped by K bin and sorted by frequency within
+    each bin, with the cheapest set in any frequency range of a bin (RangeMin)."""
+
+    def __init__(self, table, price, rfa, cfa) -> None:
+        self.table = table
+        n = len(table)
+        self.bins = np.round(table.ln_k / K_BIN).astype(int)
+        order = np.lexsort((table.ln_f0, self.bins))
+        self.order = order
+        self.rank = np.empty_like(order)       # table row -> position in the sorted order
+        self.rank[order] = np.arange(n)
+        self.sbins = self.bins[order]
+        self.sf = table.ln_f0[order]
+        vals = table.values[order]
+        # one line per distinct value (a value used twice shares its line); a stocked
+        # value's line costs nothing
+        lr = price.lines(rfa.id, vals[:, 0]) + np.where(vals[:, 0] == vals[:, 2], 0.0, price.lines(rfa.id, vals[:, 2]))
+        lc = price.lines(cfa.id, vals[:, 1]) + np.where(vals[:, 1] == vals[:, 3], 0.0, price.lines(cfa.id, vals[:, 3]))
+        units = sum(price.units(fam, vals[:, i]) for i, fam in enumerate(table.families))
+        self.cost = units + lr + lc
+        # one sortable key: bin, then frequency within the bin
+        self.key = (self.sbins - K_GRID[0]) * _KEY_SPAN + (self.sf - self.sf.min() if n else self.sf)
+        self.f_min = float(self.sf.min()) if n else 0.0
+        self._cheap = RangeMin(self.cost)
+
+    def _range(self, bins: np.ndarray, lo_f: np.ndarray, hi_f: np.ndarray):
+        base = (bins - K_GRID[0]) * _KEY_SPAN - self.f_min
+        return (np.searchsorted(self.key, base + lo_f, side="left"),
+                np.searchsorted(self.key, base + hi_f, side="right"))
+
+    def cheapest(self, bins: np.ndarray, lo_f: np.ndarray, hi_f: np.ndarray) -> np.ndarray:
+        """Index (into the table) of the cheapest arm set of each bin with ln f0 in
+        [lo_f, hi_f]; -1 where there is none (vectorised range-minimum queries)."""
+        best = self._cheap.argmin(*self._range(bins, lo_f, hi_f))
+        return np.where(best >= 0, self.order[np.maximum(best, 0)], -1)
+
+    def nearest(self, bins: np.ndarray, target: np.ndarray) -> np.ndarray:
+        """Index of the arm set of each bin whose frequency is nearest target; -1 if the
+        bin is empty."""
+        lo, hi = self._range(bins, np.full(bins.shape, -np.inf), np.full(bins.shape, np.inf))
+        base = (bins - K_GRID[0]) * _KEY_SPAN - self.f_min
+        k = np.searchsorted(self.key, base + target)
+        out = np.full(bins.shape, -1)
+        for cand in (k - 1, k):
+            ok = (cand >= lo) & (cand < hi)
+            c = np.where(ok, cand, 0)
+            better = ok & ((out < 0) | (np.abs(self.sf[c] - target) < np.abs(self.sf[np.where(out < 0, 0, out)] - target)))
+            out = np.where(better, c, out)
+        return np.where(out >= 0, self.order[np.maximum(out, 0)], -1)
+
+
+
+def stage_table(kind: str, rfam, load_r: float, shelf=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(gains ascending, Ra, Rb) of every resistor pair of the family for a ratio stage
+    (resistors from 1 kohm, and from 10 ohm for a passive attenuator, which may need to
+    be stiff against a heavy load)."""
+    lo = 10.0 if kind == "attenuator" else 1e3
+    vals = np.array([v for v in values_of(rfam, shelf) if lo <= v <= 1e6])
+    if vals.size == 0:
+        return np.zeros(0), np.zeros(0), np.zeros(0)
+    ra, rb = (a.ravel() for a in np.meshgrid(vals, vals, indexing="ij"))
+    if kind == "gain":
+        g = 1 + rb / ra
+    elif kind == "attenuator":
+        shunt = rb if math.isinf(load_r) else rb * load_r / (rb + load_r)
+        g = shunt / (ra + shunt)
+    else:
+        g = rb / (ra + rb)
+    lo_g, hi_g = STAGE_RATIO[kind]
+    keep = (g >= lo_g) & (g <= hi_g)
+    order = np.argsort(g[keep], kind="stable")
+    return g[keep][order], ra[keep][order], rb[keep][order]

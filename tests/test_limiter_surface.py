@@ -1,0 +1,138 @@
+"""The search's surrogate of the diode limiter (partpick/circuits/limiter_surface.py)
+against the exact physics it stands for, and what it is built from:
+
+- the Wright omega function the junction tables use, against scipy.special.wrightomega
+  (a general-purpose reference library);
+- the tables shipped with the package equal a fresh computation (so a change to the
+  physics cannot leave them stale);
+- the cache is keyed by content: the same part under another file or name finds the
+  same table;
+- the surface's amplitude, THD and frequency pull against direct harmonic balance of
+  whole circuits with unequal arms, other gains and real op-amps, over the range the
+  search uses (the accuracy the search's estimates rest on; verification decides).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from partpick.cache import content_key, part_content, shipped_dir
+from partpick.circuits import CONTROLS, TOPOLOGIES, Conditions, balance, build_loop, linear
+from partpick.circuits.limiter_surface import F_SLICES, Planner, compute, surface, surface_at
+from partpick.circuits.wien import circuit
+from partpick.physics.junction import wright_omega
+
+TOPO = TOPOLOGIES["wien-bridge"]
+CTL = CONTROLS["diode-limiter"]
+
+
+def test_wright_omega_against_scipy():
+    special = pytest.importorskip("scipy.special")
+    z = np.concatenate([np.linspace(-700, 700, 4001), np.linspace(-35, 35, 20001), [1e3, 1e5, 1e8]])
+    ref = np.real(special.wrightomega(z))
+    assert np.max(np.abs(wright_omega(z) / ref - 1)) < 1e-12
+
+
+def test_shipped_tables_are_fresh(demo_catalog):
+    # one slice recomputed: a change to the physics that the version key missed shows here
+    lim = demo_catalog.find("limiters", "led-red")
+    shipped = surface(TOPO, lim, CTL, F_SLICES[2])
+    fresh = compute(TOPO, lim, CTL, F_SLICES[2])
+    for name in ("vo", "thd", "pull"):
+        a, b = getattr(shipped, name), fresh[name]
+        assert np.array_equal(np.isnan(a), np.isnan(b)), name
+        ok = ~np.isnan(a)
+        assert np.allclose(a[ok], b[ok], rtol=1e-9, atol=1e-12), name
+    # and every demo limiter's slices ship with the package
+    assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= len(demo_catalog.limiters) * len(F_SLICES)
+
+
+def test_cache_keys_follow_the_content_not_the_name(demo_catalog):
+    import dataclasses
+
+    lim = demo_catalog.find("limiters", "d-si-signal")
+    renamed = dataclasses.replace(lim, id="my-diode", description="another name", price_unit=9.0)
+    ignore = ("id", "description", "price_unit")
+    assert content_key(part_content(lim, ignore)) == content_key(part_content(renamed, ignore))
+    other = dataclasses.replace(lim, n=lim.n * 1.01)
+    assert content_key(part_content(lim, ignore)) != content_key(part_content(other, ignore))
+
+
+def _cases(demo_catalog, count=40, seed=7):
+    """Random circuits the search could propose: unequal arms (K 2.6..3.5), gain
+    excess 0.5..15 %, Rd from none to 10 Rg, a real op-amp well above the frequency."""
+    rng = np.random.default_rng(seed)
+    out = []
+    ops = [o for o in demo_catalog.opamps if o.gbw_hz >= 3e6]
+    while len(out) < count:
+        lim = demo_catalog.limiters[rng.integers(len(demo_catalog.limiters))]
+        op = ops[rng.integers(len(ops))]
+        f = 10 ** rng.uniform(2, 4.3)
+        r = 10 ** rng.uniform(3.5, 4.7)
+        c = 1 / (2 * math.pi * f * r)
+        a, b = rng.uniform(0.8, 1.25), rng.uniform(0.8, 1.25)
+        rs, rp, cs, cp = r * math.sqrt(a), r / math.sqrt(a), c / math.sqrt(b), c * math.sqrt(b)
+        k = 1 + rs / rp + cp / cs
+        m = 10 ** rng.uniform(-2.3, -0.8)
+        rg = 10e3
+        rf = rg * (k * math.exp(m) - 1)
+        rd = 0.0 if rng.random() < 0.25 else rg * 10 ** rng.uniform(-1.5, 1.0)
+        out.append((lim, op, rs, cs, rp, cp, rg, rf, rd))
+    return out
+
+
+@pytest.mark.slow
+def test_surface_against_harmonic_balance(demo_catalog):
+    # At the conductance the loop needs (the linear analysis's marginal conductance):
+    # amplitude within 6 % (median 1 %), THD within 20 % (median 5 %) where it is under
+    # 10 %, frequency pull within 1 % (median 0.05 %), the accuracy the search's estimates rest on
+    # (measured when the surrogate was built: 5.1 %, 0.2 %, 14 %, 1 %; the worst are
+    # Schottky pairs at tens of mV and Zener pairs in their knee, where the amplitude
+    # moves fast with the gain and yields are low anyway). Verification decides.
+    amp_err, thd_err, pull_err = [], [], []
+    for lim, op, rs, cs, rp, cp, rg, rf, rd in _cases(demo_catalog):
+        c = circuit(rs, cs, rp, cp, rg, rf, op, lim, rd_ohm=rd)
+        cond = Conditions(15.0, 298.15, math.inf)
+        loop = build_loop(c, cond)
+        lin = linear(c, cond, loop)
+        hb = balance(c, cond, lin, loop=loop)
+        if hb is None or hb.regime != "limiter":
+            continue
+        k_eff = float(c.gain / (1 + lin.margin))
+        m = math.log(c.gain / k_eff)
+        planner = Planner(TOPO, lim, CTL, [rd] if rd > 0 else [], (298.15,) * 3, lin.marginal_hz, rg)
+        arms = np.array([[rs, cs, rp, cp]])
+        ev = planner.evaluate(np.array([lin.marginal_g_s]),
+                              np.array([TOPO.port_conductance_slope(rg, rf, k_eff)]),
+                              np.array([TOPO.osc_per_port_k(k_eff)]), np.array([m]), 1 if rd > 0 else 0,
+                              thd_scale=TOPO.thd_transfer(np.array([k_eff]), arms))
+        if not np.isfinite(ev["vo1"][0]):
+            continue
+        amp_err.append(abs(ev["vo1"][0] / hb.osc_peak_v - 1))
+        if hb.osc_thd < 0.10:
+            thd_err.append(abs(ev["thd"][0] / hb.osc_thd - 1))
+        pull_err.append(abs(ev["pull"][0] - math.log(hb.freq_hz / lin.marginal_hz)))
+    assert len(amp_err) >= 25
+    assert max(amp_err) < 0.06 and np.median(amp_err) < 0.01, (max(amp_err), np.median(amp_err))
+    assert max(thd_err) < 0.20 and np.median(thd_err) < 0.05, (max(thd_err), np.median(thd_err))
+    # the pull read at the reference's gain excess (or, off the table, at the same
+    # conductance): up to 0.8 % measured, median 0.02 %; the pipeline re-chooses the arms
+    # with the pull exact physics measures (pipeline._refined)
+    assert max(pull_err) < 0.01 and np.median(pull_err) < 5e-4, (max(pull_err), np.median(pull_err))
+
+
+def test_blended_slices_are_blended_lookups(demo_catalog):
+    # blending the two slices' tables in their log axes is the same as blending what
+    # they look up (the lookup interpolates the same logs linearly)
+    lim = demo_catalog.find("limiters", "d-si-signal")
+    f = 5e3
+    blend = surface_at(TOPO, lim, CTL, f)
+    lo, hi = surface(TOPO, lim, CTL, 3e3), surface(TOPO, lim, CTL, 10e3)
+    t = (f - 3e3) / (10e3 - 3e3)
+    rd, g = np.array([2e3, 20e3]), np.array([2e-5, 1e-5])
+    a, b, c = blend.lookup(rd, g), lo.lookup(rd, g), hi.lookup(rd, g)
+    assert np.allclose(a[0], np.exp((1 - t) * np.log(b[0]) + t * np.log(c[0])))
+    assert np.allclose(a[2], (1 - t) * b[2] + t * c[2])
