@@ -1,38 +1,46 @@
-"""Coverage benchmark: does ``partpick design`` design what an independent oracle
-proves feasible, and are its refusals right?
+"""Coverage benchmark: does ``partpick design`` design what an independent oracle can
+build, at no more cost, and how long does it take?
 
-1. Generate the requirements (``coverage_specs.py``, seeded).
-2. Label each with the oracle (``oracle.py``: a brute-force designer sharing no code
-   with partpick's search, judged by partpick's verifier): "exists" with a passing BOM,
-   or "none found". Labels and BOMs are cached in a JSON file keyed by the generator
-   seed and the spec text (``--refresh`` recomputes).
-3. Run ``partpick design SPEC --format json -n 10`` as a whole process on every spec,
-   timed.
-4. For every refusal (exit 1), parse the requirement it names and the value it gives
-   (``refusal_advice.py``), relax the spec to it and run design again: it must design.
+Per requirement (``coverage_specs.py``, seeded; by default issue 11's ordinary set):
 
-Prints: coverage = designed / (oracle says exists); false refusals (the oracle has a
-passing BOM, partpick refused) with the oracle's BOM written beside the spec; the
-reverse (partpick designed where the oracle found nothing); whether each refusal's
-message is right; and the time per spec (median, max) as ratios to ``python -c pass``
-and ``python -c "import partpick.cli"`` measured in the same run.
+1. ``partpick design SPEC --format json -n 10`` as a whole process, timed;
+2. the oracle (``oracle.py``: a brute-force designer sharing no code with partpick's
+   search: textbook arms, sweeps of Rf, Rd, limiter, output stage and op-amp, judged by
+   the verifier), cached by spec text in ``benchmarks/.cache/``;
+3. ``partpick check SPEC ORACLE_BOM`` as a whole process on the oracle's BOM, and, when
+   it passes, ``partpick netlist`` run in ``ngspice -b``: the oracle's BOM is trusted
+   only when the check passes and ngspice's nominal run lands inside the frequency and
+   amplitude windows with THD under 1.5 x the limit (the factor of
+   tests/test_ngspice_agreement.py);
+4. where both design, ``partpick design --rank-by cost -n 1`` for partpick's cheapest.
 
-Run: python benchmarks/bench_coverage.py [--count N] [--seed S] [--subset K] [--jobs J]
-     [--refresh] [--out DIR] [--json FILE] [--partpick CMD]
+Prints: designs found / feasible (feasible: partpick designs, or a trusted oracle BOM);
+false refusals (a trusted oracle BOM, partpick refuses) with the refusal and the BOM
+(``--refusals DIR`` writes NAME.yaml and NAME.oracle-bom.yaml for each as soon as it is
+found); cost of partpick's #1 and of its cheapest against the oracle's BOM; median and
+max whole-process design time as ratios to ``python -c pass`` and to importing
+``partpick.cli``, measured in the same run. ``--relax`` also checks each refusal's
+advice (``refusal_advice.py``): relaxing what it names to the value it gives must design.
+
+Run: python benchmarks/bench_coverage.py [--set ordinary|wide] [--count N] [--seed S]
+     [--subset K] [--jobs 1] [--refusals DIR] [--store tests/data/coverage --force]
 """
 
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import hashlib
+import importlib.util
 import json
+import math
 import os
-import shlex
+import re
+import shutil
 import statistics
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -44,18 +52,21 @@ sys.path.insert(0, str(HERE))
 if importlib.util.find_spec("partpick") is None:   # not installed: the checkout's own
     sys.path.insert(0, str(ROOT))
 
-from coverage_specs import DEFAULT_COUNT, DEFAULT_SEED, Requirement, generate  # noqa: E402
+from coverage_specs import (DEFAULT_COUNT, DEFAULT_SEED, ORDINARY_COUNT, ORDINARY_SEED, Requirement,  # noqa: E402
+                            generate, ordinary)
 from refusal_advice import apply_advice, parse_refusal  # noqa: E402
 
 CACHE = HERE / ".cache" / "coverage_oracle.json"
-# the oracle and every partpick run read the same catalogs
-CATALOGS = Path(os.environ.get("PARTPICK_CATALOGS", ROOT / "catalogs"))
-ORACLE_VERSION = 1          # bump when the oracle changes what it finds
+CATALOGS = Path(os.environ.get("PARTPICK_CATALOGS", ROOT / "catalogs"))   # the oracle's and partpick's
+ORACLE_VERSION = 2          # bump when the oracle changes what it finds (2: looks for the cheapest pass)
+SPICE_THD_FACTOR = 1.5      # tests/test_ngspice_agreement.py's THD agreement factor
+MEASURED = re.compile(r"partpick measured: frequency (\S+) Hz, amplitude at the load (\S+) V peak")
+THD = re.compile(r"THD:\s*([\d.eE+-]+)\s*%")
 
 
 @dataclass
-class Run:
-    """One whole-process ``partpick design`` run."""
+class Proc:
+    """One whole-process partpick (or ngspice) run."""
 
     rc: int
     seconds: float
@@ -66,23 +77,105 @@ class Run:
     def message(self) -> str:
         return self.stderr.strip().removeprefix("error: ")
 
+    def json(self) -> dict:
+        try:
+            return json.loads(self.stdout)
+        except ValueError:
+            return {}
+
 
 @dataclass
 class Row:
     req: Requirement
     oracle: dict
-    run: Run | None = None
-    relaxed: list = field(default_factory=list)   # (advice, rc) per piece of advice
+    design: Proc | None = None
+    by_cost: Proc | None = None
+    check: Proc | None = None
+    spice: dict = field(default_factory=dict)
+    oracle_cost: float = math.nan
+    relaxed: list = field(default_factory=list)
 
     @property
-    def exists(self) -> bool:
-        return self.oracle.get("label") == "exists"
+    def designed(self) -> bool:
+        return self.design is not None and self.design.rc == 0
+
+    @property
+    def refused(self) -> bool:
+        return self.design is not None and self.design.rc == 1
+
+    @property
+    def check_passed(self) -> bool:
+        return self.check is not None and self.check.rc == 0
+
+    @property
+    def trusted(self) -> bool:
+        """The oracle's BOM passes ``partpick check`` and ngspice agrees (or is absent)."""
+        return self.check_passed and self.spice.get("ok", True)
+
+    @property
+    def feasible(self) -> bool:
+        return self.designed or self.trusted
+
+    def cost(self, which: str) -> float:
+        proc = self.design if which == "first" else self.by_cost
+        cands = proc.json().get("candidates", []) if proc is not None and proc.rc == 0 else []
+        return cands[0]["cost"] if cands else math.nan
 
 
-# -- the oracle's labels, cached ------------------------------------------------------------------
+# -- processes ------------------------------------------------------------------------------------
 
-def cache_key(seed: int, text: str) -> str:
-    return f"{seed}:{hashlib.sha256(text.encode()).hexdigest()[:20]}"
+def partpick_command(given: str | None) -> list[str]:
+    if given:
+        return given.split()
+    script = Path(sys.executable).parent / "partpick"
+    return [str(script)] if script.exists() else [sys.executable, "-m", "partpick"]
+
+
+def run(cmd: list[str], timeout: float = 600.0) -> Proc:
+    t = time.perf_counter()
+    try:
+        env = dict(os.environ, PARTPICK_CATALOGS=str(CATALOGS))
+        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, env=env)
+        return Proc(p.returncode, time.perf_counter() - t, p.stdout, p.stderr)
+    except subprocess.TimeoutExpired:
+        return Proc(-1, time.perf_counter() - t, "", f"timed out after {timeout:g} s")
+
+
+def baselines(repeats: int = 5) -> tuple[float, float]:
+    """Median wall time of ``python -c pass`` and of ``python -c "import partpick.cli"``."""
+    py = sys.executable
+    bare = statistics.median(run([py, "-c", "pass"]).seconds for _ in range(repeats))
+    imp = statistics.median(run([py, "-c", "import partpick.cli"]).seconds for _ in range(repeats))
+    return bare, imp
+
+
+def spice_verdict(pp: list[str], spec_path: Path, bom_path: Path, spec) -> dict:
+    """The oracle's BOM at the nominal point in ngspice (``partpick netlist`` then
+    ``ngspice -b``): its frequency, amplitude at the load and THD, judged against the
+    spec's windows (THD against SPICE_THD_FACTOR x the limit)."""
+    if shutil.which("ngspice") is None:
+        return {}
+    net = run(pp + ["netlist", str(bom_path), "--spec", str(spec_path)], timeout=120)
+    if net.rc != 0:
+        return {"ok": False, "why": f"netlist exit {net.rc}: {net.message[:200]}"}
+    cir = bom_path.with_suffix(".cir")
+    cir.write_text(net.stdout)
+    sim = run(["ngspice", "-b", str(cir)], timeout=300)
+    m, thd = MEASURED.search(sim.stdout), THD.search(sim.stdout)
+    if not m:
+        return {"ok": False, "why": f"ngspice measured nothing (exit {sim.rc}, {sim.seconds:.0f} s)"}
+    f_hz, a_pk = float(m[1]), float(m[2])
+    t = float(thd[1]) / 100 if thd else math.nan
+    f_err, a_err = f_hz / spec.frequency.target_hz - 1, a_pk / spec.amplitude.peak_v - 1
+    ok = (abs(f_err) <= spec.frequency.tolerance_frac and abs(a_err) <= spec.amplitude.tolerance_frac
+          and not t > SPICE_THD_FACTOR * spec.max_thd_frac)
+    return {"ok": ok, "freq_error": f_err, "amp_error": a_err, "thd": t, "seconds": round(sim.seconds, 1)}
+
+
+# -- the oracle, cached ---------------------------------------------------------------------------
+
+def cache_key(text: str) -> str:
+    return hashlib.sha256(text.encode()).hexdigest()[:20]
 
 
 def load_cache(path: Path) -> dict:
@@ -100,77 +193,97 @@ def save_cache(path: Path, cache: dict) -> None:
     os.replace(tmp, path)
 
 
-def label_all(reqs: list[Requirement], seed: int, cache_path: Path, refresh: bool, log) -> dict[str, dict]:
-    """The oracle's label per requirement name (computed once per seed and text)."""
-    from oracle import oracle_design
+class Oracle:
+    """The oracle's label per requirement text, computed once (``--refresh`` recomputes)."""
+
+    def __init__(self, path: Path, refresh: bool):
+        self.path, self.cache = path, ({} if refresh else load_cache(path))
+        self.labels = self.cache.setdefault("labels", {})
+        self.catalog = None
+        self.lock = threading.Lock()      # one oracle at a time: it is in this process
+
+    def __call__(self, req: Requirement) -> dict:
+        key = cache_key(req.text)
+        with self.lock:
+            return self.labels[key] if key in self.labels else self._label(req, key)
+
+    def _label(self, req: Requirement, key: str) -> dict:
+        from oracle import oracle_design
+        from partpick.catalog import load_catalog
+        from partpick.spec import Spec
+        self.catalog = self.catalog or load_catalog(CATALOGS)
+        self.labels[key] = oracle_design(Spec.from_text(req.text, f"{req.name}.yaml"), self.catalog).to_json()
+        save_cache(self.path, self.cache)
+        return self.labels[key]
+
+
+# -- one requirement ------------------------------------------------------------------------------
+
+def bom_cost(text: str) -> float:
+    """The oracle BOM's cost per board by partpick's price list (``partpick.pricing``)."""
+    from partpick.bom import parse_bom
     from partpick.catalog import load_catalog
+    from partpick.pricing import bom_cost as cost
+    catalog = load_catalog(CATALOGS)
+    return cost(parse_bom(text, "oracle.yaml", catalog), catalog)[0]
+
+
+def evaluate(row: Row, pp: list[str], oracle: "Oracle", out: Path, refusals: Path | None, relax: bool,
+             log) -> Row:
     from partpick.spec import Spec
-
-    cache = {} if refresh else load_cache(cache_path)
-    labels = cache.setdefault("labels", {})
-    catalog = None
-    out = {}
-    for n, req in enumerate(reqs, 1):
-        key = cache_key(seed, req.text)
-        if key not in labels:
-            catalog = catalog or load_catalog(CATALOGS)
-            res = oracle_design(Spec.from_text(req.text, f"{req.name}.yaml"), catalog)
-            labels[key] = res.to_json()
-            log(f"oracle {n:3d}/{len(reqs)} {req.name}: {res.label} ({res.evaluations} judgements, "
-                f"{res.seconds:.1f} s)")
-            save_cache(cache_path, cache)
-        out[req.name] = labels[key]
-    return out
-
-
-# -- partpick as a whole process ------------------------------------------------------------------
-
-def partpick_command(given: str | None) -> list[str]:
-    if given:
-        return shlex.split(given)
-    script = Path(sys.executable).parent / "partpick"
-    return [str(script)] if script.exists() else [sys.executable, "-m", "partpick"]
-
-
-def run(cmd: list[str], timeout: float = 600.0) -> Run:
-    t = time.perf_counter()
-    try:
-        env = dict(os.environ, PARTPICK_CATALOGS=str(CATALOGS))
-        p = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, env=env)
-        return Run(p.returncode, time.perf_counter() - t, p.stdout, p.stderr)
-    except subprocess.TimeoutExpired:
-        return Run(-1, time.perf_counter() - t, "", f"timed out after {timeout:g} s")
+    name = row.req.name
+    row.oracle = oracle(row.req)
+    spec_path = out / f"{name}.yaml"
+    spec_path.write_text(row.req.text)
+    row.design = run(pp + ["design", str(spec_path), "--format", "json", "-n", "10"])
+    bom = row.oracle.get("bom")
+    if bom:
+        bom_path = out / f"{name}.oracle-bom.yaml"
+        bom_path.write_text(bom)
+        row.oracle_cost = bom_cost(bom)
+        row.check = run(pp + ["check", str(spec_path), str(bom_path), "--format", "json"])
+        if row.check_passed:
+            row.spice = spice_verdict(pp, spec_path, bom_path, Spec.from_text(row.req.text))
+    if row.designed and row.trusted:
+        row.by_cost = run(pp + ["design", str(spec_path), "--format", "json", "-n", "1", "--rank-by", "cost"])
+    if row.refused and relax:
+        check_refusal(pp, row, out)
+    verdict = ("FALSE REFUSAL" if row.refused and row.trusted else
+               "designed" if row.designed else f"exit {row.design.rc}")
+    log(f"{name}: {verdict} in {row.design.seconds:.1f} s; oracle {row.oracle.get('label')}"
+        + (f", check {'pass' if row.check_passed else 'FAIL'}" if bom else "")
+        + (f", ngspice {'agrees' if row.spice.get('ok') else 'DISAGREES'}" if row.spice else ""))
+    if refusals is not None and row.refused and row.trusted:
+        write_false_refusal(row, refusals)
+    return row
 
 
-def design(pp: list[str], spec_path: Path) -> Run:
-    return run(pp + ["design", str(spec_path), "--format", "json", "-n", "10"])
+def write_false_refusal(row: Row, folder: Path) -> None:
+    folder.mkdir(parents=True, exist_ok=True)
+    name = row.req.name
+    (folder / f"{name}.yaml").write_text(row.req.text)
+    checks = row.check.json()
+    header = ["# the coverage oracle's BOM (benchmarks/oracle.py); `partpick check` passes it"
+              f" (yield {checks.get('monte_carlo', {}).get('yield', math.nan):.4g}, cost {row.oracle_cost:.3f} USD)"]
+    if row.spice:
+        header.append(f"# ngspice nominal run: frequency error {row.spice['freq_error']:+.3%}, amplitude error "
+                      f"{row.spice['amp_error']:+.2%}, THD {row.spice['thd']:.2%}")
+    header.append(f"# partpick design refused in {row.design.seconds:.1f} s:")
+    header += [f"#   {ln}" for ln in row.design.message.splitlines()[:6]]
+    (folder / f"{name}.oracle-bom.yaml").write_text("\n".join(header) + "\n" + row.oracle["bom"])
 
 
-def baselines(pp: list[str], repeats: int = 5) -> tuple[float, float]:
-    """Median wall time of ``python -c pass`` and ``python -c "import partpick.cli"``
-    with the interpreter the partpick command runs on."""
-    py = sys.executable
-    if pp and Path(pp[0]).exists() and Path(pp[0]).name == "partpick":
-        first = Path(pp[0]).read_text(errors="replace").splitlines()[0]
-        if first.startswith("#!"):
-            py = first[2:].strip()
-    bare = statistics.median(run([py, "-c", "pass"]).seconds for _ in range(repeats))
-    imp = statistics.median(run([py, "-c", "import partpick.cli"]).seconds for _ in range(repeats))
-    return bare, imp
-
-
-def check_refusal(pp: list[str], row: Row, spec_dir: Path) -> None:
+def check_refusal(pp: list[str], row: Row, out: Path) -> None:
     """Relax the spec to each piece of advice in the refusal and design again."""
-    for i, adv in enumerate(parse_refusal(row.run.message)):
+    for i, adv in enumerate(parse_refusal(row.design.message)):
         try:
             text = apply_advice(row.req.text, adv)
         except Exception as exc:        # an advice the spec cannot take is a wrong message
             row.relaxed.append((adv, f"not applicable: {exc}"))
             continue
-        path = spec_dir / f"{row.req.name}.relaxed{i}.yaml"
+        path = out / f"{row.req.name}.relaxed{i}.yaml"
         path.write_text(text)
-        r = design(pp, path)
-        row.relaxed.append((adv, r.rc))
+        row.relaxed.append((adv, run(pp + ["design", str(path), "--format", "json", "-n", "1"]).rc))
 
 
 # -- report ---------------------------------------------------------------------------------------
@@ -179,179 +292,140 @@ def _pct(a: int, b: int) -> str:
     return f"{a}/{b} = {100 * a / b:.1f} %" if b else f"{a}/0"
 
 
-def report(rows: list[Row], bare: float, imp: float, out_dir: Path, oracle_s: list[float]) -> dict:
-    exists = [r for r in rows if r.exists]
-    designed = [r for r in rows if r.run and r.run.rc == 0]
-    refused = [r for r in rows if r.run and r.run.rc == 1]
-    other = [r for r in rows if r.run and r.run.rc not in (0, 1)]
-    cov = [r for r in exists if r.run and r.run.rc == 0]
-    false_ref = [r for r in exists if r.run and r.run.rc == 1]
-    reverse = [r for r in designed if not r.exists]
-    print(f"\n{len(rows)} requirements; oracle: {len(exists)} a design exists, {len(rows) - len(exists)} none found "
-          f"(oracle time per spec: median {statistics.median(oracle_s):.1f} s, max {max(oracle_s):.1f} s)")
-    print(f"partpick design: {len(designed)} designed, {len(refused)} refused (exit 1), {len(other)} other exit codes")
-    print(f"coverage = designed / oracle exists: {_pct(len(cov), len(exists))}")
-    print(f"\nfalse refusals (the oracle has a passing BOM, partpick refused): {len(false_ref)}")
+def _times(label: str, ts: list[float], bare: float, imp: float) -> str:
+    if not ts:
+        return f"{label}: none"
+    med, mx = statistics.median(ts), max(ts)
+    return (f"{label} ({len(ts)}): median {med:.2f} s ({med / bare:.0f}x python -c pass, {med / imp:.1f}x import), "
+            f"max {mx:.2f} s ({mx / bare:.0f}x pass, {mx / imp:.1f}x import), over 1 s: {sum(t > 1 for t in ts)}, "
+            f"over 3 s: {sum(t > 3 for t in ts)}")
+
+
+def report(rows: list[Row], bare: float, imp: float, out: Path) -> dict:
+    feasible = [r for r in rows if r.feasible]
+    designed = [r for r in rows if r.designed]
+    with_bom = [r for r in rows if r.oracle.get("bom")]
+    false_ref = [r for r in rows if r.refused and r.trusted]
+    other = [r for r in rows if r.design.rc not in (0, 1)]
+    print(f"\n{len(rows)} requirements; files in {out}")
+    print(f"oracle: {len(with_bom)} BOMs built; partpick check passes {sum(r.check_passed for r in with_bom)}; "
+          f"ngspice agrees with {sum(bool(r.spice.get('ok')) for r in with_bom)} of "
+          f"{sum(bool(r.spice) for r in with_bom)} run; trusted {sum(r.trusted for r in rows)}")
+    print(f"designs found / feasible: {_pct(len(designed), len(feasible))} "
+          f"(feasible: partpick designs or a trusted oracle BOM)")
+    print(f"\nfalse refusals (trusted oracle BOM, partpick refused): {len(false_ref)}")
     for r in false_ref:
-        print(f"  {r.req.name}: {r.run.message.splitlines()[0][:160] if r.run.message else '(no message)'}")
-        print(f"    oracle BOM: {out_dir / (r.req.name + '.oracle-bom.yaml')}")
-    print(f"\npartpick designed, oracle found nothing: {len(reverse)}")
-    for r in reverse:
-        print(f"  {r.req.name}: partpick's designs in {out_dir / (r.req.name + '.design.json')}")
-    right = wrong = no_advice = 0
-    print("\nrefusal messages (relax what each names to the value it gives; design must then succeed):")
-    for r in refused:
-        if not r.relaxed:
-            no_advice += 1
-            verdict = "NO ADVICE PARSED"
-        elif all(rc == 0 for _, rc in r.relaxed):
-            right += 1
-            verdict = "right"
-        else:
-            wrong += 1
-            verdict = "WRONG"
-        advice = "; ".join(f"{a.field} -> {a.value} ({a.how}): {'designs' if rc == 0 else f'exit {rc}'}"
-                           for a, rc in r.relaxed)
-        print(f"  {r.req.name}: {verdict}{': ' + advice if advice else ''}")
-    print(f"refusal messages verified by relaxation: {right} right, {wrong} wrong, {no_advice} without parsable "
-          f"advice, of {len(refused)}")
+        print(f"  {r.req.name}: {r.design.message.splitlines()[0][:200] if r.design.message else '(no message)'}")
+        print(f"    oracle BOM {out / (r.req.name + '.oracle-bom.yaml')}, cost {r.oracle_cost:.3f} USD")
     for r in other:
-        print(f"  {r.req.name}: exit {r.run.rc}: {r.run.message[:200]}")
-    times = [r.run.seconds for r in rows if r.run]
-    feas = [r.run.seconds for r in exists if r.run]
-    print(f"\nbaselines (same run): python -c pass {bare * 1e3:.0f} ms; python -c 'import partpick.cli' {imp * 1e3:.0f} ms")
-    for what, ts in (("every requirement", times), ("oracle-feasible requirements", feas)):
-        if ts:
-            med, mx = statistics.median(ts), max(ts)
-            print(f"partpick design -n 10, {what} ({len(ts)}): median {med:.2f} s ({med / bare:.0f}x pass, "
-                  f"{med / imp:.1f}x import), max {mx:.2f} s ({mx / bare:.0f}x pass, {mx / imp:.1f}x import), "
-                  f"over 3 s: {sum(t > 3 for t in ts)}")
-    return {"requirements": len(rows), "oracle_exists": len(exists), "designed": len(designed), "covered": len(cov),
-            "false_refusals": [r.req.name for r in false_ref], "reverse": [r.req.name for r in reverse],
-            "refusals_right": right, "refusals_wrong": wrong, "refusals_unparsed": no_advice,
+        print(f"  {r.req.name}: design exit {r.design.rc}: {r.design.message[:200]}")
+    bad = [r for r in with_bom if not r.check_passed]
+    if bad:
+        print(f"oracle BOMs partpick check rejects (oracle's judgement at {4000} builds, check at 20000): "
+              + ", ".join(r.req.name for r in bad))
+    print("\ncost where both design (USD per board): partpick #1 | partpick --rank-by cost #1 | oracle")
+    both = [r for r in rows if r.by_cost is not None]
+    dearer = []
+    for r in both:
+        first, cheap = r.cost("first"), r.cost("cheap")
+        flag = "  PARTPICK DEARER" if cheap > r.oracle_cost + 0.005 else ""
+        if flag:
+            dearer.append(r.req.name)
+        print(f"  {r.req.name:24s} {first:7.3f} | {cheap:7.3f} | {r.oracle_cost:7.3f}{flag}")
+    ratios = [r.cost("cheap") / r.oracle_cost for r in both]
+    if ratios:
+        print(f"partpick's cheapest / oracle's: median {statistics.median(ratios):.2f}, max {max(ratios):.2f}; "
+              f"dearer than the oracle by over half a cent: {len(dearer)}")
+    if any(r.relaxed for r in rows):
+        right = sum(bool(r.relaxed) and all(rc == 0 for _, rc in r.relaxed) for r in rows if r.refused)
+        print(f"\nrefusal advice verified by relaxation: {right} of {sum(r.refused for r in rows)} refusals")
+    print(f"\nbaselines (same run): python -c pass {bare * 1e3:.0f} ms; import partpick.cli {imp * 1e3:.0f} ms")
+    print(_times("partpick design -n 10, every requirement", [r.design.seconds for r in rows], bare, imp))
+    print(_times("  feasible requirements", [r.design.seconds for r in feasible], bare, imp))
+    print(_times("  designed", [r.design.seconds for r in designed], bare, imp))
+    print(_times("  refused", [r.design.seconds for r in rows if r.refused], bare, imp))
+    return {"requirements": len(rows), "feasible": len(feasible), "designed": len(designed),
+            "false_refusals": [r.req.name for r in false_ref], "dearer": dearer,
             "baseline_pass_s": bare, "baseline_import_s": imp,
-            "rows": [{"name": r.req.name, "oracle": r.oracle.get("label"), "rc": r.run.rc if r.run else None,
-                      "seconds": r.run.seconds if r.run else None, "message": r.run.message if r.run else "",
-                      "relaxed": [(a.field, a.value, rc) for a, rc in r.relaxed]} for r in rows]}
+            "rows": [{"name": r.req.name, "design_rc": r.design.rc, "design_s": round(r.design.seconds, 2),
+                      "oracle": r.oracle.get("label"), "oracle_s": r.oracle.get("seconds"),
+                      "check_passed": r.check_passed if r.check else None, "spice": r.spice,
+                      "cost_first": r.cost("first"), "cost_cheapest": r.cost("cheap"),
+                      "cost_oracle": r.oracle_cost, "message": r.design.message} for r in rows]}
 
 
-def store_subset(rows: list[Row], args, argv) -> int:
-    """Write ``args.store_count`` requirements the oracle built a design for, spread
-    over the set, each as ``NAME.yaml`` (the spec) and ``NAME.bom.yaml`` (the oracle's
-    BOM), with a MANIFEST saying how they were made."""
-    out: Path = args.store
-    old = sorted(out.glob("*.yaml")) if out.exists() else []
-    if old and not args.force:
-        print(f"{out} holds {len(old)} files; add --force to replace them", file=sys.stderr)
-        return 2
+def store(rows: list[Row], folder: Path, count: int, force: bool, command: str) -> None:
+    """Write ``count`` requirements with a trusted oracle BOM, spread over the set, as
+    NAME.yaml and NAME.bom.yaml, with a MANIFEST saying how they were made."""
+    old = sorted(folder.glob("*.yaml")) if folder.exists() else []
+    if old and not force:
+        sys.exit(f"{folder} holds {len(old)} files; add --force to replace them")
     for f in old:
         f.unlink()
-    out.mkdir(parents=True, exist_ok=True)
-    from partpick.bom import parse_bom
-    from partpick.catalog import load_catalog
-    from partpick.pipeline import evaluate_bom
-    from partpick.spec import Spec
-
-    catalog = load_catalog(CATALOGS)
-
-    def still_passes(row: Row) -> bool:   # judged again by this partpick's verifier
-        bom = parse_bom(row.oracle["bom"], "oracle.yaml", catalog)
-        return evaluate_bom(bom, Spec.from_text(row.req.text), catalog).verdict.passed
-    exists = [r for r in rows if r.exists]
-    chosen, skipped = [], []
-    for r in [exists[int(i * len(exists) / args.store_count)] for i in range(args.store_count)] + exists:
-        if len(chosen) >= args.store_count:
-            break
-        if r.req in chosen or r.req.name in skipped:
-            continue
-        if still_passes(r):
-            chosen.append(r.req)
-        else:
-            skipped.append(r.req.name)
-    if skipped:
-        print(f"not stored: the oracle BOM of {', '.join(skipped)} fails this partpick's verifier", file=sys.stderr)
-    chosen.sort(key=lambda q: q.name)
-    by_name = {r.req.name: r for r in rows}
-    for req in chosen:
-        (out / f"{req.name}.yaml").write_text(req.text)
-        (out / f"{req.name}.bom.yaml").write_text("# the coverage oracle's design (benchmarks/oracle.py), judged "
-                                                  "passing by partpick's verifier\n" + by_name[req.name].oracle["bom"])
-    cmd = "python benchmarks/bench_coverage.py " + " ".join(argv if argv is not None else sys.argv[1:])
-    (out / "MANIFEST").write_text(
-        f"Coverage subset for tests/test_coverage_subset.py: {len(chosen)} requirements of the coverage "
-        f"benchmark (generator seed {args.seed}, {args.count} requirements, oracle version {ORACLE_VERSION}) for "
-        f"which the oracle built a design, spread over the set; NAME.yaml is the spec, NAME.bom.yaml the oracle's "
-        f"BOM.\nMade by: {cmd}\n")
-    print(f"wrote {len(chosen)} requirements and their oracle BOMs to {out}")
-    return 0
+    folder.mkdir(parents=True, exist_ok=True)
+    trusted = [r for r in rows if r.trusted]
+    chosen = pick_subset(trusted, count)
+    for r in chosen:
+        (folder / f"{r.req.name}.yaml").write_text(r.req.text)
+        (folder / f"{r.req.name}.bom.yaml").write_text(
+            f"# the coverage oracle's BOM (benchmarks/oracle.py, oracle version {ORACLE_VERSION}); "
+            f"partpick check passed it when recorded; cost {r.oracle_cost:.4f} USD per board\n" + r.oracle["bom"])
+    rev = subprocess.run(["git", "-C", str(ROOT), "rev-parse", "--short", "HEAD"], capture_output=True, text=True)
+    (folder / "MANIFEST").write_text(
+        f"Coverage subset for tests/test_coverage_subset.py: {len(chosen)} requirements of the coverage benchmark "
+        f"whose oracle BOM passed `partpick check` and ngspice when recorded (oracle version {ORACLE_VERSION}, "
+        f"partpick at {rev.stdout.strip()}), spread over the set; NAME.yaml is the spec, NAME.bom.yaml the "
+        f"oracle's BOM.\nMade by: {command}\n")
+    print(f"wrote {len(chosen)} requirements and their oracle BOMs to {folder}")
 
 
-def pick_subset(reqs: list[Requirement], k: int) -> list[Requirement]:
-    """k requirements spread evenly over the set (deterministic)."""
-    if k <= 0 or k >= len(reqs):
-        return reqs
-    step = len(reqs) / k
-    return [reqs[int(i * step)] for i in range(k)]
+def pick_subset(items: list, k: int) -> list:
+    """k items spread evenly over the list (deterministic)."""
+    if k <= 0 or k >= len(items):
+        return list(items)
+    return [items[int(i * len(items) / k)] for i in range(k)]
 
 
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--count", type=int, default=DEFAULT_COUNT, help="requirements to generate")
-    ap.add_argument("--seed", type=int, default=DEFAULT_SEED, help="generator seed")
+    ap.add_argument("--set", choices=("ordinary", "wide"), default="ordinary",
+                    help="issue 11's ordinary requirements (default) or the wide 200+ spread")
+    ap.add_argument("--count", type=int, default=None, help="requirements to generate")
+    ap.add_argument("--seed", type=int, default=None, help="generator seed")
     ap.add_argument("--subset", type=int, default=0, help="run K requirements spread over the set")
-    ap.add_argument("--jobs", type=int, default=1, help="design runs at once (default 1)")
+    ap.add_argument("--jobs", type=int, default=1, help="requirements at once (default 1: the machine is shared)")
     ap.add_argument("--refresh", action="store_true", help="recompute the oracle's labels")
-    ap.add_argument("--cache", type=Path, default=CACHE, help=f"oracle cache (default {CACHE.relative_to(ROOT)})")
-    ap.add_argument("--out", type=Path, default=None, help="folder for the specs and oracle BOMs (default: a temp dir)")
+    ap.add_argument("--cache", type=Path, default=CACHE)
+    ap.add_argument("--out", type=Path, default=None, help="folder for specs, BOMs, netlists (default: temp)")
+    ap.add_argument("--refusals", type=Path, default=None,
+                    help="write each false refusal's spec and oracle BOM here as soon as it is found")
     ap.add_argument("--json", type=Path, default=None, help="write the results as JSON")
     ap.add_argument("--partpick", default=None, help="the partpick command (default: the one beside this python)")
-    ap.add_argument("--oracle-only", action="store_true", help="label with the oracle and stop")
-    ap.add_argument("--no-relax", action="store_true", help="skip the refusal-message check")
-    ap.add_argument("--store", type=Path, default=None,
-                    help="write --store-count oracle-feasible requirements with their oracle BOMs to DIR and stop "
-                         "(the test suite's subset: tests/data/coverage)")
+    ap.add_argument("--relax", action="store_true", help="also check each refusal's advice by relaxing the spec")
+    ap.add_argument("--store", type=Path, default=None, help="record trusted oracle BOMs for the test subset")
     ap.add_argument("--store-count", type=int, default=30)
-    ap.add_argument("--force", action="store_true", help="let --store replace the files in DIR")
+    ap.add_argument("--force", action="store_true", help="let --store replace the files in its folder")
     args = ap.parse_args(argv)
 
     log = lambda m: print(m, file=sys.stderr, flush=True)  # noqa: E731
-    reqs = pick_subset(generate(args.count, args.seed), args.subset)
-    out_dir = args.out or Path(tempfile.mkdtemp(prefix="partpick-coverage-"))
-    out_dir.mkdir(parents=True, exist_ok=True)
-    t = time.perf_counter()
-    labels = label_all(reqs, args.seed, args.cache, args.refresh, log)
-    log(f"oracle labels in {time.perf_counter() - t:.1f} s")
-    rows = [Row(r, labels[r.name]) for r in reqs]
-    for row in rows:
-        (out_dir / f"{row.req.name}.yaml").write_text(row.req.text)
-        if row.oracle.get("bom"):
-            (out_dir / f"{row.req.name}.oracle-bom.yaml").write_text(row.oracle["bom"])
-    oracle_s = [r.oracle.get("seconds", 0.0) for r in rows]
-    if args.store:
-        return store_subset(rows, args, argv)
-    if args.oracle_only:
-        n = sum(r.exists for r in rows)
-        print(f"{len(rows)} requirements; oracle: {n} a design exists, {len(rows) - n} none found; "
-              f"median {statistics.median(oracle_s):.1f} s, max {max(oracle_s):.1f} s per spec; files in {out_dir}")
-        return 0
+    if args.set == "ordinary":
+        reqs = ordinary(args.count or ORDINARY_COUNT, ORDINARY_SEED if args.seed is None else args.seed)
+    else:
+        reqs = generate(args.count or DEFAULT_COUNT, DEFAULT_SEED if args.seed is None else args.seed)
+    reqs = pick_subset(reqs, args.subset)
+    out = args.out or Path(tempfile.mkdtemp(prefix="partpick-coverage-"))
+    out.mkdir(parents=True, exist_ok=True)
     pp = partpick_command(args.partpick)
-    bare, imp = baselines(pp)
-
-    def one(row: Row) -> Row:
-        row.run = design(pp, out_dir / f"{row.req.name}.yaml")
-        if row.run.rc == 0:
-            (out_dir / f"{row.req.name}.design.json").write_text(row.run.stdout)
-        log(f"design {row.req.name}: exit {row.run.rc} in {row.run.seconds:.1f} s (oracle: {row.oracle.get('label')})")
-        if row.run.rc == 1 and not args.no_relax:
-            check_refusal(pp, row, out_dir)
-        return row
-
+    bare, imp = baselines()
+    oracle = Oracle(args.cache, args.refresh)
     with ThreadPoolExecutor(max_workers=max(args.jobs, 1)) as ex:
-        rows = list(ex.map(one, rows))
-    print(f"coverage benchmark: {len(rows)} requirements from seed {args.seed}; files in {out_dir}")
-    summary = report(rows, bare, imp, out_dir, oracle_s)
+        rows = list(ex.map(lambda q: evaluate(Row(q, {}), pp, oracle, out, args.refusals, args.relax, log), reqs))
+    summary = report(rows, bare, imp, out)
     if args.json:
-        args.json.write_text(json.dumps(summary, indent=1))
+        args.json.write_text(json.dumps(summary, indent=1, default=str))
+    if args.store:
+        cmd = "python benchmarks/bench_coverage.py " + " ".join(argv if argv is not None else sys.argv[1:])
+        store(rows, args.store, args.store_count, args.force, cmd)
     return 0
 
 

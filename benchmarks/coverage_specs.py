@@ -36,10 +36,13 @@ ROOT = Path(__file__).resolve().parent.parent
 if importlib.util.find_spec("partpick") is None:   # not installed: the checkout's own
     sys.path.insert(0, str(ROOT))
 
-__all__ = ["Requirement", "generate", "catalog_families", "DEFAULT_COUNT", "DEFAULT_SEED"]
+__all__ = ["Requirement", "generate", "ordinary", "catalog_families", "DEFAULT_COUNT", "DEFAULT_SEED",
+           "ORDINARY_COUNT", "ORDINARY_SEED"]
 
 DEFAULT_COUNT = 220
 DEFAULT_SEED = 1
+ORDINARY_COUNT = 64
+ORDINARY_SEED = 11
 
 # Round figures people write in a requirement (common practice, no published source).
 FREQ_TOLS = (0.2, 0.5, 1, 2, 3, 5)              # %
@@ -277,6 +280,51 @@ def generate(count: int = DEFAULT_COUNT, seed: int = DEFAULT_SEED, catalog=None,
     for i in range(1, count + 1):
         make = _ordinary if rng.random() < ordinary_share else _spread
         out.append(make(rng, i, fams))
+    return out
+
+
+# Round figures people write for a frequency (common practice, no published source).
+ROUND_FREQS = (1.0, 1.2, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 7.5, 8.0)
+ORDINARY_SUPPLIES = (("single", 3.3), ("single", 5.0), ("single", 12.0), ("dual", 5.0), ("dual", 12.0),
+                     ("dual", 15.0))
+# the rerunnable example of issue 11, at THD 3 % and at 1 %
+_EXAMPLE = dict(f_hz=1e3, f_tol=1, rms=1.0, a_tol=10, r_load=600.0, kind="dual", rail=15.0, rng_frac=0.05,
+                temps=(15, 35), yld=95)
+
+
+def _ordinary_text(name: str, f_hz: float, f_tol: float, rms: float, a_tol: float, r_load: float, kind: str,
+                   rail: float, rng_frac: float, temps, thd: float, yld: float | None) -> str:
+    text = _spec_text(name, "ordinary requirement", f_hz, f_tol, _amplitude_text(rms, "Vrms"), a_tol,
+                      _supply_text(kind, rail, rng_frac), _load_text(r_load, 0.0), temps, thd, yld or 99, {})
+    # no yield line at all sometimes: the tool's default applies (as a new user writes it)
+    return text if yld is not None else text.replace("yield: {min: 99 %}\n", "")
+
+
+def ordinary(count: int = ORDINARY_COUNT, seed: int = ORDINARY_SEED) -> list[Requirement]:
+    """Issue 11's "ordinary requirements, tried as new users would": frequency
+    10 Hz..100 kHz (log-uniform, a round figure), 0.1..7 Vrms (log-uniform, capped at
+    what the supply gives around mid-rail with a practitioner's headroom: 80 % of the
+    half span less 0.2 V, peak), loads 100 ohm..100 kohm (E6), single 3.3/5/12 V or
+    dual +/-5/12/15 V with a 5 or 10 % range, THD 1..5 %, frequency tolerance 1..5 %,
+    amplitude 5..20 %, 0..50 or 15..35 degC, yield 95 or 99 % or left to the default;
+    every demo part allowed. The first two are the issue's rerunnable example (1 kHz,
+    1 Vrms into 600 ohm, +/-15 V, THD 3 % and 1 %). A pure function of the seed."""
+    out = [Requirement(f"ord-{i:03d}-example-thd{thd}", "ordinary",
+                       _ordinary_text(f"ord-{i:03d}-example-thd{thd}", thd=thd, **_EXAMPLE))
+           for i, thd in ((1, 3), (2, 1))][:count]
+    rng = random.Random(seed)
+    for i in range(len(out) + 1, count + 1):
+        f_hz = _round_to(ROUND_FREQS, _log_uniform(rng, 10.0, 100e3))
+        kind, rail = rng.choice(ORDINARY_SUPPLIES)
+        rng_frac = rng.choice((0.05, 0.1))
+        half_min = rail * (1 - rng_frac) if kind == "dual" else rail * (1 - rng_frac) / 2
+        hi_rms = min(7.0, (0.8 * half_min - 0.2) / math.sqrt(2))
+        rms = _round_sig(_log_uniform(rng, 0.1, max(hi_rms, 0.1)), 2)
+        r_load = _round_to(E6, _log_uniform(rng, 100.0, 100e3))
+        name = f"ord-{i:03d}"
+        out.append(Requirement(name, "ordinary", _ordinary_text(
+            name, f_hz, rng.choice((1, 2, 5)), rms, rng.choice((5, 10, 20)), r_load, kind, rail, rng_frac,
+            rng.choice(((0, 50), (15, 35))), rng.choice((1, 2, 3, 5)), rng.choice((95, 99, None)))))
     return out
 
 

@@ -14,8 +14,11 @@ and a candidate that misses is trimmed up to four times (arms retuned to the mea
 frequency, the output stage's ratio to the measured amplitude, the gain network's excess
 down when THD misses and up when too few builds start, bisecting between the two once
 both are seen, with (Rg, Rf) pairs finer than one series step) and judged again. A candidate
-that passes is judged again at the full sample count. Bounded: at most ``max_evals``
-judgements and ``max_seconds`` per requirement.
+that passes is judged again at the full sample count. Once one passes, up to
+``cost_evals`` more judgements go to the cheapest candidates (by the exact BOM cost of the
+price list) whose estimates pass, so the BOM returned is the cheapest passing one found.
+Bounded: at most ``max_evals`` judgements to the first pass and ``max_seconds`` per
+requirement.
 
 Run one spec: python benchmarks/oracle.py SPEC.yaml [--evals N]
 """
@@ -45,6 +48,7 @@ from oracle_sweep import retune_arms, rf_for_excess, sweep  # noqa: E402
 from partpick import units  # noqa: E402
 from partpick.bom import parse_bom  # noqa: E402
 from partpick.pipeline import evaluate_bom  # noqa: E402
+from partpick.pricing import bom_cost  # noqa: E402
 from partpick.spec import OUTPUT_STAGES, Spec  # noqa: E402
 
 __all__ = ["OracleResult", "oracle_design", "available_stages", "bom_text", "LOW_SAMPLES", "FULL_SAMPLES"]
@@ -55,6 +59,8 @@ SEED = 1
 MAX_EVALS = 40
 MAX_SECONDS = 40.0
 TRIMS = 4
+COST_EVALS = 16         # judgements spent looking for a cheaper BOM once one passes
+COSTED = 600            # candidates (best estimates first) whose exact BOM cost is looked at
 
 
 def available_stages() -> tuple[str, ...]:
@@ -369,13 +375,28 @@ def _judge(p: Problem, text: str, samples: int):
     return evaluate_bom(bom, p.spec, p.catalog, samples=samples, seed=SEED)
 
 
+def _cheapest(p: Problem, pool: list, bias: tuple, score: np.ndarray, costs: dict, below: float) -> int | None:
+    """Index of the cheapest candidate not yet judged whose estimates all pass
+    (score > 0, among the ``COSTED`` best) and whose exact BOM cost
+    (``partpick.pricing.bom_cost``, the price list, not the search) is below ``below``."""
+    best, best_cost = None, below * (1 - 1e-6)
+    for i in np.argsort(-score)[:COSTED]:
+        if not score[i] > 0:
+            break
+        if i not in costs:
+            costs[i] = bom_cost(parse_bom(bom_text(p, pool[i], bias), "oracle.yaml", p.catalog), p.catalog)[0]
+        if costs[i] < best_cost:
+            best, best_cost = int(i), costs[i]
+    return best
+
+
 def _figures(r) -> dict:
     return {"freq_error": r.freq_error, "amp_error": r.amp_error, "thd": r.thd, "yield": r.yield_frac,
             "cost": r.cost}
 
 
 def oracle_design(spec: Spec, catalog, *, max_evals: int = MAX_EVALS, max_seconds: float = MAX_SECONDS,
-                  stages: tuple[str, ...] | None = None, trace=None) -> OracleResult:
+                  cost_evals: int = COST_EVALS, stages: tuple[str, ...] | None = None, trace=None) -> OracleResult:
     """Label one requirement (see module docstring)."""
     t0 = time.perf_counter()
     stages = stages or available_stages()
@@ -403,20 +424,28 @@ def oracle_design(spec: Spec, catalog, *, max_evals: int = MAX_EVALS, max_second
     fails_by_group: Counter = Counter()
     fails_by_sig: Counter = Counter()
     evals, best = 0, None
-    while evals < max_evals and time.perf_counter() - t0 < max_seconds and not used.all():
+    found = None            # (cost, text, full judgement) of the cheapest passing BOM so far
+    costs: dict[int, float] = {}
+    budget = max_evals
+    while evals < budget and time.perf_counter() - t0 < max_seconds and not used.all():
         thd_cal = np.array([cal.thd.get(lim.id, 1.0) for lim in p.limiters])[lim_of]
         e = m[:, 3] + np.array([cal.margin.get(g, 0.0) for g in group])
         m_s = np.minimum((e - p.z * m[:, 4]) / np.maximum(e, 3e-3), 1.0)
         score = combine([m[:, 0], m[:, 1], 1 - m[:, 2] * thd_cal / max_thd, m_s, m[:, 5]])
         pen = np.array([0.08 * fails_by_group[g] + 0.25 * fails_by_sig[s] for g, s in zip(group, sig)])
         score = np.where(used, -np.inf, score - pen)
-        i = int(np.argmax(score))
+        if found is None:
+            i = int(np.argmax(score))
+        else:               # the cheapest candidate estimated to pass that could beat it
+            i = _cheapest(p, pool, bias, score, costs, found[0])
+            if i is None:
+                break
         used[i] = True
         d = calibrated(p, pool[i], bias, cal)
         bracket = Bracket()
         for _ in range(1 + TRIMS):
             text = bom_text(p, d, bias)
-            if text in tried or evals >= max_evals or time.perf_counter() - t0 > max_seconds:
+            if text in tried or evals >= budget or time.perf_counter() - t0 > max_seconds:
                 break
             tj = time.perf_counter()
             r = _judge(p, text, LOW_SAMPLES)
@@ -426,15 +455,19 @@ def oracle_design(spec: Spec, catalog, *, max_evals: int = MAX_EVALS, max_second
                       f"rd={d.rd:g} rf={d.rf:g} G={d.arms.gain:.3f} {d.arms.rfam}/{d.arms.cfam} {d.stage} "
                       f"k={d.get('stage_ratio', 1):.3f} -> {'PASS' if r.verdict.passed else sorted(failures(r, spec))} "
                       f"f{r.freq_error:+.4f} a{r.amp_error:+.4f} thd {r.thd:.4f}/{d.get('thd'):.4f} "
+                      f"cost {r.cost:.3f} "
                       + "; ".join(f"{c.name} {c.value:.4g}" for c in r.verdict.checks if not c.passed))
             tried[text] = r
             cal.learn(p, d, r)
-            if r.verdict.passed:
+            if r.verdict.passed and (found is None or r.cost < found[0]):
                 full = _judge(p, text, FULL_SAMPLES)
                 evals += 1
                 if full.verdict.passed:
-                    info["passed_on"] = evals
-                    return OracleResult("exists", text, evals, time.perf_counter() - t0, _figures(full), info)
+                    if found is None:
+                        info["passed_on"] = evals
+                        budget = evals + cost_evals
+                    found = (full.cost, text, full)
+                    break
             miss = _miss(r)
             if best is None or miss < best[0]:
                 best = (miss, text, r)
@@ -444,6 +477,9 @@ def oracle_design(spec: Spec, catalog, *, max_evals: int = MAX_EVALS, max_second
             d = d2
         fails_by_group[group[i]] += 1
         fails_by_sig[sig[i]] += 1
+    if found is not None:
+        cost, text, full = found
+        return OracleResult("exists", text, evals, time.perf_counter() - t0, _figures(full), info)
     if best is not None:
         (_, _), text, r = best
         info["nearest"] = {"bom": text, "failed": sorted(failures(r, spec)),
