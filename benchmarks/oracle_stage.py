@@ -19,24 +19,32 @@ __all__ = ["bias_parts", "coupling_gain", "stage_options", "with_stage", "GAIN_M
 GAIN_MAX = 20.0     # the largest output-stage gain offered
 
 
+# Rg (down to 1 kohm) and the stage's lower resistor return to mid-rail: its decoupling
+# must be a small fraction of them at f, or the gain and the stage ratio move (a 400 ohm
+# mid-rail at f put load amplitudes 13..40 % off in ngspice; oracle version 3).
+BIAS_REACTANCE_OHM = 20.0
+
+
 def bias_parts(p: Problem) -> tuple | None:
     """Single supply: the mid-rail divider (two equal resistors near 47 kohm from the
-    cheapest allowed family), its decoupling capacitor (corner a fiftieth of f) and the
-    output coupling capacitor (corner a twentieth of f into the load), each the
-    cheapest allowed value that reaches it with the supply's voltage; None when no
-    allowed capacitor does (common practice, no published source)."""
+    cheapest allowed family), its decoupling capacitor (at most BIAS_REACTANCE_OHM at f,
+    else the largest allowed) and the output coupling capacitor (corner a twentieth of f
+    into the load), each the cheapest allowed value that reaches it with the supply's
+    voltage; None when no allowed capacitor takes the supply (common practice, no
+    published source)."""
     if not p.single:
         return ()
     rfam = min(p.rfams, key=lambda f: (f.price_unit, f.tolerance_frac))
     rb = nearest_values(values_of(rfam), 47e3)[0]
     r_load = p.spec.load.resistance_ohm if math.isfinite(p.spec.load.resistance_ohm) else 1e7
     out = [("bias_top", rfam.id, rb), ("bias_bottom", rfam.id, rb)]
-    for role, need in (("bias_c", 50 / (2 * math.pi * p.f_hz * rb / 2)), ("coupling_c", 20 / (2 * math.pi * p.f_hz * r_load))):
-        opts = [(c.unit_price(v), c.id, v) for c in p.cfams for v in c.values()
-                if v >= need and c.voltage_v >= p.spec.supply.max_v]
-        if not opts:
+    for role, need in (("bias_c", 1 / (2 * math.pi * p.f_hz * BIAS_REACTANCE_OHM)),
+                       ("coupling_c", 20 / (2 * math.pi * p.f_hz * r_load))):
+        rated = [(c.unit_price(v), c.id, v) for c in p.cfams for v in c.values() if c.voltage_v >= p.spec.supply.max_v]
+        if not rated:
             return None
-        _, cid, v = min(opts)
+        opts = [o for o in rated if o[2] >= need]
+        _, cid, v = min(opts) if opts else max(rated, key=lambda o: o[2])
         out.append((role, cid, v))
     return tuple(out)
 
