@@ -51,8 +51,17 @@ REFUSED: dict[str, str] = {
                "passes check at 96.9 % yield and ngspice (0.313 Vrms, THD 0.55 %)",
     "ord-038": "false refusal on main f6274d0: 80 kHz, 150 mVrms into 47 kohm from 3.3 V; the oracle's BOM "
                "passes check at 99.8 % yield and ngspice (80.11 kHz, 0.156 Vrms, THD 2.1 %)",
+    "ord-041": "false refusal on main f6274d0: 100 kHz, 5.6 Vrms into 3.3 kohm from +/-15 V; the oracle's BOM "
+               "passes check at 99.8 % yield and ngspice (+1.5 %, -1.1 %, THD 3.8 %)",
+    "ord-057": "false refusal on main f6274d0: 3 kHz, 140 mVrms into 2.2 kohm from 3.3 V; the oracle's BOM "
+               "passes check and ngspice",
 }
-DEARER: dict[str, str] = {}
+DEARER: dict[str, str] = {
+    "ord-002-example-thd1": "on main f6274d0 --rank-by cost gives #1 at 3.096 USD, dearer than the default "
+                            "ranking's #1 (2.266) and the oracle's 2.607",
+    "ord-005": "on main f6274d0 --rank-by cost gives #1 at 4.180 USD; default #1 1.982, oracle 2.723",
+    "ord-052": "on main f6274d0 partpick's cheapest is 2.054 USD, the oracle's passing BOM 1.984",
+}
 
 
 def _bom_path(spec_path: Path) -> Path:
