@@ -1,0 +1,117 @@
+"""Reading a refusal's advice and applying it to the spec, for the coverage benchmark's
+check that every refusal message is right: relaxing the requirement it names to the
+value it gives must make the spec design.
+
+The parser is deliberately tolerant, and the one place to adapt when the wording of
+refusals changes. It looks, in order, for:
+
+1. ``relax <field> to <value>`` (any number of them, e.g. "... binds: ... is +/-0.84 %;
+   relax frequency.tolerance to +/-1 %", or "or distortion.max_thd binds: ...; relax
+   distortion.max_thd to 2 %");
+2. ``allow family <id>[, <id>]`` (added to the spec's list of that kind);
+3. failing both, ``<field> binds: ... (is|reaches|of) <number unit>`` (the older wording:
+   "amplitude.target binds: the nearest amplitude at the load is 2.48 V peak
+   (wanted 1.33..1.5 V)").
+
+``<field>`` is a dotted spec path (``frequency.tolerance``, ``yield.min``,
+``parts.capacitors``); ``<value>`` is taken up to ``;``, ``,`` or ``(`` and written
+into the spec as spec text ("+/-1 %" -> "1 %", "2.48 V peak" -> "2.48 Vpk", a family
+list "[c0g-1, pp-2]" as a YAML list).
+
+Run: python benchmarks/refusal_advice.py "MESSAGE"   (prints what it parses)
+"""
+
+from __future__ import annotations
+
+import re
+import sys
+from dataclasses import dataclass
+
+import yaml
+
+__all__ = ["Advice", "parse_refusal", "apply_advice", "spec_value"]
+
+FIELD = r"(?P<field>[a-z_]+(?:\.[a-z_]+)+)"
+VALUE = r"(?P<value>[^;,(\n]+?)"
+END = r"(?=\s*(?:[;,(\n]|$|\.\s|\.$|\bor\b))"
+RELAX = re.compile(rf"relax\s+{FIELD}\s+to\s+{VALUE}{END}")
+NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"
+BINDS = re.compile(rf"{FIELD}\s+binds:[^;]*?\b(?:is|reaches|of)\s+{NUMBER}")
+ALLOW = re.compile(r"allow\s+(?:the\s+)?famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
+# numbers with a unit the spec reads; "V peak" is how older refusals print a peak voltage
+_UNIT_WORDS = ((re.compile(r"\bV\s*peak\b"), "Vpk"), (re.compile(r"\bV\s*rms\b"), "Vrms"),
+               (re.compile(r"\bV\s*pp\b"), "Vpp"))
+
+
+@dataclass(frozen=True, slots=True)
+class Advice:
+    """One way out a refusal names: set spec field ``field`` to ``value`` (spec text)."""
+
+    field: str
+    value: str
+    how: str          # 'relax' or 'allow' (the advice itself), 'binds' (the value a design reaches)
+
+
+def spec_value(text: str) -> str:
+    """A value as a refusal prints it, as the spec writes it."""
+    v = text.strip().rstrip(".").strip()
+    v = re.sub(r"^\+/-\s*", "", v)
+    v = v.replace("±", "")
+    for pat, unit in _UNIT_WORDS:
+        v = pat.sub(unit, v)
+    return v.strip()
+
+
+def parse_refusal(message: str) -> list[Advice]:
+    """Every piece of advice in a refusal message (empty when it gives none). A message
+    printed on one line with its line breaks escaped ('\\n') reads as its lines."""
+    message = message.replace("\\n", "\n")
+    out = [Advice(m["field"], spec_value(m["value"]), "relax") for m in RELAX.finditer(message)]
+    out += [Advice("parts.add", ",".join(re.split(r"\s*(?:,|and|or)\s*", m["value"].strip())), "allow")
+            for m in ALLOW.finditer(message)]
+    if not out:
+        out = [Advice(m["field"], spec_value(m["value"]), "binds") for m in BINDS.finditer(message)]
+    seen, unique = set(), []
+    for a in out:
+        if (a.field, a.value) not in seen:
+            seen.add((a.field, a.value))
+            unique.append(a)
+    return unique
+
+
+def _as_yaml_value(value: str):
+    if value.startswith("[") and value.endswith("]"):
+        return [x.strip() for x in value[1:-1].split(",") if x.strip()]
+    return value
+
+
+def apply_advice(spec_text: str, advice: Advice, kind_of=None) -> str:
+    """The spec text with ``advice.field`` set to ``advice.value`` (nested mappings
+    created as needed); ``parts.add`` adds the named families to their kind's list
+    (``kind_of(family id)`` -> 'resistors', ...; the shipped catalog's by default)."""
+    data = yaml.safe_load(spec_text) or {}
+    if advice.field == "parts.add":
+        if kind_of is None:
+            from partpick.catalog import load_catalog
+            kind_of = load_catalog().kind_of
+        parts = data.setdefault("parts", {})
+        for fam in advice.value.split(","):
+            kind = kind_of(fam)
+            if kind is None:
+                raise ValueError(f"unknown family {fam!r}")
+            if isinstance(parts.get(kind), list) and fam not in parts[kind]:
+                parts[kind].append(fam)
+        return yaml.safe_dump(data, sort_keys=False, default_flow_style=None, allow_unicode=True)
+    node = data
+    keys = advice.field.split(".")
+    for k in keys[:-1]:
+        if not isinstance(node.get(k), dict):
+            node[k] = {}
+        node = node[k]
+    node[keys[-1]] = _as_yaml_value(advice.value)
+    return yaml.safe_dump(data, sort_keys=False, default_flow_style=None, allow_unicode=True)
+
+
+if __name__ == "__main__":
+    for a in parse_refusal(" ".join(sys.argv[1:])):
+        print(a)
