@@ -78,6 +78,8 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
     price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
+    offered = getattr(problem.topology, "stages", periphery.STAGE_KINDS)   # a topology may offer fewer
+    kinds = tuple(k for k in kinds if k in offered)
     return Searcher(problem, price, kinds), fixed
 
 
@@ -279,14 +281,21 @@ def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed
 def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searcher: Searcher, fixed) -> Candidate:
     """The candidate with what exact physics at the nominal point measured put back:
     the frequency network re-chosen for the measured pull (the cheapest of the same
-    required-gain bin landing within resolution), the stage ratio re-chosen for the
-    measured amplitude."""
+    required-gain bin landing within resolution; with a second output, the topology's
+    retune_outputs for the pull and the outputs' amplitude ratio), the stage ratio
+    re-chosen for the measured amplitude."""
     circuit, hb = _nominal(c, spec, catalog, problem, fixed)
     if hb is None or hb.regime != "limiter":
         return c
     values = dict(c.values)
     pull = math.log(hb.freq_hz / circuit.f0_hz)
     net = searcher.retune_network(c, pull)
+    retune_outputs = getattr(problem.topology, "retune_outputs", None)
+    if retune_outputs is not None and hb.outputs:
+        # a second output: the network re-chosen for its measured amplitude ratio as well
+        second = next(iter(hb.outputs.values()))
+        net = retune_outputs(c.values, c.families, catalog, problem.ln_f, pull,
+                             abs(second[0] / hb.load_harmonics[0]), problem.shelf) or net
     if net is not None:
         values.update(net)
     if c.stage in STAGE_RATIO:
@@ -318,7 +327,7 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
     cost, parts = bom_cost(bom, catalog, stock)
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
-    thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)
+    thd = max((c.value for c in v.checks if c.name.startswith("THD at ")), default=math.nan)   # the worse load
     return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, 0.0, None, mc, wc)
 
 

@@ -20,10 +20,11 @@ from partpick.yamlsrc import Fields, Mapping, did_you_mean, parse_yaml, read_tex
 __all__ = [
     "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES",
     "FrequencyReq", "AmplitudeReq", "SupplyReq", "LoadReq", "TemperatureReq", "PartsChoice",
-    "StockRef", "Spec", "check_parts",
+    "QuadratureReq", "StockRef", "Spec", "check_parts", "AUTO_TOPOLOGY",
 ]
 
 DEFAULT_TOPOLOGY = "wien-bridge"   # the name only: the circuit registry validates it (circuits.check_spec)
+AUTO_TOPOLOGY = "auto"             # every topology that can meet the spec, ranked together
 SUPPLY_KINDS = ("dual", "single")
 RANK_KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")
 OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator", "buffered-attenuator")
@@ -45,9 +46,10 @@ LOAD_F = (0.0, 10e-6)
 TEMPERATURE_K = (173.15, 473.15)     # -100 degC .. 200 degC
 MIN_FRACTION = 1e-6                  # 1 ppm: the smallest tolerance, THD or yield read
 
-_TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "temperature",
-        "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs",
-        "derating")
+_TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "load_cosine", "temperature",
+        "distortion", "quadrature", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage",
+        "catalogs", "derating")
+PHASE_RAD = (1e-6, 0.5)               # a quadrature phase tolerance: 0.2 arc-second .. 28.6 deg
 
 
 @dataclass(frozen=True, slots=True)
@@ -111,6 +113,16 @@ class LoadReq:
 
 
 @dataclass(frozen=True, slots=True)
+class QuadratureReq:
+    """Two outputs 90 degrees apart (a quadrature oscillator's sine and cosine): the
+    phase difference within 90 deg +/- phase_error_rad (rad) and the amplitude of the
+    second output's fundamental within +/- amplitude_match_frac of the first's."""
+
+    phase_error_rad: float
+    amplitude_match_frac: float
+
+
+@dataclass(frozen=True, slots=True)
 class TemperatureReq:
     """Ambient temperature range min_k..max_k and the nominal point nominal_k (K)."""
 
@@ -145,9 +157,12 @@ class StockRef:
 class Spec:
     """One requirement for one oscillator. Build with :meth:`from_yaml`.
 
-    max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9);
-    yield_min_frac: share of builds that must meet every requirement (fraction);
-    builds: number of boards built from one BOM (for stock quantities).
+    max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9, at every
+    load); yield_min_frac: share of builds that must meet every requirement (fraction);
+    builds: number of boards built from one BOM (for stock quantities); load_cosine:
+    the load of a second output (a quadrature oscillator's cosine; None: none given),
+    which must meet the amplitude and THD requirements too; quadrature: the phase and
+    amplitude match of the two outputs (None: reported, not required).
     """
 
     name: str
@@ -168,6 +183,8 @@ class Spec:
     output_stage: str
     catalogs: tuple[Path, ...]
     derating: Derating = Derating()
+    load_cosine: LoadReq | None = None
+    quadrature: QuadratureReq | None = None
     source: str = field(default="<spec>", compare=False)
     where: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
@@ -202,10 +219,20 @@ class Spec:
             ("supply.max", s.max_v, "V" + (" per rail" if s.kind == "dual" else "")),
             ("load.resistance", ld.resistance_ohm, "ohm"),
             ("load.capacitance", ld.capacitance_f, "F"),
+        ]
+        if self.load_cosine is not None:
+            rows += [("load_cosine.resistance", self.load_cosine.resistance_ohm, "ohm"),
+                     ("load_cosine.capacitance", self.load_cosine.capacitance_f, "F")]
+        rows += [
             ("temperature.min", t.min_k, "K"),
             ("temperature.max", t.max_k, "K"),
             ("temperature.nominal", t.nominal_k, "K"),
             ("distortion.max_thd", self.max_thd_frac, "1"),
+        ]
+        if self.quadrature is not None:
+            rows += [("quadrature.phase_error", self.quadrature.phase_error_rad, "rad"),
+                     ("quadrature.amplitude_match", self.quadrature.amplitude_match_frac, "1")]
+        rows += [
             ("yield.min", self.yield_min_frac, "1"),
         ]
         for kind in KINDS:
@@ -242,6 +269,15 @@ def _fraction(fields: Fields, key: str, *, maximum: float, default: float | None
     return value
 
 
+def _load(lo: Fields) -> LoadReq:
+    """A load: resistance (or 'open') in parallel with an optional capacitance."""
+    if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
+        r_load = math.inf
+    else:
+        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
+    return LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
+
+
 def _relative_paths(root: Fields, key: str, base: Path) -> tuple[Path, ...]:
     names = root.names(key, all_word="\0")
     if names is None:
@@ -275,11 +311,9 @@ def _read(root: Fields, source: str) -> Spec:
     supply = SupplyReq(kind, smin, smax)
 
     lo = root.sub("load", ("resistance", "capacitance"))
-    if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
-        r_load = math.inf
-    else:
-        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
-    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
+    load = _load(lo)
+    lc = root.sub("load_cosine", ("resistance", "capacitance"), required=False)
+    load_cosine = _load(lc) if lc is not None else None
 
     te = root.sub("temperature", ("min", "max", "nominal"), required=False)
     if te is None:
@@ -297,6 +331,12 @@ def _read(root: Fields, source: str) -> Spec:
 
     di = root.sub("distortion", ("max_thd",), required=False)
     max_thd = _fraction(di, "max_thd", maximum=1.0) if di is not None else 0.05
+
+    qu = root.sub("quadrature", ("phase_error", "amplitude_match"), required=False)
+    quadrature = None
+    if qu is not None:
+        quadrature = QuadratureReq(qu.quantity("phase_error", "angle", positive=True, bounds=PHASE_RAD),
+                                   _fraction(qu, "amplitude_match", maximum=0.5))
 
     yi = root.sub("yield", ("min",), required=False)
     yield_min = _fraction(yi, "min", maximum=1.0, inclusive=True) if yi is not None else 0.99
@@ -353,11 +393,13 @@ def _read(root: Fields, source: str) -> Spec:
         output_stage=root.text("output_stage", choices=OUTPUT_STAGES, default="auto"),
         catalogs=_relative_paths(root, "catalogs", base),
         derating=read_derating(root, "derating", base),
+        load_cosine=load_cosine,
+        quadrature=quadrature,
         source=source,
         where=where,
     )
     _record(where, root, *_TOP)
-    for sub in (fr, am, su, lo, te, di, yi):
+    for sub in (fr, am, su, lo, lc, te, di, qu, yi):
         if sub is not None:
             _record(where, sub, *sub.allowed)
     return spec

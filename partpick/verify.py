@@ -19,12 +19,12 @@ import numpy as np
 
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
                                margin_fn, periphery)
-from partpick.physics.harmonic import BalanceResult
+from partpick.physics.harmonic import BalanceResult, output_figures
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
 from partpick.spec import Spec
 
-__all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
+__all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
            "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
            "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
            "CAP_UNCERTAINTY"]
@@ -35,6 +35,19 @@ __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_cas
 # parameter sets for one class of part differ by about this much (our assumption:
 # common practice, no published source).
 CAP_UNCERTAINTY = 0.5
+
+
+@dataclass(frozen=True, slots=True)
+class OutputPoint:
+    """A further output at its load (a quadrature oscillator's cosine): peak_v (half
+    the peak-to-peak value, V), thd (fraction, harmonics 2..9), ratio (its fundamental's
+    amplitude over the first load's) and phase_rad (by how much its fundamental leads
+    the first load's, rad)."""
+
+    peak_v: float
+    thd: float
+    ratio: float
+    phase_rad: float
 
 
 @dataclass(frozen=True, slots=True)
@@ -49,7 +62,8 @@ class OperatingPoint:
     'slew', 'current' or 'no startup'; freq_per_cap_hz_f: d freq_hz / d C for a
     capacitance C added across the control's element (Hz/F, NaN unless harmonic balance
     solved the point) and cap_eff_f: the capacitance that element presents to the
-    fundamental (F).
+    fundamental (F); outputs: each further output of the topology (probe name ->
+    :class:`OutputPoint`). The op-amp figures are the worst of every channel.
     """
 
     cond: Conditions
@@ -72,6 +86,7 @@ class OperatingPoint:
     freq_per_cap_hz_f: float = math.nan
     cap_eff_f: float = 0.0
     balance: BalanceResult | None = field(default=None, compare=False, repr=False)   # a warm start for neighbours
+    outputs: dict = field(default_factory=dict, compare=False)
 
 
 @dataclass(frozen=True, slots=True)
@@ -140,10 +155,17 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 
 
+def _output_point(peak_v: float, thd: float, rel: complex | None) -> OutputPoint:
+    if rel is None or not np.isfinite(rel):
+        return OutputPoint(peak_v, thd, math.nan, math.nan)
+    return OutputPoint(peak_v, thd, abs(rel), float(np.angle(rel)))
+
+
 def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
+    outs = {name: _output_point(*output_figures(h, hb.load_harmonics)) for name, h in hb.outputs.items()}
     return OperatingPoint(cond, lin, True, hb.freq_hz, hb.osc_peak_v, hb.load_peak_v, hb.osc_thd, hb.load_thd,
                           hb.x_min_v, hb.x_max_v, lo, hi, hb.slew_v_per_s, hb.iout_peak_a, hb.iout_rms_a,
-                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f, hb)
+                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f, hb, outs)
 
 
 def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, kick_v: float = 0.01) -> float:
@@ -160,10 +182,14 @@ POINTS_PER_CYCLE = 200  # transient steps per period
 def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     from partpick.physics.transient import simulate
 
+    from partpick.physics.waveform import relative_fundamental
+
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
     main = loop.amps[0].name
-    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE, record=("osc", "load", f"iout:{main}"))
+    currents = tuple(f"iout:{a.name}" for a in loop.amps)
+    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
+                   record=("osc", "load", *loop.outputs, *currents))
     osc = res.stats("osc")
     load = res.stats("load")
     if osc is None or load is None:
@@ -175,12 +201,21 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     io = res.v[f"iout:{main}"][-n:]
     slew = float(np.max(np.abs(np.gradient(vo, t))))
     iout = float(np.max(np.abs(io)))
+    iout_rms = float(np.sqrt(np.mean(io ** 2)))
+    for name in currents[1:]:   # every channel's current counts
+        other = res.v[name][-n:]
+        iout, iout_rms = max(iout, float(np.max(np.abs(other)))), max(iout_rms, float(np.sqrt(np.mean(other ** 2))))
+    outs = {}
+    for name in loop.outputs:
+        st = res.stats(name)
+        if st is not None:
+            outs[name] = _output_point(st.peak_v, st.thd_frac, relative_fundamental(res.t_s, res.v["load"], res.v[name]))
     # Within 3 % of the span from a swing limit counts as clipping (the output sits a
     # little inside the internal clamp by the drop across Ro).
     regime = opamp_regime(c.opamp, float(vo.min()), float(vo.max()), slew, (lo, hi), near_v=0.03 * (hi - lo))
     return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
-                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, float(np.sqrt(np.mean(io ** 2))),
-                          "transient", regime)
+                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, iout_rms, "transient", regime,
+                          outputs=outs)
 
 
 def clipping_supply(c: Circuit, p: OperatingPoint) -> float:
@@ -217,14 +252,16 @@ def make_check(name, field_, value, low, high, dim, note="") -> Check:
 def operating_conditions(spec: Spec) -> dict[str, Conditions]:
     """The named operating points verification looks at."""
     s, t, ld = spec.supply, spec.temperature, spec.load
+    l2 = (spec.load_cosine.resistance_ohm, spec.load_cosine.capacitance_f) if spec.load_cosine else (math.inf, 0.0)
+    loads = (ld.resistance_ohm, ld.capacitance_f, *l2)
     mid = (s.min_v + s.max_v) / 2
-    pts = {"nominal": Conditions(mid, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)}
+    pts = {"nominal": Conditions(mid, t.nominal_k, *loads)}
     if s.min_v != s.max_v:
-        pts["supply min"] = Conditions(s.min_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
-        pts["supply max"] = Conditions(s.max_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["supply min"] = Conditions(s.min_v, t.nominal_k, *loads)
+        pts["supply max"] = Conditions(s.max_v, t.nominal_k, *loads)
     if t.min_k != t.max_k:
-        pts["temp min"] = Conditions(mid, t.min_k, ld.resistance_ohm, ld.capacitance_f)
-        pts["temp max"] = Conditions(mid, t.max_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["temp min"] = Conditions(mid, t.min_k, *loads)
+        pts["temp max"] = Conditions(mid, t.max_k, *loads)
     return pts
 
 
@@ -350,6 +387,8 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     tname = max(thds, key=lambda n: thds[n])
     checks.append(make_check("THD at load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac, "fraction",
                          f"worst at {tname}"))
+    for name in nom.outputs:
+        checks += _output_checks(c, spec, pts, name)
 
     # Op-amp limits at the minimum supply.
     low_pt = pts.get("supply min", nom)
@@ -388,7 +427,8 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     vin = c.topology.input_swing_v(c, nom.osc_peak_v)
     cm_head = min(vcc - op.input_cm_high_v - (ref + vin), (ref - vin) - (vee + op.input_cm_low_v))
     checks.append(make_check("input common-mode headroom", "supply.min", cm_head, 0.0, None, "voltage",
-                         "inputs at the reference +/- Vpk/3, at the minimum supply"))
+                         getattr(c.topology, "input_note", "inputs at the reference +/- Vpk/3")
+                         + ", at the minimum supply"))
 
     # Dissipation (fundamental only; the harmonics carry little power).
     vo = nom.osc_peak_v
@@ -415,6 +455,43 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     return Verdict(tuple(checks), nom, pts, tuple(cautions), wc)
 
 
+def _output_checks(c: Circuit, spec: Spec, pts: dict, name: str) -> list[Check]:
+    """A further output's checks: its amplitude and THD at its load against the same
+    requirements as the first load's, and its phase and amplitude against the first
+    load's (the spec's quadrature requirements; information rows without them), each
+    the worst of the operating points."""
+    word = getattr(c.topology, "output_labels", {}).get(name, name)
+    target = getattr(c.topology, "output_phase_rad", {}).get(name, 0.0)
+    a, q = spec.amplitude, spec.quadrature
+    lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)
+    outs = {n: p.outputs.get(name) for n, p in pts.items() if p.starts}
+    nom = outs.get("nominal")
+    if nom is None:
+        return []
+    checks = [make_check(f"amplitude at {word} load (nominal)", "amplitude.target", nom.peak_v, lo_a, hi_a, "voltage",
+                         f"{nom.peak_v * 2:.4g} Vpp, {nom.peak_v / math.sqrt(2):.4g} Vrms")]
+    amps = {n: o.peak_v if o is not None else 0.0 for n, o in outs.items()}
+    wname = max(amps, key=lambda n: abs(amps[n] / a.peak_v - 1))
+    checks.append(make_check(f"amplitude at {word} load over supply and temperature", "amplitude.tolerance",
+                             amps[wname], lo_a, hi_a, "voltage", f"worst at {wname}"))
+    thds = {n: o.thd for n, o in outs.items() if o is not None}
+    tname = max(thds, key=lambda n: thds[n])
+    checks.append(make_check(f"THD at {word} load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac,
+                             "fraction", f"worst at {tname}"))
+    errs = {n: math.remainder(o.phase_rad - target, 2 * math.pi) for n, o in outs.items() if o is not None}
+    pname = max(errs, key=lambda n: abs(errs[n]) if math.isfinite(errs[n]) else math.inf)
+    lim = (-q.phase_error_rad, q.phase_error_rad) if q is not None else (None, None)
+    checks.append(make_check(f"phase error at {word} load", "quadrature.phase_error", errs[pname], *lim, "angle",
+                             f"{math.degrees(target) + math.degrees(errs[pname]):.4g} deg from the first load, "
+                             f"worst at {pname}"))
+    ratios = {n: o.ratio - 1 for n, o in outs.items() if o is not None}
+    rname = max(ratios, key=lambda n: abs(ratios[n]) if math.isfinite(ratios[n]) else math.inf)
+    lim = (-q.amplitude_match_frac, q.amplitude_match_frac) if q is not None else (None, None)
+    checks.append(make_check(f"amplitude match at {word} load", "quadrature.amplitude_match", ratios[rname], *lim,
+                             "fraction", f"fundamental over the first load's, minus 1; worst at {rname}"))
+    return checks
+
+
 def package_limit(op, spec: Spec) -> tuple[float, str]:
     """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
     ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
@@ -432,14 +509,18 @@ def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[f
     the quiescent power of every channel it holds (catalog figures are per channel) plus
     the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`)."""
     op, span = c.opamp, spec.supply.span_max_v
-    losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)]
+    # each of the topology's channels at the worst channel's output current
+    losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)] * c.topology.channels
     if periphery.has_buffer(c):
         i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
         losses.append(class_b_loss(span / 2, nom.load_peak_v, i_buf))
     quiescent = span * op.quiescent_current_a * op.channels
     if op.channels >= len(losses):
         return quiescent + sum(losses), f"{len(losses)} of {op.channels} channel(s) in one package"
-    return quiescent + max(losses), "one channel per package, the hotter one"
+    if op.channels == 1:
+        return quiescent + max(losses), "one channel per package, the hotter one"
+    hottest = sorted(losses, reverse=True)[:op.channels]
+    return quiescent + sum(hottest), f"{op.channels} of {len(losses)} channels in the hotter package"
 
 
 @dataclass(frozen=True, slots=True)

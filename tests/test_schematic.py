@@ -34,7 +34,8 @@ BASES = {  # (BOM, spec for the operating point)
     "dual": (SPECS / "boms" / "carrier-50khz-01.yaml", SPECS / "carrier-50khz.yaml"),
     "single": (ROOT / "tests" / "golden" / "test-tone-5v-01.yaml", SPECS / "test-tone-5v.yaml"),
 }
-NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED")
+NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED", "RLOAD2", "CLOAD2")
+CONNECTORS = {"OUT": "load", "OUT2": "load2"}   # drawn connector -> the netlist's probe it stands for
 
 
 def variant(bom: Bom, stage: str, limiter: str | None, rd: float = 0.0) -> Bom:
@@ -63,7 +64,7 @@ def expected(bom: Bom, spec: Spec, catalog):
             out.append((el.name, (el.inp, el.inn, el.out, el.vcc, el.vee), True))
         elif isinstance(el, LimiterX):
             out.append(("pair", (el.a, el.b), el.limiter.kind))
-    return out, net.probes["load"]
+    return out, net.probes
 
 
 def on_run(p, w) -> bool:
@@ -93,13 +94,17 @@ def check_connections(bom: Bom, spec: Spec, catalog) -> None:
     schemdraw.use("svg")
     drawing = draw_bom(bom, catalog, schemdraw.Drawing(show=False), elm)
     nets = schematic_nets(drawing)
-    parts, load = expected(bom, spec, catalog)
+    parts, probes = expected(bom, spec, catalog)
+    load = probes["load"]
     m = NetMap()
-    drawn = set(nets) - {"OUT"}
+    drawn = set(nets) - set(CONNECTORS)
     want = {name for name, _, _ in parts if name != "pair"} | ({"D1", "D2"} if any(n == "pair" for n, _, _ in parts)
                                                                else set())
     assert drawn == want, (sorted(drawn), sorted(want))
-    assert m.bind(load, nets["OUT"][0])
+    for connector, probe in CONNECTORS.items():
+        assert (connector in nets) == (probe in probes), connector
+        if connector in nets:
+            assert m.bind(probes[probe], nets[connector][0])
     ordered = [p for p in parts if p[2] is True]
     for name, nodes, _ in ordered:
         for node, net in zip(nodes, nets[name]):

@@ -399,6 +399,7 @@ def test_unit_symbols() -> None:
         "slew_rate": "V/µs",
         "gain": "V/V",
         "energy": "eV",
+        "angle": "deg",
     }
     assert unit_symbol("resistance") == OMEGA  # U+03A9, not the OHM SIGN
     assert unit_symbol("slew_rate") == f"V/{MICRO_SIGN}s"

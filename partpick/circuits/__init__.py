@@ -10,19 +10,19 @@ from __future__ import annotations
 
 import math
 
-from partpick.circuits import clipping, diode_limiter, periphery, wien
+from partpick.circuits import clipping, diode_limiter, periphery, quadrature, wien
 from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
 from partpick.errors import SpecError
 from partpick.physics.harmonic import BalanceResult
 from partpick.physics.linear import LinearResult, analyse_linear
 from partpick.physics.loop import Branch, Loop
-from partpick.physics.netlist import Kick, Netlist
+from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
            "topology", "control", "all_slots", "slots_for", "control_for_roles", "check_spec", "make_circuit",
            "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn"]
 
-TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY,)}
+TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
 CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, clipping.CONTROL)}
 
 
@@ -72,10 +72,31 @@ def control_for_roles(topology_name: str, roles) -> str:
 
 
 def check_spec(spec) -> None:
-    """Refuse a spec whose topology the registry does not hold, naming its line."""
+    """Refuse a spec whose topology the registry does not hold, or that asks of its
+    topology what it does not offer (an output stage, a supply kind, a second output),
+    naming the line."""
+    def fail(field: str, message: str) -> SpecError:
+        return SpecError(message, source=spec.source, line=spec.line_of(field), field=field)
+
+    if spec.topology == "auto":
+        raise fail("topology", f"'auto' (every topology ranked together) is not designed yet; name one of "
+                               f"{', '.join(TOPOLOGIES)}")
     if spec.topology not in TOPOLOGIES:
-        raise SpecError(f"must be one of {', '.join(TOPOLOGIES)} (got '{spec.topology}')",
-                        source=spec.source, line=spec.line_of("topology"), field="topology")
+        raise fail("topology", f"must be one of {', '.join(TOPOLOGIES)} or auto (got '{spec.topology}')")
+    topo = TOPOLOGIES[spec.topology]
+    stages = getattr(topo, "stages", STAGES)
+    if spec.output_stage != "auto" and spec.output_stage not in stages:
+        raise fail("output_stage", f"'{spec.output_stage}' is not offered by the {topo.title} (it offers "
+                                   f"{', '.join(stages)})")
+    supplies = getattr(topo, "supplies", SUPPLY_KINDS)
+    if spec.supply.kind not in supplies:
+        raise fail("supply", f"'{spec.supply.kind}' supply is not offered by the {topo.title} (it takes "
+                             f"{', '.join(supplies)})")
+    if not getattr(topo, "outputs", ()):
+        for key in ("load_cosine", "quadrature"):
+            if getattr(spec, key) is not None:
+                raise fail(key, f"applies to a topology with a second output (quadrature); the "
+                                f"{topo.title} has one")
 
 
 def make_circuit(topology_name: str, control_name: str, values: dict, parts: dict, *, stage: str = "none",
@@ -99,8 +120,16 @@ def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netl
     els += list(core.elements)
     a, b = core.ports[c.control.port]
     els += c.control.netlist(c, a, b)
-    out_els, load = periphery.output(c, cond, core.out, ref, neg)
+    out_els, load = periphery.output(c, cond, core.out, ref, neg, channel="U1" + chr(ord("A") + c.topology.channels))
     els += out_els
+    probes = {"osc": core.out, "load": load}
+    for name, node in core.outputs.items():
+        # a further output drives the operating point's second load straight
+        probes[name] = node
+        if not math.isinf(cond.load2_r_ohm):
+            els.append(Resistor("RLOAD2", node, "0", cond.load2_r_ohm))
+        if cond.load2_c_f > 0:
+            els.append(Capacitor("CLOAD2", node, "0", cond.load2_c_f))
     f_hint = c.f0_hz
     els.append(Kick("IKICK", core.kick_node, core.kick_cap_f * kick_v, 0.0, 0.02 / f_hint))
     return Netlist(
@@ -108,7 +137,7 @@ def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netl
         elements=tuple(els),
         temp_k=cond.temp_k,
         f_hint_hz=f_hint,
-        probes={"osc": core.out, "load": load},
+        probes=probes,
     )
 
 

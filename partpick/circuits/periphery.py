@@ -255,8 +255,8 @@ def reference_flag(supply_kind: str) -> str | None:
 
 def draw(sheet, out, stage: str, supply_kind: str) -> None:
     """Draw on ``sheet`` (:class:`partpick.export.schematic.Sheet`) from the oscillator
-    output ``out``: the output stage (U1B with R6, R7; R6, R7 as an attenuator, or as a
-    divider before the buffer U1B), on a
+    output ``out``: the output stage (the channel after the topology's, U1B for one, with
+    R6, R7; R6, R7 as an attenuator, or as a divider before that buffer), on a
     single supply the coupling capacitor C4 (its + towards the op-amp, which sits at
     mid-rail) and the bias network R8, R9, C3 making VREF, the output connector, and a
     note on the supply pins' decoupling and any spare channel, as in :func:`supplies`
@@ -271,7 +271,8 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
             sheet.resistor("stage_rb", src, (src[0], y0 - 2.8), loc="bottom")
             sheet.reference((src[0], y0 - 2.8))
         x = src[0] + 4.0
-        pins = sheet.opamp("U1B", f"U1B\n{sheet.value('opamp')}", (x, y0))
+        ch = f"U1{chr(ord('A') + sheet.bom.channels - 1)}"     # the channel after the topology's
+        pins = sheet.opamp(ch, f"{ch}\n{sheet.value('opamp')}", (x, y0))
         sheet.wire(src, pins["in2"])
         jo = (pins["out"][0] + 0.6, pins["out"][1])
         top = pins["in1"][1] + 1.65
@@ -304,12 +305,17 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
     op = sheet.family("opamp")
     notes = ["Supply: +V" + (" and -V" if supply_kind == "dual" else "") + " to every op-amp package, each pin "
              "decoupled to ground with 100 nF ceramic at the pin (not in the BOM)."]
-    if channels > 1:
-        notes.append(f"U1A, U1B: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
+    refs = ", ".join(f"U1{chr(ord('A') + i)}" for i in range(channels))
+    packages = -(-channels // op.channels)
+    if channels == 2:
+        notes.append(f"{refs}: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
                      f"{sheet.value('opamp')} {'package' if op.channels > 1 else 'packages'}.")
-    if op.channels > channels:
-        notes.append(f"U1 has {op.channels - channels} spare channel(s): tie each +input to the reference and "
-                     "the output to its -input.")
+    elif channels > 2:
+        notes.append(f"{refs}: {channels} channels in {packages} {sheet.value('opamp')} package(s) of "
+                     f"{op.channels} channel(s).")
+    if op.channels * packages > channels:
+        notes.append(f"U1 has {op.channels * packages - channels} spare channel(s): tie each +input to the "
+                     "reference and the output to its -input.")
     if supply_kind == "single":
         notes.append("VREF: mid-rail made by R8, R9 and C3; ground symbols are 0 V.")
     sheet.note("\n".join(notes), (-4.2, -8.0))

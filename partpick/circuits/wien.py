@@ -267,6 +267,11 @@ class WienBridge:
 
     reference_required_gain = 3.0   # what the equal-arm reference network needs
 
+    def reference_conductance(self, m: np.ndarray, rg: float) -> np.ndarray:
+        """Conductance the branch supplies on the equal-arm reference (gain 3) at gain
+        excess m (nepers) with Rg = rg, S: 1/(2 Rg) - 1/Rf with 1 + Rf/Rg = 3 e^m."""
+        return (0.5 - 1.0 / (3.0 * np.exp(m) - 1.0)) / rg
+
     def opamp_reference(self, f_hz: float, gain_excess: float, opamp) -> Circuit:
         """The reference on which an op-amp's pull and margin cost are measured: equal
         arms at f_hz (Hz) with R = Rg = 10 kohm, gain 3 (1 + gain_excess)."""

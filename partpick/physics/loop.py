@@ -58,7 +58,9 @@ class Loop:
     V (V) and current I (A); d0, d1: the loop gain's return-difference denominator (see
     module docstring); probes: (name, cv, ci) with probe = cv V + ci I ('osc' the
     oscillator output and 'load' the load voltage are always present); amps: the op-amps
-    whose swing, slew and current the steady state must respect.
+    whose swing, slew and current the steady state must respect; outputs: the names of
+    further output probes whose waveforms the analyses report ('load2', a quadrature
+    oscillator's second output at its load).
     """
 
     w_ref: float
@@ -68,6 +70,7 @@ class Loop:
     d1: Rational
     probes: tuple[tuple[str, Rational, Rational], ...]
     amps: tuple[AmpProbe, ...] = ()
+    outputs: tuple[str, ...] = ()
 
     def coefficients(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(alpha, gamma) at p (complex arrays)."""

@@ -372,10 +372,17 @@ class Searcher:
         temps = p.temps_k
         ln_load = math.log(max(c.load_v[1], 1e-12))
         dln = tuple(math.log(max(v, 1e-12)) - ln_load for v in c.load_v)
+        second = None
+        if getattr(topo, "outputs", ()):
+            # a second output: its amplitude and match from the topology's ideal ratio and what the
+            # op-amp does to the outputs on the topology's reference (their ratio, the phase error)
+            factor, phase = topo.reference_outputs(op.opamp, self.f_t)
+            ratio = float(topo.output_ratio(values)) * factor
+            second = (ratio, ratio, phase, c.thd, c.s_thd, ratio / factor)
         model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
                       c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1], 1e-12),
                       (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
-                      p.control.amplitude_spread_of(self._limiter(c), temps[1]))
+                      p.control.amplitude_spread_of(self._limiter(c), temps[1]), second)
         y = monte_carlo(model, p.spec, samples=samples, seed=1).yield_frac
         return replace(c, yield_est=y, simulated=True)
 
