@@ -1,5 +1,5 @@
-"""The whole design job on every demo spec: time per stage (load, enumerate, solve,
-verify, rank) for the top 10, and the ngspice frequency error of partpick's top BOM
+"""The whole design job on every demo spec: time per stage (setup, search, verify,
+rank) for the top 10, and the ngspice frequency error of partpick's top BOM
 beside that of the common hand method (round capacitor, R = 1/(2 pi f C) rounded to
 the series, Rf = 2.2 Rg, diodes across Rf) on the same op-amp.
 
@@ -51,7 +51,7 @@ def main() -> None:
     base = (time.perf_counter() - t) / 50
     del base_spec
     print(f"baseline: one linear loop analysis {base * 1e3:.3f} ms; catalog load {t_load * 1e3:.1f} ms\n")
-    print(f"{'spec':22s} {'total s':>8s} {'ratio':>8s} {'enumerate':>9s} {'solve':>7s} {'verify':>7s} {'rank':>6s}"
+    print(f"{'spec':22s} {'total s':>8s} {'ratio':>8s} {'setup':>9s} {'search':>7s} {'verify':>7s} {'rank':>6s}"
           f" {'partpick err':>12s} {'hand err':>9s} {'closer':>7s}")
     for path in specs:
         spec = Spec.from_yaml(path)
@@ -64,7 +64,7 @@ def main() -> None:
         if ngspice_available():
             ours = spice_error(best.circuit, spec)
             hand = spice_error(TOPOLOGIES[spec.topology].hand_design(spec, cat, best.bom.line("opamp").family), spec)
-        print(f"{spec.name:22s} {total:8.2f} {total / base:8.0f} {tm['enumerate']:9.2f} {tm['solve']:7.2f} "
+        print(f"{spec.name:22s} {total:8.2f} {total / base:8.0f} {tm['setup']:9.2f} {tm['search']:7.2f} "
               f"{tm['verify']:7.2f} {tm['rank']:6.3f} {ours * 100:11.3f}% {hand * 100:8.3f}% {hand / ours:6.1f}x")
 
 

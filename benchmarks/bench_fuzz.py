@@ -53,7 +53,6 @@ import matplotlib  # noqa: E402
 matplotlib.use("Agg")
 import matplotlib.pyplot  # noqa: E402,F401
 import schemdraw  # noqa: E402,F401
-from ortools.sat.python import cp_model  # noqa: E402,F401
 
 import partpick.cli  # noqa: E402,F401
 import partpick.export.catalog_table  # noqa: E402,F401

@@ -102,8 +102,11 @@ class Bom:
 
     @property
     def channels(self) -> int:
-        """Op-amp channels the circuit uses: the topology's and the output buffer's."""
-        return TOPOLOGIES[self.topology].channels + (1 if self.stage in BUFFERED else 0)
+        """Op-amp channels the circuit uses: the topology's, the output buffer's and the
+        amplitude control's (an integrator)."""
+        own = getattr(CONTROLS[self.control], "op_channels", None)
+        extra = own(ln.role for ln in self.lines) if own is not None else 0
+        return TOPOLOGIES[self.topology].channels + (1 if self.stage in BUFFERED else 0) + extra
 
     def to_circuit(self, catalog: Catalog) -> Circuit:
         """The circuit with exact catalog values (families must exist in ``catalog``)."""

@@ -1,12 +1,15 @@
-"""Part families: resistors, capacitors, op-amps and limiter elements.
+"""Part families: resistors, capacitors, op-amps, limiter elements and the parts of the
+JFET amplitude control (JFETs, detector diodes, voltage references:
+:mod:`partpick.actives`).
 
 A catalog is a folder of YAML files; each file may hold any of the sections
-``resistors``, ``capacitors``, ``opamps`` and ``limiters`` (see DEVELOPERS.md for the
-format), and a ``packages`` section gives packages' thermal data, which loading hands
-to the op-amps in them. Loading validates every field and turns it into SI floats held
-in frozen records; the rest of partpick never sees the YAML. Every family may name its
-maker and maker's part number (optional, carried to BOM and purchasing files); a
-``{value}`` in a part number stands for the part's value in RKM code. Resistor and capacitor values
+``resistors``, ``capacitors``, ``opamps``, ``limiters``, ``jfets``, ``diodes`` and
+``references`` (see DEVELOPERS.md for the format), and a ``packages`` section gives
+packages' thermal data, which loading hands to the op-amps in them. Loading validates
+every field and turns it into SI floats held in frozen records; the rest of partpick
+never sees the YAML. Every family may name its maker and maker's part number (optional,
+carried to BOM and purchasing files); a ``{value}`` in a part number stands for the
+part's value in RKM code. Resistor and capacitor values
 come from IEC 60063 series (:mod:`partpick.series`) within each family's range.
 """
 
@@ -19,23 +22,30 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from partpick import series
+from partpick.actives import Diode, Jfet, Reference
 from partpick.errors import CatalogError
 from partpick.fileio import os_cause
 from partpick.yamlsrc import Fields, read_yaml
 
 __all__ = [
     "KINDS",
+    "CORE_KINDS",
     "CapacitorFamily",
     "Catalog",
+    "Diode",
+    "Jfet",
     "Limiter",
     "OpAmp",
     "Package",
+    "Reference",
     "ResistorFamily",
     "default_catalog_dir",
     "load_catalog",
 ]
 
-KINDS = ("resistors", "capacitors", "opamps", "limiters")
+KINDS = ("resistors", "capacitors", "opamps", "limiters", "jfets", "diodes", "references")
+# kinds every circuit needs; the others only the amplitude controls that use them
+CORE_KINDS = ("resistors", "capacitors", "opamps")
 DISTRIBUTIONS = ("uniform", "normal")
 LIMITER_KINDS = ("diode", "zener-pair", "led")
 
@@ -63,6 +73,12 @@ BANDGAP_J = (0.1 * 1.602176634e-19, 10 * 1.602176634e-19)
 ZENER_V = (0.1, 1e3)
 ZENER_TEMPCO_V_PER_K = (-1.0, 1.0)
 BAND_K = (73.15, 573.15)            # -200 degC .. 300 degC
+# the JFET control's parts (small-signal n-channel JFETs, shunt references)
+VTO_V = (-30.0, -0.05)
+BETA_A_PER_V2 = (1e-7, 1.0)
+VTO_TEMPCO_V_PER_K = (-0.1, 0.1)
+BETA_TEMPCO_PER_K = (-0.1, 0.1)     # BETATCE / 100: +/-10 %/K
+REFERENCE_V = (0.1, 100.0)
 
 
 @dataclass(frozen=True, slots=True)
@@ -257,7 +273,7 @@ class Limiter:
     maker_part: str = ""
 
 
-Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter
+Family = ResistorFamily | CapacitorFamily | OpAmp | Limiter | Jfet | Diode | Reference
 
 
 @dataclass(frozen=True, slots=True)
@@ -272,6 +288,9 @@ class Catalog:
     sources: tuple[str, ...]
     demo: bool
     packages: tuple[Package, ...] = ()
+    jfets: tuple[Jfet, ...] = ()
+    diodes: tuple[Diode, ...] = ()
+    references: tuple[Reference, ...] = ()
 
     def of_kind(self, kind: str) -> tuple[Family, ...]:
         return getattr(self, kind)
@@ -390,4 +409,6 @@ def load_catalog(paths: str | Path | Iterable[str | Path] | None = None) -> Cata
     return Catalog(resistors=tuple(families["resistors"]), capacitors=tuple(families["capacitors"]),
                    opamps=tuple(with_thermal(op, packages.get(op.package)) for op in families["opamps"]),
                    limiters=tuple(families["limiters"]), currency=currency[0] if currency else "USD",
-                   sources=tuple(sources), demo=demo, packages=tuple(packages.values()))
+                   sources=tuple(sources), demo=demo, packages=tuple(packages.values()),
+                   jfets=tuple(families["jfets"]), diodes=tuple(families["diodes"]),
+                   references=tuple(families["references"]))

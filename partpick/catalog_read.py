@@ -8,9 +8,12 @@ import math
 from dataclasses import replace
 
 from partpick import series
+from partpick.actives import Diode, Jfet, Reference
 from partpick.catalog import (  # noqa: I001 (the ranges every value must lie in)
     BAND_K,
     BANDGAP_J,
+    BETA_A_PER_V2,
+    BETA_TEMPCO_PER_K,
     CAPACITANCE_F,
     CURRENT_A,
     DISTRIBUTIONS,
@@ -22,6 +25,7 @@ from partpick.catalog import (  # noqa: I001 (the ranges every value must lie in
     POLE_HZ,
     POWER_W,
     RATING_V,
+    REFERENCE_V,
     RESISTANCE_OHM,
     SATURATION_A,
     SIDE_V,
@@ -29,6 +33,8 @@ from partpick.catalog import (  # noqa: I001 (the ranges every value must lie in
     SMALL_CURRENT_A,
     SUPPLY_V,
     TEMPCO_PER_K,
+    VTO_TEMPCO_V_PER_K,
+    VTO_V,
     ZENER_TEMPCO_V_PER_K,
     ZENER_V,
     CapacitorFamily,
@@ -325,9 +331,98 @@ def _junction_charge(rec: Fields) -> dict[str, float]:
     return out
 
 
+# -- the JFET control's families (records in partpick.actives) ----------------------------
+
+_COMMON = ("id", "description", "package", "price", "maker", "maker_part")
+
+
+def _common(rec: Fields) -> dict:
+    """The fields every family has: id, description, package, prices, where, maker."""
+    price = _price(rec)
+    return dict(id=_id(rec), description=rec.text("description", default=""),
+                package=rec.text("package", default=""), price_unit=_cost(price, "unit"),
+                price_line=_cost(price, "line", default=0.0), where=_where(rec), **_maker(rec))
+
+
+def _spread(rec: Fields, key: str, dim: str, bounds: tuple[float, float], **kw) -> tuple[float, float, float]:
+    """(nominal, min, max) of a {nominal, min, max} field, min <= nominal <= max."""
+    sub = rec.sub(key, ("nominal", "min", "max"))
+    nom = sub.quantity("nominal", dim, bounds=bounds, **kw)
+    lo = sub.quantity("min", dim, default=nom, bounds=bounds, **kw)
+    hi = sub.quantity("max", dim, default=nom, bounds=bounds, **kw)
+    if not lo <= nom <= hi:
+        raise sub.error("nominal", f"must lie within {key}.min..max (got {nom:g} outside {lo:g}..{hi:g})")
+    return nom, lo, hi
+
+
+class _Jfets(_Reader):
+    allowed = _COMMON + ("vto", "beta", "lambda", "gate_saturation_current", "capacitance", "vto_tempco",
+                         "beta_tempco")
+
+    def read(self, rec: Fields) -> Jfet:
+        sub = rec.sub("vto", ("nominal", "min", "max"))
+        if sub.has("max") or sub.has("nominal"):
+            top = sub.quantity("max" if sub.has("max") else "nominal", "voltage")
+            if not top < 0:
+                raise rec.error("vto", f"must be negative for an n-channel JFET (got up to {top:g} V)")
+        vto, vto_lo, vto_hi = _spread(rec, "vto", "voltage", VTO_V)
+        beta, beta_lo, beta_hi = _spread(rec, "beta", "transconductance_parameter", BETA_A_PER_V2, positive=True)
+        caps = rec.sub("capacitance", ("gate_source", "gate_drain"), required=False)
+        return Jfet(
+            vto_v=vto, vto_min_v=vto_lo, vto_max_v=vto_hi,
+            beta_a_per_v2=beta, beta_min_a_per_v2=beta_lo, beta_max_a_per_v2=beta_hi,
+            lambda_per_v=rec.number("lambda", default=0.0, minimum=0.0, maximum=1.0),
+            is_a=rec.quantity("gate_saturation_current", "current", positive=True, default=1e-14,
+                              bounds=SATURATION_A),
+            cgs_f=(caps.quantity("gate_source", "capacitance", nonnegative=True, default=0.0, bounds=JUNCTION_F)
+                   if caps else 0.0),
+            cgd_f=(caps.quantity("gate_drain", "capacitance", nonnegative=True, default=0.0, bounds=JUNCTION_F)
+                   if caps else 0.0),
+            vto_tempco_v_per_k=rec.quantity("vto_tempco", "voltage_tempco", default=0.0, bounds=VTO_TEMPCO_V_PER_K),
+            beta_tce_per_k=rec.quantity("beta_tempco", "tempco", default=0.0, bounds=BETA_TEMPCO_PER_K),
+            **_common(rec),
+        )
+
+
+class _Diodes(_Reader):
+    allowed = _COMMON + ("saturation_current", "emission", "series_resistance", "capacitance", "bandgap", "xti",
+                         "forward_voltage_spread")
+
+    def read(self, rec: Fields) -> Diode:
+        return Diode(
+            is_a=rec.quantity("saturation_current", "current", positive=True, bounds=SATURATION_A),
+            n=rec.number("emission", minimum=0.5, maximum=10.0),
+            rs_ohm=rec.quantity("series_resistance", "resistance", nonnegative=True, default=0.0, bounds=OUTPUT_OHM),
+            # one constant capacitance (CJO with M = 0): beside a hold capacitor it is a detail
+            cjo_f=rec.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=JUNCTION_F),
+            eg_j=rec.quantity("bandgap", "energy", positive=True, default=1.11 * 1.602176634e-19, bounds=BANDGAP_J),
+            xti=rec.number("xti", default=3.0, minimum=0.0, maximum=10.0),
+            vf_spread_v=rec.quantity("forward_voltage_spread", "voltage", nonnegative=True, default=0.0,
+                                     bounds=(0.0, 1.0)),
+            **_common(rec),
+        )
+
+
+class _References(_Reader):
+    allowed = _COMMON + ("voltage", "tolerance", "distribution", "tempco", "min_current")
+
+    def read(self, rec: Fields) -> Reference:
+        return Reference(
+            voltage_v=rec.quantity("voltage", "voltage", positive=True, bounds=REFERENCE_V),
+            tolerance_frac=_tolerance(rec),
+            distribution=rec.text("distribution", choices=DISTRIBUTIONS, default="normal"),
+            tempco_per_k=rec.quantity("tempco", "tempco", nonnegative=True, default=0.0, bounds=TEMPCO_PER_K),
+            min_current_a=rec.quantity("min_current", "current", positive=True, default=1e-3, bounds=CURRENT_A),
+            **_common(rec),
+        )
+
+
 READERS: dict[str, _Reader] = {
     "resistors": _Resistors(),
     "capacitors": _Capacitors(),
     "opamps": _OpAmps(),
     "limiters": _Limiters(),
+    "jfets": _Jfets(),
+    "diodes": _Diodes(),
+    "references": _References(),
 }

@@ -27,7 +27,10 @@ __all__ = ["main"]
 
 
 def _fail(message: str, code: int):
-    click.echo(f"error: {one_line(message, shorten=False)}", err=True)
+    # a refusal (exit 1) keeps its lines: what binds, then the nearest designs; each
+    # line is still made safe to print
+    lines = message.split("\n") if code == 1 else [message]
+    click.echo("error: " + "\n".join(one_line(line, shorten=False) for line in lines), err=True)
     sys.exit(code)
 
 

@@ -115,18 +115,30 @@ def _fmt(field: str, value: float) -> str:
     return sign + units.format_quantity(float(f"{value:.3g}"), "fraction")
 
 
-def _q(x: float | None, dim: str) -> str:
-    return units.format_quantity(float(f"{x:.4g}"), dim) if x is not None and math.isfinite(x) else "-"
+def _q(x: float | None, dim: str, spec: Spec | None = None) -> str:
+    """x (SI) with its unit; a voltage at the load in the kind the spec wrote its
+    amplitude in (Vrms, Vpk, Vpp)."""
+    if x is None or not math.isfinite(x):
+        return "-"
+    if spec is not None and dim == "voltage":
+        return units.format_amplitude(units.Amplitude(x, "pk").as_kind(spec.amplitude.target.kind), 4)
+    return units.format_quantity(float(f"{x:.4g}"), dim)
 
 
-def miss_text(c) -> str:
-    """A failed check: its value and its limit, with units."""
-    limit = (f"{_q(c.low, c.dim)} .. {_q(c.high, c.dim)}" if c.low is not None and c.high is not None
-             else f">= {_q(c.low, c.dim)}" if c.low is not None else f"<= {_q(c.high, c.dim)}")
-    return f"{c.name} {_q(c.value, c.dim)} (limit {limit})"
+def miss_text(c, spec: Spec | None = None) -> str:
+    """A failed check: its value and its limit, with units (an amplitude at the load in
+    the spec's kind)."""
+    at_load = spec if c.field.startswith("amplitude") else None
+
+    def q(x):
+        return _q(x, c.dim, at_load)
+
+    limit = (f"{q(c.low)} .. {q(c.high)}" if c.low is not None and c.high is not None
+             else f">= {q(c.low)}" if c.low is not None else f"<= {q(c.high)}")
+    return f"{c.name} {q(c.value)} (limit {limit})"
 
 
-def _nearest_lines(failing, count: int) -> list[str]:
+def _nearest_lines(failing, count: int, spec: Spec) -> list[str]:
     """The nearest failing designs: fewest requirements missed, then by how far
     (each shortfall relative to its limit), then the cheaper."""
 
@@ -139,7 +151,7 @@ def _nearest_lines(failing, count: int) -> list[str]:
     out = []
     for i, r in enumerate(sorted(failing, key=distance)[:count], 1):
         parts = ", ".join(dict.fromkeys(ln.family for ln in r.bom.lines))
-        misses = "; ".join(miss_text(c) for c in r.verdict.failed())
+        misses = "; ".join(miss_text(c, spec) for c in r.verdict.failed())
         out.append(f"  {i}. {parts} ({r.bom.stage} output stage), {r.cost:.3f} per board; misses: {misses}")
     return out
 
@@ -205,7 +217,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     failing = [r for r in failing if not r.verdict.passed]
     if failing:
         lines.append("nearest designs (--why-not N shows N):")
-        lines += _nearest_lines(_unique(failing), nearest)
+        lines += _nearest_lines(_unique(failing), nearest, spec)
     return "\n".join(lines), binding
 
 
@@ -219,12 +231,13 @@ def _unique(items):
     return out
 
 
-def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz) -> tuple[str, tuple[str, ...]] | None:
+def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str = "") -> tuple[str, tuple[str, ...]] | None:
     """A refusal that needs no search: no op-amp, limiter or family allowed; no
     op-amp that takes the supply, swings the amplitude or drives the load; no arm set
     of the allowed families near the target frequency. None when the search must
     answer. reach_hz: (lowest, highest) textbook frequency the allowed families'
-    arms reach, Hz."""
+    arms reach, Hz; hold: what the best family pair holds when no pair can hold the
+    frequency tolerance (empty when one can)."""
     notes = "".join(f" ({n})" for n in default_notes(spec))
     for kind, word in (("opamps", "op-amp"), ("limiters", "limiter"), ("resistors", "resistor family"),
                        ("capacitors", "capacitor family")):
@@ -253,6 +266,8 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz) -> tuple[s
                 f"({problem.current_share:.0%} of its output current, derating rule output_current): raise "
                 f"load.resistance to {_q(low / best_i, 'resistance')} or add an external driver{notes}",
                 ("load.resistance",))
+    if not pairs and hold:
+        return f"frequency.tolerance binds: {hold}{notes}", ("frequency.tolerance",)
     if not pairs:
         lo, hi = reach_hz
         return (f"frequency.target out of reach: the allowed resistor and capacitor families make arms from "

@@ -12,13 +12,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from partpick import units
-from partpick.catalog import KINDS, Catalog
+from partpick.catalog import CORE_KINDS, KINDS, Catalog
 from partpick.derating import RULES, Derating, read_derating
 from partpick.errors import SpecError
 from partpick.yamlsrc import Fields, Mapping, did_you_mean, parse_yaml, read_text
 
 __all__ = [
-    "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES",
+    "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES", "AMPLITUDE_CONTROLS",
+    "MIN_THD",
     "FrequencyReq", "AmplitudeReq", "SupplyReq", "LoadReq", "TemperatureReq", "PartsChoice",
     "QuadratureReq", "StockRef", "Spec", "check_parts", "AUTO_TOPOLOGY",
 ]
@@ -30,6 +31,11 @@ RANK_KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_marg
 OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator", "buffered-attenuator")
 STOCK_MODES = ("prefer", "only")
 DEFAULT_RANK = ("yield", "frequency_error", "cost")
+# auto: the search picks the control; the words name the registry's controls
+AMPLITUDE_CONTROLS = ("auto", "diode", "jfet-agc")
+# the parts each choice of control needs families of
+_CONTROL_KINDS = {"auto": (), "diode": ("limiters",), "jfet-agc": ("jfets", "diodes")}
+MIN_THD = 5e-5    # the lowest THD limit partpick verifies (0.005 %): its harmonic models hold to about there
 _OPEN_WORDS = ("open", "none")
 
 # What partpick designs, as ranges every spec value must lie in (SI), so the physics never
@@ -45,10 +51,11 @@ LOAD_OHM = (0.1, 1e12)
 LOAD_F = (0.0, 10e-6)
 TEMPERATURE_K = (173.15, 473.15)     # -100 degC .. 200 degC
 MIN_FRACTION = 1e-6                  # 1 ppm: the smallest tolerance, THD or yield read
+SETTLING_S = (1e-6, 1e4)             # settling limits: a microsecond to a few hours
 
 _TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "load_cosine", "temperature",
         "distortion", "quadrature", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage",
-        "catalogs", "derating")
+        "catalogs", "derating", "amplitude_control", "settling")
 PHASE_RAD = (1e-6, 0.5)               # a quadrature phase tolerance: 0.2 arc-second .. 28.6 deg
 
 
@@ -139,6 +146,9 @@ class PartsChoice:
     capacitors: tuple[str, ...] | None = None
     opamps: tuple[str, ...] | None = None
     limiters: tuple[str, ...] | None = None
+    jfets: tuple[str, ...] | None = None
+    diodes: tuple[str, ...] | None = None
+    references: tuple[str, ...] | None = None
 
     def of_kind(self, kind: str) -> tuple[str, ...] | None:
         return getattr(self, kind)
@@ -159,10 +169,13 @@ class Spec:
 
     max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9, at every
     load); yield_min_frac: share of builds that must meet every requirement (fraction);
-    builds: number of boards built from one BOM (for stock quantities); load_cosine:
-    the load of a second output (a quadrature oscillator's cosine; None: none given),
-    which must meet the amplitude and THD requirements too; quadrature: the phase and
-    amplitude match of the two outputs (None: reported, not required).
+    builds: number of boards built from one BOM (for stock quantities);
+    amplitude_control: 'auto' (the search chooses), 'diode' or 'jfet-agc';
+    settling_max_s: the longest time from power-on until the amplitude stays within its
+    tolerance (s), or None when the spec sets no limit; load_cosine: the load of a
+    second output (a quadrature oscillator's cosine; None: none given), which must meet
+    the amplitude and THD requirements too; quadrature: the phase and amplitude match
+    of the two outputs (None: reported, not required).
     """
 
     name: str
@@ -183,6 +196,8 @@ class Spec:
     output_stage: str
     catalogs: tuple[Path, ...]
     derating: Derating = Derating()
+    amplitude_control: str = "auto"
+    settling_max_s: float | None = None
     load_cosine: LoadReq | None = None
     quadrature: QuadratureReq | None = None
     source: str = field(default="<spec>", compare=False)
@@ -228,6 +243,8 @@ class Spec:
             ("temperature.max", t.max_k, "K"),
             ("temperature.nominal", t.nominal_k, "K"),
             ("distortion.max_thd", self.max_thd_frac, "1"),
+            ("amplitude_control", self.amplitude_control, ""),
+            ("settling.max", self.settling_max_s if self.settling_max_s is not None else "none", "s"),
         ]
         if self.quadrature is not None:
             rows += [("quadrature.phase_error", self.quadrature.phase_error_rad, "rad"),
@@ -331,6 +348,12 @@ def _read(root: Fields, source: str) -> Spec:
 
     di = root.sub("distortion", ("max_thd",), required=False)
     max_thd = _fraction(di, "max_thd", maximum=1.0) if di is not None else 0.05
+    if max_thd < MIN_THD * (1 - 1e-9):
+        raise di.error("max_thd", f"must be >= {MIN_THD * 100:g} %, the lowest THD partpick verifies "
+                                  f"(got {max_thd * 100:g} %)")
+
+    se = root.sub("settling", ("max",), required=False)
+    settling = se.quantity("max", "time", positive=True, bounds=SETTLING_S) if se is not None else None
 
     qu = root.sub("quadrature", ("phase_error", "amplitude_match"), required=False)
     quadrature = None
@@ -393,28 +416,34 @@ def _read(root: Fields, source: str) -> Spec:
         output_stage=root.text("output_stage", choices=OUTPUT_STAGES, default="auto"),
         catalogs=_relative_paths(root, "catalogs", base),
         derating=read_derating(root, "derating", base),
+        amplitude_control=root.text("amplitude_control", choices=AMPLITUDE_CONTROLS, default="auto"),
+        settling_max_s=settling,
         load_cosine=load_cosine,
         quadrature=quadrature,
         source=source,
         where=where,
     )
     _record(where, root, *_TOP)
-    for sub in (fr, am, su, lo, lc, te, di, qu, yi):
+    for sub in (fr, am, su, lo, lc, te, di, qu, yi, se):
         if sub is not None:
             _record(where, sub, *sub.allowed)
     return spec
 
 
 def check_parts(spec: Spec, catalog: Catalog) -> None:
-    """Refuse family ids the catalog does not hold, and kinds left with no family.
+    """Refuse family ids the catalog does not hold, and kinds left with no family (the
+    kinds every circuit needs, and those of the amplitude control the spec names).
 
     Raises :class:`SpecError` at the spec line of the offending id.
     """
+    needed = CORE_KINDS + _CONTROL_KINDS[spec.amplitude_control]
+    if spec.amplitude_control == "auto" and not all(catalog.ids(k) for k in _CONTROL_KINDS["jfet-agc"]):
+        needed += _CONTROL_KINDS["diode"]  # without the JFET control's parts, 'auto' means the limiter
     for kind in KINDS:
         ids = spec.parts.of_kind(kind)
         known = catalog.ids(kind)
         if ids is None:
-            if not known:
+            if not known and kind in needed:
                 raise SpecError(f"needs at least one {kind[:-1]} family, and the catalog has none "
                                 f"(read {', '.join(catalog.sources)})", source=spec.source,
                                 line=spec.line_of("parts"), field=f"parts.{kind}")

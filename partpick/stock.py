@@ -3,14 +3,12 @@
 Columns (header row required, any order): ``family``, ``value``, ``quantity``, and
 optionally ``unit_price`` (overrides the catalog price) and ``note`` (location or
 remark). ``value`` is a resistance or capacitance for those families (SI prefixes or
-RKM code) and empty for op-amps and limiters. Lines starting with ``#`` are comments.
-Every refusal names file:line:column.
+RKM code) and empty for active parts (op-amps, limiters, JFETs, diodes, references).
+Lines starting with ``#`` are comments. Every refusal names file:line:column.
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from dataclasses import dataclass
 from pathlib import Path

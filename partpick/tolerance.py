@@ -9,6 +9,10 @@ normal with its spread at 3 sigma; limiter forward voltage normal with its sprea
 sigma; temperature and supply uniform over the spec's ranges. Every build is one draw
 of all of these (numpy, vectorised, seeded: ``numpy.random.default_rng(seed)``).
 
+A control with a spread model of its own (the JFET control: its JFET's VTO and BETA,
+reference, divider and detector diode) draws those for each build instead of the scalar
+forward-voltage spread.
+
 Per build, the physics is the candidate's verified operating point moved by exact and
 linearised terms: f0 and the required gain exactly from the drawn arm values; the
 gain excess from the drawn gain network with the op-amp's and the limiter's share of
@@ -36,7 +40,8 @@ import numpy as np
 
 from partpick.bom import Bom
 from partpick.catalog import Catalog
-from partpick.circuits import Circuit, all_slots, balance, linear, log_sensitivities, margin_fn
+from partpick.circuits import Circuit, all_slots, balance, linear, log_sensitivities, margin_fn, rest_conductance
+from partpick.physics.harmonic import output_figures
 from partpick.spec import Spec
 from partpick.verify import Verdict, make_check
 
@@ -74,6 +79,9 @@ class Model:
     swing_head: tuple       # (high, low) headroom of the op-amp, V
     gbw_spread: float
     vf_spread_rel: float    # amplitude spread the control's parts give (3 sigma), relative
+    spread: object = None   # the control's own build-by-build spread model, or None
+    port: str = "feedback"  # the control's port ...
+    g_rest: float = 0.0     # ... and the conductance it adds there at rest (S)
     # a second output (a quadrature oscillator's cosine) at nominal: (its load peak over
     # the first load's, its fundamental over the first's, its phase error (rad), its
     # THD and d THD / d ln(1 + m), the topology's ideal amplitude ratio output_ratio at
@@ -159,15 +167,15 @@ def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdi
             damp.append(math.log(p.load_peak_v / nom.load_peak_v))
             dpull.append(math.log(p.freq_hz / p.lin.marginal_hz) - pull_h if math.isfinite(p.lin.marginal_hz) else 0.0)
     order = np.argsort(temps)
-    vf_rel = c.control.amplitude_spread(c, cond.temp_k) if nom.starts else 0.0
+    vf_rel = c.control.amplitude_spread(c, cond.temp_k, cond) if nom.starts else 0.0
+    hook = getattr(c.control, "spread_model", None)
+    spread = hook(c, cond) if hook is not None and nom.starts else None
     second = None
     if nom.starts and nom.outputs:
         name, out = next(iter(nom.outputs.items()))
         target = getattr(c.topology, "output_phase_rad", {}).get(name, 0.0)
         s_thd2 = 0.0
         if hb is not None and hb_up is not None and name in hb_up.outputs:
-            from partpick.physics.harmonic import output_figures
-
             thd2_up = output_figures(hb_up.outputs[name], hb_up.load_harmonics)[1]
             s_thd2 = (thd2_up - out.thd) / d
         second = (out.peak_v / nom.load_peak_v, out.ratio, math.remainder(out.phase_rad - target, 2 * math.pi),
@@ -177,7 +185,8 @@ def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdi
                  math.log(max(nom.load_peak_v, 1e-12)), s_amp, nom.load_thd if nom.starts else math.nan, s_thd,
                  tuple(np.array(temps)[order]), tuple(np.array(damp)[order]), tuple(np.array(dpull)[order]),
                  nom.osc_peak_v / nom.load_peak_v if nom.starts and nom.load_peak_v > 0 else 1.0,
-                 (c.opamp.headroom_high_v, c.opamp.headroom_low_v), c.opamp.gbw_spread_frac, vf_rel, second)
+                 (c.opamp.headroom_high_v, c.opamp.headroom_low_v), c.opamp.gbw_spread_frac, vf_rel, spread,
+                 c.control.port, rest_conductance(c), second)
 
 
 def _draw(rng, n: int, normal: bool) -> np.ndarray:
@@ -216,7 +225,7 @@ def frequency_and_startup(model: Model, b: dict) -> tuple[np.ndarray, np.ndarray
     v = b["v"]
     topo = model.topology
     f0 = topo.f0_hz(v)
-    ln_m = np.log(topo.gain(v) / topo.required_gain(v)) - model.loss_op / b["gbw"]
+    ln_m = np.log(margin_fn(topo, model.port, model.g_rest)(v)) - model.loss_op / b["gbw"]
     dlnm = ln_m - math.log(1 + model.m_lin)
     ln_f = (np.log(f0) + model.pull_op / b["gbw"] + model.pull_h + model.s_pull * dlnm
             + np.interp(b["t"], model.temps, model.dpull_t))
@@ -230,12 +239,20 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
     b = draw_builds(model, spec, n, rng)
     t, vs = b["t"], b["vs"]
     freq, ln_m, starts = frequency_and_startup(model, b)
-    m = np.expm1(ln_m)
     dlnm = ln_m - math.log(1 + model.m_lin)
-    ln_a = (model.ln_amp + model.s_amp * dlnm + np.interp(t, model.temps, model.dln_amp_t)
-            + np.log1p(model.vf_spread_rel * _draw(rng, n, True)))
-    amp = np.exp(ln_a)
+    ln_a = model.ln_amp + model.s_amp * dlnm + np.interp(t, model.temps, model.dln_amp_t)
     thd = model.thd + model.s_thd * dlnm
+    if model.spread is not None:
+        # the control's own parts, build by build (its amplitude spread included)
+        own = model.spread.draw(rng, b)
+        ln_m = ln_m + own["ln_margin"]
+        starts = ln_m > 0
+        ln_a = ln_a + own["ln_amp"]
+        thd = thd - model.thd + own["thd"]
+    else:
+        ln_a = ln_a + np.log1p(model.vf_spread_rel * _draw(rng, n, True))
+    m = np.expm1(ln_m)
+    amp = np.exp(ln_a)
     vcc, vee, ref = _rails(spec, vs)
     osc = amp * model.osc_per_load
     swing_ok = (osc <= vcc - model.swing_head[0] - ref) & (osc <= ref - vee - model.swing_head[1])
@@ -307,7 +324,7 @@ def worst_case(model: Model, spec: Spec) -> dict:
             vals[role] = v[role] * (1 + s * tol[role]) * (1 + tc(role, dt, s))
         return vals
 
-    m_fn = margin_fn(topo)
+    m_fn = margin_fn(topo, model.port, model.g_rest)
     m_dirs = {r: -math.copysign(1.0, s) for r, s in log_sensitivities(v, m_fn).items() if r in tol}
     f_dirs = {r: math.copysign(1.0, s) for r, s in log_sensitivities(v, topo.f0_hz).items() if r in tol}
     worst_m = math.inf

@@ -9,7 +9,7 @@ API
     ``"ppm/K"``, ``"V/µs"``, ...).
 :func:`parse_quantity` ``(text, dim) -> float``
     ``"4.7 kΩ"``, ``"100n"``, ``"4k7"``, ``"-10 degC"``, ``"200 ppm/K"`` -> SI float in
-    the base unit of ``dim`` (ohm, F, Hz, V, A, W, s, K, 1, 1/K, V/K, V/s, V/V, J, rad).
+    the base unit of ``dim`` (ohm, F, Hz, V, A, W, s, K, 1, 1/K, V/K, V/s, V/V, J, A/V², rad).
 :func:`format_quantity` ``(value, dim, digits=None) -> str``
     SI float -> ``"4.7 kΩ"`` (engineering notation, SI prefix, display unit).
 :func:`parse_rkm` / :func:`format_rkm`
@@ -210,6 +210,10 @@ _DIMS: dict[str, _Dim] = {
              _Unit(), "K/W", _Unit(), False, ("K/W",)),
         _Dim("energy", "an energy", _table(_expand("{}eV", _ELECTRONVOLT), _expand("{}J")),
              _Unit(), "eV", _ELECTRONVOLT, True, ("eV", "J")),
+        # BETA of the SPICE JFET model (drain current = BETA (V_GS - VTO)^2 in saturation)
+        _Dim("transconductance_parameter", "a transconductance parameter",
+             _table(_expand("{}A/V2"), _expand("{}A/V^2"), _expand("{}A/V\u00b2")),
+             _Unit(), "A/V\u00b2", _Unit(), True, ("mA/V2", "mA/V\u00b2")),
         _Dim("angle", "an angle", {"deg": _DEGREE, _DEG: _DEGREE, "rad": _Unit(), "mrad": _Unit(exp10=-3)},
              _Unit(), "deg", _DEGREE, False, ("deg", "rad")),
     )

@@ -18,7 +18,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
-                               margin_fn, periphery)
+                               margin_fn, periphery, rest_conductance)
+from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, output_figures
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
@@ -27,7 +28,7 @@ from partpick.spec import Spec
 __all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
            "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
            "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
-           "CAP_UNCERTAINTY"]
+           "CAP_UNCERTAINTY", "settling_of", "cycles_to_settle"]
 
 # How far a catalog's junction charge may be off, as a fraction of the capacitance the
 # control's element presents at its working amplitude: datasheets give typical
@@ -218,6 +219,35 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
                           outputs=outs)
 
 
+def settling_of(c: Circuit, p: OperatingPoint, band_rel: tuple[float, float] | None = None,
+                start_v: float = START_V):
+    """How the amplitude gets to ``p`` from power-on (a
+    :class:`partpick.physics.envelope.Settling`, from the amplitude control's envelope
+    model), or None when it does not start. band_rel: the amplitude band relative to
+    the settled amplitude (default +/-2 %); start_v: the output's amplitude the power-on
+    leaves, V."""
+    if not p.starts:
+        return None
+    cond = p.cond
+    loop = build_loop(c, cond)
+    hb = balance(c, cond, p.lin, loop=loop)
+    lo, hi = band_rel or (0.98, 1.02)
+    final = hb.osc_peak_v if hb is not None else p.osc_peak_v
+    clip = min(p.swing_high_v, -p.swing_low_v)
+    return c.control.settling(c, cond, loop, p.lin, hb, (lo * final, hi * final), start_v, clip)
+
+
+def cycles_to_settle(c: Circuit, p: OperatingPoint, final_v: float = 10.0) -> float:
+    """Cycles a transient run needs to settle and show 20 settled cycles: from the
+    control's own envelope when it is a slow one (a loop of its own), else from the
+    build-up (:func:`transient_cycles_for`)."""
+    if getattr(c.control, "slow", False) and p.starts:
+        st = settling_of(c, p, (0.995, 1.005))
+        if st is not None and math.isfinite(st.settle_s):
+            return float(min(st.settle_s * p.freq_hz * 1.2 + 25, 20000))
+    return transient_cycles_for(p.lin, c.f0_hz, final_v)
+
+
 def clipping_supply(c: Circuit, p: OperatingPoint) -> float:
     """Supply (V; per rail when dual) below which the op-amp's swing no longer holds the
     oscillation at ``p``: each excursion plus the headroom on its side."""
@@ -230,7 +260,7 @@ def worst_case_margin(c: Circuit, tolerances: dict[str, float], pull: float = 0.
     the end of its tolerance that lowers it (the directions from the sign of its
     sensitivity in the topology's own equations), plus ``pull`` (the margin the
     op-amp and limiter leakage cost, from the linear analysis)."""
-    fn = margin_fn(c.topology)
+    fn = margin_fn(c.topology, c.control.port, rest_conductance(c))
     sens = log_sensitivities(c.values, fn)
     corner = dict(c.values)
     for role, s in sens.items():
@@ -389,6 +419,8 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
                          f"worst at {tname}"))
     for name in nom.outputs:
         checks += _output_checks(c, spec, pts, name)
+    if spec.settling_max_s is not None:
+        checks.append(_settling_check(c, nom, spec))
 
     # Op-amp limits at the minimum supply.
     low_pt = pts.get("supply min", nom)
@@ -492,6 +524,20 @@ def _output_checks(c: Circuit, spec: Spec, pts: dict, name: str) -> list[Check]:
     return checks
 
 
+def _settling_check(c: Circuit, nom: OperatingPoint, spec: Spec) -> Check:
+    """Time from power-on until the amplitude at the load stays within its tolerance."""
+    a = spec.amplitude
+    ratio = nom.load_peak_v / nom.osc_peak_v if nom.osc_peak_v > 0 else 1.0
+    band = tuple(a.peak_v * (1 + s * a.tolerance_frac) / ratio / nom.osc_peak_v for s in (-1, 1))
+    st = settling_of(c, nom, band)
+    if st is None:
+        return make_check("settling time", "settling.max", math.inf, None, spec.settling_max_s, "time",
+                          "no settled oscillation")
+    note = (f"start-up {st.startup_s * 1e3:.3g} ms, overshoot {st.overshoot * 100:.3g} %, damping {st.damping:.2g}"
+            if math.isfinite(st.startup_s) else "the amplitude never reaches its band")
+    return make_check("settling time", "settling.max", st.settle_s, None, spec.settling_max_s, "time", note)
+
+
 def package_limit(op, spec: Spec) -> tuple[float, str]:
     """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
     ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
@@ -507,7 +553,9 @@ def package_limit(op, spec: Spec) -> tuple[float, str]:
 def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:
     """(W, which package) the hottest op-amp package dissipates at the maximum supply:
     the quiescent power of every channel it holds (catalog figures are per channel) plus
-    the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`)."""
+    the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`);
+    an amplitude control's integrator channel counts as a channel in use, its output
+    stage's loss left out (it drives a JFET's gate: microamps)."""
     op, span = c.opamp, spec.supply.span_max_v
     # each of the topology's channels at the worst channel's output current
     losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)] * c.topology.channels
@@ -515,12 +563,13 @@ def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[f
         i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
         losses.append(class_b_loss(span / 2, nom.load_peak_v, i_buf))
     quiescent = span * op.quiescent_current_a * op.channels
-    if op.channels >= len(losses):
-        return quiescent + sum(losses), f"{len(losses)} of {op.channels} channel(s) in one package"
+    used = periphery.channels_used(c)
+    if op.channels >= used:
+        return quiescent + sum(losses), f"{used} of {op.channels} channel(s) in one package"
     if op.channels == 1:
         return quiescent + max(losses), "one channel per package, the hotter one"
     hottest = sorted(losses, reverse=True)[:op.channels]
-    return quiescent + sum(hottest), f"{op.channels} of {len(losses)} channels in the hotter package"
+    return quiescent + sum(hottest), f"{op.channels} of {used} channels in the hotter package"
 
 
 @dataclass(frozen=True, slots=True)
@@ -544,7 +593,7 @@ def transient_check(c: Circuit, cond: Conditions) -> TransientSummary:
     if not point.starts:
         return TransientSummary(False)
     net = build_netlist(c, cond)
-    cycles = transient_cycles_for(point.lin, c.f0_hz, max(point.osc_peak_v, 1e-3))
+    cycles = cycles_to_settle(c, point, max(point.osc_peak_v, 1e-3))
     res = simulate(net, cycles=cycles, record=("osc", "load"))
     st = res.stats("load")
     if st is None:

@@ -19,7 +19,8 @@ PKG = ROOT / "partpick"
 LAYERS = [
     ("partpick", "partpick.errors", "partpick.units", "partpick.series", "partpick.yamlsrc", "partpick.fileio",
      "partpick.starter", "partpick.cache"),
-    ("partpick.catalog", "partpick.catalog_read", "partpick.spec", "partpick.stock", "partpick.derating"),
+    ("partpick.catalog", "partpick.catalog_read", "partpick.actives", "partpick.spec", "partpick.stock",
+     "partpick.derating"),
     ("partpick.physics",),
     ("partpick.circuits",),
     ("partpick.search", "partpick.verify", "partpick.tolerance", "partpick.bom", "partpick.pricing", "partpick.rank"),

@@ -48,7 +48,8 @@ def test_catalog_list():
 def test_catalog_validate():
     result = run("catalog", "validate", str(CATALOGS))
     assert result.exit_code == 0
-    assert result.output.startswith("ok: 5 file(s), 6 resistors, 6 capacitors, 9 opamps, 5 limiters")
+    assert result.output.startswith("ok: 6 file(s), 6 resistors, 6 capacitors, 9 opamps, 5 limiters, 3 jfets, 3 diodes, "
+                                    "2 references")
 
 
 @pytest.mark.parametrize("path", sorted(SPECS.glob("*.yaml")), ids=lambda p: p.stem)

@@ -147,5 +147,9 @@ def test_the_search_aims_with_the_spec_shares(demo_catalog):
     assert b.thd_aim == pytest.approx(0.5 * base.max_thd_frac)
     assert (a.current_share, b.current_share) == (pytest.approx(0.6), pytest.approx(0.3))
     d = design(tight, demo_catalog, results=3, samples=2000)
+    assert d.passing
     for r in d.passing:
-        assert r.verdict.nominal.load_thd <= 0.5 * base.max_thd_frac * 1.1   # the surrogate's error, 10 %
+        # what the search planned with (its estimate of the nominal THD); verification
+        # then holds the design to the spec's own limit
+        assert r.pick.thd <= 0.5 * base.max_thd_frac + 1e-12
+        assert r.thd <= base.max_thd_frac

@@ -6,7 +6,8 @@ partpick.export.schematic.schematic_nets), are the netlist's nodes
 (partpick.circuits.build_netlist) up to their names: one consistent one-to-one map of
 drawn nets to netlist nodes carries every part's terminals onto that part's nodes. Checked
 for dual and single supply, every output stage kind, diode pairs with and without Rd,
-Zener pairs and no limiter. Junction dots sit on every joint of three or more, and no
+Zener pairs, no limiter, and the JFET control in its variants (with and without its
+integrator, gate network, series resistor, compensating diode and voltage reference). Junction dots sit on every joint of three or more, and no
 wire crosses another. Polarised capacitors have their + away from 0 V (the DC reasoning
 of any circuits text: ground and the load's side of a coupling capacitor sit at 0 V, the
 op-amp's side and the bias node at mid-rail).
@@ -24,7 +25,7 @@ pytest.importorskip("schemdraw")
 from partpick.bom import Bom, BomLine, load_bom  # noqa: E402
 from partpick.circuits import build_netlist  # noqa: E402
 from partpick.export.schematic import draw_bom, schematic_nets, schematic_svg  # noqa: E402
-from partpick.physics.netlist import Capacitor, LimiterX, OpAmpX, Resistor  # noqa: E402
+from partpick.physics.netlist import Capacitor, DiodeX, JfetX, LimiterX, OpAmpX, Resistor, VSource  # noqa: E402
 from partpick.spec import Spec  # noqa: E402
 from partpick.verify import operating_conditions  # noqa: E402
 from tests.conftest import ROOT, SPECS  # noqa: E402
@@ -36,6 +37,9 @@ BASES = {  # (BOM, spec for the operating point)
 }
 NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED", "RLOAD2", "CLOAD2")
 CONNECTORS = {"OUT": "load", "OUT2": "load2"}   # drawn connector -> the netlist's probe it stands for
+SUPPLIES = ("VCC", "VEE")
+JFET_BOM = SPECS / "boms" / "clean-tone-1k-jfet.yaml"
+JFET_SPEC = SPECS / "jfet" / "clean-tone-1k.yaml"
 
 
 def variant(bom: Bom, stage: str, limiter: str | None, rd: float = 0.0) -> Bom:
@@ -54,7 +58,7 @@ def variant(bom: Bom, stage: str, limiter: str | None, rd: float = 0.0) -> Bom:
 
 
 def expected(bom: Bom, spec: Spec, catalog):
-    """From the netlist: [(drawn refs, netlist nodes, ordered)] and the load node."""
+    """From the netlist: [(drawn refs, netlist nodes, ordered)] and its probes (name -> node)."""
     net = build_netlist(bom.to_circuit(catalog), operating_conditions(spec)["nominal"])
     out = []
     for el in net.elements:
@@ -64,6 +68,12 @@ def expected(bom: Bom, spec: Spec, catalog):
             out.append((el.name, (el.inp, el.inn, el.out, el.vcc, el.vee), True))
         elif isinstance(el, LimiterX):
             out.append(("pair", (el.a, el.b), el.limiter.kind))
+        elif isinstance(el, JfetX):
+            out.append((el.name, (el.d, el.g, el.s), True))
+        elif isinstance(el, DiodeX):
+            out.append((el.name, (el.a, el.k), True))
+        elif isinstance(el, VSource) and el.name not in SUPPLIES:   # a shunt reference: anode at its - end
+            out.append((el.name, (el.b, el.a), True))
     return out, net.probes
 
 
@@ -198,6 +208,53 @@ def test_every_part_is_labelled_with_designator_and_value(demo_catalog, supply):
         assert "VREF" in svg and "mid-rail" in svg
     else:
         assert "-V" in svg
+
+
+def jfet_variant(bom: Bom, stage: str = "none", drop=(), add=(), single: Bom | None = None) -> Bom:
+    """The demo JFET BOM with another output stage (10k / 15k of its gain network's
+    family), without the roles ``drop``, with the lines ``add`` and, given a single-supply
+    BOM, on a single supply with that BOM's bias network and coupling capacitor."""
+    fam = bom.line("rg").family
+    lines = [ln for ln in bom.lines if ln.role not in drop]
+    if stage in ("gain", "attenuator", "buffered-attenuator"):
+        lines += [BomLine("R6", "stage_ra", fam, 10e3), BomLine("R7", "stage_rb", fam, 15e3)]
+    lines += list(add)
+    kind = "dual"
+    if single is not None:
+        kind = "single"
+        lines += [ln for ln in single.lines if ln.role in ("bias_top", "bias_bottom", "bias_c", "coupling_c")]
+    return dataclasses.replace(bom, lines=tuple(lines), stage=stage, supply_kind=kind)
+
+
+INTEGRATOR = ("agc_ri", "agc_ci", "agc_rz", "agc_cp", "clamp", "agc_rr1", "agc_rr2", "comp", "agc_rc")
+REFERENCE = (BomLine("U2", "vref", "vr-shunt-2v5", 0.0), BomLine("R18", "agc_rrb", "mf-1", 10e3))
+
+
+@pytest.mark.parametrize("stage", STAGES + ("buffered-attenuator",))
+def test_jfet_control_is_drawn_as_built_with_every_stage(demo_catalog, stage):
+    bom = jfet_variant(load_bom(JFET_BOM, demo_catalog), stage)
+    check_connections(bom, Spec.from_yaml(JFET_SPEC), demo_catalog)
+
+
+@pytest.mark.parametrize("drop,add", [
+    (("comp", "agc_rc"), REFERENCE),                          # the divider from a voltage reference, no D5
+    (("agc_rz", "agc_cp", "clamp"), ()),                      # a bare integrator capacitor
+    (("agc_rs", "agc_rla"), ()),                              # no series resistor, gate not linearised
+    (("agc_rla", "agc_rlb"), ()),                             # the control node straight on the gate
+    (INTEGRATOR, ()),                                         # the naive control: the hold drives the gate
+], ids=["reference", "bare-integrator", "no-r10-no-r11", "no-gate-network", "no-integrator"])
+def test_every_jfet_control_variant_is_drawn_as_built(demo_catalog, drop, add):
+    bom = jfet_variant(load_bom(JFET_BOM, demo_catalog), "follower", drop, add)
+    check_connections(bom, Spec.from_yaml(JFET_SPEC), demo_catalog)
+
+
+def test_jfet_control_on_a_single_supply_is_drawn_as_built(demo_catalog):
+    single = load_bom(BASES["single"][0], demo_catalog)
+    bom = jfet_variant(load_bom(JFET_BOM, demo_catalog), "gain", (), REFERENCE, single)
+    check_connections(bom, Spec.from_yaml(BASES["single"][1]), demo_catalog)
+    svg = schematic_svg(bom, demo_catalog)
+    for word in ("CTL", "OSC", "U1C", "jf-n-gp", "vr-shunt-2v5"):
+        assert word in svg, word
 
 
 def test_every_plug_in_draws_its_own_parts():

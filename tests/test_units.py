@@ -66,6 +66,8 @@ PREFIXABLE_UNITS = [
     ("time", "s"),
     ("voltage_tempco", "V/K"),
     ("voltage_tempco", "V/degC"),
+    ("transconductance_parameter", "A/V2"),
+    ("transconductance_parameter", "A/V²"),
 ]
 
 
@@ -399,6 +401,7 @@ def test_unit_symbols() -> None:
         "slew_rate": "V/µs",
         "gain": "V/V",
         "energy": "eV",
+        "transconductance_parameter": "A/V²",
         "angle": "deg",
     }
     assert unit_symbol("resistance") == OMEGA  # U+03A9, not the OHM SIGN

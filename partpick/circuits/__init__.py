@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from partpick.circuits import clipping, diode_limiter, periphery, quadrature, wien
+from partpick.circuits import clipping, diode_limiter, jfet_agc, periphery, quadrature, wien
 from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
 from partpick.errors import SpecError
 from partpick.physics.harmonic import BalanceResult
@@ -20,10 +20,11 @@ from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
            "topology", "control", "all_slots", "slots_for", "control_for_roles", "check_spec", "make_circuit",
-           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn"]
+           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn",
+           "rest_conductance"]
 
 TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
-CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, clipping.CONTROL)}
+CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, jfet_agc.CONTROL, clipping.CONTROL)}
 
 
 def topology(name: str):
@@ -119,7 +120,7 @@ def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netl
     core = c.topology.netlist(c, ref, neg)
     els += list(core.elements)
     a, b = core.ports[c.control.port]
-    els += c.control.netlist(c, a, b)
+    els += c.control.netlist(c, a, b, {"out": core.out, "ref": ref, "vcc": "vcc", "neg": neg})
     out_els, load = periphery.output(c, cond, core.out, ref, neg, channel="U1" + chr(ord("A") + c.topology.channels))
     els += out_els
     probes = {"osc": core.out, "load": load}
@@ -146,14 +147,15 @@ def build_loop(c: Circuit, cond: Conditions, w_ref: float | None = None) -> Loop
     return c.topology.loop(c, cond, w_ref)
 
 
-def branch(c: Circuit, temp_k: float) -> Branch:
-    """The control branch of ``c`` at temp_k (K)."""
-    return c.control.branch(c, temp_k)
+def branch(c: Circuit, temp_k: float, cond: Conditions | None = None) -> Branch:
+    """The control branch of ``c`` at temp_k (K) (at rest, under ``cond`` when the rest
+    state depends on the supply)."""
+    return c.control.branch(c, temp_k, cond)
 
 
 def linear(c: Circuit, cond: Conditions, loop: Loop | None = None) -> LinearResult:
     """Poles, startup, margin and marginal frequency of ``c`` at ``cond``."""
-    return analyse_linear(loop or build_loop(c, cond), branch(c, cond.temp_k))
+    return analyse_linear(loop or build_loop(c, cond), branch(c, cond.temp_k, cond))
 
 
 def balance(c: Circuit, cond: Conditions, lin: LinearResult, *, loop: Loop | None = None,
@@ -182,6 +184,16 @@ def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, floa
     return out
 
 
-def margin_fn(topo):
-    """The ideal-op-amp loop-gain ratio gain / required gain as a function of values."""
+def margin_fn(topo, port: str | None = None, g_s: float = 0.0):
+    """The ideal-op-amp loop-gain ratio gain / required gain as a function of values;
+    with g_s (S) the conductance a control adds at ``port`` at rest."""
+    if g_s:
+        return lambda v: topo.port_gain(v, port, g_s) / topo.required_gain(v)
     return lambda v: topo.gain(v) / topo.required_gain(v)
+
+
+def rest_conductance(c: Circuit) -> float:
+    """The conductance (S) the amplitude control of ``c`` adds at its port at rest (0
+    for a control that does not conduct at small signal)."""
+    rest = getattr(c.control, "rest_conductance", None)
+    return rest(c) if rest is not None else 0.0

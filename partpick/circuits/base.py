@@ -76,6 +76,9 @@ class Values(Mapping):
     def __repr__(self) -> str:
         return f"Values({self._d!r})"
 
+    def __reduce__(self):   # pickled as its items (verification runs in worker processes)
+        return (Values, (self._d,))
+
     def replace(self, **changes) -> "Values":
         return Values({**self._d, **changes})
 
@@ -154,8 +157,12 @@ class Circuit:
 
     @property
     def gain(self) -> float:
-        """Small-signal amplifier gain with the amplitude control at rest, V/V."""
-        return float(self.topology.gain(self.values))
+        """Small-signal amplifier gain with the amplitude control at rest, V/V (with the
+        conductance a control that conducts at rest adds at its port)."""
+        rest = getattr(self.control, "rest_conductance", None)
+        if rest is None:
+            return float(self.topology.gain(self.values))
+        return float(self.topology.port_gain(self.values, self.control.port, rest(self)))
 
     @property
     def ideal_margin(self) -> float:
@@ -230,24 +237,29 @@ class AmplitudeControl(Protocol):
     slots: tuple[Slot, ...]
     port: str
 
-    def branch(self, c: Circuit, temp_k: float):
-        """The control branch (:class:`partpick.physics.loop.Branch`) at temp_k (K):
-        its small-signal form is what the linear analysis closes the loop with."""
+    def branch(self, c: Circuit, temp_k: float, cond: "Conditions | None" = None):
+        """The control branch (:class:`partpick.physics.loop.Branch`, or an object with
+        its interface) at temp_k (K), at rest under ``cond``: its small-signal form is
+        what the linear analysis closes the loop with."""
 
     def balance(self, c: Circuit, cond: Conditions, loop, lin, *, kmax: int = 21, start=None):
         """The settled oscillation (:class:`partpick.physics.harmonic.BalanceResult`) at
         ``cond`` given the loop and its linear analysis, or None when the control does
         not set the amplitude (the transient simulation then answers)."""
 
-    def netlist(self, c: Circuit, a: str, b: str) -> list:
-        """Elements of the control between port nodes a and b."""
+    def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
+        """Elements of the control between port nodes a and b; ``nodes`` names the
+        others it may tie to: 'out' (the oscillator output), 'ref' (the signal
+        reference), 'vcc' and 'neg' (the rails)."""
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
-        """Part-to-part spread of the amplitude it sets, relative (3 sigma)."""
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond: "Conditions | None" = None) -> float:
+        """Part-to-part spread of the amplitude it sets, relative (3 sigma), at temp_k
+        (K) under ``cond`` when the amplitude depends on the supply."""
 
-    def draw(self, sheet, a, b, up: float) -> None:
+    def draw(self, sheet, a, b, up: float, out=None) -> None:
         """Draw its parts on the schematic sheet between the port's ends a and b (the
-        netlist's port nodes, in order) on the clear side ``up`` (+1: above)."""
+        netlist's port nodes, in order) on the clear side ``up`` (+1: above); ``out`` is
+        where the oscillator output is drawn, for a control that senses it."""
 
 
 @dataclass(frozen=True, slots=True)

@@ -11,8 +11,12 @@ remove; the amplitude drifts with the forward voltage.
 
 from __future__ import annotations
 
+import math
+
+import numpy as np
 
 from partpick.circuits.base import Circuit, Slot
+from partpick.physics.envelope import START_V, limiter_settling
 from partpick.physics.harmonic import harmonic_balance
 from partpick.physics.junction import forward_voltage, limiter_table
 from partpick.physics.loop import Branch
@@ -36,8 +40,9 @@ class DiodeLimiter:
     slots = SLOTS
     port = "feedback"
     series_role = "rd"      # the resistor in series with the pair (the search's Rd)
+    slow = False            # sets the amplitude within a few cycles of reaching it
 
-    def branch(self, c: Circuit, temp_k: float) -> Branch:
+    def branch(self, c: Circuit, temp_k: float, cond=None) -> Branch:
         """The pair (tabulated i(v) and charge q(v) at temp_k, K), behind Rd."""
         lim = c.part("limiter")
         rd = c.value("rd")
@@ -51,7 +56,7 @@ class DiodeLimiter:
         return harmonic_balance(loop, self.branch(c, cond.temp_k), lin, cond.rails(c.supply_kind), kmax=kmax,
                                 start=start)
 
-    def netlist(self, c: Circuit, a: str, b: str) -> list:
+    def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
         """Rd (R5) from a, then the pair (D1) to b; the pair straight across without Rd."""
         els: list = []
         if c.value("rd") > 0:
@@ -61,7 +66,18 @@ class DiodeLimiter:
         els.append(LimiterX("D1", a, b, lim))
         return els
 
-    def amplitude_spread(self, c: Circuit, temp_k: float) -> float:
+    def settling(self, c: Circuit, cond, loop, lin, hb, band: tuple[float, float], start_v: float = START_V,
+                 clip_v: float = math.inf):
+        """The envelope from start_v to the settled amplitude (V at the output; band in
+        V there): :func:`partpick.physics.envelope.limiter_settling` with the pair's
+        describing function; None when there is no settled oscillation."""
+        if hb is None:
+            return None
+        p = np.array([2j * math.pi * hb.freq_hz / loop.w_ref])
+        per = complex(loop.probe("osc", p, np.ones(1), np.full(1, lin.marginal_g_s))[0])
+        return limiter_settling(loop, self.branch(c, cond.temp_k), hb.osc_peak_v, per, band, start_v, clip_v)
+
+    def amplitude_spread(self, c: Circuit, temp_k: float, cond=None) -> float:
         """The forward-voltage spread (3 sigma) relative to the forward voltage at the
         knee current, where the limiter works."""
         return self.amplitude_spread_of(c.part("limiter"), temp_k)
@@ -74,10 +90,10 @@ class DiodeLimiter:
         return lim.vf_spread_v / max(forward_voltage(lim, KNEE_A, temp_k), 1e-3)
 
     # -- drawing --------------------------------------------------------------------------------
-    def draw(self, sheet, a, b, up: float) -> None:
+    def draw(self, sheet, a, b, up: float, out=None) -> None:
         """Draw the branch on ``sheet`` beside the port's two ends (a: the netlist's
-        first port node, b: the second; ``up``: the clear side): Rd (R5) from a, then the
-        pair to b, as in :meth:`netlist`. Diodes and LEDs are drawn anti-parallel, D1
+        first port node, b: the second; ``up``: the clear side; ``out``, the oscillator
+        output, is not needed): Rd (R5) from a, then the pair to b, as in :meth:`netlist`. Diodes and LEDs are drawn anti-parallel, D1
         conducting from Rd's side to b and D2 back; a Zener pair as two opposed Zeners
         in series, their anodes joined."""
         y1 = a[1] + 2.0 * up
@@ -101,8 +117,6 @@ class DiodeLimiter:
         sheet.part(d2, sheet.elm.Diode(), (bl[0], y2), (dl[0], y2), f"{d2} {fam}", polar=True)
         sheet.wire(bl, (bl[0], y2))
         sheet.wire(dl, (dl[0], y2))
-
-    # -- search hook ------------------------------------------------------------------------------
 
 
 CONTROL = DiodeLimiter()

@@ -37,7 +37,7 @@ from partpick.physics.junction import limiter_table
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import ideal_opamp
 
-__all__ = ["Surface", "surface", "compute", "ship", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
+__all__ = ["Surface", "surface", "compute", "ship", "df_table", "compute_df", "DF_T", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
            "F_SLICES"]
 
 R_GRID = np.concatenate([[0.0], np.geomspace(0.01, 40.0, 25)])    # rd / Rg
@@ -76,27 +76,35 @@ class Surface:
         the drop across rd, vf (1 - g rd) ~ V_pair), which a grid cannot follow; the
         product is smooth."""
         q = np.asarray(g_s, float) * np.asarray(rd_ohm, float)
-        u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
+        at = _coords(rd_ohm, g_s, rg_ohm)
         with np.errstate(invalid="ignore", divide="ignore"):
-            v = np.log(np.asarray(g_s, float) * rg_ohm)
-        ug = np.log(R_GRID + _R0)
-        vg = np.log(X_GRID)
-        i = np.clip(np.searchsorted(ug, u) - 1, 0, ug.size - 2)
-        j = np.clip(np.searchsorted(vg, v) - 1, 0, vg.size - 2)
-        tu = (u - ug[i]) / (ug[i + 1] - ug[i])
-        tv = (v - vg[j]) / (vg[j + 1] - vg[j])
-        outside = (tu < -1e-9) | (tu > 1 + 1e-9) | (tv < -1e-9) | (tv > 1 + 1e-9) | ~np.isfinite(u * v)
+            vo = np.exp(_bilinear(np.log(self.vo), at)) / np.where(q < 1, 1 - q, np.nan)
+            return (vo, np.exp(_bilinear(np.log(self.thd), at)), _bilinear(self.pull, at),
+                    np.exp(_bilinear(np.log(self.a_df), at)))
 
-        def bilinear(z, log=False):
-            z = np.log(z) if log else z
-            out = ((1 - tu) * (1 - tv) * z[i, j] + tu * (1 - tv) * z[i + 1, j] + (1 - tu) * tv * z[i, j + 1]
-                   + tu * tv * z[i + 1, j + 1])
-            out = np.exp(out) if log else out
-            return np.where(outside, np.nan, out)
 
-        with np.errstate(invalid="ignore", divide="ignore"):
-            vo = bilinear(self.vo, True) / np.where(q < 1, 1 - q, np.nan)
-            return vo, bilinear(self.thd, True), bilinear(self.pull), bilinear(self.a_df, True)
+def _coords(rd_ohm, g_s, rg_ohm: float):
+    """Where (rd_ohm, g_s) fall on the (R_GRID, X_GRID) log axes scaled by rg_ohm: cell
+    indices, fractions within the cell, and a mask of points off the table."""
+    u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        v = np.log(np.asarray(g_s, float) * rg_ohm)
+    ug = np.log(R_GRID + _R0)
+    vg = np.log(X_GRID)
+    i = np.clip(np.searchsorted(ug, u) - 1, 0, ug.size - 2)
+    j = np.clip(np.searchsorted(vg, v) - 1, 0, vg.size - 2)
+    tu = (u - ug[i]) / (ug[i + 1] - ug[i])
+    tv = (v - vg[j]) / (vg[j + 1] - vg[j])
+    outside = (tu < -1e-9) | (tu > 1 + 1e-9) | (tv < -1e-9) | (tv > 1 + 1e-9) | ~np.isfinite(u * v)
+    return i, j, tu, tv, outside
+
+
+def _bilinear(z: np.ndarray, at) -> np.ndarray:
+    """Bilinear interpolation of grid z at the coordinates ``at`` (_coords); NaN off it."""
+    i, j, tu, tv, outside = at
+    out = ((1 - tu) * (1 - tv) * z[i, j] + tu * (1 - tv) * z[i + 1, j] + (1 - tu) * tv * z[i, j + 1]
+           + tu * tv * z[i + 1, j + 1])
+    return np.where(outside, np.nan, out)
 
 
 def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float, start=None):
@@ -208,6 +216,38 @@ def df_amplitude(lim, rd_ohm, g_s, temp_k: float) -> np.ndarray:
     return out
 
 
+DF_T = np.arange(213.15, 443.16, 10.0)   # K: the temperatures the describing-function table holds
+
+
+@functools.lru_cache(maxsize=64)
+def df_table(lim) -> np.ndarray:
+    """ln of the describing-function amplitude (df_amplitude) of the pair behind
+    rd = R_GRID x REF_RG asked for g = X_GRID / REF_RG, at every temperature of DF_T:
+    array (DF_T, R_GRID, X_GRID); NaN where the branch cannot supply g. Shipped for the
+    demo parts and cached by content like the surface."""
+    key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
+                      DF_T.tolist())
+    arrays = load_arrays("limiter-df", key)
+    if arrays is None or "ln_a" not in arrays:
+        arrays = {"ln_a": compute_df(lim)}
+        store_arrays("limiter-df", key, arrays)
+    return arrays["ln_a"]
+
+
+def compute_df(lim) -> np.ndarray:
+    """The table df_table holds, computed."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.stack([np.log(df_amplitude(lim, R_GRID[:, None] * REF_RG, X_GRID[None, :] / REF_RG, float(t)))
+                         for t in DF_T])
+
+
+def _df_at(table: np.ndarray, temp_k: float) -> np.ndarray:
+    """The table's (R_GRID, X_GRID) slice at temp_k (K), linear in temperature."""
+    k = int(np.clip(np.searchsorted(DF_T, temp_k) - 1, 0, DF_T.size - 2))
+    t = (temp_k - DF_T[k]) / (DF_T[k + 1] - DF_T[k])
+    return (1 - t) * table[k] + t * table[k + 1]
+
+
 class Planner:
     """The diode limiter's side of the search for one limiter part and one family of
     series resistors (Rd): for rows of (needed conductance g, output per port amplitude)
@@ -226,6 +266,24 @@ class Planner:
         self.choices = np.concatenate([[0.0], np.asarray(rd_values, float)])
         self.temps_k = tuple(float(t) for t in temps_k)
         self.rg = rg_ohm
+        table = df_table(lim)
+        ref = _df_at(table, REF_T)
+        self._df_shift = [_df_at(table, t) - ref for t in self.temps_k]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            self._ln_vo, self._ln_thd = np.log(self.surface.vo), np.log(self.surface.thd)
+
+    def _lookup(self, rd, g, vo: bool, thd: bool, pull: bool):
+        """What Surface.lookup gives, only the fields asked for (None for the others)."""
+        at = _coords(rd, g, self.rg)
+        out_vo = out_thd = out_pull = None
+        if vo:
+            q = np.asarray(g, float) * np.asarray(rd, float)
+            out_vo = np.exp(_bilinear(self._ln_vo, at)) / np.where(q < 1, 1 - q, np.nan)
+        if thd:
+            out_thd = np.exp(_bilinear(self._ln_thd, at))
+        if pull:
+            out_pull = _bilinear(self.surface.pull, at)
+        return out_vo, out_thd, out_pull
 
     def thd(self, g_s: np.ndarray, thd_scale=1.0) -> np.ndarray:
         """THD (fraction) of every Rd choice, array (n rows, n choices), for rows of
@@ -235,7 +293,7 @@ class Planner:
         g_s = np.asarray(g_s, float)
         rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
         with np.errstate(invalid="ignore", divide="ignore"):
-            _, thd, _, _ = self.surface.lookup(rd, np.broadcast_to(g_s[:, None], rd.shape), self.rg)
+            thd = self._lookup(rd, np.broadcast_to(g_s[:, None], rd.shape), False, True, False)[1]
         return thd * (np.asarray(thd_scale, float)[:, None] if np.ndim(thd_scale) else thd_scale)
 
     def evaluate(self, g_s: np.ndarray, dg_dm: np.ndarray, osc_per_port: np.ndarray, m: np.ndarray,
@@ -268,16 +326,19 @@ class Planner:
             scale = np.asarray(osc_per_port, float) / self.osc_ref
             t_scale = thd_scale
         with np.errstate(invalid="ignore", divide="ignore"):
-            vo, thd, pull_g, _ = self.surface.lookup(rd, g, self.rg)
-            _, _, pull, _ = self.surface.lookup(rd, g_ref, self.rg)
+            vo, thd, pull_g = self._lookup(rd, g, True, True, True)
+            pull = self._lookup(rd, g_ref, False, False, True)[2]
             pull = np.where(np.isfinite(pull), pull, pull_g)   # the reference's excess off the table
             dm = 0.002
-            vo2, thd2, _, _ = self.surface.lookup(rd, g + dg_dm * dm, self.rg)
+            vo2, thd2, _ = self._lookup(rd, g + dg_dm * dm, True, True, False)
             thd, thd2 = thd * t_scale, thd2 * t_scale
             out = {"thd": thd, "pull": pull, "dln_vo": np.log(vo2 / vo) / dm, "dthd": (thd2 - thd) / dm}
-            ref = df_amplitude(self.lim, rd, g, REF_T)
+            # the output at another temperature: scaled by the ratio of the branch's
+            # describing-function amplitudes there and at 25 degC (the table, in the
+            # branch's own units: rd and g as they are)
+            at = _coords(rd, g, REF_RG)
             for i, t in enumerate(self.temps_k):
-                ratio = 1.0 if t == REF_T else df_amplitude(self.lim, rd, g, t) / ref
+                ratio = 1.0 if t == REF_T else np.exp(_bilinear(self._df_shift[i], at))
                 out[f"vo{i}"] = vo * scale * ratio
         return out
 
@@ -297,6 +358,9 @@ def ship(catalog_dir: str) -> int:
         if not hasattr(topology, "reference_gain_values"):
             continue  # no reference network to tabulate on
         for lim in catalog.limiters:
+            key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
+                              DF_T.tolist())
+            store_arrays("limiter-df", key, {"ln_a": compute_df(lim)}, root=shipped_dir())
             for f_hz in F_SLICES:
                 store_arrays("limiter-surface", _key(topology, lim, f_hz), compute(topology, lim, control, f_hz),
                              root=shipped_dir())

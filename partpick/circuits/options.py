@@ -1,11 +1,11 @@
 """What the plug-ins' search hooks offer the search, and the small statistics they share.
 
-A topology offers **network options** (values of its frequency-setting slots with the
-figures the search needs: ln f0, the required gain, the tolerance losses), an amplitude
-control offers **control options** (its slots and the topology's gain network, with a
-surrogate of the amplitude, THD and frequency pull it sets), the periphery offers
-**stage options**. Each lists the purchasing lines it adds as (family, value, quantity).
-Logarithms are natural: frequencies in ln Hz, amplitudes in ln V, gains in nepers.
+A topology offers **network tables** (:class:`NetTable`: values of its
+frequency-setting slots with the figures the search needs: ln f0, the required gain, the
+tolerance spreads); an amplitude control that has a design rule of its own offers
+**control designs** (:class:`ControlDesign`: its slots and the gain network it needs,
+with what its physics predicts: amplitude, THD, pull, settling). Logarithms are natural:
+frequencies in ln Hz, amplitudes in ln V, gains in nepers.
 """
 
 from __future__ import annotations
@@ -17,8 +17,9 @@ from statistics import NormalDist
 import numpy as np
 
 
-__all__ = ["NetTable", "nearest", "sigma", "z_of", "dt_of", "cap_tempco", "values_of", "resistor_families",
-           "arm_capacitor_families"]
+__all__ = ["NetTable", "ControlDesign", "nearest", "sigma", "z_of", "dt_of", "cap_tempco", "values_of",
+           "allowed_families", "resistor_families", "arm_capacitor_families"]
+
 
 @dataclass(frozen=True, slots=True, eq=False)
 class NetTable:
@@ -40,6 +41,54 @@ class NetTable:
 
     def __len__(self) -> int:
         return self.ln_f0.size
+
+
+@dataclass(frozen=True, slots=True)
+class ControlDesign:
+    """One complete amplitude control a control's search hook offers (the JFET
+    control's: :func:`partpick.circuits.jfet_search.search_designs`), judged by the
+    control's own physics on the topology's equal-arm reference network at the hook's
+    frequency, with the hook's op-amp.
+
+    control: the control's registry name; slots: (role, value, family id) of every slot
+    the control fills, value in ohm or F (0.0 for an active part, whose catalog id is the
+    family id); gain: (role, value) of the gain network it needs (the topology's
+    ``gain_values``, ohm, all of family gain_family); amp_v: the oscillator output's
+    amplitude (V peak) at the minimum, nominal and maximum temperature; thd: THD at the
+    oscillator output at the nominal temperature (fraction); pull: ln of the settled
+    frequency over the loop's marginal one (the control's own pull; the op-amp's is in
+    the marginal frequency); amp_per_excess: d ln(amplitude) / d(gain excess), the gain
+    excess in nepers (how much a gain network's tolerance moves the amplitude); amp_spread:
+    the amplitude's spread from the control's own parts (3 sigma, relative); settle_s:
+    power-on until the amplitude stays within +/-2 % of its settled value (s); channels:
+    op-amp channels the control adds; margin: ln of the small-signal gain at rest (the
+    nominal parts at the nominal temperature) over the reference network's need;
+    start_loss: nepers of that margin the weakest part of the control's spread loses at
+    the hot end (the gain network's own tolerances not included); note: what it is, in
+    words."""
+
+    control: str
+    slots: tuple[tuple[str, float, str], ...]
+    gain_family: str
+    gain: tuple[tuple[str, float], ...]
+    amp_v: tuple[float, float, float]
+    thd: float
+    pull: float
+    amp_per_excess: float
+    amp_spread: float
+    settle_s: float
+    channels: int
+    margin: float
+    start_loss: float
+    note: str = ""
+
+    def values(self) -> dict[str, float]:
+        """Every value the design sets, control and gain network (role -> ohm or F)."""
+        return {**dict(self.gain), **{r: v for r, v, _ in self.slots if v}}
+
+    def families(self) -> dict[str, str]:
+        """The family (or, for an active part, the catalog id) of every role it fills."""
+        return {**{r: self.gain_family for r, _ in self.gain}, **{r: f for r, _, f in self.slots}}
 
 
 def nearest(values, target: float) -> float:
@@ -77,10 +126,15 @@ def values_of(fam, shelf=None) -> tuple[float, ...]:
     return vals if shelf is None else tuple(v for v in vals if shelf.quantity(fam.id, v) > 0)
 
 
+def allowed_families(spec, catalog, kind: str) -> list:
+    """The families of ``kind`` (a catalog section) the spec allows."""
+    ids = spec.parts.of_kind(kind)
+    return [f for f in catalog.of_kind(kind) if ids is None or f.id in ids]
+
+
 def resistor_families(spec, catalog) -> list:
     """The resistor families the spec allows."""
-    allowed = spec.parts.resistors
-    return [r for r in catalog.resistors if allowed is None or r.id in allowed]
+    return allowed_families(spec, catalog, "resistors")
 
 
 def arm_capacitor_families(spec, catalog) -> list:

@@ -25,7 +25,7 @@ from partpick.physics.rational import Rational, const, parallel
 
 __all__ = ["SLOTS", "BUFFERED", "STAGE_ROLES", "BIAS_ROLES", "stage_gain", "has_buffer", "slots_for",
            "supplies", "output", "output_admittance", "to_load", "channels_used", "stage_load_admittance",
-           "impedance_c", "admittance_c", "stage_options", "useful_stages", "fixed_parts", "rail_flags",
+           "impedance_c", "admittance_c", "fixed_parts", "rail_flags",
            "reference_flag", "draw"]
 
 SLOTS = (
@@ -60,8 +60,10 @@ def has_buffer(c: Circuit) -> bool:
 
 
 def channels_used(c: Circuit) -> int:
-    """Op-amp channels the whole circuit needs: the topology's plus the buffer's."""
-    return c.topology.channels + (1 if has_buffer(c) else 0)
+    """Op-amp channels the whole circuit needs: the topology's, the buffer's and the
+    amplitude control's."""
+    own = getattr(c.control, "op_channels", None)
+    return c.topology.channels + (1 if has_buffer(c) else 0) + (own(c.values) if own is not None else 0)
 
 
 def stage_gain(c: Circuit) -> float:
@@ -305,17 +307,18 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
     op = sheet.family("opamp")
     notes = ["Supply: +V" + (" and -V" if supply_kind == "dual" else "") + " to every op-amp package, each pin "
              "decoupled to ground with 100 nF ceramic at the pin (not in the BOM)."]
-    refs = ", ".join(f"U1{chr(ord('A') + i)}" for i in range(channels))
     packages = -(-channels // op.channels)
+    spare = packages * op.channels - channels
     if channels == 2:
-        notes.append(f"{refs}: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
+        notes.append(f"U1A, U1B: {'the two channels of one' if op.channels > 1 else 'two single-channel'} "
                      f"{sheet.value('opamp')} {'package' if op.channels > 1 else 'packages'}.")
-    elif channels > 2:
-        notes.append(f"{refs}: {channels} channels in {packages} {sheet.value('opamp')} package(s) of "
-                     f"{op.channels} channel(s).")
-    if op.channels * packages > channels:
-        notes.append(f"U1 has {op.channels * packages - channels} spare channel(s): tie each +input to the "
-                     "reference and the output to its -input.")
+    elif channels > 2:     # an amplitude control's own channel besides
+        names = ", ".join(f"U1{chr(ord('A') + k)}" for k in range(channels))
+        notes.append(f"{names}: {'one' if packages == 1 else packages} {sheet.value('opamp')} "
+                     f"{'package' if packages == 1 else 'packages'} ({op.channels} channel(s) each).")
+    if spare > 0:
+        notes.append(f"U1 has {spare} spare channel(s): tie each +input to the reference and "
+                     "the output to its -input.")
     if supply_kind == "single":
         notes.append("VREF: mid-rail made by R8, R9 and C3; ground symbols are 0 V.")
     sheet.note("\n".join(notes), (-4.2, -8.0))

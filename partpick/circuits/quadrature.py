@@ -270,7 +270,7 @@ class Quadrature:
             amps.append(AmpProbe(ch, c.opamp, f"{ch}.x", f"{ch}.iout"))
         one_a = 1 + c.value("rn2") / c.value("rn1")
         d1 = Rational(gamma, _ONE).scale(one_a)
-        return Loop(w, Rational(alpha, _ONE), Rational(gamma, _ONE), d1.scale(gf), d1, tuple(probes), tuple(amps),
+        return Loop(w, Rational(alpha, _ONE), Rational(gamma, _ONE), d1.scale(gf), d1, tuple(probes), tuple(amps), None,
                     self.outputs)
 
     # -- netlist ------------------------------------------------------------------------------------

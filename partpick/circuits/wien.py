@@ -2,8 +2,10 @@
 
 Series arm Rs + Cs from the op-amp output to the non-inverting input, shunt arm
 Rp || Cp from there to the reference (ground, or the mid-rail bias on a single
-supply). Non-inverting gain 1 + Rf/Rg; the amplitude control sits at the 'feedback'
-port, across Rf, and brings the gain down as the amplitude grows.
+supply). Non-inverting gain 1 + Rf/Rg. Two control ports: 'feedback', across Rf (a
+limiter there brings the gain down as it conducts), and 'ground', across Rg, from the
+inverting input to the reference (a variable resistor there, such as a JFET channel,
+raises the gain as its conductance grows).
 
 Network (any circuits text, e.g. Sedra and Smith, Microelectronic Circuits, chapter
 on sinusoidal oscillators): beta(s) = Zp / (Zs + Zp), f0 = 1 / (2 pi sqrt(Rs Rp Cs Cp)),
@@ -47,7 +49,7 @@ class WienBridge:
     network_name = "Wien network"
     slots = SLOTS
     channels = 1
-    ports = ("feedback",)
+    ports = ("feedback", "ground")
     network_roles = ARM_ROLES   # the frequency-setting slots
 
     # -- equations, vectorised over builds (role -> array of values) ------------------------
@@ -63,8 +65,26 @@ class WienBridge:
         """Small-signal non-inverting gain 1 + Rf/Rg (amplitude control at rest)."""
         return 1.0 + v["rf"] / v["rg"]
 
+    def port_gain(self, v: Mapping[str, np.ndarray], port: str, g_s) -> np.ndarray:
+        """The gain with a conductance g_s (S) at ``port``: across Rf (its resistance
+        falls) or across Rg (its conductance adds to Rg's)."""
+        if port == "ground":
+            return 1.0 + v["rf"] * (1.0 / v["rg"] + g_s)
+        return 1.0 + 1.0 / (1.0 / v["rf"] + g_s) / v["rg"]
+
     # -- the loop at the control port ------------------------------------------------------------
     def loop(self, c: Circuit, cond: Conditions, w_ref: float | None = None) -> Loop:
+        """The small-signal equations at the control's port (see :meth:`_feedback_loop`
+        and :meth:`_ground_loop`)."""
+        w = w_ref or 2 * math.pi * c.f0_hz
+        beta, yx = self._network(c, w)
+        y_out = periphery.output_admittance(c, cond, w)
+        if y_out is not None:
+            yx = yx + y_out
+        make = self._ground_loop if c.control.port == "ground" else self._feedback_loop
+        return make(c, cond, w, beta, yx)
+
+    def _feedback_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
         """The small-signal equations at the 'feedback' port (a branch across Rf): the
         op-amp's A0, GBW, optional second pole and output resistance, the load, the
         output stage's input and, on a single supply, the coupling capacitor. The bias
@@ -79,11 +99,6 @@ class WienBridge:
         Q0 = 1 + Ro Yx - A beta; the loop gain broken at the non-inverting input is
         L = beta A (1 + Rg y) / ((1 + Rg y)(1 + Ro Yx) + (Ro + A Rg) y), y = yf + Y.
         """
-        w = w_ref or 2 * math.pi * c.f0_hz
-        beta, yx = self._network(c, w)
-        y_out = periphery.output_admittance(c, cond, w)
-        if y_out is not None:
-            yx = yx + y_out
         rg = c.value("rg")
         yf = const(1.0 / c.value("rf"))
         a = open_loop_gain(c.opamp, w)
@@ -106,6 +121,44 @@ class WienBridge:
             ("U1A.x", g1 + cv_i.scale(ro), const(rg) + ci_i.scale(ro)),
         )
         return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),))
+
+    def _ground_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
+        """The small-signal equations at the 'ground' port (a branch across Rg, from the
+        inverting input to the reference; its current raises the gain).
+
+        With the branch voltage Vn (the inverting input) and current I, the current
+        through Rf is yg Vn + I (yg = 1/Rg), so Vo = g1 Vn + Rf I with g1 = 1 + Rf yg;
+        the output current Iout = Yx Vo + yg Vn + I, X = Vo + Ro Iout and
+        X = A (beta Vo - Vn). Hence alpha Vn + gamma I = 0 with
+        alpha = Q0 g1 + Ro yg + A, gamma = Q0 Rf + Ro, Q0 = 1 + Ro Yx - A beta; the
+        loop gain broken at the non-inverting input is L = A beta G / D with
+        G = g1 + Rf Y and D = G (1 + Ro Yx) + Ro (yg + Y) + A, so
+        d0 = g1 (1 + Ro Yx) + Ro yg + A and d1 = Rf (1 + Ro Yx) + Ro; a drawn current J
+        adds Ro J to the constraint (inject = Ro).
+        """
+        rf = c.value("rf")
+        yg = 1.0 / c.value("rg")
+        a = open_loop_gain(c.opamp, w)
+        ro = output_resistance(c.opamp)
+        one = const(1.0)
+        q0 = one + yx.scale(ro) - a * beta
+        g1 = 1.0 + rf * yg                           # Vo per Vn at I = 0
+        ryx = one + yx.scale(ro)
+        alpha = q0.scale(g1) + const(ro * yg) + a
+        gamma = q0.scale(rf) + const(ro)
+        d0 = ryx.scale(g1) + const(ro * yg) + a
+        d1 = ryx.scale(rf) + const(ro)
+        # a current J drawn from the output adds Ro J to X = Vo + Ro Iout: eta = Ro
+        cv_i = yx.scale(g1) + const(yg)              # output current per Vn
+        ci_i = yx.scale(rf) + one                    # ... per I
+        tl = periphery.to_load(c, cond, w)
+        probes = (
+            ("osc", const(g1), const(rf)),
+            ("load", tl.scale(g1), tl.scale(rf)),
+            ("U1A.iout", cv_i, ci_i),
+            ("U1A.x", const(g1) + cv_i.scale(ro), const(rf) + ci_i.scale(ro)),
+        )
+        return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),), const(ro))
 
     def _network(self, c: Circuit, w: float):
         """(beta = Zp / (Zs + Zp), the network's input admittance 1 / (Zs + Zp)) in p = s / w."""
@@ -131,7 +184,7 @@ class WienBridge:
             Resistor("R4", "out", "nn", v("rf")),
             OpAmpX("U1A", "np", "nn", "out", "vcc", neg, c.opamp),
         )
-        return Core(els, "out", {"feedback": ("out", "nn")}, "np", v("cp"))
+        return Core(els, "out", {"feedback": ("out", "nn"), "ground": ("nn", ref)}, "np", v("cp"))
 
     # -- what verification asks of the topology -----------------------------------------------
     def input_swing_v(self, c: Circuit, osc_peak_v: float) -> float:
@@ -165,6 +218,7 @@ class WienBridge:
     arm_r = (1e3, 470e3)        # arm resistances, ohm: above op-amp loading, below bias/stray trouble
     arm_c_min = 100e-12         # arm capacitors, F: well above stray capacitance
     arm_ratio = 1.25            # Rs/Rp and Cp/Cs within 1/1.25..1.25: required gain near 3
+    required_gain_range = (1 + 2 / 1.25, 1 + 2 * 1.25)   # what those arms need, V/V
 
     def network_table(self, rf, cf, ln_lo: float, ln_hi: float, r_bounds=None, shelf=None) -> NetTable:
         """Every arm set (Rs, Cs, Rp, Cp) of one family pair with ln f0 in [ln_lo, ln_hi]
@@ -305,14 +359,17 @@ class WienBridge:
         """The gain network's values by role."""
         return {"rg": rg, "rf": rf}
 
-    def port_conductance_needed(self, gv: dict) -> float:
-        """Conductance the control branch must add across Rf for a loop gain of one on
-        equal arms (gain 3), S."""
+    def port_conductance_needed(self, gv: dict, port: str = "feedback") -> float:
+        """Conductance the control branch must add at ``port`` for a loop gain of one on
+        equal arms (gain 3), S: across Rf 1/(2 Rg) - 1/Rf; across Rg 2/Rf - 1/Rg."""
+        if port == "ground":
+            return 2 / gv["rf"] - 1 / gv["rg"]
         return 1 / (gv["rg"] * 2) - 1 / gv["rf"]
 
-    def osc_per_port(self, gv: dict) -> float:
-        """Output amplitude per amplitude across the port on equal arms: Vo = 1.5 Vf at gain 3."""
-        return 1.5
+    def osc_per_port(self, gv: dict, port: str = "feedback") -> float:
+        """Output amplitude per amplitude across the port on equal arms at gain 3:
+        Vo = 1.5 Vf across Rf, Vo = 3 Vn across Rg."""
+        return 3.0 if port == "ground" else 1.5
 
     def reference(self, f_hz: float, gv: dict, opamp, control: str = "none", parts: dict | None = None,
                   control_values: dict | None = None) -> Circuit:
@@ -332,8 +389,8 @@ class WienBridge:
         shunt arm Rp || Cp at the +input and the series arm Rs + Cs from the output back
         to it. Returns where the others attach: 'out' (the oscillator output, for the
         output stage) and each port's (end at the output side, end at the -input side,
-        which way is clear: +1 up) for the amplitude control, as the netlist's
-        'feedback' port = ('out', 'nn')."""
+        which way is clear: +1 up) for the amplitude control, as the netlist's ports:
+        'feedback' = ('out', 'nn') across Rf, 'ground' = ('nn', reference) across Rg."""
         pins = sheet.opamp("U1A", f"U1A\n{sheet.value('opamp')}", (0.0, -0.625))
         x_fb, x_out, y_rf, y_arm = 4.6, 5.4, 3.0, -5.6
         out = (x_out, pins["out"][1])
@@ -355,7 +412,8 @@ class WienBridge:
         sheet.capacitor("cs", (-4.2, y_arm), (0.2, y_arm), loc="bottom")
         sheet.resistor("rs", (0.2, y_arm), (x_out, y_arm), loc="bottom")
         sheet.wire((x_out, y_arm), out)
-        return {"out": out, "ports": {"feedback": ((x_fb, y_rf), (-0.3, y_rf), 1.0)}}
+        return {"out": out, "ports": {"feedback": ((x_fb, y_rf), (-0.3, y_rf), 1.0),
+                                      "ground": ((-1.0, y_rf), (-3.5, y_rf), 1.0)}}
 
 
 TOPOLOGY = WienBridge()

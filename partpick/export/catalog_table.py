@@ -56,6 +56,24 @@ def catalog_tables(cat: Catalog, kinds: tuple[str, ...] = KINDS) -> str:
             [[f.id, f.kind, _fmt(f.is_a, "current"), f"{f.n:g}", _fmt(f.rs_ohm, "resistance"),
               _fmt(f.vz_v, "voltage") if f.kind == "zener-pair" else "-", _price(f.price_unit)]
              for f in cat.limiters]))
+    if "jfets" in kinds and cat.jfets:
+        parts.append("JFETs (n-channel)\n" + render_table(
+            ["id", "VTO", "VTO range", "BETA", "BETA range", "r_DS(on)", "unit price"],
+            [[f.id, _fmt(f.vto_v, "voltage"), f"{_fmt(f.vto_min_v, 'voltage')} .. {_fmt(f.vto_max_v, 'voltage')}",
+              _fmt(f.beta_a_per_v2, "transconductance_parameter"),
+              f"{_fmt(f.beta_min_a_per_v2, 'transconductance_parameter')} .. "
+              f"{_fmt(f.beta_max_a_per_v2, 'transconductance_parameter')}",
+              _fmt(f.r_on_ohm, "resistance", 3), _price(f.price_unit)] for f in cat.jfets]))
+    if "diodes" in kinds and cat.diodes:
+        parts.append("Detector diodes\n" + render_table(
+            ["id", "Is", "n", "Rs", "Cj", "unit price"],
+            [[f.id, _fmt(f.is_a, "current"), f"{f.n:g}", _fmt(f.rs_ohm, "resistance"), _fmt(f.cj_f, "capacitance"),
+              _price(f.price_unit)] for f in cat.diodes]))
+    if "references" in kinds and cat.references:
+        parts.append("Voltage references\n" + render_table(
+            ["id", "voltage", "tol", "tempco", "min current", "unit price"],
+            [[f.id, _fmt(f.voltage_v, "voltage"), _fmt(f.tolerance_frac, "fraction"), _fmt(f.tempco_per_k, "tempco"),
+              _fmt(f.min_current_a, "current"), _price(f.price_unit)] for f in cat.references]))
     return "\n\n".join(parts)
 
 

@@ -127,6 +127,22 @@ class Sheet:
         self.drawing.parts.append(Drawn(channel, (pins["in2"], pins["in1"], pins["out"], up, down), True))
         return pins
 
+    def jfet(self, role: str, source: Point, *, gate_side: float = 1.0, up: float = 1.0) -> dict[str, Point]:
+        """The n-channel JFET filling ``role`` with its source at ``source``, its drain
+        above it (``up`` +1) or below (-1) and its gate to the right (``gate_side`` +1) or
+        left (-1); recorded as a part with terminals (drain, gate, source), the netlist's
+        order. Returns its pins."""
+        e = self.elm.JFetN().right().at(source).anchor("source")
+        if up < 0:
+            e = e.flip()
+        if gate_side < 0:
+            e = e.reverse()
+        ref = self.ref(role)
+        e = self.d.add(e.label(f"{ref}\n{self.value(role)}", loc="right" if gate_side < 0 else "left", fontsize=9))
+        pins = {k: _pt(e.absanchors[k]) for k in ("drain", "gate", "source")}
+        self.drawing.parts.append(Drawn(ref, (pins["drain"], pins["gate"], pins["source"]), True))
+        return pins
+
     def wire(self, *points: Point) -> None:
         """A wire through ``points`` (straight runs between consecutive points)."""
         for a, b in zip(points, points[1:]):
@@ -148,13 +164,15 @@ class Sheet:
     def flag(self, name: str, at: Point, direction: str = "right") -> None:
         """A net flag: every flag of one name is one net. 'up' draws a rail symbol, 'down'
         the negative rail's symbol or a reference symbol (a triangle) named ``name``,
-        'right' a tag."""
+        'right' or 'left' a tag pointing that way."""
         if direction == "up":
             self.d.add(self.elm.Vdd().right().at(at).label(name, fontsize=9))
         elif direction == "down" and name == self.rails[1]:
             self.d.add(self.elm.Vss().right().at(at).label(name, fontsize=9))
         elif direction == "down":
             self.d.add(self.elm.GroundSignal().right().at(at).label(name, loc="bottom", fontsize=8))
+        elif direction == "left":
+            self.d.add(self.elm.Tag(width=1.6, height=0.55).at(at).left().label(name, fontsize=9))
         else:
             self.d.add(self.elm.Tag(width=1.6, height=0.55).at(at).right().label(name, fontsize=9))
         self.drawing.flags.append((name, _pt(at)))
@@ -256,7 +274,7 @@ def draw_bom(bom: Bom, catalog, d, elm) -> Drawing:
     topo = TOPOLOGIES[bom.topology]
     ctl = CONTROLS[bom.control]
     at = topo.draw(sheet)
-    ctl.draw(sheet, *at["ports"][ctl.port])
+    ctl.draw(sheet, *at["ports"][ctl.port], out=at["out"])
     periphery.draw(sheet, at["out"], bom.stage, bom.supply_kind)
     return sheet.finish()
 

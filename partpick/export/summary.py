@@ -8,6 +8,7 @@ import json
 from partpick import units
 from partpick.bom import ROLES, bom_to_csv, bom_to_yaml
 from partpick.derating import RULES
+from partpick.refusal import default_notes
 from partpick.export import shown
 from partpick.export.table import render_table
 from partpick.export.verdict import check_json, worst_line
@@ -92,7 +93,7 @@ def design_legend(d, spec, catalog) -> str:
         "margin: small-signal startup margin at the nominal point (loop gain at the phase-zero frequency - 1); "
         f"yield: share of {samples} Monte Carlo builds meeting every requirement",
         f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
-        "stage: the output stage (none, follower, gain, attenuator)"])
+        "stage: the output stage (none, follower, gain, attenuator, buffered-attenuator: a divider then a follower)"])
 
 
 def design_json(spec_path, d) -> str:
@@ -143,6 +144,7 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
         return design_yaml(spec_path, d)
     lines = [f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
              f"(ranked by {', '.join(keys or spec.rank_by)})"]
+    lines += [f"note: {n}" for n in default_notes(spec)]
     if not quiet:
         lines.append(design_table(d, catalog, spec, stock))
     if verbose:

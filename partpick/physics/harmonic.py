@@ -40,7 +40,7 @@ import numpy as np
 
 from partpick.physics.linear import LinearResult
 from partpick.physics.loop import Branch, Loop
-from partpick.physics.opamp import regime as opamp_regime, swing_limits
+from partpick.physics.opamp import loop_figures
 
 __all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude", "output_figures"]
 
@@ -416,22 +416,9 @@ def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
     full = lambda z: _full(z, hb.ks, kmax)  # noqa: E731
     vo_t = hb.synth @ _ri(vo)
     vl_t = hb.synth @ _ri(vl)
-    regime = "limiter"
-    worst = None
-    for amp in loop.amps:
-        x = loop.probe(amp.x, p, vf, ik)
-        x_t = hb.synth @ _ri(x)
-        io_t = hb.synth @ _ri(loop.probe(amp.iout, p, vf, ik))
-        slew = float(np.max(np.abs(hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * x))))
-        io_pk = float(np.max(np.abs(io_t)))
-        r = opamp_regime(amp.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(amp.opamp, rails),
-                         iout_peak_a=io_pk)
-        if regime == "limiter":
-            regime = r
-        here = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
-        # every channel's limits count: the extremes and the largest slew and current of any
-        worst = here if worst is None else (min(worst[0], here[0]), *(max(a, b) for a, b in zip(worst[1:], here[1:])))
-    x_min, x_max, slew, io_pk, io_rms = worst if worst is not None else (0.0, 0.0, 0.0, 0.0, 0.0)
+    regime, (x_min, x_max, slew, io_pk, io_rms) = loop_figures(
+        loop.amps, rails, lambda name: loop.probe(name, p, vf, ik), lambda z: hb.synth @ _ri(z),
+        lambda z: hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * z))
     return BalanceResult(
         freq_hz=w * loop.w_ref / (2 * math.pi),
         osc_peak_v=float((vo_t.max() - vo_t.min()) / 2),

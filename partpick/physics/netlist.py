@@ -3,16 +3,18 @@ SPICE exporter and partpick's own transient simulator read, so the two cannot dr
 
 Elements are plain records between named nodes ('0' is ground). The op-amp element
 stands for the behavioural macro-model of :mod:`partpick.physics.opamp`; the limiter
-element for a junction pair of :mod:`partpick.physics.junction`.
+element for a junction pair of :mod:`partpick.physics.junction`; the JFET element for
+the SPICE level-1 JFET of :mod:`partpick.physics.jfet`, the diode element for one
+junction.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from partpick.catalog import Limiter, OpAmp
+from partpick.catalog import Diode, Jfet, Limiter, OpAmp
 
-__all__ = ["Resistor", "Capacitor", "VSource", "Kick", "OpAmpX", "LimiterX", "Netlist"]
+__all__ = ["Resistor", "Capacitor", "VSource", "Kick", "OpAmpX", "LimiterX", "JfetX", "DiodeX", "Netlist"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -83,6 +85,30 @@ class LimiterX:
 
 
 @dataclass(frozen=True, slots=True)
+class JfetX:
+    """An n-channel JFET of the catalog between drain d, gate g and source s; its gate
+    capacitances (the part's cgs_f, cgd_f) sit gate-source and gate-drain as constant
+    capacitors."""
+
+    name: str
+    d: str
+    g: str
+    s: str
+    jfet: Jfet
+
+
+@dataclass(frozen=True, slots=True)
+class DiodeX:
+    """One diode of the catalog from anode a to cathode k, with cap_f (F) across it."""
+
+    name: str
+    a: str
+    k: str
+    diode: Diode
+    cap_f: float
+
+
+@dataclass(frozen=True, slots=True)
 class Netlist:
     """Elements of one circuit at one operating point: temp_k (K); f_hint_hz the
     expected frequency (Hz) for the analysis window; probes name the nodes of interest
@@ -97,7 +123,7 @@ class Netlist:
     def nodes(self) -> tuple[str, ...]:
         seen: list[str] = []
         for el in self.elements:
-            for attr in ("a", "b", "node", "inp", "inn", "out", "vcc", "vee"):
+            for attr in ("a", "b", "node", "inp", "inn", "out", "vcc", "vee", "k", "d", "g", "s"):
                 n = getattr(el, attr, None)
                 if n is not None and n != "0" and n not in seen:
                     seen.append(n)

@@ -23,7 +23,7 @@ from partpick.catalog import OpAmp
 from partpick.physics.rational import Rational
 
 __all__ = ["open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
-           "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss"]
+           "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss", "loop_figures"]
 
 # The linear model holds while the signal's slew stays under this share of the slew rate
 # and the output current under this share of the current limit (beyond them the output
@@ -122,8 +122,35 @@ def regime(op: OpAmp, x_min_v: float, x_max_v: float, slew_v_per_s: float, limit
         return "current"
     return "limiter"
 
+
 def class_b_loss(v_rail, v_pk, i_pk):
     """Average output-stage loss, W, for a sine of v_pk (V peak) at i_pk (A peak) from
     rails +/- v_rail (V) into a resistive load: 2 V I / pi - Vpk I / 2, the class-B
     result of any power-amplifier text (vectorises over numpy arrays)."""
     return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
+
+
+def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:
+    """The regime of a settled oscillation's op-amps (the first limit any of them meets,
+    :func:`regime`) and the worst of every op-amp's (x min, x max, slew, peak output
+    current, rms output current) in V, V/s and A -- the lowest minimum, the largest of
+    the rest, since any channel that meets a limit limits the circuit -- for the op-amp
+    probes ``amps`` of a loop
+    (:class:`partpick.physics.loop.AmpProbe`): probe(name) gives a probe's harmonics,
+    wave(harmonics) its samples over one period, rate(harmonics) those of its rate of
+    change."""
+    reg = "limiter"
+    main = None
+    for amp in amps:
+        x = probe(amp.x)
+        x_t = wave(x)
+        io_t = wave(probe(amp.iout))
+        slew = float(np.max(np.abs(rate(x))))
+        io_pk = float(np.max(np.abs(io_t)))
+        r = regime(amp.opamp, float(x_t.min()), float(x_t.max()), slew, swing_limits(amp.opamp, rails),
+                   iout_peak_a=io_pk)
+        if reg == "limiter":
+            reg = r
+        here = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+        main = here if main is None else (min(main[0], here[0]), *(max(a, b) for a, b in zip(main[1:], here[1:])))
+    return reg, main if main is not None else (0.0, 0.0, 0.0, 0.0, 0.0)

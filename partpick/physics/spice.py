@@ -1,6 +1,6 @@
 """SPICE netlist text of an in-memory :class:`~partpick.physics.netlist.Netlist`.
 
-The text is plain SPICE (elements R, C, V, I, D, E, B, X, ``.subckt``, ``.model``,
+The text is plain SPICE (elements R, C, V, I, D, J, E, B, X, ``.subckt``, ``.model``,
 ``.options``, ``.tran``) so it runs in ngspice and, with at most small edits, in other
 SPICE3 descendants. The one ngspice-specific construct in the circuit is ``min()`` /
 ``max()`` inside the B-source expression of the op-amp's output clamp (SPICE3f5 B
@@ -14,10 +14,12 @@ The op-amp is emitted as a subcircuit that implements exactly the macro-model of
 as diodes whose parameters are those of :func:`partpick.physics.junction.junctions_at`,
 already evaluated at the netlist's temperature: IS by the SPICE law with the catalog's
 EG and XTI, CJO and VJ by SPICE's own junction-capacitance law (so the values written
-are what SPICE itself would compute from the catalog's 25 degC values). ``.options
-TEMP = TNOM`` keeps SPICE from applying its temperature law a second time on top of
-that (at TEMP = TNOM it leaves IS, CJO and VJ as written), so partpick's own analyses
-and SPICE see the same circuit.
+are what SPICE itself would compute from the catalog's 25 degC values); a JFET as
+SPICE's standard JFET (``J`` with a ``.model NJF``: VTO, BETA, LAMBDA, IS at the
+netlist's temperature, its gate capacitances as capacitors beside it) and a single
+diode as a ``D`` with its own ``.model``. ``.options TEMP = TNOM`` keeps SPICE from
+applying its temperature law a second time on top of that (at TEMP = TNOM it leaves
+IS, CJO and VJ as written), so partpick's own analyses and SPICE see the same circuit.
 
 Output is deterministic: the same netlist always gives the same text.
 """
@@ -29,8 +31,9 @@ import re
 
 from partpick import __version__
 from partpick.catalog import Limiter, OpAmp
+from partpick.physics.jfet import jfet_at
 from partpick.physics.junction import Junction, junctions_at
-from partpick.physics.netlist import Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
+from partpick.physics.netlist import Capacitor, DiodeX, JfetX, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
 from partpick.physics.opamp import macro_params
 
 __all__ = ["to_spice", "subckt_name", "model_name", "MEASURE_PREFIX"]
@@ -181,6 +184,36 @@ def _limiter_lines(el: LimiterX) -> list[str]:
     return lines
 
 
+def _jfet_lines(el: JfetX, temp_k: float) -> list[str]:
+    """The JFET as SPICE's level-1 NJF (its own model card, parameters at temp_k) and
+    its gate capacitances as capacitors (the model's CGS = CGD = 0)."""
+    p = jfet_at(el.jfet, temp_k)
+    d, g, s = _check_node(el.d), _check_node(el.g), _check_node(el.s)
+    mod = "pp_" + _sanitise(el.name) + "_njf"
+    lines = [f"* {el.name}: n-channel JFET '{el.jfet.id}' at {_num(temp_k - 273.15)} degC",
+             f".model {mod} NJF(VTO={_num(p.vto_v)} BETA={_num(p.beta)} LAMBDA={_num(p.lam)} IS={_num(p.is_a)} "
+             f"CGS=0 CGD=0)",
+             f"{_designator('J', el.name)} {d} {g} {s} {mod}"]
+    for tag, a, b, cap in (("GS", g, s, p.cgs_f), ("GD", g, d, p.cgd_f)):
+        if cap > 0:
+            lines.append(f"{_designator('C', el.name + tag)} {a} {b} {_num(cap)}")
+    return lines
+
+
+def _diode_lines(el: DiodeX, temp_k: float) -> list[str]:
+    """One diode with its own model card (junction at temp_k, CJO = 0) and its
+    capacitance as a capacitor."""
+    a, k = _check_node(el.a), _check_node(el.k)
+    mod = "pp_" + _sanitise(el.name) + "_d"
+    j = junctions_at(el.diode, temp_k)[0]
+    lines = [f"* {el.name}: diode '{el.diode.id}' at {_num(temp_k - 273.15)} degC",
+             f".model {mod} D(IS={_num(j.is_a)} N={_num(j.n)} RS={_num(j.rs_ohm)} CJO=0)",
+             f"{_designator('D', el.name)} {a} {k} {mod}"]
+    if el.cap_f > 0:
+        lines.append(f"{_designator('C', el.name)} {a} {k} {_num(el.cap_f)}")
+    return lines
+
+
 def _tran_times(netlist: Netlist, cycles: float, points_per_cycle: int) -> tuple[float, float]:
     """(time step = max step, stop time) of the transient run, s."""
     if not (netlist.f_hint_hz > 0 and math.isfinite(netlist.f_hint_hz)):
@@ -190,9 +223,9 @@ def _tran_times(netlist: Netlist, cycles: float, points_per_cycle: int) -> tuple
     return 1.0 / (netlist.f_hint_hz * points_per_cycle), cycles / netlist.f_hint_hz
 
 
-def _element_lines(el, stop_s: float) -> list[str]:
+def _element_lines(el, stop_s: float, temp_k: float = 298.15) -> list[str]:
     """SPICE card(s) of one netlist element; stop_s (s) is the run length, so the
-    kick's period can be set far beyond it."""
+    kick's period can be set far beyond it; temp_k (K) the netlist's temperature."""
     if isinstance(el, Resistor):
         return [f"{_designator('R', el.name)} {_check_node(el.a)} {_check_node(el.b)} {_num(el.ohm)}"]
     if isinstance(el, Capacitor):
@@ -214,6 +247,10 @@ def _element_lines(el, stop_s: float) -> list[str]:
         return [f"{_designator('X', el.name)} {pins} {subckt_name(el.opamp)}"]
     if isinstance(el, LimiterX):
         return _limiter_lines(el)
+    if isinstance(el, JfetX):
+        return _jfet_lines(el, temp_k)
+    if isinstance(el, DiodeX):
+        return _diode_lines(el, temp_k)
     raise TypeError(f"cannot export element {el!r} to SPICE")
 
 
@@ -297,7 +334,7 @@ def to_spice(netlist: Netlist, *, cycles: float = 100, points_per_cycle: int = 2
 
     lines.append("* circuit")
     for el in netlist.elements:
-        lines += _element_lines(el, stop)
+        lines += _element_lines(el, stop, netlist.temp_k)
     lines += [
         "",
         "* TEMP = TNOM: the model parameters above already hold at this temperature, so",

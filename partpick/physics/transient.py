@@ -24,7 +24,10 @@ from a to b (:func:`partpick.physics.junction.limiter_table` without series resi
 series resistor is its own Resistor) and its charge q(v) across it (charge-based:
 the BDF formula differentiates q, so the charge the integration moves is conserved
 whatever the step). Two opposed Zeners are two such elements, each Zener's own
-table, with the node between them an unknown. A Kick is a rectangular current
+table, with the node between them an unknown. A JFET carries the SPICE level-1
+channel current and its two gate junctions (:mod:`partpick.physics.jfet`) with its
+gate capacitances (constant); a diode its junction current (series resistance
+included) with its capacitance (constant). A Kick is a rectangular current
 pulse from ground into its node; it enters each step as its mean over the step, so the
 delivered charge is exact whatever the step size. A conductance GMIN = 1e-12 S from
 every node to ground (as SPICE adds) keeps capacitor-only nodes defined at DC.
@@ -53,8 +56,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import lapack
 
-from partpick.physics.junction import LimiterTable, limiter_table
-from partpick.physics.netlist import Capacitor, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
+from partpick.physics.jfet import channel, gate_junction, jfet_at
+from partpick.physics.junction import LimiterTable, junctions_at, limiter_table
+from partpick.physics.netlist import Capacitor, DiodeX, JfetX, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
 from partpick.physics.opamp import macro_params
 from partpick.physics.waveform import WaveformStats, analyse
 
@@ -182,6 +186,8 @@ class _System:
         self.kicks: list[tuple[int, float, float, float]] = []   # node, A, start, end
         self.limiters: list[tuple[int, int, _Curve]] = []
         self.charges: list[tuple[int, int, _Curve]] = []
+        self.jfets: list[tuple] = []      # (drain, gate, source, parameters)
+        self.diodes: list[tuple] = []     # (anode, cathode, junction)
         self.ops: list[tuple] = []
         self.op_names: dict[str, int] = {}
         krow = n_nodes
@@ -218,6 +224,15 @@ class _System:
                         self.charges.append((x, y, charge))
             elif isinstance(el, OpAmpX):
                 pass
+            elif isinstance(el, JfetX):
+                d, g, so = idx(el.d), idx(el.g), idx(el.s)
+                stamp2(C, g, so, el.jfet.cgs_f)
+                stamp2(C, g, d, el.jfet.cgd_f)
+                self.jfets.append((d, g, so, jfet_at(el.jfet, net.temp_k)))
+            elif isinstance(el, DiodeX):
+                a, k = idx(el.a), idx(el.k)
+                stamp2(C, a, k, el.cap_f)
+                self.diodes.append((a, k, junctions_at(el.diode, net.temp_k)[0]))
             else:
                 raise TypeError(f"transient: unsupported element {type(el).__name__}")
         for op, mp, ix, iy in op_idx:
@@ -285,6 +300,21 @@ class _System:
                 J[a, b] -= g
                 J[b, a] -= g
 
+        for d, g, so, p in self.jfets:
+            _stamp_jfet(F, J, zl, d, g, so, p)
+        for a, k, jn in self.diodes:
+            vd = zl[a] - zl[k]
+            i = float(jn.current(vd))
+            F[a] += i
+            F[k] -= i
+            if J is not None:
+                gd = (i + jn.is_a) / (jn.n * jn.vt)
+                g = gd / (1.0 + gd * jn.rs_ohm)
+                J[a, a] += g
+                J[k, k] += g
+                J[a, k] -= g
+                J[k, a] -= g
+
     def charge_history(self, a1: float, a2: float, zc: np.ndarray, zp: np.ndarray | None) -> list[float]:
         """Per charged limiter, a1 q(zc) + a2 q(zp): the past steps' part of the BDF
         derivative of its charge (C/s)."""
@@ -332,6 +362,29 @@ class _System:
         if m > _MAX_DV:
             dz = dz * (_MAX_DV / m)
         return dz
+
+
+def _stamp_jfet(F, J, zl, d: int, g: int, so: int, p) -> None:
+    """Channel current drain to source and the gate junctions gate-source and
+    gate-drain of one JFET, with their derivatives."""
+    vds, vgs = zl[d] - zl[so], zl[g] - zl[so]
+    i, gds, gm = (float(x) for x in channel(p, vds, vgs))
+    (igs, igd), (ggs, ggd) = (x.tolist() for x in gate_junction(p, np.array([vgs, vgs - vds])))
+    F[d] += i - igd
+    F[so] -= i + igs
+    F[g] += igs + igd
+    if J is None:
+        return
+    # channel: dI/dVd = gds, dI/dVg = gm, dI/dVs = -(gds + gm)
+    for row, sign in ((d, 1.0), (so, -1.0)):
+        J[row, d] += sign * gds
+        J[row, g] += sign * gm
+        J[row, so] -= sign * (gds + gm)
+    for a, b, gj in ((g, so, ggs), (g, d, ggd)):
+        J[a, a] += gj
+        J[b, b] += gj
+        J[a, b] -= gj
+        J[b, a] -= gj
 
 
 # --- DC operating point ------------------------------------------------------------------

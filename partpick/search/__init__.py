@@ -1,3 +1,4 @@
-"""Standard-value search: the space the plug-ins offer (:mod:`.space`), the CP-SAT
-solver that proves the best choices (:mod:`.solver`, the only importer of ortools), and
-the explanation of a refusal (:mod:`.explain`)."""
+"""Standard-value search: the problem as the search sees it (:mod:`.problem`), every
+configuration's best values chosen on numpy arrays (:mod:`.enumerate`, with its sorted
+tables :mod:`.tables`, exact costs :mod:`.prices` and closed-form yield shares
+:mod:`.estimate`), and what it proposes (:mod:`.candidates`)."""

@@ -22,7 +22,6 @@ amplitude, THD and pull); verification decides.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -30,6 +29,7 @@ from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner
 from partpick.circuits.options import nearest, sigma, values_of
 from partpick.physics.opamp import class_b_loss
+from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.prices import PriceBook
 from partpick.search.problem import REF_T, Problem
@@ -43,37 +43,8 @@ RG_TARGET = 10e3         # ohm: the gain network's level (see DEVELOPERS.md, sea
 RD_GRID = 24             # series resistor values per limiter, log-spaced from the family
 M_RANGE = (0.002, 0.25)  # nepers of gain excess the amplitude side considers
 SIMPSON = (1 / 6, 4 / 6, 1 / 6)   # the temperature is uniform over the range: weights of min, nominal, max
-YIELD_STEP = 0.002       # estimated yields this close are ties for the search's own choices
-
-
-@dataclass(frozen=True, slots=True)
-class Candidate:
-    """One design proposed by the search, with its estimated figures: values (role ->
-    ohm, F), families (role -> family id), parts (role -> part id), stage kind;
-    err (ln of predicted over target frequency), load_v (predicted load peak at the
-    minimum, nominal and maximum temperature, V), osc_v (oscillator peak, V), thd,
-    m (gain excess, nepers), yield_est, cost (currency per board), signature."""
-
-    signature: tuple
-    values: dict = field(hash=False, compare=False)
-    families: dict = field(hash=False, compare=False)
-    parts: dict = field(hash=False, compare=False)
-    stage: str = "none"
-    err: float = 0.0
-    load_v: tuple = ()
-    osc_v: float = 0.0
-    thd: float = 0.0
-    m: float = 0.0
-    yield_est: float = 0.0
-    cost: float = 0.0
-    s_amp: float = 0.0          # d ln(load amplitude) / d m
-    s_thd: float = 0.0          # d THD / d m
-    pull: float = 0.0           # the control's own frequency pull (ln)
-    simulated: bool = False     # yield_est comes from the Monte Carlo model, not the closed form
-
-    def key(self) -> tuple:
-        """The search's own order: estimated yield to YIELD_STEP, then cost."""
-        return (math.floor((1.0 - self.yield_est) / YIELD_STEP), self.cost, abs(self.err))
+HOPELESS_PAIR = 0.05     # a family pair whose best frequency share is this far under the yield is left out
+WINDOW_MARGIN = 0.01     # ln f: beyond the pulls and the tolerance, for the retuning with measured pulls
 
 
 class Searcher:
@@ -96,11 +67,47 @@ class Searcher:
         self.stage_tables = {(k, f.id): memo(("stage", k, f, load_r, problem.shelf),
                                               lambda k=k, f=f: StageTable(k, f, load_r, problem.shelf))
                              for k in kinds if k in STAGE_RATIO for f in problem.r_families}
-        ln_lo = problem.ln_f - 0.08 - problem.tol_f
-        ln_hi = problem.ln_f + 0.08 + problem.tol_f
-        self.pairs = []
+        limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
+        self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id]}
+        # the bins of K with the op-amp's loss that an arm set (within the topology's arm
+        # ratio) and an op-amp reach
+        shifts = np.unique([int(round(op.loss / K_BIN)) for op in problem.ops] or [0])
+        k_lo, k_hi = problem.topology.required_gain_range
+        arm_bins = np.arange(math.floor(math.log(k_lo) / K_BIN), math.ceil(math.log(k_hi) / K_BIN) + 1)
+        self.ke_bins = np.unique(arm_bins[:, None] + shifts[None, :])
+        self._pairs = None
+        self.best_hold = None   # (resistor family, capacitor family, frequency share centred) of the best pair
+
+    @property
+    def pairs(self) -> list:
+        """The arm family pairs that can hold the frequency yield, each with its table of
+        arm sets in the frequency window the search needs (rfa, cfa, table, index,
+        drift, best frequency share): the window spans every pull an op-amp and an
+        amplitude-side row may put on the network, plus the tolerance (built on first
+        use, after the amplitude side)."""
+        if self._pairs is None:
+            self._pairs = self._build_pairs()
+        return self._pairs
+
+    def _build_pairs(self) -> list:
+        problem, price = self.problem, self.price
+        pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families
+                 if (a := self._amp_side(lim, gf)) is not None and a["pull"].size]
+        op_pull = [op.pull for op in problem.ops] or [0.0]
+        row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
+        row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
+        ln_lo = problem.ln_f - max(op_pull) - row_hi - problem.tol_f - WINDOW_MARGIN
+        ln_hi = problem.ln_f - min(op_pull) - row_lo + problem.tol_f + WINDOW_MARGIN
+        pairs = []
         for rfa in problem.r_families:
             for cfa in problem.c_families:
+                drift = problem.freq_drift(rfa, cfa)
+                best = frequency_share(np.array([0.0]), problem.freq_sigma(rfa, cfa), drift, problem.tol_f)[0]
+                if self.best_hold is None or best > self.best_hold[2]:
+                    self.best_hold = (rfa, cfa, best)
+                if best < problem.y_min - HOPELESS_PAIR:
+                    continue  # even centred on the target, the pair's tolerances break the frequency yield
+
                 def make(rfa=rfa, cfa=cfa):
                     table = problem.topology.network_table(rfa, cfa, ln_lo, ln_hi, shelf=problem.shelf)
                     return table, (ArmIndex(table, price, rfa, cfa) if len(table) else None)
@@ -109,15 +116,8 @@ class Searcher:
                                       price.pricer.stock), make)
                 if len(table) == 0:
                     continue
-                drift = problem.freq_drift(rfa, cfa)
-                best = frequency_share(np.array([0.0]), table.sigma_lnf, drift, problem.tol_f)[0]
-                self.pairs.append((rfa, cfa, table, index, drift, best))
-        limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
-        self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id]}
-        # the bins of K with the op-amp's loss that some arm set and op-amp reach
-        arm_bins = np.unique(np.concatenate([pr[3].bins for pr in self.pairs] or [np.zeros(0, int)]))
-        shifts = np.unique([int(round(op.loss / K_BIN)) for op in problem.ops] or [0])
-        self.ke_bins = np.unique(arm_bins[:, None] + shifts[None, :])
+                pairs.append((rfa, cfa, table, index, drift, best))
+        return pairs
 
     def groups(self):
         """(op, limiter, gain family) triples to search."""
@@ -252,8 +252,6 @@ class Searcher:
         target = p.ln_f - op_pull[grp] - amp["pull"][arow]
         found = []
         for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
-            if best_f < p.y_min - 0.05:
-                continue  # the family pair's tolerance alone breaks the frequency yield
             res = max(table.sigma_lnf, 2e-4)
             arm = index.cheapest(kbin, target - res, target + res)
             miss = arm < 0
@@ -323,7 +321,11 @@ class Searcher:
         idx = np.flatnonzero(ok)
         if idx.size == 0:
             return None
-        config = g_row[idx] * len(self.pairs) + pair_i[idx]
+        # a configuration is what a buyer tells designs apart by: the stage's resistor
+        # family is a choice inside it, like its values
+        same = {}
+        cfg_of = np.array([same.setdefault((g[0].id, g[1]), len(same)) for g in groups])
+        config = cfg_of[g_row[idx]] * len(self.pairs) + pair_i[idx]
         tier = np.floor((1.0 - y[idx]) / YIELD_STEP)
         order = idx[np.lexsort((np.abs(err[idx]), arm_cost[idx], tier, config))]
 
@@ -348,7 +350,7 @@ class Searcher:
             order = order[self.price.fits(*slots(order), lim.id, p.shelf, p.spec.builds)]
             if order.size == 0:
                 return None
-        cfg = g_row[order] * len(self.pairs) + pair_i[order]
+        cfg = cfg_of[g_row[order]] * len(self.pairs) + pair_i[order]
         i = order[np.r_[True, cfg[1:] != cfg[:-1]]]      # the best row of each configuration
         cost = self.price.row_costs(*slots(i), lim.id)
         return Batch(self, lim, gf, groups, g_row[i], pair_i[i], vals[i], r_fb[i], ird[i], ra[i], rb[i], err[i],
@@ -382,7 +384,7 @@ class Searcher:
         model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
                       c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1], 1e-12),
                       (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
-                      p.control.amplitude_spread_of(self._limiter(c), temps[1]), second)
+                      p.control.amplitude_spread_of(self._limiter(c), temps[1]), second=second)
         y = monte_carlo(model, p.spec, samples=samples, seed=1).yield_frac
         return replace(c, yield_est=y, simulated=True)
 
@@ -463,64 +465,6 @@ class Searcher:
             extra = np.select([kind == "none", kind == "attenuator", kind == "buffered-attenuator"],
                               [np.full(y.shape, self.y_load), 1 / (ra + shunt), 1 / (ra + rb)], 0.0)
         return y + extra
-
-
-@dataclass(frozen=True, eq=False)
-class Batch:
-    """The best row of every configuration of one limiter and gain family, as arrays
-    (see Candidate for the figures); ``candidate(i)`` makes row i a Candidate."""
-
-    searcher: Searcher
-    lim: object
-    gf: object
-    groups: list
-    group: np.ndarray
-    pair: np.ndarray
-    vals: np.ndarray
-    r_fb: np.ndarray
-    ird: np.ndarray
-    ra: np.ndarray
-    rb: np.ndarray
-    err: np.ndarray
-    load: np.ndarray
-    osc: np.ndarray
-    thd: np.ndarray
-    m: np.ndarray
-    y: np.ndarray
-    s_amp: np.ndarray
-    s_thd: np.ndarray
-    pull: np.ndarray
-    cost: np.ndarray
-
-    def __len__(self) -> int:
-        return self.y.size
-
-    def keys(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """The search's order (Candidate.key) of every row: yield tier, cost, |error|."""
-        return np.floor((1.0 - self.y) / YIELD_STEP), self.cost, np.abs(self.err)
-
-    def candidate(self, i: int) -> Candidate:
-        s = self.searcher
-        topo = s.problem.topology
-        op_info, kind, sf = self.groups[self.group[i]]
-        rfa, cfa, table = s.pairs[self.pair[i]][:3]
-        values = dict(zip(table.roles, (float(v) for v in self.vals[i])))
-        families = dict(zip(table.roles, table.families))
-        for role, v in topo.gain_values(s.amp_rg(self.lim, self.gf), float(self.r_fb[i])).items():
-            values[role], families[role] = float(v), self.gf.id
-        r_ser = float(s.rd_choices(self.lim, self.gf)[self.ird[i]])
-        if r_ser > 0:
-            role = s.problem.control.series_role
-            values[role], families[role] = r_ser, self.gf.id
-        if kind in STAGE_RATIO:
-            for role, v in zip(periphery.STAGE_ROLES, (self.ra[i], self.rb[i])):
-                values[role], families[role] = float(v), sf.id
-        parts = {"opamp": op_info.id, "limiter": self.lim.id}
-        signature = (op_info.id, self.lim.id, rfa.id, cfa.id, self.gf.id, kind, sf.id if kind in STAGE_RATIO else "")
-        return Candidate(signature, values, families, parts, kind, float(self.err[i]),
-                         tuple(float(x) for x in self.load[:, i]), float(self.osc[i]), float(self.thd[i]),
-                         float(self.m[i]), float(self.y[i]), float(self.cost[i]), float(self.s_amp[i]),
-                         float(self.s_thd[i]), float(self.pull[i]))
 
 
 def _m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:

@@ -16,7 +16,12 @@ from statistics import NormalDist
 
 from partpick.catalog import Catalog, OpAmp
 from partpick.circuits import CONTROLS, TOPOLOGIES, Conditions, linear
-from partpick.circuits.options import arm_capacitor_families, cap_tempco, resistor_families, sigma
+from partpick.circuits.options import (
+    arm_capacitor_families,
+    cap_tempco,
+    resistor_families,
+    sigma,
+)
 from partpick.physics.opamp import swing_limits
 from partpick.spec import Spec
 

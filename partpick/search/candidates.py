@@ -1,0 +1,105 @@
+"""What the search proposes: a Candidate (one design with its estimated figures) and
+a Batch (the best row of every configuration of one limiter and gain family, as
+arrays, made into Candidates one at a time as they come up)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from partpick.circuits import periphery
+from partpick.search.tables import STAGE_RATIO
+
+__all__ = ["Candidate", "Batch", "YIELD_STEP"]
+
+YIELD_STEP = 0.002       # estimated yields this close are ties for the search's own choices
+
+
+@dataclass(frozen=True, slots=True)
+class Candidate:
+    """One design proposed by the search, with its estimated figures: values (role ->
+    ohm, F), families (role -> family id), parts (role -> part id), stage kind;
+    err (ln of predicted over target frequency), load_v (predicted load peak at the
+    minimum, nominal and maximum temperature, V), osc_v (oscillator peak, V), thd,
+    m (gain excess, nepers), yield_est, cost (currency per board), signature."""
+
+    signature: tuple
+    values: dict = field(hash=False, compare=False)
+    families: dict = field(hash=False, compare=False)
+    parts: dict = field(hash=False, compare=False)
+    stage: str = "none"
+    err: float = 0.0
+    load_v: tuple = ()
+    osc_v: float = 0.0
+    thd: float = 0.0
+    m: float = 0.0
+    yield_est: float = 0.0
+    cost: float = 0.0
+    s_amp: float = 0.0          # d ln(load amplitude) / d m
+    s_thd: float = 0.0          # d THD / d m
+    pull: float = 0.0           # the control's own frequency pull (ln)
+    simulated: bool = False     # yield_est comes from the Monte Carlo model, not the closed form
+
+    def key(self) -> tuple:
+        """The search's own order: estimated yield to YIELD_STEP, then cost."""
+        return (math.floor((1.0 - self.yield_est) / YIELD_STEP), self.cost, abs(self.err))
+
+
+@dataclass(frozen=True, eq=False)
+class Batch:
+    """The best row of every configuration of one limiter and gain family, as arrays
+    (see Candidate for the figures); ``candidate(i)`` makes row i a Candidate."""
+
+    searcher: object   # the Searcher whose tables the rows index
+    lim: object
+    gf: object
+    groups: list
+    group: np.ndarray
+    pair: np.ndarray
+    vals: np.ndarray
+    r_fb: np.ndarray
+    ird: np.ndarray
+    ra: np.ndarray
+    rb: np.ndarray
+    err: np.ndarray
+    load: np.ndarray
+    osc: np.ndarray
+    thd: np.ndarray
+    m: np.ndarray
+    y: np.ndarray
+    s_amp: np.ndarray
+    s_thd: np.ndarray
+    pull: np.ndarray
+    cost: np.ndarray
+
+    def __len__(self) -> int:
+        return self.y.size
+
+    def keys(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The search's order (Candidate.key) of every row: yield tier, cost, |error|."""
+        return np.floor((1.0 - self.y) / YIELD_STEP), self.cost, np.abs(self.err)
+
+    def candidate(self, i: int) -> Candidate:
+        s = self.searcher
+        topo = s.problem.topology
+        op_info, kind, sf = self.groups[self.group[i]]
+        rfa, cfa, table = s.pairs[self.pair[i]][:3]
+        values = dict(zip(table.roles, (float(v) for v in self.vals[i])))
+        families = dict(zip(table.roles, table.families))
+        for role, v in topo.gain_values(s.amp_rg(self.lim, self.gf), float(self.r_fb[i])).items():
+            values[role], families[role] = float(v), self.gf.id
+        r_ser = float(s.rd_choices(self.lim, self.gf)[self.ird[i]])
+        if r_ser > 0:
+            role = s.problem.control.series_role
+            values[role], families[role] = r_ser, self.gf.id
+        if kind in STAGE_RATIO:
+            for role, v in zip(periphery.STAGE_ROLES, (self.ra[i], self.rb[i])):
+                values[role], families[role] = float(v), sf.id
+        parts = {"opamp": op_info.id, "limiter": self.lim.id}
+        signature = (op_info.id, self.lim.id, rfa.id, cfa.id, self.gf.id, kind, sf.id if kind in STAGE_RATIO else "")
+        return Candidate(signature, values, families, parts, kind, float(self.err[i]),
+                         tuple(float(x) for x in self.load[:, i]), float(self.osc[i]), float(self.thd[i]),
+                         float(self.m[i]), float(self.y[i]), float(self.cost[i]), float(self.s_amp[i]),
+                         float(self.s_thd[i]), float(self.pull[i]))
