@@ -267,6 +267,10 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             if ROLES[role] != (kind, dim):
                 raise fail(f"mixes roles of different kinds ({roles[0]}, {role}) on one line", "role")
             lines.append(BomLine(ref, role, get("family"), value))
+    if "topology" not in meta_lines:   # the purchasing form: the topology whose own parts it lists
+        roles = {ln.role for ln in lines}
+        meta["topology"] = next((t for t, topo in TOPOLOGIES.items() if {s.role for s in topo.slots} & roles),
+                                meta["topology"])
     supply, stage = _shape_of(lines, meta["topology"], channels)
     meta["supply"] = meta["supply"] if "supply" in meta_lines else supply
     meta["stage"] = meta["stage"] if "stage" in meta_lines else stage

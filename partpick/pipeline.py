@@ -23,14 +23,14 @@ import numpy as np
 from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
-from partpick.circuits import balance, build_loop, check_spec, linear, periphery, slots_for
+from partpick.circuits import balance, build_loop, check_spec, fitting_topologies, linear, periphery, slots_for
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
 from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.refusal import default_notes, explain_refusal, structural_refusal
 from partpick.search.problem import Problem, build_problem
-from partpick.spec import Spec, check_parts
+from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
 from partpick.verify import operating_conditions, verify
 
@@ -78,7 +78,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
     price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
-    offered = getattr(problem.topology, "stages", periphery.STAGE_KINDS)   # a topology may offer fewer
+    offered = problem.topology.stages   # a topology may offer fewer
     kinds = tuple(k for k in kinds if k in offered)
     return Searcher(problem, price, kinds), fixed
 
@@ -93,12 +93,16 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     requirements that bind, what the best allowed design reaches and what would make
     it design, with the ``nearest`` failing designs (:mod:`partpick.refusal`; None:
     a bare refusal, as the runs that work this out use). ``progress(done, total)`` is
-    called as candidates are verified (physics and Monte Carlo).
+    called as candidates are verified (physics and Monte Carlo). ``topology: auto``
+    designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     check_parts(spec, catalog)
     check_spec(spec)
+    if spec.topology == AUTO_TOPOLOGY:
+        return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
+                            progress=progress, nearest=nearest)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
@@ -136,6 +140,33 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
+
+
+def _design_auto(spec: Spec, catalog: Catalog, *, results, rank_by, nearest, **kw) -> Design:
+    """Every topology that fits ``spec`` designed as if the spec had named it, and their
+    candidates ranked together by the spec's keys (each row's BOM names its topology).
+    A topology that finds no design adds a note saying why; when none does, the refusal
+    gives each one's reason."""
+    n = results or spec.results
+    rank_by = rank_by or spec.rank_by
+    designs, notes, why = [], [], []
+    for name in fitting_topologies(spec):
+        try:
+            designs.append(design(replace(spec, topology=name), catalog, results=n, rank_by=rank_by,
+                                  nearest=nearest, **kw))
+        except InfeasibleError as exc:
+            why.append(f"{name}: {exc.message.splitlines()[0]}")
+    if not designs:
+        raise InfeasibleError("no topology designs the spec:\n" + "\n".join(why))
+    for d in designs:
+        notes += [x for x in d.notes if x not in notes]
+    timings: dict[str, float] = {}
+    for d in designs:
+        for key, value in d.timings.items():
+            timings[key] = timings.get(key, 0.0) + value
+    ranked = rank([r for d in designs for r in d.ranked], rank_by)
+    return Design(tuple(ranked[:n]), tuple(notes + [f"no design from the {w}" for w in why]),
+                  sum(d.searched for d in designs), sum(d.verified for d in designs), timings)
 
 
 def _reach(problem: Problem) -> tuple[float, float]:

@@ -173,7 +173,7 @@ def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdi
     second = None
     if nom.starts and nom.outputs:
         name, out = next(iter(nom.outputs.items()))
-        target = getattr(c.topology, "output_phase_rad", {}).get(name, 0.0)
+        target = c.topology.output_phase_rad.get(name, 0.0)
         s_thd2 = 0.0
         if hb is not None and hb_up is not None and name in hb_up.outputs:
             thd2_up = output_figures(hb_up.outputs[name], hb_up.load_harmonics)[1]
@@ -280,15 +280,18 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
 
 
 def _second_output(model: Model, spec: Spec, b: dict, amp: np.ndarray, dlnm: np.ndarray):
-    """Per build, whether the second output meets the amplitude, the THD and (when the
-    spec asks) the quadrature requirements: its amplitude ratio moves with the
-    topology's ideal ratio over the drawn values (output_ratio: the parts' tolerances
-    and tempcos), its phase error (the op-amps' excess lag) inversely with the drawn
-    GBW, its THD with the gain excess."""
+    """Per build, whether the second output meets the amplitude and THD requirements
+    (when the spec gives it a load, load_cosine: else it is not used) and the quadrature
+    requirements (when the spec asks): its amplitude ratio moves with the topology's
+    ideal ratio over the drawn values (output_ratio: the parts' tolerances and tempcos),
+    its phase error (the op-amps' excess lag) inversely with the drawn GBW, its THD with
+    the gain excess."""
     pk_ratio, f_ratio, phase, thd2, s_thd2, ideal = model.second
     k = model.topology.output_ratio(b["v"]) / ideal
     a2_ok = np.abs(amp * pk_ratio * k / spec.amplitude.peak_v - 1) <= spec.amplitude.tolerance_frac
     thd2_ok = thd2 + s_thd2 * dlnm <= spec.max_thd_frac
+    if spec.load_cosine is None:
+        a2_ok = thd2_ok = np.ones(amp.shape, bool)
     q = spec.quadrature
     if q is None:
         return a2_ok, thd2_ok, np.ones(amp.shape, bool)

@@ -206,4 +206,115 @@ def test_schematic_is_the_netlist(demo_catalog, limiter, rd):
     svg = schematic_svg(bom, demo_catalog)
     for ref in ("R1", "C1", "R2", "C2", "R3", "R4", "R10", "R11", "U1A", "U1B", "U1C", "OUT2"):
         assert f">{ref}<" in svg or f">{ref} " in svg or f">{ref}:" in svg, ref
-    assert "U1A, U1B, U1C: 3 channels in 2 oa-audio-10m package(s)" in svg.replace("\n", " ")
+    assert "U1A, U1B, U1C: 2 oa-audio-10m packages (2 channel(s) each)" in svg.replace("\n", " ")
+
+
+# -- the spec's fields for a second output, and topology: auto ---------------------------------------
+
+QUAD_FIELDS = ("load_cosine: {resistance: 2 kohm, capacitance: 1 nF}\n"
+               "quadrature: {phase_error: 0.5 deg, amplitude_match: 1 %}\n")
+
+
+def test_spec_reads_the_second_output_and_the_quadrature_requirements():
+    """load_cosine is a load as 'load' is; the phase error reads in degrees (SI Brochure,
+    Table 8: 1 deg = pi/180 rad) or radians; an angle without its unit is refused, as a
+    bare fraction is."""
+    from partpick.errors import SpecError
+    from partpick.spec import Spec
+    from tests.conftest import VALID_SPEC
+
+    text = VALID_SPEC.replace("topology: wien-bridge", "topology: quadrature") + QUAD_FIELDS
+    spec = Spec.from_text(text, "q.yaml")
+    assert spec.topology == "quadrature"
+    assert (spec.load_cosine.resistance_ohm, spec.load_cosine.capacitance_f) == (2e3, pytest.approx(1e-9))
+    assert spec.quadrature.phase_error_rad == pytest.approx(0.5 * math.pi / 180, rel=1e-12)
+    assert spec.quadrature.amplitude_match_frac == pytest.approx(0.01)
+    assert Spec.from_text(text.replace("0.5 deg", "8.7 mrad"), "q.yaml").quadrature.phase_error_rad == \
+        pytest.approx(8.7e-3)
+    with pytest.raises(SpecError) as exc:
+        Spec.from_text(text.replace("phase_error: 0.5 deg", "phase_error: 0.5"), "q.yaml")
+    assert "'quadrature.phase_error' needs its unit" in str(exc.value)
+    assert Spec.from_text(VALID_SPEC, "w.yaml").load_cosine is None
+
+
+@pytest.mark.parametrize("change,field,words", [
+    # a second output asked of the one-output Wien bridge
+    (("", QUAD_FIELDS), "load_cosine", "has one"),
+    # the quadrature oscillator: both outputs straight to their loads, dual supply, no 'ground' port
+    (("topology: wien-bridge", "topology: quadrature\noutput_stage: follower"), "output_stage", "not offered"),
+    (("kind: dual, min: 10.8 V, max: 13.2 V", "kind: single, min: 10.8 V, max: 13.2 V"), "supply", "not offered"),
+    (("topology: wien-bridge", "topology: quadrature\namplitude_control: jfet-agc"), "amplitude_control",
+     "'ground' port"),
+])
+def test_a_spec_asking_what_its_topology_lacks_is_refused_on_one_line(demo_catalog, change, field, words):
+    from partpick.errors import SpecError
+    from partpick.pipeline import design
+    from partpick.spec import Spec
+    from tests.conftest import VALID_SPEC
+
+    old, new = change
+    text = VALID_SPEC.replace("topology: wien-bridge", "topology: quadrature") if field == "supply" else VALID_SPEC
+    text = (text + new) if not old else text.replace(old, new)
+    with pytest.raises(SpecError) as exc:
+        design(Spec.from_text(text, "x.yaml"), demo_catalog)
+    assert exc.value.field == field and words in str(exc.value)
+    assert "\n" not in str(exc.value)
+
+
+def test_auto_with_a_second_output_means_the_quadrature_oscillator():
+    from partpick.circuits import fitting_topologies
+    from partpick.spec import Spec
+    from tests.conftest import VALID_SPEC
+
+    auto = VALID_SPEC.replace("topology: wien-bridge", "topology: auto")
+    assert fitting_topologies(Spec.from_text(auto, "a.yaml")) == ("wien-bridge", "quadrature")
+    assert fitting_topologies(Spec.from_text(auto + QUAD_FIELDS, "a.yaml")) == ("quadrature",)
+    single = auto.replace("kind: dual", "kind: single")
+    assert fitting_topologies(Spec.from_text(single, "a.yaml")) == ("wien-bridge",)
+
+
+@pytest.mark.slow
+def test_auto_ranks_both_topologies_together(demo_catalog):
+    """topology: auto on the audio test-tone spec: each topology designed as if the spec
+    named it, the union ranked by the spec's keys (rank.rank), the table naming each
+    row's topology."""
+    import dataclasses
+
+    from partpick.export.summary import design_output
+    from partpick.pipeline import design
+    from partpick.rank import rank
+    from partpick.spec import Spec
+    from tests.conftest import SPECS
+
+    spec = dataclasses.replace(Spec.from_yaml(SPECS / "audio-tone-1k.yaml"), topology="auto")
+    d = design(spec, demo_catalog, samples=2000)
+    each = [design(dataclasses.replace(spec, topology=t), demo_catalog, samples=2000).ranked
+            for t in ("wien-bridge", "quadrature")]
+    assert {r.bom.topology for r in d.ranked} == {"wien-bridge", "quadrature"}
+    want = rank([r for rows in each for r in rows], spec.rank_by)[:spec.results]
+    assert [r.bom for r in d.ranked] == [r.bom for r in want]
+    text = design_output(d, spec, "a.yaml", demo_catalog, "text")
+    header = next(line for line in text.splitlines() if line.startswith("#  verdict"))
+    assert header.split()[-1] == "topology"
+    for i, r in enumerate(d.ranked, 1):
+        row = next(line for line in text.splitlines() if line.startswith(f"{i}  "))
+        assert row.split()[-1] == r.bom.topology
+
+
+def test_resolver_exciter_checks_both_outputs(demo_catalog):
+    """The demo resolver exciter's #1 design: both loads within the amplitude and THD
+    limits, the phase and amplitude match within the spec's quadrature requirements,
+    each checked at every operating point; the Monte Carlo counts the quadrature share."""
+    from partpick.pipeline import design
+    from partpick.spec import Spec
+    from tests.conftest import SPECS
+
+    spec = Spec.from_yaml(SPECS / "resolver-exciter.yaml")
+    top = design(spec, demo_catalog, results=1, samples=2000).ranked[0]
+    checks = {c.name: c for c in top.verdict.checks}
+    for name in ("amplitude at cosine load (nominal)", "amplitude at cosine load over supply and temperature",
+                 "THD at cosine load", "phase error at cosine load", "amplitude match at cosine load"):
+        assert checks[name].passed, checks[name]
+    assert checks["phase error at cosine load"].high == pytest.approx(math.radians(0.5))
+    assert top.verdict.passed and "quadrature" in top.mc.share
+    assert top.bom.topology == "quadrature"

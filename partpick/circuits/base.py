@@ -176,7 +176,12 @@ class Topology(Protocol):
     network_name (words for messages), slots (its own passives), network_roles (the
     frequency-setting slots), channels (op-amp channels it uses), ports (control ports
     it offers: 'feedback' = a branch across the feedback resistor, whose conductance
-    lowers the gain).
+    lowers the gain), stages and supplies (the output stages and supply kinds it can be
+    built with), outputs (the probe names of further outputs beyond the first, each
+    driving a load of its own: a quadrature oscillator's cosine 'load2'), output_labels
+    and output_phase_rad (each further output's word in messages and its intended phase
+    lead over the first, rad), input_note (how its op-amp inputs swing, for the
+    common-mode check's note).
 
     Search hooks (:mod:`partpick.search.enumerate`): ``network_table`` (every
     frequency-setting network of a family pair in a frequency window, as a
@@ -198,6 +203,12 @@ class Topology(Protocol):
     network_roles: tuple[str, ...]
     channels: int
     ports: tuple[str, ...]
+    stages: tuple[str, ...]
+    supplies: tuple[str, ...]
+    outputs: tuple[str, ...]
+    output_labels: dict
+    output_phase_rad: dict
+    input_note: str
 
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:
         """Textbook frequency over arrays of builds (role -> values), Hz."""

@@ -257,8 +257,8 @@ def reference_flag(supply_kind: str) -> str | None:
 
 def draw(sheet, out, stage: str, supply_kind: str) -> None:
     """Draw on ``sheet`` (:class:`partpick.export.schematic.Sheet`) from the oscillator
-    output ``out``: the output stage (the channel after the topology's, U1B for one, with
-    R6, R7; R6, R7 as an attenuator, or as a divider before that buffer), on a
+    output ``out``: the output stage (U1B with R6, R7; R6, R7 as an attenuator, or as a
+    divider before the buffer U1B), on a
     single supply the coupling capacitor C4 (its + towards the op-amp, which sits at
     mid-rail) and the bias network R8, R9, C3 making VREF, the output connector, and a
     note on the supply pins' decoupling and any spare channel, as in :func:`supplies`
@@ -273,8 +273,7 @@ def draw(sheet, out, stage: str, supply_kind: str) -> None:
             sheet.resistor("stage_rb", src, (src[0], y0 - 2.8), loc="bottom")
             sheet.reference((src[0], y0 - 2.8))
         x = src[0] + 4.0
-        ch = f"U1{chr(ord('A') + sheet.bom.channels - 1)}"     # the channel after the topology's
-        pins = sheet.opamp(ch, f"{ch}\n{sheet.value('opamp')}", (x, y0))
+        pins = sheet.opamp("U1B", f"U1B\n{sheet.value('opamp')}", (x, y0))
         sheet.wire(src, pins["in2"])
         jo = (pins["out"][0] + 0.6, pins["out"][1])
         top = pins["in1"][1] + 1.65

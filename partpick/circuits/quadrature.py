@@ -53,6 +53,7 @@ from partpick.circuits.limiter_surface import REF_RG
 from partpick.circuits.options import NetTable, sigma, values_of
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
+from partpick.physics.polymatrix import poly_add, poly_det, poly_sum2
 from partpick.physics.opamp import open_loop_gain, output_resistance
 from partpick.physics.rational import Rational, const
 
@@ -71,58 +72,6 @@ SLOTS = (
 NETWORK_ROLES = ("ri1", "ci1", "ri2", "ci2", "rn1", "rn2")   # frequency-setting: integrators and inverter
 GAIN_ROLES = ("rq", "rdamp")                                # regeneration and damping
 _ONE = np.array([1.0])
-
-
-def _add(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    if a.size < b.size:
-        a, b = b, a
-    out = a.copy()
-    out[: b.size] += b
-    return out
-
-
-def _padd(*polys) -> np.ndarray:
-    """Sum of polynomials (ascending coefficient arrays; None is zero)."""
-    out = np.zeros(1)
-    for p in polys:
-        if p is not None:
-            out = _add(out, np.asarray(p, float))
-    return out
-
-
-def _det(m: list[list], memo: dict | None = None, tag=None) -> np.ndarray:
-    """Determinant of a square matrix of polynomials (ascending coefficient arrays,
-    None for zero) by expansion along the columns, memoised over row subsets (``memo``
-    may be shared by matrices whose columns after the first agree: ``tag`` names the
-    first column). Alongside each minor the sum of its terms' magnitudes is carried, so
-    that leading coefficients that cancel (exactly zero, but a rounding residue in
-    floating point, which would put a spurious root far out) are dropped: those below
-    1e-11 of what was summed into them."""
-    n = len(m)
-    memo = {} if memo is None else memo
-
-    def minor(col: int, rows: tuple) -> tuple[np.ndarray, np.ndarray]:
-        if col == n:
-            return _ONE, _ONE
-        key = (tag if col == 0 else None, col, rows)
-        if key not in memo:
-            total, size = np.zeros(1), np.zeros(1)
-            for i, r in enumerate(rows):
-                e = m[r][col]
-                if e is None:
-                    continue
-                sub, sub_size = minor(col + 1, rows[:i] + rows[i + 1:])
-                term = np.convolve(e, sub)
-                total = _add(total, -term if i % 2 else term)
-                size = _add(size, np.convolve(np.abs(e), sub_size))
-            memo[key] = (total, size)
-        return memo[key]
-
-    total, size = minor(0, tuple(range(n)))
-    top = total.size
-    while top > 1 and abs(total[top - 1]) <= 1e-11 * size[top - 1]:
-        top -= 1
-    return total[:top]
 
 
 class Quadrature:
@@ -187,15 +136,15 @@ class Quadrature:
         rows = [
             # u, xs, xw, na, nc | V, I
             [np.array([-(g2 + gq)]), np.array([g2]), np.array([gq]), None, None,
-             _padd(c2, np.array([gf])), _ONE],
-            [_padd(d2, m(na_, y2.den), ro * m(da, y2.num), ro * g10 * d2), None, None, None, -ro * g10 * d2,
-             _padd(d2, ro * m(d2, _padd(c2, np.array([gf + g10]))), ro * m(da, y2.num)), ro * d2],
+             poly_add(c2, np.array([gf])), _ONE],
+            [poly_add(d2, m(na_, y2.den), ro * m(da, y2.num), ro * g10 * d2), None, None, None, -ro * g10 * d2,
+             poly_add(d2, ro * m(d2, poly_add(c2, np.array([gf + g10]))), ro * m(da, y2.num)), ro * d2],
             [np.array([g10]), None, np.array([g11]), None, np.array([-(g10 + g11)]), np.array([g10]), None],
-            [-ro * gq * da, None, da * (1 + ro * (g11 + g1 + gq)), -ro * g1 * da, _padd(na_, -ro * g11 * da),
+            [-ro * gq * da, None, da * (1 + ro * (g11 + g1 + gq)), -ro * g1 * da, poly_add(na_, -ro * g11 * da),
              None, None],
-            [None, c1, np.array([g1]), -_padd(np.array([g1]), c1), None, None, None],
-            [-ro * g2 * d1, _padd(d1, ro * m(d1, _padd(c1, np.array([g2]))), ro * m(da, y1.num)), None,
-             m(_padd(na_, -ro * m(c1, da)), y1.den), None, None, None],
+            [None, c1, np.array([g1]), -poly_add(np.array([g1]), c1), None, None, None],
+            [-ro * g2 * d1, poly_add(d1, ro * m(d1, poly_add(c1, np.array([g2]))), ro * m(da, y1.num)), None,
+             m(poly_add(na_, -ro * m(c1, da)), y1.den), None, None, None],
         ]
         return rows, (g1, g2, gq, gf, g10, g11, c1, c2, ro, y1, y2)
 
@@ -217,19 +166,19 @@ class Quadrature:
         rows, (g1, g2, gq, gf, g10, g11, c1, c2, ro, y1, y2) = self._matrix(c, cond, w)
         # the V or I column first: every determinant shares its minors over the rest
         memo: dict = {}
-        alpha = _det([[r[5]] + r[:5] for r in rows], memo, "V")
-        gamma = _det([[r[6]] + r[:5] for r in rows], memo, "I")
+        alpha = poly_det([[r[5]] + r[:5] for r in rows], memo, "V")
+        gamma = poly_det([[r[6]] + r[:5] for r in rows], memo, "I")
         sub = rows[1:]
-        d5 = _det([r[:5] for r in sub])
+        d5 = poly_det([r[:5] for r in sub])
         num = {}
         for k, name in enumerate(("u", "xs", "xw", "na", "nc")):
             # Cramer: the node's column replaced by the V (I) column, moved to the front
             sign = -1.0 if k % 2 else 1.0
             rest = [r[:k] + r[k + 1:5] for r in sub]
             memo_k: dict = {}
-            num[name] = (-sign * _det([[r[5]] + x for r, x in zip(sub, rest)], memo_k, "V"),
-                         -sign * _det([[r[6]] + x for r, x in zip(sub, rest)], memo_k, "I"))
-        num["xc"] = (_padd(num["u"][0], d5), num["u"][1])
+            num[name] = (-sign * poly_det([[r[5]] + x for r, x in zip(sub, rest)], memo_k, "V"),
+                         -sign * poly_det([[r[6]] + x for r, x in zip(sub, rest)], memo_k, "I"))
+        num["xc"] = (poly_add(num["u"][0], d5), num["u"][1])
 
         def lin(*terms, extra=(None, None)):
             """(cv, ci) of sum coefficient x node voltage (+ extra): a polynomial
@@ -243,10 +192,10 @@ class Quadrature:
                     rest_i.append(k * Rational(num[name][1], d5))
                     continue
                 kp = k.num / k.den[0] if isinstance(k, Rational) else k
-                cv, ci = _add(cv, np.convolve(kp, num[name][0])), _add(ci, np.convolve(kp, num[name][1]))
+                cv, ci = poly_sum2(cv, np.convolve(kp, num[name][0])), poly_sum2(ci, np.convolve(kp, num[name][1]))
             ev, ei = extra
-            out_v = Rational(cv if ev is None else _add(cv, np.convolve(ev, d5)), d5)
-            out_i = Rational(ci if ei is None else _add(ci, np.convolve(ei, d5)), d5)
+            out_v = Rational(cv if ev is None else poly_sum2(cv, np.convolve(ev, d5)), d5)
+            out_i = Rational(ci if ei is None else poly_sum2(ci, np.convolve(ei, d5)), d5)
             for r in rest_v:
                 out_v = out_v + r
             for r in rest_i:
@@ -255,9 +204,9 @@ class Quadrature:
 
         one = np.array([1.0])
         xs, xc, xw = lin((one, "xs")), lin((one, "xc")), lin((one, "xw"))
-        i_a = lin((_add(c1, np.array([g2])), "xs"), (y1, "xs"), (-c1, "na"), (np.array([-g2]), "u"))
+        i_a = lin((poly_sum2(c1, np.array([g2])), "xs"), (y1, "xs"), (-c1, "na"), (np.array([-g2]), "u"))
         i_b = lin((np.array([g10]), "xc"), (y2, "xc"), (np.array([-g10]), "nc"),
-                  extra=(_add(c2, np.array([gf])), one))
+                  extra=(poly_sum2(c2, np.array([gf])), one))
         i_c = lin((np.array([g11 + g1 + gq]), "xw"), (np.array([-g11]), "nc"), (np.array([-g1]), "na"),
                   (np.array([-gq]), "u"))
         node = {"xs": xs, "xc": xc, "xw": xw}
@@ -327,6 +276,7 @@ class Quadrature:
     arm_r = (4.7e3, 22e3)
     arm_c_min = 100e-12          # integrator capacitors, F: well above stray capacitance
     tau_match = 0.004            # |ln(R1 C1 / (R2 C2))| at most: the outputs' amplitudes within 0.2 %
+    required_gain_range = (2.0, 2.0)   # the unity inverter every table row has: 1 + R10/R11, V/V
 
     def _integrators(self, rf, cf, ln_lo: float, ln_hi: float, shift: float, width: float, r_bounds=None,
                      shelf=None):

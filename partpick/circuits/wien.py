@@ -20,7 +20,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from partpick.circuits import periphery
-from partpick.circuits.base import Circuit, Conditions, Core, Slot
+from partpick.circuits.base import STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot
 from partpick.circuits.options import (NetTable, sigma, values_of)
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
@@ -51,6 +51,12 @@ class WienBridge:
     channels = 1
     ports = ("feedback", "ground")
     network_roles = ARM_ROLES   # the frequency-setting slots
+    stages = STAGES             # every output stage, on either supply
+    supplies = SUPPLY_KINDS
+    outputs = ()                # one output
+    output_labels: dict = {}
+    output_phase_rad: dict = {}
+    input_note = "inputs at the reference +/- Vpk/3"
 
     # -- equations, vectorised over builds (role -> array of values) ------------------------
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:

@@ -375,7 +375,7 @@ class Searcher:
         ln_load = math.log(max(c.load_v[1], 1e-12))
         dln = tuple(math.log(max(v, 1e-12)) - ln_load for v in c.load_v)
         second = None
-        if getattr(topo, "outputs", ()):
+        if topo.outputs:
             # a second output: its amplitude and match from the topology's ideal ratio and what the
             # op-amp does to the outputs on the topology's reference (their ratio, the phase error)
             factor, phase = topo.reference_outputs(op.opamp, self.f_t)
