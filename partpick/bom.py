@@ -317,11 +317,11 @@ def _complete(bom: Bom, fail) -> Bom:
 
 def check_bom_fits(bom: Bom, spec: Spec) -> None:
     """Refuse a BOM built for another circuit than the spec asks for: another topology
-    or another supply kind (a dual-supply BOM has no bias network for a single supply,
+    (any, for topology: auto) or another supply kind (a dual-supply BOM has no bias network for a single supply,
     and its sine would be centred on 0 V)."""
     for key, have, want, what in (("topology", bom.topology, spec.topology, "topology"),
                                   ("supply", bom.supply_kind, spec.supply.kind, "supply kind")):
-        if have != want:
+        if have != want and not (key == "topology" and want == "auto"):   # auto: any topology
             raise BomError(f"is {have}, but {spec.source} asks for {what} {want}; design or edit the BOM "
                            f"for a {want} {'supply' if key == 'supply' else 'circuit'}",
                            source=bom.source or None, line=bom.where.get(key), field=key)

@@ -371,7 +371,8 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
     cost, parts = bom_cost(bom, catalog, stock)
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
-    thd = max((c.value for c in v.checks if c.name.startswith("THD at ")), default=math.nan)   # the worse load
+    # the worse of the loads the spec requires THD at (an unused output's is shown, not counted)
+    thd = max((c.value for c in v.checks if c.name.startswith("THD at ") and c.high is not None), default=math.nan)
     return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, 0.0, None, mc, wc)
 
 

@@ -268,7 +268,8 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
         ok &= a2_ok & thd2_ok & q_ok
         share["amplitude"] = float((starts & a_ok & a2_ok).mean())
         share["thd"] = float((starts & thd_ok & thd2_ok).mean())
-        share["quadrature"] = float((starts & q_ok).mean())
+        if spec.quadrature is not None:
+            share["quadrature"] = float((starts & q_ok).mean())
     stats = {}
     for name, arr in (("frequency_hz", freq), ("amplitude_v", amp), ("thd", thd), ("margin", m)):
         a_ = arr[starts] if name != "margin" else arr

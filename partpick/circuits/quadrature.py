@@ -53,9 +53,9 @@ from partpick.circuits.limiter_surface import REF_RG
 from partpick.circuits.options import NetTable, sigma, values_of
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
-from partpick.physics.polymatrix import poly_add, poly_det, poly_sum2
 from partpick.physics.opamp import open_loop_gain, output_resistance
-from partpick.physics.rational import Rational, const
+from partpick.physics.polymatrix import poly_add, poly_det
+from partpick.physics.rational import Rational, const, poly_sum2
 
 __all__ = ["Quadrature", "TOPOLOGY", "SLOTS", "NETWORK_ROLES", "GAIN_ROLES", "circuit"]
 

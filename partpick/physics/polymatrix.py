@@ -10,18 +10,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from partpick.physics.rational import poly_sum2
+
 __all__ = ["poly_sum2", "poly_add", "poly_det"]
 
 _ONE = np.array([1.0])
-
-
-def poly_sum2(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """a + b for ascending coefficient arrays of any lengths."""
-    if a.size < b.size:
-        a, b = b, a
-    out = a.copy()
-    out[: b.size] += b
-    return out
 
 
 def poly_add(*polys) -> np.ndarray:
