@@ -95,6 +95,9 @@ def test_harmonic_transfer_against_the_nodal_equations(demo_catalog, values):
     arms = np.array([[values[k] for k in ("ri1", "ci1", "ri2", "ci2", "rn1", "rn2")]])
     assert float(QUAD.thd_transfer(np.array([2.0]), arms)[0]) == pytest.approx(3 / (w0 * values["ci2"] * 10e3),
                                                                                 rel=1e-9)
+    # the sine alone: the cosine's harmonic over n (x1_n / x2_n = a / (j n w0 tau1), checked above)
+    assert float(QUAD.thd_transfer(np.array([2.0]), arms, all_outputs=False)[0]) == pytest.approx(
+        1 / (w0 * values["ci2"] * 10e3), rel=1e-9)
     # at the fundamental the sine lags the cosine by exactly 90 degrees (ideal op-amps);
     # the amplitude ratio is output_ratio
     ph = _phasors(net, 1, w0)
@@ -290,7 +293,7 @@ def test_auto_ranks_both_topologies_together(demo_catalog):
     d = design(spec, demo_catalog, samples=2000)
     each = [design(dataclasses.replace(spec, topology=t), demo_catalog, samples=2000).ranked
             for t in ("wien-bridge", "quadrature")]
-    assert {r.bom.topology for r in d.ranked} == {"wien-bridge", "quadrature"}
+    assert all(rows and rows[0].verdict.passed for rows in each)   # both topologies design the spec
     want = rank([r for rows in each for r in rows], spec.rank_by)[:spec.results]
     assert [r.bom for r in d.ranked] == [r.bom for r in want]
     text = design_output(d, spec, "a.yaml", demo_catalog, "text")

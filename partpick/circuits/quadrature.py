@@ -414,7 +414,7 @@ class Quadrature:
         d g / d m = K / (Rq (K - 1)^2)."""
         return k_eff / (rg * (k_eff - 1) ** 2)
 
-    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None) -> np.ndarray:
+    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None, all_outputs: bool = True) -> np.ndarray:
         """How much more of the branch's harmonic current reaches the worse output (the
         cosine) as distortion than reaches the sine on the reference (R = 10 kohm),
         for the same drive of the branch; third harmonic, ideal op-amps. A current I_n
@@ -433,7 +433,8 @@ class Quadrature:
             arms = np.asarray(arms, float)
             a = arms[:, 5] / arms[:, 4]
             r_eff = np.sqrt(arms[:, 0] * arms[:, 1] * arms[:, 2] / (a * arms[:, 3]))    # 1 / (w0 C2)
-        return 3.0 * r_eff / REF_RG
+        # the sine alone (a spec that loads no cosine): the cosine's THD over n, r_eff / R_ref
+        return (3.0 if all_outputs else 1.0) * r_eff / REF_RG
 
     def osc_per_port_k(self, k_eff: np.ndarray) -> np.ndarray:
         """Sine amplitude per amplitude across the port (the cosine): 1 with matched

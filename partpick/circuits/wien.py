@@ -298,7 +298,7 @@ class WienBridge:
         K = G e^-m, so d g / d m = K / (Rg (K - 1)^2)."""
         return k_eff / (rg * (k_eff - 1) ** 2)
 
-    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None) -> np.ndarray:
+    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None, all_outputs: bool = True) -> np.ndarray:
         """How much more of the control branch's harmonic current reaches the output as
         distortion than on the equal-arm reference (gain 3), for the same drive of the
         branch; third harmonic, ideal op-amp. A current I injected across Rf gives
@@ -307,7 +307,7 @@ class WienBridge:
         1 / (K + j p (n - 1/n)) with p = sqrt(Rs Cp / (Rp Cs)) (the Wien network's
         transfer Zp / (Zs + Zp), written out for unequal arms; checked against sympy in
         tests/test_conformance.py). arms: rows (Rs, Cs, Rp, Cp), or None for arms of
-        equal ratios (Rs/Rp = Cp/Cs = (K - 1)/2)."""
+        equal ratios (Rs/Rp = Cp/Cs = (K - 1)/2); all_outputs: moot (one output)."""
         k = np.asarray(k_eff, float)
         if arms is None:
             p = (k - 1) / 2
