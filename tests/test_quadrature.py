@@ -282,6 +282,7 @@ def test_auto_ranks_both_topologies_together(demo_catalog):
     named it, the union ranked by the spec's keys (rank.rank), the table naming each
     row's topology."""
     import dataclasses
+    import json
 
     from partpick.export.summary import design_output
     from partpick.pipeline import design
@@ -299,9 +300,10 @@ def test_auto_ranks_both_topologies_together(demo_catalog):
     text = design_output(d, spec, "a.yaml", demo_catalog, "text")
     header = next(line for line in text.splitlines() if line.startswith("#  verdict"))
     assert header.split()[-1] == "topology"
+    rows = json.loads(design_output(d, spec, "a.yaml", demo_catalog, "json"))["candidates"]
     for i, r in enumerate(d.ranked, 1):
         row = next(line for line in text.splitlines() if line.startswith(f"{i}  "))
-        assert row.split()[-1] == r.bom.topology
+        assert row.split()[-1] == r.bom.topology == rows[i - 1]["topology"]
 
 
 def test_resolver_exciter_checks_both_outputs(demo_catalog):
