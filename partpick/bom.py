@@ -267,6 +267,10 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
             if ROLES[role] != (kind, dim):
                 raise fail(f"mixes roles of different kinds ({roles[0]}, {role}) on one line", "role")
             lines.append(BomLine(ref, role, get("family"), value))
+    if "topology" not in meta_lines:   # the purchasing form: the topology whose own parts it lists
+        roles = {ln.role for ln in lines}
+        meta["topology"] = next((t for t, topo in TOPOLOGIES.items() if {s.role for s in topo.slots} & roles),
+                                meta["topology"])
     supply, stage = _shape_of(lines, meta["topology"], channels, meta["control"] or None)
     meta["supply"] = meta["supply"] if "supply" in meta_lines else supply
     meta["stage"] = meta["stage"] if "stage" in meta_lines else stage
@@ -314,11 +318,11 @@ def _complete(bom: Bom, fail) -> Bom:
 
 def check_bom_fits(bom: Bom, spec: Spec) -> None:
     """Refuse a BOM built for another circuit than the spec asks for: another topology
-    or another supply kind (a dual-supply BOM has no bias network for a single supply,
+    (any, for topology: auto) or another supply kind (a dual-supply BOM has no bias network for a single supply,
     and its sine would be centred on 0 V)."""
     for key, have, want, what in (("topology", bom.topology, spec.topology, "topology"),
                                   ("supply", bom.supply_kind, spec.supply.kind, "supply kind")):
-        if have != want:
+        if have != want and not (key == "topology" and want == "auto"):   # auto: any topology
             raise BomError(f"is {have}, but {spec.source} asks for {what} {want}; design or edit the BOM "
                            f"for a {want} {'supply' if key == 'supply' else 'circuit'}",
                            source=bom.source or None, line=bom.where.get(key), field=key)

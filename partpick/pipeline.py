@@ -23,7 +23,7 @@ import numpy as np
 from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
-from partpick.circuits import balance, build_loop, check_spec, linear, periphery, slots_for
+from partpick.circuits import balance, build_loop, check_spec, fitting_topologies, linear, periphery, slots_for
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
@@ -31,7 +31,7 @@ from partpick.search.designed import designed_batch
 from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.refusal import default_notes, explain_refusal, structural_refusal
 from partpick.search.problem import Problem, build_problem
-from partpick.spec import Spec, check_parts
+from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
 from partpick.verify import operating_conditions, verify
 
@@ -80,6 +80,8 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
     price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
+    offered = problem.topology.stages   # a topology may offer fewer
+    kinds = tuple(k for k in kinds if k in offered)
     return Searcher(problem, price, kinds), fixed
 
 
@@ -93,12 +95,16 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     requirements that bind, what the best allowed design reaches and what would make
     it design, with the ``nearest`` failing designs (:mod:`partpick.refusal`; None:
     a bare refusal, as the runs that work this out use). ``progress(done, total)`` is
-    called as candidates are verified (physics and Monte Carlo).
+    called as candidates are verified (physics and Monte Carlo). ``topology: auto``
+    designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
     check_parts(spec, catalog)
     check_spec(spec)
+    if spec.topology == AUTO_TOPOLOGY:
+        return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
+                            progress=progress, nearest=nearest)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
@@ -157,6 +163,33 @@ def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Sea
     if problem.designed and not (problem.fallback and bare):
         return [surface, hooked]
     return [surface]   # (the runs that explain a refusal leave a fallback out: its designs take seconds each)
+
+
+def _design_auto(spec: Spec, catalog: Catalog, *, results, rank_by, nearest, **kw) -> Design:
+    """Every topology that fits ``spec`` designed as if the spec had named it, and their
+    candidates ranked together by the spec's keys (each row's BOM names its topology).
+    A topology that finds no design adds a note saying why; when none does, the refusal
+    gives each one's reason."""
+    n = results or spec.results
+    rank_by = rank_by or spec.rank_by
+    designs, notes, why = [], [], []
+    for name in fitting_topologies(spec):
+        try:
+            designs.append(design(replace(spec, topology=name), catalog, results=n, rank_by=rank_by,
+                                  nearest=nearest, **kw))
+        except InfeasibleError as exc:
+            why.append(f"{name}: {exc.message.splitlines()[0]}")
+    if not designs:
+        raise InfeasibleError("no topology designs the spec:\n" + "\n".join(why))
+    for d in designs:
+        notes += [x for x in d.notes if x not in notes]
+    timings: dict[str, float] = {}
+    for d in designs:
+        for key, value in d.timings.items():
+            timings[key] = timings.get(key, 0.0) + value
+    ranked = rank([r for d in designs for r in d.ranked], rank_by)
+    return Design(tuple(ranked[:n]), tuple(notes + [f"no design from the {w}" for w in why]),
+                  sum(d.searched for d in designs), sum(d.verified for d in designs), timings)
 
 
 def _reach(problem: Problem) -> tuple[float, float]:
@@ -315,14 +348,21 @@ def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed
 def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searcher: Searcher, fixed) -> Candidate:
     """The candidate with what exact physics at the nominal point measured put back:
     the frequency network re-chosen for the measured pull (the cheapest of the same
-    required-gain bin landing within resolution), the stage ratio re-chosen for the
-    measured amplitude."""
+    required-gain bin landing within resolution; with a second output, the topology's
+    retune_outputs for the pull and the outputs' amplitude ratio), the stage ratio
+    re-chosen for the measured amplitude."""
     circuit, hb = _nominal(c, spec, catalog, problem, fixed)
     if hb is None or hb.regime != "limiter":
         return c
     values = dict(c.values)
     pull = math.log(hb.freq_hz / circuit.f0_hz)
     net = searcher.retune_network(c, pull)
+    retune_outputs = getattr(problem.topology, "retune_outputs", None)
+    if retune_outputs is not None and hb.outputs:
+        # a second output: the network re-chosen for its measured amplitude ratio as well
+        second = next(iter(hb.outputs.values()))
+        net = retune_outputs(c.values, c.families, catalog, problem.ln_f, pull,
+                             abs(second[0] / hb.load_harmonics[0]), problem.shelf) or net
     if net is not None:
         values.update(net)
     if c.stage in STAGE_RATIO:
@@ -354,7 +394,8 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
     cost, parts = bom_cost(bom, catalog, stock)
     freq_err = nom.freq_hz / spec.frequency.target_hz - 1 if nom.starts else math.nan
     amp_err = nom.load_peak_v / spec.amplitude.peak_v - 1 if nom.starts else math.nan
-    thd = max((c.value for c in v.checks if c.name == "THD at load"), default=math.nan)
+    # the worse of the loads the spec requires THD at (an unused output's is shown, not counted)
+    thd = max((c.value for c in v.checks if c.name.startswith("THD at ") and c.high is not None), default=math.nan)
     return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, 0.0, None, mc, wc)
 
 

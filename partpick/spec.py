@@ -21,10 +21,11 @@ __all__ = [
     "DEFAULT_TOPOLOGY", "SUPPLY_KINDS", "RANK_KEYS", "OUTPUT_STAGES", "STOCK_MODES", "AMPLITUDE_CONTROLS",
     "MIN_THD",
     "FrequencyReq", "AmplitudeReq", "SupplyReq", "LoadReq", "TemperatureReq", "PartsChoice",
-    "StockRef", "Spec", "check_parts",
+    "QuadratureReq", "StockRef", "Spec", "check_parts", "AUTO_TOPOLOGY",
 ]
 
 DEFAULT_TOPOLOGY = "wien-bridge"   # the name only: the circuit registry validates it (circuits.check_spec)
+AUTO_TOPOLOGY = "auto"             # every topology that can meet the spec, ranked together
 SUPPLY_KINDS = ("dual", "single")
 RANK_KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")
 OUTPUT_STAGES = ("auto", "none", "follower", "gain", "attenuator", "buffered-attenuator")
@@ -52,9 +53,10 @@ TEMPERATURE_K = (173.15, 473.15)     # -100 degC .. 200 degC
 MIN_FRACTION = 1e-6                  # 1 ppm: the smallest tolerance, THD or yield read
 SETTLING_S = (1e-6, 1e4)             # settling limits: a microsecond to a few hours
 
-_TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "temperature",
-        "distortion", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage", "catalogs",
-        "derating", "amplitude_control", "settling")
+_TOP = ("name", "description", "topology", "frequency", "amplitude", "supply", "load", "load_cosine", "temperature",
+        "distortion", "quadrature", "yield", "parts", "stock", "rank_by", "results", "builds", "output_stage",
+        "catalogs", "derating", "amplitude_control", "settling")
+PHASE_RAD = (1e-6, 0.5)               # a quadrature phase tolerance: 0.2 arc-second .. 28.6 deg
 
 
 @dataclass(frozen=True, slots=True)
@@ -118,6 +120,16 @@ class LoadReq:
 
 
 @dataclass(frozen=True, slots=True)
+class QuadratureReq:
+    """Two outputs 90 degrees apart (a quadrature oscillator's sine and cosine): the
+    phase difference within 90 deg +/- phase_error_rad (rad) and the amplitude of the
+    second output's fundamental within +/- amplitude_match_frac of the first's."""
+
+    phase_error_rad: float
+    amplitude_match_frac: float
+
+
+@dataclass(frozen=True, slots=True)
 class TemperatureReq:
     """Ambient temperature range min_k..max_k and the nominal point nominal_k (K)."""
 
@@ -155,12 +167,15 @@ class StockRef:
 class Spec:
     """One requirement for one oscillator. Build with :meth:`from_yaml`.
 
-    max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9);
-    yield_min_frac: share of builds that must meet every requirement (fraction);
+    max_thd_frac: total harmonic distortion limit (fraction, harmonics 2..9, at every
+    load); yield_min_frac: share of builds that must meet every requirement (fraction);
     builds: number of boards built from one BOM (for stock quantities);
     amplitude_control: 'auto' (the search chooses), 'diode' or 'jfet-agc';
     settling_max_s: the longest time from power-on until the amplitude stays within its
-    tolerance (s), or None when the spec sets no limit.
+    tolerance (s), or None when the spec sets no limit; load_cosine: the load of a
+    second output (a quadrature oscillator's cosine; None: none given), which must meet
+    the amplitude and THD requirements too; quadrature: the phase and amplitude match
+    of the two outputs (None: reported, not required).
     """
 
     name: str
@@ -183,6 +198,8 @@ class Spec:
     derating: Derating = Derating()
     amplitude_control: str = "auto"
     settling_max_s: float | None = None
+    load_cosine: LoadReq | None = None
+    quadrature: QuadratureReq | None = None
     source: str = field(default="<spec>", compare=False)
     where: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
@@ -217,12 +234,22 @@ class Spec:
             ("supply.max", s.max_v, "V" + (" per rail" if s.kind == "dual" else "")),
             ("load.resistance", ld.resistance_ohm, "ohm"),
             ("load.capacitance", ld.capacitance_f, "F"),
+        ]
+        if self.load_cosine is not None:
+            rows += [("load_cosine.resistance", self.load_cosine.resistance_ohm, "ohm"),
+                     ("load_cosine.capacitance", self.load_cosine.capacitance_f, "F")]
+        rows += [
             ("temperature.min", t.min_k, "K"),
             ("temperature.max", t.max_k, "K"),
             ("temperature.nominal", t.nominal_k, "K"),
             ("distortion.max_thd", self.max_thd_frac, "1"),
             ("amplitude_control", self.amplitude_control, ""),
             ("settling.max", self.settling_max_s if self.settling_max_s is not None else "none", "s"),
+        ]
+        if self.quadrature is not None:
+            rows += [("quadrature.phase_error", self.quadrature.phase_error_rad, "rad"),
+                     ("quadrature.amplitude_match", self.quadrature.amplitude_match_frac, "1")]
+        rows += [
             ("yield.min", self.yield_min_frac, "1"),
         ]
         for kind in KINDS:
@@ -259,6 +286,15 @@ def _fraction(fields: Fields, key: str, *, maximum: float, default: float | None
     return value
 
 
+def _load(lo: Fields) -> LoadReq:
+    """A load: resistance (or 'open') in parallel with an optional capacitance."""
+    if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
+        r_load = math.inf
+    else:
+        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
+    return LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
+
+
 def _relative_paths(root: Fields, key: str, base: Path) -> tuple[Path, ...]:
     names = root.names(key, all_word="\0")
     if names is None:
@@ -292,11 +328,9 @@ def _read(root: Fields, source: str) -> Spec:
     supply = SupplyReq(kind, smin, smax)
 
     lo = root.sub("load", ("resistance", "capacitance"))
-    if lo.has("resistance") and lo.text("resistance") in _OPEN_WORDS:
-        r_load = math.inf
-    else:
-        r_load = lo.quantity("resistance", "resistance", positive=True, bounds=LOAD_OHM)
-    load = LoadReq(r_load, lo.quantity("capacitance", "capacitance", nonnegative=True, default=0.0, bounds=LOAD_F))
+    load = _load(lo)
+    lc = root.sub("load_cosine", ("resistance", "capacitance"), required=False)
+    load_cosine = _load(lc) if lc is not None else None
 
     te = root.sub("temperature", ("min", "max", "nominal"), required=False)
     if te is None:
@@ -320,6 +354,12 @@ def _read(root: Fields, source: str) -> Spec:
 
     se = root.sub("settling", ("max",), required=False)
     settling = se.quantity("max", "time", positive=True, bounds=SETTLING_S) if se is not None else None
+
+    qu = root.sub("quadrature", ("phase_error", "amplitude_match"), required=False)
+    quadrature = None
+    if qu is not None:
+        quadrature = QuadratureReq(qu.quantity("phase_error", "angle", positive=True, bounds=PHASE_RAD),
+                                   _fraction(qu, "amplitude_match", maximum=0.5))
 
     yi = root.sub("yield", ("min",), required=False)
     yield_min = _fraction(yi, "min", maximum=1.0, inclusive=True) if yi is not None else 0.99
@@ -378,11 +418,13 @@ def _read(root: Fields, source: str) -> Spec:
         derating=read_derating(root, "derating", base),
         amplitude_control=root.text("amplitude_control", choices=AMPLITUDE_CONTROLS, default="auto"),
         settling_max_s=settling,
+        load_cosine=load_cosine,
+        quadrature=quadrature,
         source=source,
         where=where,
     )
     _record(where, root, *_TOP)
-    for sub in (fr, am, su, lo, te, di, yi, se):
+    for sub in (fr, am, su, lo, lc, te, di, qu, yi, se):
         if sub is not None:
             _record(where, sub, *sub.allowed)
     return spec

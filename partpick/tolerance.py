@@ -41,6 +41,7 @@ import numpy as np
 from partpick.bom import Bom
 from partpick.catalog import Catalog
 from partpick.circuits import Circuit, all_slots, balance, linear, log_sensitivities, margin_fn, rest_conductance
+from partpick.physics.harmonic import output_figures
 from partpick.spec import Spec
 from partpick.verify import Verdict, make_check
 
@@ -81,6 +82,11 @@ class Model:
     spread: object = None   # the control's own build-by-build spread model, or None
     port: str = "feedback"  # the control's port ...
     g_rest: float = 0.0     # ... and the conductance it adds there at rest (S)
+    # a second output (a quadrature oscillator's cosine) at nominal: (its load peak over
+    # the first load's, its fundamental over the first's, its phase error (rad), its
+    # THD and d THD / d ln(1 + m), the topology's ideal amplitude ratio output_ratio at
+    # the nominal values); None without one
+    second: tuple | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -164,13 +170,23 @@ def model_for(c: Circuit, bom: Bom, catalog: Catalog, spec: Spec, verdict: Verdi
     vf_rel = c.control.amplitude_spread(c, cond.temp_k, cond) if nom.starts else 0.0
     hook = getattr(c.control, "spread_model", None)
     spread = hook(c, cond) if hook is not None and nom.starts else None
+    second = None
+    if nom.starts and nom.outputs:
+        name, out = next(iter(nom.outputs.items()))
+        target = c.topology.output_phase_rad.get(name, 0.0)
+        s_thd2 = 0.0
+        if hb is not None and hb_up is not None and name in hb_up.outputs:
+            thd2_up = output_figures(hb_up.outputs[name], hb_up.load_harmonics)[1]
+            s_thd2 = (thd2_up - out.thd) / d
+        second = (out.peak_v / nom.load_peak_v, out.ratio, math.remainder(out.phase_rad - target, 2 * math.pi),
+                  out.thd, s_thd2, float(c.topology.output_ratio(values)))
     return Model(c.topology, values, tol, normal, tempco, band, lin.margin, m_ideal,
                  math.log(1 + m_ideal) - math.log(max(1 + lin.margin, 1e-9)), pull_h, pull_op, s_pull,
                  math.log(max(nom.load_peak_v, 1e-12)), s_amp, nom.load_thd if nom.starts else math.nan, s_thd,
                  tuple(np.array(temps)[order]), tuple(np.array(damp)[order]), tuple(np.array(dpull)[order]),
                  nom.osc_peak_v / nom.load_peak_v if nom.starts and nom.load_peak_v > 0 else 1.0,
                  (c.opamp.headroom_high_v, c.opamp.headroom_low_v), c.opamp.gbw_spread_frac, vf_rel, spread,
-                 c.control.port, rest_conductance(c))
+                 c.control.port, rest_conductance(c), second)
 
 
 def _draw(rng, n: int, normal: bool) -> np.ndarray:
@@ -247,6 +263,13 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
     share = {"startup": float(starts.mean()), "frequency": float((starts & f_ok).mean()),
              "amplitude": float((starts & a_ok).mean()), "thd": float((starts & thd_ok).mean()),
              "swing": float((starts & swing_ok).mean())}
+    if model.second is not None:
+        a2_ok, thd2_ok, q_ok = _second_output(model, spec, b, amp, dlnm)
+        ok &= a2_ok & thd2_ok & q_ok
+        share["amplitude"] = float((starts & a_ok & a2_ok).mean())
+        share["thd"] = float((starts & thd_ok & thd2_ok).mean())
+        if spec.quadrature is not None:
+            share["quadrature"] = float((starts & q_ok).mean())
     stats = {}
     for name, arr in (("frequency_hz", freq), ("amplitude_v", amp), ("thd", thd), ("margin", m)):
         a_ = arr[starts] if name != "margin" else arr
@@ -255,6 +278,26 @@ def monte_carlo(model: Model, spec: Spec, *, samples: int = 20_000, seed: int = 
                            "q001": float(np.quantile(a_, 0.001)), "q999": float(np.quantile(a_, 0.999))}
     y = float(ok.mean())
     return YieldResult(n, seed, y, share, stats, samples_needed(y), freq[starts], amp[starts])
+
+
+def _second_output(model: Model, spec: Spec, b: dict, amp: np.ndarray, dlnm: np.ndarray):
+    """Per build, whether the second output meets the amplitude and THD requirements
+    (when the spec gives it a load, load_cosine: else it is not used) and the quadrature
+    requirements (when the spec asks): its amplitude ratio moves with the topology's
+    ideal ratio over the drawn values (output_ratio: the parts' tolerances and tempcos),
+    its phase error (the op-amps' excess lag) inversely with the drawn GBW, its THD with
+    the gain excess."""
+    pk_ratio, f_ratio, phase, thd2, s_thd2, ideal = model.second
+    k = model.topology.output_ratio(b["v"]) / ideal
+    a2_ok = np.abs(amp * pk_ratio * k / spec.amplitude.peak_v - 1) <= spec.amplitude.tolerance_frac
+    thd2_ok = thd2 + s_thd2 * dlnm <= spec.max_thd_frac
+    if spec.load_cosine is None:
+        a2_ok = thd2_ok = np.ones(amp.shape, bool)
+    q = spec.quadrature
+    if q is None:
+        return a2_ok, thd2_ok, np.ones(amp.shape, bool)
+    q_ok = (np.abs(f_ratio * k - 1) <= q.amplitude_match_frac) & (np.abs(phase / b["gbw"]) <= q.phase_error_rad)
+    return a2_ok, thd2_ok, q_ok
 
 
 def _rails(spec: Spec, vs: np.ndarray):
@@ -323,6 +366,8 @@ def with_yield(verdict: Verdict, c: Circuit, bom: Bom, catalog: Catalog, spec: S
                f"worst tolerance corner {wc['margin'] * 100:+.2f} % margin"),
         make_check("yield (Monte Carlo)", "yield.min", y.yield_frac, spec.yield_min_frac, None, "fraction",
                f"{samples} builds, seed {seed}; frequency {y.share['frequency']:.1%}, amplitude "
-               f"{y.share['amplitude']:.1%}, THD {y.share['thd']:.1%}; {y.needed} builds give +/-0.5 %"),
+               f"{y.share['amplitude']:.1%}, THD {y.share['thd']:.1%}"
+               + (f", quadrature {y.share['quadrature']:.1%}" if "quadrature" in y.share else "")
+               + f"; {y.needed} builds give +/-0.5 %"),
     )
     return dataclasses.replace(verdict, checks=checks), y, wc

@@ -9,7 +9,7 @@ API
     ``"ppm/K"``, ``"V/µs"``, ...).
 :func:`parse_quantity` ``(text, dim) -> float``
     ``"4.7 kΩ"``, ``"100n"``, ``"4k7"``, ``"-10 degC"``, ``"200 ppm/K"`` -> SI float in
-    the base unit of ``dim`` (ohm, F, Hz, V, A, W, s, K, 1, 1/K, V/K, V/s, V/V, J, A/V²).
+    the base unit of ``dim`` (ohm, F, Hz, V, A, W, s, K, 1, 1/K, V/K, V/s, V/V, J, A/V², rad).
 :func:`format_quantity` ``(value, dim, digits=None) -> str``
     SI float -> ``"4.7 kΩ"`` (engineering notation, SI prefix, display unit).
 :func:`parse_rkm` / :func:`format_rkm`
@@ -164,6 +164,7 @@ class _Dim:
 _BARE_PREFIXES = {spelling: _Unit(exp10=power) for spelling, power in _PREFIXES if spelling}
 _CELSIUS = _Unit(offset=(27315, -2))  # 273.15 K
 _ELECTRONVOLT = _Unit(factor=_ELECTRONVOLT_J)
+_DEGREE = _Unit(factor=math.pi / 180)   # SI Brochure Table 8: 1 deg = pi/180 rad
 
 # RKM letters (IEC 60062): resistance R (unit), K or k, M, G, T; capacitance p, n,
 # u/µ/μ, m, F (unit). The prefix letters come from the one prefix table.
@@ -213,6 +214,8 @@ _DIMS: dict[str, _Dim] = {
         _Dim("transconductance_parameter", "a transconductance parameter",
              _table(_expand("{}A/V2"), _expand("{}A/V^2"), _expand("{}A/V\u00b2")),
              _Unit(), "A/V\u00b2", _Unit(), True, ("mA/V2", "mA/V\u00b2")),
+        _Dim("angle", "an angle", {"deg": _DEGREE, _DEG: _DEGREE, "rad": _Unit(), "mrad": _Unit(exp10=-3)},
+             _Unit(), "deg", _DEGREE, False, ("deg", "rad")),
     )
 }
 

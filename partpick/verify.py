@@ -20,13 +20,13 @@ import numpy as np
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
                                margin_fn, periphery, rest_conductance)
 from partpick.physics.envelope import START_V
-from partpick.physics.harmonic import BalanceResult
+from partpick.physics.harmonic import BalanceResult, output_figures
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
 from partpick.spec import Spec
 
-__all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin", "clipping_supply",
-           "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
+__all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin",
+           "clipping_supply", "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
            "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
            "CAP_UNCERTAINTY", "settling_of", "cycles_to_settle"]
 
@@ -36,6 +36,19 @@ __all__ = ["OperatingPoint", "Check", "Verdict", "predict", "verify", "worst_cas
 # parameter sets for one class of part differ by about this much (our assumption:
 # common practice, no published source).
 CAP_UNCERTAINTY = 0.5
+
+
+@dataclass(frozen=True, slots=True)
+class OutputPoint:
+    """A further output at its load (a quadrature oscillator's cosine): peak_v (half
+    the peak-to-peak value, V), thd (fraction, harmonics 2..9), ratio (its fundamental's
+    amplitude over the first load's) and phase_rad (by how much its fundamental leads
+    the first load's, rad)."""
+
+    peak_v: float
+    thd: float
+    ratio: float
+    phase_rad: float
 
 
 @dataclass(frozen=True, slots=True)
@@ -50,7 +63,8 @@ class OperatingPoint:
     'slew', 'current' or 'no startup'; freq_per_cap_hz_f: d freq_hz / d C for a
     capacitance C added across the control's element (Hz/F, NaN unless harmonic balance
     solved the point) and cap_eff_f: the capacitance that element presents to the
-    fundamental (F).
+    fundamental (F); outputs: each further output of the topology (probe name ->
+    :class:`OutputPoint`). The op-amp figures are the worst of every channel.
     """
 
     cond: Conditions
@@ -73,6 +87,7 @@ class OperatingPoint:
     freq_per_cap_hz_f: float = math.nan
     cap_eff_f: float = 0.0
     balance: BalanceResult | None = field(default=None, compare=False, repr=False)   # a warm start for neighbours
+    outputs: dict = field(default_factory=dict, compare=False)
 
 
 @dataclass(frozen=True, slots=True)
@@ -141,10 +156,17 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 
 
+def _output_point(peak_v: float, thd: float, rel: complex | None) -> OutputPoint:
+    if rel is None or not np.isfinite(rel):
+        return OutputPoint(peak_v, thd, math.nan, math.nan)
+    return OutputPoint(peak_v, thd, abs(rel), float(np.angle(rel)))
+
+
 def _from_balance(cond, lin, hb: BalanceResult, lo, hi) -> OperatingPoint:
+    outs = {name: _output_point(*output_figures(h, hb.load_harmonics)) for name, h in hb.outputs.items()}
     return OperatingPoint(cond, lin, True, hb.freq_hz, hb.osc_peak_v, hb.load_peak_v, hb.osc_thd, hb.load_thd,
                           hb.x_min_v, hb.x_max_v, lo, hi, hb.slew_v_per_s, hb.iout_peak_a, hb.iout_rms_a,
-                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f, hb)
+                          "harmonic balance", "limiter", hb.freq_per_cap_hz_f, hb.cap_eff_f, hb, outs)
 
 
 def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, kick_v: float = 0.01) -> float:
@@ -160,11 +182,13 @@ POINTS_PER_CYCLE = 200  # transient steps per period
 
 def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     from partpick.physics.transient import simulate
+    from partpick.physics.waveform import relative_fundamental
 
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
-    main = loop.amps[0].name
-    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE, record=("osc", "load", f"iout:{main}"))
+    currents = tuple(f"iout:{a.name}" for a in loop.amps)
+    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
+                   record=("osc", "load", *loop.outputs, *currents))
     osc = res.stats("osc")
     load = res.stats("load")
     if osc is None or load is None:
@@ -173,15 +197,17 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     ref = cond.rails(c.supply_kind)[2]
     n = 20 * POINTS_PER_CYCLE  # the last 20 cycles, as the waveform analysis takes
     t, vo = res.t_s[-n:], res.v["osc"][-n:] - ref
-    io = res.v[f"iout:{main}"][-n:]
+    ios = [res.v[name][-n:] for name in currents]   # every channel's current counts
     slew = float(np.max(np.abs(np.gradient(vo, t))))
-    iout = float(np.max(np.abs(io)))
+    iout, iout_rms = max(float(np.max(np.abs(i))) for i in ios), max(float(np.sqrt(np.mean(i ** 2))) for i in ios)
+    outs = {name: _output_point(st.peak_v, st.thd_frac, relative_fundamental(res.t_s, res.v["load"], res.v[name]))
+            for name in loop.outputs if (st := res.stats(name)) is not None}
     # Within 3 % of the span from a swing limit counts as clipping (the output sits a
     # little inside the internal clamp by the drop across Ro).
     regime = opamp_regime(c.opamp, float(vo.min()), float(vo.max()), slew, (lo, hi), near_v=0.03 * (hi - lo))
     return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
-                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, float(np.sqrt(np.mean(io ** 2))),
-                          "transient", regime)
+                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, iout_rms, "transient", regime,
+                          outputs=outs)
 
 
 def settling_of(c: Circuit, p: OperatingPoint, band_rel: tuple[float, float] | None = None,
@@ -247,14 +273,16 @@ def make_check(name, field_, value, low, high, dim, note="") -> Check:
 def operating_conditions(spec: Spec) -> dict[str, Conditions]:
     """The named operating points verification looks at."""
     s, t, ld = spec.supply, spec.temperature, spec.load
+    l2 = (spec.load_cosine.resistance_ohm, spec.load_cosine.capacitance_f) if spec.load_cosine else (math.inf, 0.0)
+    loads = (ld.resistance_ohm, ld.capacitance_f, *l2)
     mid = (s.min_v + s.max_v) / 2
-    pts = {"nominal": Conditions(mid, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)}
+    pts = {"nominal": Conditions(mid, t.nominal_k, *loads)}
     if s.min_v != s.max_v:
-        pts["supply min"] = Conditions(s.min_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
-        pts["supply max"] = Conditions(s.max_v, t.nominal_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["supply min"] = Conditions(s.min_v, t.nominal_k, *loads)
+        pts["supply max"] = Conditions(s.max_v, t.nominal_k, *loads)
     if t.min_k != t.max_k:
-        pts["temp min"] = Conditions(mid, t.min_k, ld.resistance_ohm, ld.capacitance_f)
-        pts["temp max"] = Conditions(mid, t.max_k, ld.resistance_ohm, ld.capacitance_f)
+        pts["temp min"] = Conditions(mid, t.min_k, *loads)
+        pts["temp max"] = Conditions(mid, t.max_k, *loads)
     return pts
 
 
@@ -380,6 +408,8 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     tname = max(thds, key=lambda n: thds[n])
     checks.append(make_check("THD at load", "distortion.max_thd", thds[tname], None, spec.max_thd_frac, "fraction",
                          f"worst at {tname}"))
+    for name in nom.outputs:
+        checks += _output_checks(c, spec, pts, name)
     if spec.settling_max_s is not None:
         checks.append(_settling_check(c, nom, spec))
 
@@ -420,7 +450,7 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     vin = c.topology.input_swing_v(c, nom.osc_peak_v)
     cm_head = min(vcc - op.input_cm_high_v - (ref + vin), (ref - vin) - (vee + op.input_cm_low_v))
     checks.append(make_check("input common-mode headroom", "supply.min", cm_head, 0.0, None, "voltage",
-                         "inputs at the reference +/- Vpk/3, at the minimum supply"))
+                         c.topology.input_note + ", at the minimum supply"))
 
     # Dissipation (fundamental only; the harmonics carry little power).
     vo = nom.osc_peak_v
@@ -445,6 +475,45 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     cautions.append("low-voltage signal circuit: for anything mains-connected or safety-related follow local "
                     "codes and licensed practice")
     return Verdict(tuple(checks), nom, pts, tuple(cautions), wc)
+
+
+def _output_checks(c: Circuit, spec: Spec, pts: dict, name: str) -> list[Check]:
+    """A further output's checks: its amplitude and THD at its load against the same
+    requirements as the first load's (when the spec gives it a load), and its phase and amplitude against the first
+    load's (the spec's quadrature requirements; information rows without them), each
+    the worst of the operating points."""
+    word, target = c.topology.output_labels.get(name, name), c.topology.output_phase_rad.get(name, 0.0)
+    a, q = spec.amplitude, spec.quadrature
+    lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)
+    max_thd = spec.max_thd_frac
+    if spec.load_cosine is None:   # an output the spec does not use: its figures shown, not required
+        lo_a = hi_a = max_thd = None
+    outs = {n: p.outputs[name] for n, p in pts.items() if p.starts and name in p.outputs}
+    nom = outs.get("nominal")
+    if nom is None:
+        return []
+
+    def worst(fn, bad):   # (value, where) at the operating point where bad(value) is largest (NaN worst)
+        vals = {n: fn(o) for n, o in outs.items()}
+        n = max(vals, key=lambda k: bad(vals[k]) if math.isfinite(vals[k]) else math.inf)
+        return vals[n], n
+
+    amp, wa = worst(lambda o: o.peak_v, lambda v: abs(v / a.peak_v - 1))
+    thd, wt = worst(lambda o: o.thd, lambda v: v)
+    err, wp = worst(lambda o: math.remainder(o.phase_rad - target, 2 * math.pi), abs)
+    match, wm = worst(lambda o: o.ratio - 1, abs)
+    lim_p = (-q.phase_error_rad, q.phase_error_rad) if q is not None else (None, None)
+    lim_m = (-q.amplitude_match_frac, q.amplitude_match_frac) if q is not None else (None, None)
+    return [make_check(f"amplitude at {word} load (nominal)", "amplitude.target", nom.peak_v, lo_a, hi_a, "voltage",
+                       f"{nom.peak_v * 2:.4g} Vpp, {nom.peak_v / math.sqrt(2):.4g} Vrms"),
+            make_check(f"amplitude at {word} load over supply and temperature", "amplitude.tolerance", amp, lo_a, hi_a,
+                       "voltage", f"worst at {wa}"),
+            make_check(f"THD at {word} load", "distortion.max_thd", thd, None, max_thd, "fraction",
+                       f"worst at {wt}"),
+            make_check(f"phase error at {word} load", "quadrature.phase_error", err, *lim_p, "angle",
+                       f"{math.degrees(target + err):.4g} deg from the first load, worst at {wp}"),
+            make_check(f"amplitude match at {word} load", "quadrature.amplitude_match", match, *lim_m, "fraction",
+                       f"fundamental over the first load's, minus 1; worst at {wm}")]
 
 
 def _settling_check(c: Circuit, nom: OperatingPoint, spec: Spec) -> Check:
@@ -480,7 +549,8 @@ def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[f
     an amplitude control's integrator channel counts as a channel in use, its output
     stage's loss left out (it drives a JFET's gate: microamps)."""
     op, span = c.opamp, spec.supply.span_max_v
-    losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)]
+    # each of the topology's channels at the worst channel's output current
+    losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)] * c.topology.channels
     if periphery.has_buffer(c):
         i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
         losses.append(class_b_loss(span / 2, nom.load_peak_v, i_buf))
@@ -488,7 +558,10 @@ def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[f
     used = periphery.channels_used(c)
     if op.channels >= used:
         return quiescent + sum(losses), f"{used} of {op.channels} channel(s) in one package"
-    return quiescent + max(losses), "one channel per package, the hotter one"
+    if op.channels == 1:
+        return quiescent + max(losses), "one channel per package, the hotter one"
+    hottest = sorted(losses, reverse=True)[:op.channels]
+    return quiescent + sum(hottest), f"{op.channels} of {used} channels in the hotter package"
 
 
 @dataclass(frozen=True, slots=True)

@@ -268,7 +268,8 @@ class Fields:
     ) -> float | None:
         """A quantity in SI (see :func:`partpick.units.parse_quantity`), within ``bounds``
         (SI, inclusive; for magnitudes that keep the physics in a sane range) when
-        given. A fraction must carry its unit: a bare ``0.3`` could mean 0.3 % or 30 %."""
+        given. A fraction must carry its unit: a bare ``0.3`` could mean 0.3 % or 30 %; so
+        must an angle (degrees or radians)."""
         if not self.has(key):
             if default is not None or not required:
                 return default
@@ -283,6 +284,9 @@ class Fields:
         if dim == "fraction" and node.tag.endswith((":int", ":float")):
             raise self.error(key, f"needs its unit: write '{node.text.strip()} %' or "
                                   f"'{units.format_quantity(value, 'fraction')}' (got bare {node.text.strip()})")
+        if dim == "angle" and node.tag.endswith((":int", ":float")):
+            raise self.error(key, f"needs its unit: write '{node.text.strip()} deg' or '{node.text.strip()} rad' "
+                                  f"(got bare {node.text.strip()})")
         if positive and not value > 0:
             raise self.error(key, f"must be > 0 {units.unit_symbol(dim)} (got {node.text})")
         if nonnegative and not value >= 0:

@@ -36,18 +36,21 @@ def test_wright_omega_against_scipy():
     assert np.max(np.abs(wright_omega(z) / ref - 1)) < 1e-12
 
 
-def test_shipped_tables_are_fresh(demo_catalog):
+@pytest.mark.parametrize("topology", list(TOPOLOGIES))
+def test_shipped_tables_are_fresh(demo_catalog, topology):
     # one slice recomputed: a change to the physics that the version key missed shows here
     lim = demo_catalog.find("limiters", "led-red")
-    shipped = surface(TOPO, lim, CTL, F_SLICES[2])
-    fresh = compute(TOPO, lim, CTL, F_SLICES[2])
+    topo = TOPOLOGIES[topology]
+    shipped = surface(topo, lim, CTL, F_SLICES[2])
+    fresh = compute(topo, lim, CTL, F_SLICES[2])
     for name in ("vo", "thd", "pull"):
         a, b = getattr(shipped, name), fresh[name]
         assert np.array_equal(np.isnan(a), np.isnan(b)), name
         ok = ~np.isnan(a)
         assert np.allclose(a[ok], b[ok], rtol=1e-9, atol=1e-12), name
     # and every demo limiter's slices ship with the package
-    assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= len(demo_catalog.limiters) * len(F_SLICES)
+    assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= (len(demo_catalog.limiters) * len(F_SLICES)
+                                                                            * len(TOPOLOGIES))
 
 
 def test_cache_keys_follow_the_content_not_the_name(demo_catalog):

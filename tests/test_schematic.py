@@ -35,7 +35,8 @@ BASES = {  # (BOM, spec for the operating point)
     "dual": (SPECS / "boms" / "carrier-50khz-01.yaml", SPECS / "carrier-50khz.yaml"),
     "single": (ROOT / "tests" / "golden" / "test-tone-5v-01.yaml", SPECS / "test-tone-5v.yaml"),
 }
-NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED")
+NOT_PARTS = ("RLOAD", "CLOAD", "RBLEED", "RLOAD2", "CLOAD2")
+CONNECTORS = {"OUT": "load", "OUT2": "load2"}   # drawn connector -> the netlist's probe it stands for
 SUPPLIES = ("VCC", "VEE")
 JFET_BOM = SPECS / "boms" / "clean-tone-1k-jfet.yaml"
 JFET_SPEC = SPECS / "clean-tone-1k.yaml"
@@ -57,7 +58,7 @@ def variant(bom: Bom, stage: str, limiter: str | None, rd: float = 0.0) -> Bom:
 
 
 def expected(bom: Bom, spec: Spec, catalog):
-    """From the netlist: [(drawn refs, netlist nodes, ordered)] and the load node."""
+    """From the netlist: [(drawn refs, netlist nodes, ordered)] and its probes (name -> node)."""
     net = build_netlist(bom.to_circuit(catalog), operating_conditions(spec)["nominal"])
     out = []
     for el in net.elements:
@@ -73,7 +74,7 @@ def expected(bom: Bom, spec: Spec, catalog):
             out.append((el.name, (el.a, el.k), True))
         elif isinstance(el, VSource) and el.name not in SUPPLIES:   # a shunt reference: anode at its - end
             out.append((el.name, (el.b, el.a), True))
-    return out, net.probes["load"]
+    return out, net.probes
 
 
 def on_run(p, w) -> bool:
@@ -103,13 +104,17 @@ def check_connections(bom: Bom, spec: Spec, catalog) -> None:
     schemdraw.use("svg")
     drawing = draw_bom(bom, catalog, schemdraw.Drawing(show=False), elm)
     nets = schematic_nets(drawing)
-    parts, load = expected(bom, spec, catalog)
+    parts, probes = expected(bom, spec, catalog)
+    load = probes["load"]
     m = NetMap()
-    drawn = set(nets) - {"OUT"}
+    drawn = set(nets) - set(CONNECTORS)
     want = {name for name, _, _ in parts if name != "pair"} | ({"D1", "D2"} if any(n == "pair" for n, _, _ in parts)
                                                                else set())
     assert drawn == want, (sorted(drawn), sorted(want))
-    assert m.bind(load, nets["OUT"][0])
+    for connector, probe in CONNECTORS.items():
+        assert (connector in nets) == (probe in probes), connector
+        if connector in nets:
+            assert m.bind(probes[probe], nets[connector][0])
     ordered = [p for p in parts if p[2] is True]
     for name, nodes, _ in ordered:
         for node, net in zip(nodes, nets[name]):

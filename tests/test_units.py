@@ -402,6 +402,7 @@ def test_unit_symbols() -> None:
         "gain": "V/V",
         "energy": "eV",
         "transconductance_parameter": "A/V²",
+        "angle": "deg",
     }
     assert unit_symbol("resistance") == OMEGA  # U+03A9, not the OHM SIGN
     assert unit_symbol("slew_rate") == f"V/{MICRO_SIGN}s"

@@ -10,20 +10,20 @@ from __future__ import annotations
 
 import math
 
-from partpick.circuits import clipping, diode_limiter, jfet_agc, periphery, wien
+from partpick.circuits import clipping, diode_limiter, jfet_agc, periphery, quadrature, wien
 from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
 from partpick.errors import SpecError
 from partpick.physics.harmonic import BalanceResult
 from partpick.physics.linear import LinearResult, analyse_linear
 from partpick.physics.loop import Branch, Loop
-from partpick.physics.netlist import Kick, Netlist
+from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
-           "topology", "control", "all_slots", "slots_for", "control_for_roles", "check_spec", "make_circuit",
-           "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn",
+           "topology", "control", "all_slots", "fitting_topologies", "slots_for", "control_for_roles", "check_spec",
+           "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "designators", "log_sensitivities", "margin_fn",
            "rest_conductance"]
 
-TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY,)}
+TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
 CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, jfet_agc.CONTROL, clipping.CONTROL)}
 
 
@@ -72,11 +72,53 @@ def control_for_roles(topology_name: str, roles) -> str:
     return clipping.CONTROL.name
 
 
+# the spec's amplitude_control word -> the control plug-in it names
+_SPEC_CONTROLS = {"diode": "diode-limiter", "jfet-agc": "jfet-agc"}
+
+
+def _misfit(topo, spec) -> tuple[str, str] | None:
+    """(field, why) when ``spec`` asks of topology ``topo`` what it does not offer (an
+    output stage, a supply kind, a second output, a control at a port it lacks), else
+    None."""
+    if spec.output_stage != "auto" and spec.output_stage not in topo.stages:
+        return "output_stage", (f"'{spec.output_stage}' is not offered by the {topo.title} (it offers "
+                                f"{', '.join(topo.stages)})")
+    if spec.supply.kind not in topo.supplies:
+        return "supply", f"'{spec.supply.kind}' supply is not offered by the {topo.title} (it takes " \
+                         f"{', '.join(topo.supplies)})"
+    for key in ("load_cosine", "quadrature"):
+        if getattr(spec, key) is not None and not topo.outputs:
+            return key, f"applies to a topology with a second output (quadrature); the {topo.title} has one"
+    ctl = CONTROLS.get(_SPEC_CONTROLS.get(spec.amplitude_control, ""))
+    if ctl is not None and ctl.port not in topo.ports:
+        return "amplitude_control", f"'{spec.amplitude_control}' needs a '{ctl.port}' port, which the {topo.title} " \
+                                    f"lacks"
+    return None
+
+
+def fitting_topologies(spec) -> tuple[str, ...]:
+    """The topologies ``spec`` can be built with (for ``topology: auto``)."""
+    return tuple(name for name, topo in TOPOLOGIES.items() if _misfit(topo, spec) is None)
+
+
 def check_spec(spec) -> None:
-    """Refuse a spec whose topology the registry does not hold, naming its line."""
+    """Refuse a spec whose topology the registry does not hold, or that asks of its
+    topology what it does not offer (:func:`_misfit`), naming the line; 'auto' needs one
+    topology that fits."""
+    def fail(field: str, message: str) -> SpecError:
+        return SpecError(message, source=spec.source, line=spec.line_of(field), field=field)
+
+    if spec.topology == "auto":
+        if not fitting_topologies(spec):
+            field, why = next(m for t in TOPOLOGIES.values() if (m := _misfit(t, spec)) is not None)
+            raise fail("topology", f"'auto' finds no topology that fits: {', '.join(TOPOLOGIES)} each refuse "
+                                   f"(e.g. '{field}' {why})")
+        return
     if spec.topology not in TOPOLOGIES:
-        raise SpecError(f"must be one of {', '.join(TOPOLOGIES)} (got '{spec.topology}')",
-                        source=spec.source, line=spec.line_of("topology"), field="topology")
+        raise fail("topology", f"must be one of {', '.join(TOPOLOGIES)} or auto (got '{spec.topology}')")
+    misfit = _misfit(TOPOLOGIES[spec.topology], spec)
+    if misfit is not None:
+        raise fail(*misfit)
 
 
 def make_circuit(topology_name: str, control_name: str, values: dict, parts: dict, *, stage: str = "none",
@@ -102,6 +144,14 @@ def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netl
     els += c.control.netlist(c, a, b, {"out": core.out, "ref": ref, "vcc": "vcc", "neg": neg})
     out_els, load = periphery.output(c, cond, core.out, ref, neg)
     els += out_els
+    probes = {"osc": core.out, "load": load}
+    for name, node in core.outputs.items():
+        # a further output drives the operating point's second load straight
+        probes[name] = node
+        if not math.isinf(cond.load2_r_ohm):
+            els.append(Resistor("RLOAD2", node, "0", cond.load2_r_ohm))
+        if cond.load2_c_f > 0:
+            els.append(Capacitor("CLOAD2", node, "0", cond.load2_c_f))
     f_hint = c.f0_hz
     els.append(Kick("IKICK", core.kick_node, core.kick_cap_f * kick_v, 0.0, 0.02 / f_hint))
     return Netlist(
@@ -109,7 +159,7 @@ def build_netlist(c: Circuit, cond: Conditions, *, kick_v: float = 0.01) -> Netl
         elements=tuple(els),
         temp_k=cond.temp_k,
         f_hint_hz=f_hint,
-        probes={"osc": core.out, "load": load},
+        probes=probes,
     )
 
 

@@ -13,8 +13,9 @@ control gives the branch.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Protocol
 
 import numpy as np
@@ -85,12 +86,16 @@ class Values(Mapping):
 @dataclass(frozen=True, slots=True)
 class Conditions:
     """One operating point: supply_v (V; per rail for a dual supply, the one rail for
-    a single supply), temp_k (K), the load load_r_ohm (ohm, inf = open) || load_c_f (F)."""
+    a single supply), temp_k (K), the load load_r_ohm (ohm, inf = open) || load_c_f (F),
+    and the load of a topology's second output (a quadrature oscillator's cosine)
+    load2_r_ohm (ohm, inf = open) || load2_c_f (F)."""
 
     supply_v: float
     temp_k: float
     load_r_ohm: float
     load_c_f: float = 0.0
+    load2_r_ohm: float = math.inf
+    load2_c_f: float = 0.0
 
     def rails(self, supply_kind: str) -> tuple[float, float, float]:
         """(positive rail, negative rail, signal reference), V."""
@@ -171,7 +176,12 @@ class Topology(Protocol):
     network_name (words for messages), slots (its own passives), network_roles (the
     frequency-setting slots), channels (op-amp channels it uses), ports (control ports
     it offers: 'feedback' = a branch across the feedback resistor, whose conductance
-    lowers the gain).
+    lowers the gain), stages and supplies (the output stages and supply kinds it can be
+    built with), outputs (the probe names of further outputs beyond the first, each
+    driving a load of its own: a quadrature oscillator's cosine 'load2'), output_labels
+    and output_phase_rad (each further output's word in messages and its intended phase
+    lead over the first, rad), input_note (how its op-amp inputs swing, for the
+    common-mode check's note).
 
     Search hooks (:mod:`partpick.search.enumerate`): ``network_table`` (every
     frequency-setting network of a family pair in a frequency window, as a
@@ -193,6 +203,12 @@ class Topology(Protocol):
     network_roles: tuple[str, ...]
     channels: int
     ports: tuple[str, ...]
+    stages: tuple[str, ...]
+    supplies: tuple[str, ...]
+    outputs: tuple[str, ...]
+    output_labels: dict
+    output_phase_rad: dict
+    input_note: str
 
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:
         """Textbook frequency over arrays of builds (role -> values), Hz."""
@@ -260,11 +276,14 @@ class AmplitudeControl(Protocol):
 @dataclass(frozen=True, slots=True)
 class Core:
     """A topology's part of the netlist: its elements, its output node, the node pair
-    of each control port (port -> (a, b)), and where the start-up kick goes (node, and
-    the capacitance, F, that turns the kick voltage into its charge)."""
+    of each control port (port -> (a, b)), where the start-up kick goes (node, and
+    the capacitance, F, that turns the kick voltage into its charge), and the node of
+    each further output (probe name -> node: 'load2', the second output, which drives
+    the operating point's second load directly)."""
 
     elements: tuple
     out: str
     ports: dict
     kick_node: str
     kick_cap_f: float
+    outputs: dict = field(default_factory=dict)

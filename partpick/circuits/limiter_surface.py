@@ -259,6 +259,9 @@ class Planner:
 
     def __init__(self, topology, lim, control, rd_values, temps_k, f_hz: float, rg_ohm: float = REF_RG) -> None:
         self.lim = lim
+        self.topology = topology
+        # output per port amplitude on the reference (the Wien bridge's 1.5 at gain 3)
+        self.osc_ref = float(topology.osc_per_port_k(np.asarray(topology.reference_required_gain, float)))
         self.surface = surface_at(topology, lim, control, f_hz)
         self.choices = np.concatenate([[0.0], np.asarray(rd_values, float)])
         self.temps_k = tuple(float(t) for t in temps_k)
@@ -306,21 +309,21 @@ class Planner:
         its own proportion, which ``thd_scale`` (per row: the topology's
         ``thd_transfer``) carries from the reference to the design's network. The
         frequency pull follows the gain excess, so it is read at the reference's
-        conductance for the same excess."""
+        conductance for the same excess (the topology's ``reference_conductance``)."""
         g_s = np.asarray(g_s, float)
         m = np.asarray(m, float)
-        g_ref = (0.5 - 1.0 / (3.0 * np.exp(m) - 1.0)) / self.rg     # the reference (gain 3) at the same excess
+        g_ref = self.topology.reference_conductance(m, self.rg)     # the reference at the same excess
         if choice is None:
             rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
             g = np.broadcast_to(g_s[:, None], rd.shape)
             g_ref = np.broadcast_to(g_ref[:, None], rd.shape)
-            scale = np.asarray(osc_per_port, float)[:, None] / 1.5   # the surface holds the reference's gain of 3
+            scale = np.asarray(osc_per_port, float)[:, None] / self.osc_ref   # the surface holds the reference's
             dg_dm = np.broadcast_to(np.asarray(dg_dm, float)[:, None], rd.shape)
             t_scale = np.asarray(thd_scale, float)[..., None] if np.ndim(thd_scale) else thd_scale
         else:
             rd = np.broadcast_to(self.choices[np.asarray(choice)], g_s.shape)
             g = g_s
-            scale = np.asarray(osc_per_port, float) / 1.5
+            scale = np.asarray(osc_per_port, float) / self.osc_ref
             t_scale = thd_scale
         with np.errstate(invalid="ignore", divide="ignore"):
             vo, thd, pull_g = self._lookup(rd, g, True, True, True)

@@ -20,7 +20,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from partpick.circuits import periphery
-from partpick.circuits.base import Circuit, Conditions, Core, Slot
+from partpick.circuits.base import STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot
 from partpick.circuits.options import (NetTable, sigma, values_of)
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
@@ -51,6 +51,12 @@ class WienBridge:
     channels = 1
     ports = ("feedback", "ground")
     network_roles = ARM_ROLES   # the frequency-setting slots
+    stages = STAGES             # every output stage, on either supply
+    supplies = SUPPLY_KINDS
+    outputs = ()                # one output
+    output_labels: dict = {}
+    output_phase_rad: dict = {}
+    input_note = "inputs at the reference +/- Vpk/3"
 
     # -- equations, vectorised over builds (role -> array of values) ------------------------
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:
@@ -292,7 +298,7 @@ class WienBridge:
         K = G e^-m, so d g / d m = K / (Rg (K - 1)^2)."""
         return k_eff / (rg * (k_eff - 1) ** 2)
 
-    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None) -> np.ndarray:
+    def thd_transfer(self, k_eff: np.ndarray, arms: np.ndarray | None = None, all_outputs: bool = True) -> np.ndarray:
         """How much more of the control branch's harmonic current reaches the output as
         distortion than on the equal-arm reference (gain 3), for the same drive of the
         branch; third harmonic, ideal op-amp. A current I injected across Rf gives
@@ -301,7 +307,7 @@ class WienBridge:
         1 / (K + j p (n - 1/n)) with p = sqrt(Rs Cp / (Rp Cs)) (the Wien network's
         transfer Zp / (Zs + Zp), written out for unequal arms; checked against sympy in
         tests/test_conformance.py). arms: rows (Rs, Cs, Rp, Cp), or None for arms of
-        equal ratios (Rs/Rp = Cp/Cs = (K - 1)/2)."""
+        equal ratios (Rs/Rp = Cp/Cs = (K - 1)/2); all_outputs: moot (one output)."""
         k = np.asarray(k_eff, float)
         if arms is None:
             p = (k - 1) / 2
@@ -320,6 +326,11 @@ class WienBridge:
         return k_eff / (k_eff - 1.0)
 
     reference_required_gain = 3.0   # what the equal-arm reference network needs
+
+    def reference_conductance(self, m: np.ndarray, rg: float) -> np.ndarray:
+        """Conductance the branch supplies on the equal-arm reference (gain 3) at gain
+        excess m (nepers) with Rg = rg, S: 1/(2 Rg) - 1/Rf with 1 + Rf/Rg = 3 e^m."""
+        return (0.5 - 1.0 / (3.0 * np.exp(m) - 1.0)) / rg
 
     def opamp_reference(self, f_hz: float, gain_excess: float, opamp) -> Circuit:
         """The reference on which an op-amp's pull and margin cost are measured: equal

@@ -67,7 +67,7 @@ def _description(kind: str, fam, line: PurchaseLine, channels: int) -> str:
         return text
     if fam.channels == 1 and channels > 1:
         return f"{text}; single channel: {line.quantity} packages"
-    spare = fam.channels - channels
+    spare = line.quantity * fam.channels - channels      # every package bought, less the channels used
     return text + (f"; {spare} channel(s) spare: tie off (see the schematic)" if spare > 0 else "")
 
 

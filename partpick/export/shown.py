@@ -50,6 +50,8 @@ def check_value(value: float | None, c, spec) -> str:
         return "-"
     if c.dim == "temperature":
         return temperature(value)
+    if c.dim == "angle":
+        return f"{math.degrees(value):.4g} deg"
     return units.format_quantity(float(f"{value:.4g}"), c.dim)
 
 
@@ -68,11 +70,20 @@ def spec_rows(spec) -> list[list[str]]:
             ["supply", f"{s.kind}, {_q(s.min_v, 'voltage')} .. {_q(s.max_v, 'voltage')}{per_rail}"],
             ["load", load],
             ["temperature", f"{temperature(t.min_k)} .. {temperature(t.max_k)} (nominal {temperature(t.nominal_k)})"],
-            ["distortion", f"THD <= {_q(spec.max_thd_frac, 'fraction')}"],
+            ["distortion", f"THD <= {_q(spec.max_thd_frac, 'fraction')}"
+                           + (" at each load" if spec.load_cosine is not None else "")],
             ["yield", f">= {_q(spec.yield_min_frac, 'fraction')} of builds meet every requirement"]]
     for kind in ("resistors", "capacitors", "opamps", "limiters"):
         ids = spec.parts.of_kind(kind)
         rows.append([f"parts: {kind}", "all" if ids is None else ", ".join(ids) or "none"])
+    if spec.load_cosine is not None:
+        lc = spec.load_cosine
+        rows.insert(4, ["cosine load", _q(lc.resistance_ohm, "resistance")
+                        + (f" || {_q(lc.capacitance_f, 'capacitance')}" if lc.capacitance_f else "")])
+    if spec.quadrature is not None:
+        q = spec.quadrature
+        rows.insert(7, ["quadrature", f"90 deg +/- {math.degrees(q.phase_error_rad):.4g} deg, amplitudes within "
+                                      f"+/- {_q(q.amplitude_match_frac, 'fraction')}"])
     rows += [["output stage", spec.output_stage], ["ranked by", ", ".join(spec.rank_by)],
              ["boards per order", str(spec.builds)]]
     if spec.stock is not None:

@@ -65,9 +65,12 @@ def design_table(d, catalog, spec, stock=None) -> str:
                      f"{s['startup_margin'] * 100:.2f} %", f"{s['yield'] * 100:.1f} %",
                      f"{s['cost']:.3f}", s["parts"], r.bom.line("opamp").family, lim.family if lim else "-",
                      r.bom.stage])
-    lines.append(render_table(["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield",
-                               f"cost {catalog.currency}", "parts", "op-amp", "control", "stage"], rows,
-                              right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
+    head = ["#", "verdict", "frequency", "error", "at load", "THD", "margin", "yield", f"cost {catalog.currency}",
+            "parts", "op-amp", "control", "stage"]
+    if spec.topology == "auto":   # every topology ranked together: which one each row is
+        head.append("topology")
+        rows = [row + [r.bom.topology] for row, r in zip(rows, d.ranked)]
+    lines.append(render_table(head, rows, right=(0, 2, 3, 4, 5, 6, 7, 8, 9)))
     lines.append(design_legend(d, spec, catalog))
     best = d.ranked[0]
     lines.append("")
@@ -100,12 +103,17 @@ def design_legend(d, spec, catalog) -> str:
         f"yield: share of {samples} Monte Carlo builds meeting every requirement",
         f"cost: per board in {catalog.currency} (parts, line prices, ordering costs); parts: physical parts per board; "
         "control: the amplitude control's part (the diode limiter, or the JFET of a JFET control); "
-        "stage: the output stage (none, follower, gain, attenuator, buffered-attenuator: a divider then a follower)"])
+        "stage: the output stage (none, follower, gain, attenuator, buffered-attenuator: a divider then a follower)"]
+        + (["topology: the oscillator of the row (topology: auto designs every one that fits and ranks them "
+            "together)"] if spec.topology == "auto" else []))
 
 
-def design_json(spec_path, d) -> str:
+def design_json(spec_path, d, topology: bool = False) -> str:
+    """The design as JSON; with ``topology`` (a spec with topology: auto) each candidate
+    names its topology."""
     return json.dumps({"spec": str(spec_path), "candidates": [
-        {"rank": i, **summary(r), "bom": _bom_json(r.bom)} for i, r in enumerate(d.ranked, 1)],
+        {"rank": i, **summary(r), **({"topology": r.bom.topology} if topology else {}), "bom": _bom_json(r.bom)}
+        for i, r in enumerate(d.ranked, 1)],
         "timings_s": d.timings}, indent=2, default=lambda x: None)
 
 
@@ -144,7 +152,7 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
                   verbose: bool = False, stock=None) -> str:
     """What ``partpick design`` prints in format ``fmt`` (text, json, csv, yaml)."""
     if fmt == "json":
-        return design_json(spec_path, d)
+        return design_json(spec_path, d, spec.topology == "auto")
     if fmt == "csv":
         return design_csv(d)
     if fmt == "yaml":

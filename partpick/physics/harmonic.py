@@ -34,7 +34,7 @@ caller integrates the full nonlinear circuit instead (:mod:`partpick.physics.tra
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -42,7 +42,7 @@ from partpick.physics.linear import LinearResult
 from partpick.physics.loop import Branch, Loop
 from partpick.physics.opamp import loop_figures
 
-__all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude"]
+__all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude", "output_figures"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -56,7 +56,8 @@ class BalanceResult:
     (before Ro) relative to the signal reference, V; slew_v_per_s: its largest rate of
     change, V/s; iout_peak_a: the op-amp's largest output current, A; ilim_peak_a:
     largest limiter current, A; regime: 'limiter' when the linear op-amp assumption
-    holds, else 'swing', 'slew' or 'current'; converged: Newton met its tolerance.
+    holds, else 'swing', 'slew' or 'current'; converged: Newton met its tolerance;
+    outputs: the harmonics 1..K (V) of each further output the loop names.
     """
 
     freq_hz: float
@@ -78,12 +79,26 @@ class BalanceResult:
     state: tuple = ()  # (element harmonics, scaled angular frequency): a warm start for a nearby problem
     cap_eff_f: float = 0.0  # the element's capacitance as the fundamental sees it, Re(Q_1 / V_1), F
     freq_per_cap_hz_f: float = math.nan  # d freq_hz / d C for a capacitance C added across the element, Hz/F
+    outputs: dict = field(default_factory=dict, compare=False)  # further output -> harmonics 1..K (V)
 
 
 def _thd(h: np.ndarray) -> float:
     """sqrt(sum |H_k|^2, k = 2..9) / |H_1| (IEC 60268-3 style THD, relative to the fundamental)."""
     fund = abs(h[0])
     return float(np.sqrt(np.sum(np.abs(h[1:9]) ** 2)) / fund) if fund > 0 else math.nan
+
+
+def output_figures(harmonics, ref_harmonics, points: int = 512) -> tuple[float, float, complex]:
+    """Of a waveform given by its harmonics 1..K (complex, V): half its peak-to-peak
+    value (V), its THD (harmonics 2..9 over the fundamental) and its fundamental over
+    that of ``ref_harmonics`` (complex: the amplitude ratio and the phase by which it
+    leads the reference)."""
+    h = np.asarray(harmonics, complex)
+    ks = np.arange(1, h.size + 1)
+    theta = 2 * np.pi * np.arange(points) / points
+    v = np.real(np.exp(1j * np.outer(theta, ks)) @ h)
+    ref = complex(ref_harmonics[0])
+    return float((v.max() - v.min()) / 2), _thd(h), (complex(h[0]) / ref if ref else complex(math.nan))
 
 
 class _Balance:
@@ -424,6 +439,7 @@ def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
         state=(tuple(vk), w, kmax, tuple(getattr(hb, "ek", ()))),
         cap_eff_f=cap_eff,
         freq_per_cap_hz_f=hb.freq_per_cap(vk, w) if ok else math.nan,
+        outputs={name: tuple(full(loop.probe(name, p, vf, ik))) for name in loop.outputs},
     )
 
 

@@ -60,7 +60,9 @@ class Loop:
     oscillator output and 'load' the load voltage are always present); amps: the op-amps
     whose swing, slew and current the steady state must respect; inject: when the
     topology gives it, the coefficient eta of a current J drawn from the oscillator's
-    output node (a detector there): alpha V + gamma I + eta J = 0, the probes unchanged.
+    output node (a detector there): alpha V + gamma I + eta J = 0, the probes unchanged;
+    outputs: the names of further output probes whose waveforms the analyses report
+    ('load2', a quadrature oscillator's second output at its load).
     """
 
     w_ref: float
@@ -71,6 +73,7 @@ class Loop:
     probes: tuple[tuple[str, Rational, Rational], ...]
     amps: tuple[AmpProbe, ...] = ()
     inject: Rational | None = None
+    outputs: tuple[str, ...] = ()
 
     def coefficients(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(alpha, gamma) at p (complex arrays)."""

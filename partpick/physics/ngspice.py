@@ -34,11 +34,12 @@ def _tail(text: str, lines: int = 25) -> str:
 
 
 def run_ngspice(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200, timeout_s: float = 300,
-                uniform: bool = True) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+                uniform: bool = True, probes: tuple[str, ...] = _PROBES) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     """Transient run of ``cycles`` periods of netlist.f_hint_hz in ngspice.
 
-    Returns (time_s, {"osc": v_osc, "load": v_load}): time in s, voltages in V at the
-    netlist's 'osc' and 'load' probe nodes. With ``uniform`` (default) the points lie
+    Returns (time_s, {"osc": v_osc, "load": v_load, ...}): time in s, voltages in V at
+    the netlist's probe nodes named in ``probes`` (default 'osc' and 'load'; 'load2',
+    a second output's load, where the netlist has one). With ``uniform`` (default) the points lie
     on the grid 0, dt, 2 dt, ... with dt = 1/(f_hint points_per_cycle) s (ngspice's
     ``linearize``: linear interpolation of the accepted time points, which are at
     most dt apart); otherwise ngspice's own, uneven time points are returned.
@@ -54,7 +55,7 @@ def run_ngspice(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
         data = folder / "probes.dat"
         deck = folder / "circuit.cir"
         deck.write_text(to_spice(netlist, cycles=cycles, points_per_cycle=points_per_cycle,
-                                 probes=_PROBES, data_file=data.name, uniform=uniform), encoding="utf-8")
+                                 probes=probes, data_file=data.name, uniform=uniform), encoding="utf-8")
         try:
             # ngspice runs in the temporary folder, so the deck names its data file
             # relative to it (no trouble with spaces in TMPDIR) and nothing it may
@@ -75,10 +76,10 @@ def run_ngspice(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
             table = np.loadtxt(data, skiprows=1, ndmin=2)
         except ValueError as exc:
             raise RuntimeError(f"cannot read ngspice's data file ({exc}):\n{_tail(output)}") from None
-    # wr_singlescale: column 0 is time, then one column per probe in _PROBES order.
-    if table.shape[0] < 2 or table.shape[1] != 1 + len(_PROBES):
+    # wr_singlescale: column 0 is time, then one column per probe in the order asked.
+    if table.shape[0] < 2 or table.shape[1] != 1 + len(probes):
         raise RuntimeError(f"ngspice wrote {table.shape[0]} rows of {table.shape[1]} columns, expected "
-                           f"{1 + len(_PROBES)} columns:\n{_tail(output)}")
+                           f"{1 + len(probes)} columns:\n{_tail(output)}")
     time_s = np.ascontiguousarray(table[:, 0])
     # ngspice writes what it has when the transient aborts (e.g. "timestep too
     # small"), so a short run is a failure, not a result.
@@ -87,4 +88,4 @@ def run_ngspice(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     # linearize writes whole steps only, so the last row may fall short by under one step.
     if time_s[-1] < stop_s - 1.01 * step_s:
         raise RuntimeError(f"ngspice stopped at {time_s[-1]:.6g} s of {stop_s:.6g} s:\n{_tail(output)}")
-    return time_s, {key: np.ascontiguousarray(table[:, i + 1]) for i, key in enumerate(_PROBES)}
+    return time_s, {key: np.ascontiguousarray(table[:, i + 1]) for i, key in enumerate(probes)}

@@ -132,8 +132,10 @@ def class_b_loss(v_rail, v_pk, i_pk):
 
 def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:
     """The regime of a settled oscillation's op-amps (the first limit any of them meets,
-    :func:`regime`) and the first op-amp's (x min, x max, slew, peak output current, rms
-    output current) in V, V/s and A, for the op-amp probes ``amps`` of a loop
+    :func:`regime`) and the worst of every op-amp's (x min, x max, slew, peak output
+    current, rms output current) in V, V/s and A -- the lowest minimum, the largest of
+    the rest, since any channel that meets a limit limits the circuit -- for the op-amp
+    probes ``amps`` of a loop
     (:class:`partpick.physics.loop.AmpProbe`): probe(name) gives a probe's harmonics,
     wave(harmonics) its samples over one period, rate(harmonics) those of its rate of
     change."""
@@ -149,6 +151,6 @@ def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> 
                    iout_peak_a=io_pk)
         if reg == "limiter":
             reg = r
-        if main is None:
-            main = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+        here = (float(x_t.min()), float(x_t.max()), slew, io_pk, float(np.sqrt(np.mean(io_t ** 2))))
+        main = here if main is None else (min(main[0], here[0]), *(max(a, b) for a, b in zip(main[1:], here[1:])))
     return reg, main if main is not None else (0.0, 0.0, 0.0, 0.0, 0.0)

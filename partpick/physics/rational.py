@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Rational", "const", "parallel", "polyval"]
+__all__ = ["Rational", "const", "parallel", "polyval", "poly_sum2"]
 
 
 def _trim(c: np.ndarray) -> np.ndarray:
@@ -20,7 +20,8 @@ def _trim(c: np.ndarray) -> np.ndarray:
     return c[: nz[-1] + 1] if nz.size else c[:1] * 0
 
 
-def _add(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def poly_sum2(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """a + b for ascending coefficient arrays of any lengths."""
     if a.size < b.size:
         a, b = b, a
     out = a.copy()
@@ -43,7 +44,7 @@ class Rational:
     den: np.ndarray
 
     def __add__(self, other: "Rational") -> "Rational":
-        return Rational(_trim(_add(np.convolve(self.num, other.den), np.convolve(other.num, self.den))),
+        return Rational(_trim(poly_sum2(np.convolve(self.num, other.den), np.convolve(other.num, self.den))),
                         _trim(np.convolve(self.den, other.den)))
 
     def __sub__(self, other: "Rational") -> "Rational":

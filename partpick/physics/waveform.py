@@ -21,7 +21,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["WaveformStats", "analyse", "settle_time", "upward_crossings", "cycle_peaks",
+__all__ = ["WaveformStats", "analyse", "settle_time", "upward_crossings", "cycle_peaks", "relative_fundamental",
            "HARMONICS", "SETTLE_TOL"]
 
 HARMONICS = 9          # harmonics 1..9 are reported; 2..9 enter the THD
@@ -203,3 +203,27 @@ def settle_time(t_s, v, final_peak_v: float, tol: float = 0.02) -> float | None:
     if out[-1] == len(peaks) - 1:
         return None
     return float(xs[out[-1] + 1])
+
+
+def relative_fundamental(t_s, v_ref, v, *, cycles: int = 20) -> complex | None:
+    """The fundamental of v over the fundamental of v_ref (complex: the amplitude ratio,
+    and the phase by which v leads v_ref in radians as its angle), both taken over the
+    last ``cycles`` whole cycles of v_ref (delimited as in :func:`analyse`), resampled
+    uniformly and transformed with the FFT (coherent sampling, so the fundamental falls
+    on one bin). None when v_ref shows fewer than three cycles."""
+    t_s = np.asarray(t_s, dtype=float)
+    v_ref, v = np.asarray(v_ref, dtype=float), np.asarray(v, dtype=float)
+    if len(v_ref) < 4 or not (np.all(np.isfinite(v_ref)) and np.all(np.isfinite(v))):
+        return None
+    level, hyst = _level_and_hysteresis(v_ref)
+    xs = upward_crossings(t_s, v_ref, level, hyst)
+    if len(xs) < 3:
+        return None
+    n = min(cycles, len(xs) - 1)
+    t0, t1 = float(xs[-n - 1]), float(xs[-1])
+    m = n * _POINTS_PER_CYCLE
+    tu = t0 + (t1 - t0) * np.arange(m) / m
+    a = np.fft.rfft(np.interp(tu, t_s, v_ref))[n]
+    b = np.fft.rfft(np.interp(tu, t_s, v))[n]
+    return complex(b / a) if a != 0 else None
+

@@ -62,6 +62,9 @@ class Searcher:
         self.load_r = load_r
         self.y_load = (0.0 if math.isinf(load_r) else 1.0 / load_r) + 2 * math.pi * self.f_t * spec.load.capacitance_f
         self._amp: dict = {}
+        # THD counts at every output the topology has only when the spec loads them all (a
+        # second output without a load_cosine is not used)
+        self.all_outputs = spec.load_cosine is not None
         self._ch: dict = {}
         self._stages: dict = {}
         self.stage_tables = {(k, f.id): memo(("stage", k, f, load_r, problem.shelf),
@@ -133,8 +136,8 @@ class Searcher:
         key = (lim.id, gf.id)
         if key not in self._amp:
             p = self.problem
-            self._amp[key] = memo(("amp", p.topology.name, lim, gf, p.shelf, self.f_t, p.temps_k, p.thd_aim,
-                                    self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf))
+            self._amp[key] = memo(("amp", p.topology.name, self.all_outputs, lim, gf, p.shelf, self.f_t, p.temps_k,
+                                    p.thd_aim, self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf))
         return self._amp[key]
 
     def _amp_rows(self, lim, gf):
@@ -160,7 +163,7 @@ class Searcher:
         keep = (m >= M_RANGE[0]) & (m <= M_RANGE[1])
         kb, r_fb, gain, m = kb[keep], r_fb[keep], gain[keep], m[keep]
         gneed = topo.port_conductance(r_gnd, r_fb, ke[kb])
-        t_scale = topo.thd_transfer(ke[kb])
+        t_scale = topo.thd_transfer(ke[kb], all_outputs=self.all_outputs)
         with np.errstate(invalid="ignore"):
             # a row whose nominal THD is over what the design may aim at (derating rule thd_share)
             cell, ird = np.nonzero(planner.thd(gneed, t_scale) <= p.thd_aim)   # sorted by cell, hence by bin
@@ -291,7 +294,7 @@ class Searcher:
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
         ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb, k), topo.port_conductance_slope(r_gnd, r_fb, k),
-                              topo.osc_per_port_k(k), m, ird, thd_scale=topo.thd_transfer(k, vals))
+                              topo.osc_per_port_k(k), m, ird, thd_scale=topo.thd_transfer(k, vals, all_outputs=self.all_outputs))
         vo = np.stack([ev[f"vo{i}"] for i in range(3)])
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
@@ -377,10 +380,17 @@ class Searcher:
         temps = p.temps_k
         ln_load = math.log(max(c.load_v[1], 1e-12))
         dln = tuple(math.log(max(v, 1e-12)) - ln_load for v in c.load_v)
+        second = None
+        if topo.outputs:
+            # a second output: its amplitude and match from the topology's ideal ratio and what the
+            # op-amp does to the outputs on the topology's reference (their ratio, the phase error)
+            factor, phase = topo.reference_outputs(op.opamp, self.f_t)
+            ratio = float(topo.output_ratio(values)) * factor
+            second = (ratio, ratio, phase, c.thd, c.s_thd, ratio / factor)
         model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
                       c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1], 1e-12),
                       (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
-                      p.control.amplitude_spread_of(self._limiter(c), temps[1]))
+                      p.control.amplitude_spread_of(self._limiter(c), temps[1]), second=second)
         y = monte_carlo(model, p.spec, samples=samples, seed=1).yield_frac
         return replace(c, yield_est=y, simulated=True)
 
