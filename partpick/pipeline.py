@@ -27,6 +27,7 @@ from partpick.circuits import balance, build_loop, check_spec, fitting_topologie
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
+from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
 from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.refusal import default_notes, explain_refusal, structural_refusal
@@ -126,7 +127,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         t_search += time.perf_counter() - t_s
         while len(verified) < budget:
             c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
-            if c is None or _certified(verified, c, n, rank_by) or c.yield_est < _hopeless(spec):
+            if c is None or _certified(verified, c, pool, n, rank_by) or c.yield_est < _hopeless(spec):
                 break   # (the pool comes in yield order: what follows cannot pass either)
             verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
                                     problem, samples, seed + 1, fixed))
@@ -212,6 +213,9 @@ class _Pool:
         row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
         order = np.lexsort(tuple(reversed(keys))) if batches else np.zeros(0, int)
         self.src, self.row = src[order], row[order]
+        # each row's estimated yield, cost and THD, for the certification (_certified)
+        self.figures = [np.concatenate([np.asarray(getattr(b, f), float) for b in batches])[order] if batches
+                        else np.zeros(0) for f in ("y", "cost", "thd")]
         self.keys = [k[order] for k in keys]
         self.size = int(order.size)
         self.at = 0
@@ -221,6 +225,13 @@ class _Pool:
         if self.at >= self.size:
             return None
         return tuple(float(k[self.at]) for k in self.keys)
+
+    def rest(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(estimated yield, cost, THD) of every candidate not yet taken: those placed by
+        their simulated yield and those still in the search's order."""
+        placed = [e[2] for e in self.placed]
+        return tuple(np.concatenate([f[self.at:], np.array([getattr(c, k) for c in placed], float)])
+                     for f, k in zip(self.figures, ("yield_est", "cost", "thd")))
 
     def next(self, simulate) -> Candidate | None:
         """The best candidate left, with its simulated yield (None when none is left)."""
@@ -308,31 +319,42 @@ def _hopeless(spec: Spec) -> float:
     return spec.yield_min_frac - max(0.08, 1.5 * (1 - spec.yield_min_frac))
 
 
-def _certified(verified: list[Ranked], c: Candidate, n: int, rank_by) -> bool:
-    """Whether the verification may stop before candidate ``c`` (the best of those left
-    by the search's order): n candidates pass, and ``c`` could not beat the n-th of
-    them even if its yield turned out OPTIMISM better than estimated, its frequency
-    landed exactly and its THD a fifth lower -- nor could any candidate after it, which
-    the search ranks no better."""
+def _certified(verified: list[Ranked], c: Candidate, pool: "_Pool", n: int, rank_by) -> bool:
+    """Whether the verification may stop before candidate ``c``: n candidates pass, and
+    neither ``c`` nor any candidate left in the pool could beat the n-th of them even if
+    its yield turned out OPTIMISM better than estimated, its frequency landed exactly and
+    its THD a fifth lower. Every candidate left is judged, not only the next: the pool's
+    order (estimated yield, then cost) is not the ranking's, so a cheaper candidate of a
+    slightly lower estimated yield may still tie on yield and win on cost."""
     passing = rank([r for r in verified if r.verdict.passed], rank_by)
     if len(passing) < n:
         return False
-    nth = passing[n - 1]
+    y, cost, thd = pool.rest()
+    y, cost, thd = np.append(y, c.yield_est), np.append(cost, c.cost), np.append(thd, c.thd)
+    return not _could_beat(y, cost, thd, passing[n - 1], rank_by).any()
+
+
+def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, rank_by) -> np.ndarray:
+    """Which unverified candidates (estimated yield, cost, THD) could rank above ``nth``
+    by the keys rank_by (see _certified for the optimism allowed)."""
+    beat = np.zeros(y.shape, bool)
+    open_ = np.ones(y.shape, bool)      # tied so far: the next key decides
     for key in tuple(rank_by) + ("cost",):
         if key == "yield":
-            ours, theirs, res = min(1.0, c.yield_est + OPTIMISM), nth.yield_frac, 0.002
-            if ours > theirs + res:
-                return False
-            if ours < theirs - res:
-                return True
+            ours = np.minimum(1.0, y + OPTIMISM)
+            above, below = ours > nth.yield_frac + 0.002, ours < nth.yield_frac - 0.002
+            beat |= open_ & above
+            open_ &= ~above & ~below
         elif key == "cost":
-            return c.cost >= nth.cost
+            beat |= open_ & (cost < nth.cost)
+            break
         elif key == "thd":
-            if 0.8 * c.thd < nth.thd * 0.95:
-                return False
+            better = 0.8 * thd < nth.thd * 0.95
+            beat |= open_ & better
+            open_ &= ~better
         # frequency error, amplitude error, margin, parts: refinement makes these
         # equal to within resolution for any candidate; the next key decides
-    return True
+    return beat
 
 
 def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed):
@@ -371,7 +393,11 @@ def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searc
             values.update(zip(periphery.STAGE_ROLES, pair))
     if values == c.values:
         return c
-    return replace(c, values=values, cost=searcher.price.design_cost(values, c.families, c.parts, c.stage))
+    out = replace(c, values=values)
+    out = replace(out, cost=bom_cost(candidate_bom(out, spec, problem, fixed), catalog, searcher.price.pricer.stock)[0])
+    if problem.shelf is not None and not on_shelf(out, problem.shelf, spec.builds):
+        return c   # the re-chosen values would take more of a value than the shelf holds
+    return out
 
 
 def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem, samples: int, seed: int,

@@ -12,7 +12,7 @@ import numpy as np
 from partpick.circuits import periphery
 from partpick.search.tables import STAGE_RATIO
 
-__all__ = ["Candidate", "Batch", "YIELD_STEP"]
+__all__ = ["Candidate", "Batch", "YIELD_STEP", "on_shelf"]
 
 YIELD_STEP = 0.002       # estimated yields this close are ties for the search's own choices
 
@@ -104,3 +104,13 @@ class Batch:
                          tuple(float(x) for x in self.load[:, i]), float(self.osc[i]), float(self.thd[i]),
                          float(self.m[i]), float(self.y[i]), float(self.cost[i]), float(self.s_amp[i]),
                          float(self.s_thd[i]), float(self.pull[i]))
+
+
+def on_shelf(c: Candidate, shelf, builds: int) -> bool:
+    """Whether the shelf holds every part of ``c`` for ``builds`` boards."""
+    uses: dict = {}
+    for role, v in c.values.items():
+        uses[(c.families[role], v)] = uses.get((c.families[role], v), 0) + 1
+    for part in c.parts.values():
+        uses[(part, None)] = uses.get((part, None), 0) + 1
+    return all((shelf.quantity(f) if v is None else shelf.quantity(f, v)) >= n * builds for (f, v), n in uses.items())

@@ -27,7 +27,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from partpick.search.candidates import Candidate
+from partpick.search.candidates import Candidate, on_shelf
 from partpick.search.enumerate import m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
 from partpick.search.tables import K_BIN
@@ -56,6 +56,18 @@ class DesignedBatch:
 
     def candidate(self, i: int) -> Candidate:
         return self.cands[i]
+
+    @property
+    def y(self) -> np.ndarray:
+        return np.array([c.yield_est for c in self.cands])
+
+    @property
+    def cost(self) -> np.ndarray:
+        return np.array([c.cost for c in self.cands])
+
+    @property
+    def thd(self) -> np.ndarray:
+        return np.array([c.thd for c in self.cands])
 
 
 def _opamps(problem) -> list:
@@ -92,7 +104,7 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
                 if max(d.amp_v) > op.swing_v:
                     continue
                 for c in _placed(searcher, op, gf, d, kinds, k_ref, m_sigma, r_limits):
-                    if p.shelf is None or _on_shelf(c, p.shelf, spec.builds):
+                    if p.shelf is None or on_shelf(c, p.shelf, spec.builds):
                         out.append(c)
         if len({c.parts["opamp"] for c in out}) >= OPAMPS:
             break   # the next op-amp is tried only when the cheaper ones place nothing
@@ -152,14 +164,3 @@ def _placed(searcher, op, gf, d, kinds, k_ref: float, m_sigma, r_limits) -> list
             out.append(Candidate(sig, values, families, parts, kind, err, tuple(d.amp_v), d.amp_v[1], d.thd,
                                  margin, y, 0.0, d.amp_per_excess, 0.0, d.pull, simulated=True, control=d.control))
     return out
-
-
-def _on_shelf(c: Candidate, shelf, builds: int) -> bool:
-    """Whether the shelf holds every part of ``c`` for ``builds`` boards."""
-    uses: dict = {}
-    for role, v in c.values.items():
-        uses[(c.families[role], v)] = uses.get((c.families[role], v), 0) + 1
-    for part in c.parts.values():
-        uses[(part, None)] = uses.get((part, None), 0) + 1
-    return all((shelf.quantity(f) if v is None else shelf.quantity(f, v)) >= n * builds for (f, v), n in uses.items())
-

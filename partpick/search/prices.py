@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from partpick.circuits import periphery
 
 __all__ = ["PriceBook"]
 
@@ -100,10 +99,3 @@ class PriceBook:
             sel = opamps == fam
             ok[sel] &= packages[sel] * builds <= shelf.quantity(fam)
         return ok & (builds <= shelf.quantity(limiter))
-
-    def design_cost(self, values: dict, families: dict, parts: dict, stage: str) -> float:
-        """Cost per board of one design (row_costs for a single row)."""
-        op = self.catalog.find("opamps", parts["opamp"])
-        packages = -(-(self.channels + (1 if stage in periphery.BUFFERED else 0)) // op.channels)
-        columns = [(self.code(families[r]), v) for r, v in values.items()]
-        return float(self.row_costs(columns, np.array([parts["opamp"]]), np.array([packages]), parts["limiter"])[0])
