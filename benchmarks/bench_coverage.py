@@ -22,7 +22,7 @@ max whole-process design time as ratios to ``python -c pass`` and to importing
 ``partpick.cli``, measured in the same run. ``--relax`` also checks each refusal's
 advice (``refusal_advice.py``): relaxing what it names to the value it gives must design.
 
-Run: python benchmarks/bench_coverage.py [--set ordinary|wide] [--count N] [--seed S]
+Run: python benchmarks/bench_coverage.py [--set ordinary|wide|clean] [--count N] [--seed S]
      [--subset K] [--jobs 1] [--refusals DIR] [--store tests/data/coverage --force]
 """
 
@@ -52,7 +52,8 @@ sys.path.insert(0, str(HERE))
 if importlib.util.find_spec("partpick") is None:   # not installed: the checkout's own
     sys.path.insert(0, str(ROOT))
 
-from coverage_specs import (DEFAULT_COUNT, DEFAULT_SEED, ORDINARY_COUNT, ORDINARY_SEED, Requirement,  # noqa: E402
+from coverage_specs import (CLEAN_COUNT, CLEAN_SEED, DEFAULT_COUNT, DEFAULT_SEED, ORDINARY_COUNT, ORDINARY_SEED,
+                            Requirement, clean,  # noqa: E402
                             generate, ordinary)
 from refusal_advice import apply_advice, parse_refusal  # noqa: E402
 
@@ -400,8 +401,9 @@ def pick_subset(items: list, k: int) -> list:
 
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--set", choices=("ordinary", "wide"), default="ordinary",
-                    help="issue 11's ordinary requirements (default) or the wide 200+ spread")
+    ap.add_argument("--set", choices=("ordinary", "wide", "clean"), default="ordinary",
+                    help="issue 11's ordinary requirements (default), the wide 200+ spread, or clean tones "
+                         "(THD 0.01..0.3 %%, for the JFET control; the oracle designs diode limiters only)")
     ap.add_argument("--count", type=int, default=None, help="requirements to generate")
     ap.add_argument("--seed", type=int, default=None, help="generator seed")
     ap.add_argument("--subset", type=int, default=0, help="run K requirements spread over the set")
@@ -423,6 +425,8 @@ def main(argv: list[str] | None = None) -> int:
     log = lambda m: print(m, file=sys.stderr, flush=True)  # noqa: E731
     if args.set == "ordinary":
         reqs = ordinary(args.count or ORDINARY_COUNT, ORDINARY_SEED if args.seed is None else args.seed)
+    elif args.set == "clean":
+        reqs = clean(args.count or CLEAN_COUNT, CLEAN_SEED if args.seed is None else args.seed)
     else:
         reqs = generate(args.count or DEFAULT_COUNT, DEFAULT_SEED if args.seed is None else args.seed)
     reqs = pick_subset(reqs, args.subset)

@@ -37,7 +37,7 @@ if importlib.util.find_spec("partpick") is None:   # not installed: the checkout
     sys.path.insert(0, str(ROOT))
 
 __all__ = ["Requirement", "generate", "ordinary", "catalog_families", "DEFAULT_COUNT", "DEFAULT_SEED",
-           "ORDINARY_COUNT", "ORDINARY_SEED"]
+           "ORDINARY_COUNT", "ORDINARY_SEED", "clean", "CLEAN_COUNT", "CLEAN_SEED"]
 
 DEFAULT_COUNT = 220
 DEFAULT_SEED = 1
@@ -325,6 +325,31 @@ def ordinary(count: int = ORDINARY_COUNT, seed: int = ORDINARY_SEED) -> list[Req
         out.append(Requirement(name, "ordinary", _ordinary_text(
             name, f_hz, rng.choice((1, 2, 5)), rms, rng.choice((5, 10, 20)), r_load, kind, rail, rng_frac,
             rng.choice(((0, 50), (15, 35))), rng.choice((1, 2, 3, 5)), rng.choice((95, 99, None)))))
+    return out
+
+
+CLEAN_COUNT = 12
+CLEAN_SEED = 15
+CLEAN_THDS = (0.01, 0.02, 0.05, 0.1, 0.3)   # %: what a clean tone is asked at (common practice, no published source)
+
+
+def clean(count: int = CLEAN_COUNT, seed: int = CLEAN_SEED) -> list[Requirement]:
+    """Clean-tone requirements: the ordinary ranges of :func:`ordinary` on a dual
+    +/-12 or +/-15 V supply (the JFET control takes its reference from the rail), with
+    THD limits of 0.01..0.3 %, frequency 20 Hz..20 kHz, 0.3..3 Vrms, loads 1..100 kohm,
+    amplitude tolerance 2..10 %. A pure function of the seed."""
+    rng = random.Random(seed)
+    out = []
+    for i in range(1, count + 1):
+        f_hz = _round_to(ROUND_FREQS, _log_uniform(rng, 20.0, 20e3))
+        rail = rng.choice((12.0, 15.0))
+        rms = _round_sig(_log_uniform(rng, 0.3, 3.0), 2)
+        r_load = _round_to(E6, _log_uniform(rng, 1e3, 100e3))
+        name = f"clean-{i:03d}"
+        out.append(Requirement(name, "clean", _ordinary_text(
+            name, f_hz, rng.choice((1, 2)), rms, rng.choice((2, 5, 10)), r_load, "dual", rail,
+            rng.choice((0.0, 0.05)), rng.choice(((0, 50), (15, 35))), rng.choice(CLEAN_THDS),
+            rng.choice((95, 99)))))
     return out
 
 

@@ -122,12 +122,16 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         if problem.fallback and sum(r.verdict.passed for r in verified) >= n:
             break   # 'auto': the limiter gave the designs asked
         t_s = time.perf_counter()
-        pool = _Pool(phase())
+        pool = _Pool(phase(), _cost_first(rank_by), _hopeless(spec))
         searched += pool.size
         t_search += time.perf_counter() - t_s
         while len(verified) < budget:
             c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
-            if c is None or _certified(verified, c, pool, n, rank_by) or c.yield_est < _hopeless(spec):
+            if c is None or _certified(verified, c, pool, n, rank_by):
+                break
+            if c.yield_est < _hopeless(spec):
+                if pool.cost_first:
+                    continue   # (a cheaper candidate with a good yield may still follow)
                 break   # (the pool comes in yield order: what follows cannot pass either)
             verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
                                     problem, samples, seed + 1, fixed))
@@ -201,25 +205,43 @@ def _reach(problem: Problem) -> tuple[float, float]:
     return (min(x[0] for x in spans), max(x[1] for x in spans)) if spans else (math.nan, math.nan)
 
 
-class _Pool:
-    """The search's candidates in its order (Candidate.key), best first: every
-    configuration's best row from the batches, made into a Candidate only when it comes
-    up, then re-placed by the Monte Carlo model of its yield before it is taken."""
+def _cost_first(rank_by) -> bool:
+    """Whether the ranking puts cost before yield (the pool then comes in cost order)."""
+    keys = [k for k in rank_by if k in ("yield", "cost")]
+    return bool(keys) and keys[0] == "cost"
 
-    def __init__(self, batches) -> None:
+
+class _Pool:
+    """The search's candidates in its order (Candidate.key: estimated yield to
+    YIELD_STEP, then cost; cost first when the ranking puts it first, the candidates
+    whose estimated yield cannot pass left out), best first: every configuration's best
+    row from the batches, made into a Candidate only when it comes up, then re-placed by
+    the Monte Carlo model of its yield before it is taken."""
+
+    def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0) -> None:
         self.batches = batches
-        keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else []
+        self.cost_first = cost_first
+        keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else [np.zeros(0)] * 3
         src = np.concatenate([np.full(len(b), i) for i, b in enumerate(batches)]) if batches else np.zeros(0, int)
         row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
-        order = np.lexsort(tuple(reversed(keys))) if batches else np.zeros(0, int)
-        self.src, self.row = src[order], row[order]
         # each row's estimated yield, cost and THD, for the certification (_certified)
-        self.figures = [np.concatenate([np.asarray(getattr(b, f), float) for b in batches])[order] if batches
-                        else np.zeros(0) for f in ("y", "cost", "thd")]
+        figures = [np.concatenate([np.asarray(getattr(b, f), float) for b in batches]) if batches else np.zeros(0)
+                   for f in ("y", "cost", "thd")]
+        if cost_first:
+            keep = np.flatnonzero(figures[0] >= hopeless)
+            keys, src, row, figures = ([k[keep] for k in keys], src[keep], row[keep], [f[keep] for f in figures])
+            keys = [keys[1], keys[0], keys[2]]
+        order = np.lexsort(tuple(reversed(keys)))
+        self.src, self.row = src[order], row[order]
+        self.figures = [f[order] for f in figures]
         self.keys = [k[order] for k in keys]
         self.size = int(order.size)
         self.at = 0
         self.placed: list = []      # heap of (key, seq, simulated candidate)
+
+    def _key(self, c: Candidate) -> tuple:
+        k = c.key()
+        return (k[1], k[0], k[2]) if self.cost_first else k
 
     def _head_key(self) -> tuple | None:
         if self.at >= self.size:
@@ -242,7 +264,7 @@ class _Pool:
             if head is None:
                 return None
             c = simulate(self.batches[self.src[self.at]].candidate(int(self.row[self.at])))
-            heapq.heappush(self.placed, (c.key(), self.at, c))
+            heapq.heappush(self.placed, (self._key(c), self.at, c))
             self.at += 1
 
 
