@@ -57,9 +57,8 @@ REFUSED: dict[str, str] = {
                "passes check and ngspice",
 }
 DEARER: dict[str, str] = {
-    # (ord-002 and ord-005 were dearer through --rank-by cost until the certification judged every
-    # candidate left, not only the next in the search's order)
-    "ord-052": "on main f6274d0 partpick's cheapest is 2.054 USD, the oracle's passing BOM 1.984",
+    # (ord-002, ord-005 and ord-052 were dearer through --rank-by cost until the certification judged
+    # every candidate left and the pool came in cost order for a cost-first ranking)
 }
 
 
