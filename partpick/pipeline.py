@@ -118,9 +118,10 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     verified: list[Ranked] = []
     budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
     searched, t_search = 0, 0.0
-    for phase in _phases(spec, catalog, stock, problem, searcher, fixed, nearest is None):
-        if problem.fallback and sum(r.verdict.passed for r in verified) >= n:
-            break   # 'auto': the limiter gave the designs asked
+    for i, phase in enumerate(_phases(spec, catalog, stock, problem, searcher, fixed, nearest is None)):
+        if problem.fallback and i and (sum(r.verdict.passed for r in verified) >= n
+                                       or not _control_may_help(verified, spec)):
+            break   # 'auto': the limiter gave the designs asked, or failed where no control helps
         t_s = time.perf_counter()
         pool = _Pool(phase(), _cost_first(rank_by), _hopeless(spec))
         searched += pool.size
@@ -203,6 +204,25 @@ def _reach(problem: Problem) -> tuple[float, float]:
              for c_fam in problem.c_families]
     spans = [x for x in spans if all(map(math.isfinite, x))]
     return (min(x[0] for x in spans), max(x[1] for x in spans)) if spans else (math.nan, math.nan)
+
+
+_CONTROL_FIELDS = ("amplitude.target", "amplitude.tolerance", "distortion.max_thd", "settling.max")
+
+
+def _control_may_help(verified: list[Ranked], spec: Spec) -> bool:
+    """Whether another amplitude control could pass where the limiter's verified
+    candidates failed: one of them misses an amplitude, THD or settling requirement, or
+    its builds fail the yield on amplitude or THD (an amplitude control changes those,
+    not the frequency network, the startup or the op-amp's limits); True when none was
+    verified."""
+    if not verified:
+        return True
+    for r in verified:
+        if any(not ch.passed and ch.field in _CONTROL_FIELDS for ch in r.verdict.checks):
+            return True
+        if r.mc is not None and min(r.mc.share.get("amplitude", 1.0), r.mc.share.get("thd", 1.0)) < spec.yield_min_frac:
+            return True
+    return False
 
 
 def _cost_first(rank_by) -> bool:
