@@ -9,6 +9,7 @@ import pytest
 from click.testing import CliRunner
 
 from partpick.cli import main
+from partpick.errors import InfeasibleError
 from partpick.pipeline import design
 from partpick.physics.ngspice import ngspice_available, run_ngspice
 from partpick.physics.waveform import analyse
@@ -195,3 +196,26 @@ def test_quiet_verbose_and_report_flag(tmp_path):
     assert "time per stage: setup" in loud.output and "not considered:" in loud.output
     assert "\x1b[" not in loud.output  # no colour when not on a terminal
     assert 'id="verdict"' in rep.read_text(encoding="utf-8")
+
+
+def test_the_control_the_spec_names_is_the_one_designed(designs, demo_catalog):
+    # amplitude_control: jfet-agc (the clean-tone demo) gives JFET designs only, and
+    # the demo specs that leave it to auto and design with limiters stay with them:
+    # the JFET control is a fallback for what a limiter cannot meet (README, "How the
+    # search works"); the hand design it replaces cost 2.30 USD (README table).
+    clean = designs["clean-tone-1k"]
+    assert clean.passing and {r.bom.control for r in clean.ranked} == {"jfet-agc"}
+    assert clean.passing[0].cost < 2.30
+    assert clean.passing[0].thd <= 0.0005
+    for name in ("seismic-cal-20hz", "lvdt-exciter"):
+        assert {r.bom.control for r in designs[name].ranked} == {"diode-limiter"}
+
+
+def test_diode_only_never_proposes_a_jfet(demo_catalog):
+    text = (SPECS / "clean-tone-1k.yaml").read_text(encoding="utf-8")
+    spec = Spec.from_text(text.replace("amplitude_control: jfet-agc", "amplitude_control: diode")
+                          .replace("  jfets: [jf-n-gp]\n", "").replace("  diodes: [dd-si-signal]\n", ""), "x.yaml")
+    # a diode limiter bottoms out near 1 % THD (README, "A clean sine"): with the JFET
+    # control ruled out, 0.05 % must be refused, not designed with a JFET
+    with pytest.raises(InfeasibleError):
+        design(spec, demo_catalog, nearest=None)

@@ -30,7 +30,7 @@ import numpy as np
 from partpick.search.candidates import Candidate, on_shelf
 from partpick.search.enumerate import m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
-from partpick.search.tables import K_BIN
+from partpick.search.tables import K_BIN, STAGE_RATIO
 
 __all__ = ["DesignedBatch", "designed_batch", "OPAMPS", "THD_SPREAD"]
 
@@ -94,7 +94,7 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
     p = searcher.problem
     topo = p.topology
     spec = p.spec
-    kinds = [k for k in searcher.kinds if k in ("none", "follower")]
+    kinds = [k for k in searcher.kinds if k not in STAGE_RATIO]   # the stages of gain one
     k_ref = math.log(topo.reference_required_gain)
     out: list[Candidate] = []
     for op in _opamps(p):
@@ -103,7 +103,7 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
             for d in designs:
                 if max(d.amp_v) > op.swing_v:
                     continue
-                for c in _placed(searcher, op, gf, d, kinds, k_ref, m_sigma, r_limits):
+                for c in _placed(searcher, op, gf, d, kinds, k_ref):
                     if p.shelf is None or on_shelf(c, p.shelf, spec.builds):
                         out.append(c)
         if len({c.parts["opamp"] for c in out}) >= OPAMPS:
@@ -117,7 +117,7 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
     return DesignedBatch(sorted(best.values(), key=Candidate.key))
 
 
-def _placed(searcher, op, gf, d, kinds, k_ref: float, m_sigma, r_limits) -> list[Candidate]:
+def _placed(searcher, op, gf, d, kinds, k_ref: float) -> list[Candidate]:
     """Design ``d`` on the cheapest fitting arm set of every family pair, for each stage
     kind."""
     p = searcher.problem
