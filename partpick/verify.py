@@ -7,8 +7,7 @@ ends at mid supply. Each point is solved by harmonic balance when a limiter sets
 amplitude and the op-amp stays linear; otherwise (no limiter, clipping, slewing, current
 limit) by transient simulation of the full nonlinear circuit to its settled state.
 Part tolerances enter here only as the worst-case corner of the startup margin
-(the tolerance Monte Carlo is :mod:`partpick.tolerance`).
-"""
+(the tolerance Monte Carlo is :mod:`partpick.tolerance`)."""
 
 from __future__ import annotations
 
@@ -64,8 +63,7 @@ class OperatingPoint:
     capacitance C added across the control's element (Hz/F, NaN unless harmonic balance
     solved the point) and cap_eff_f: the capacitance that element presents to the
     fundamental (F); outputs: each further output of the topology (probe name ->
-    :class:`OutputPoint`). The op-amp figures are the worst of every channel.
-    """
+    :class:`OutputPoint`). The op-amp figures are the worst of every channel."""
 
     cond: Conditions
     lin: LinearResult
@@ -187,10 +185,12 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
     currents = tuple(f"iout:{a.name}" for a in loop.amps)
-    res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
-                   record=("osc", "load", *loop.outputs, *currents))
-    osc = res.stats("osc")
-    load = res.stats("load")
+    try:
+        res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
+                       record=("osc", "load", *loop.outputs, *currents))
+    except RuntimeError:   # no DC operating point to start from: not a circuit that runs here
+        res = None
+    osc, load = (res.stats("osc"), res.stats("load")) if res is not None else (None, None)
     if osc is None or load is None:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "transient", "no startup")
