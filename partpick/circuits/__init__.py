@@ -90,6 +90,8 @@ def _misfit(topo, spec) -> tuple[str, str] | None:
         if getattr(spec, key) is not None and not topo.outputs:
             return key, f"applies to a topology with a second output (quadrature); the {topo.title} has one"
     ctl = CONTROLS.get(_SPEC_CONTROLS.get(spec.amplitude_control, ""))
+    if ctl is not None and spec.supply.kind not in getattr(ctl, "supplies", SUPPLY_KINDS):
+        return "amplitude_control", f"'{spec.amplitude_control}' needs a {' or '.join(ctl.supplies)} supply"
     if ctl is not None and ctl.port not in topo.ports:
         return "amplitude_control", f"'{spec.amplitude_control}' needs a '{ctl.port}' port, which the {topo.title} " \
                                     f"lacks"

@@ -279,9 +279,9 @@ class _Build:
         self.drop = 0.0
         self.parts.pop("comp", None)
         self.vals.pop("agc_rc", None)
-        if _compensate(tgt):
+        i_c = float(det.junction.current(np.array([tgt.amp_v - mean]))[0]) if _compensate(tgt) else 0.0
+        if i_c > 0 and mean > 0:   # (an amplitude under the detector's drop leaves nothing to compensate)
             # D5 at the current that drops what the detector drops: they drift alike
-            i_c = float(det.junction.current(np.array([tgt.amp_v - mean]))[0])
             self.parts["comp"] = diode
             self.vals["agc_rc"] = nearest(self.rvals, mean / i_c)
             self.drop = tgt.amp_v - mean

@@ -132,7 +132,8 @@ def build_problem(spec: Spec, catalog: Catalog, stock=None) -> Problem:
     # the controls the spec lets the search use: the limiter, searched over its surface,
     # and those that design themselves through a hook; 'auto' tries the hooked ones when
     # the limiter does not give the designs asked (their first design costs seconds)
-    hooked = tuple(c for c in CONTROLS.values() if hasattr(c, "search_designs") and c.port in topo.ports)
+    hooked = tuple(c for c in CONTROLS.values() if hasattr(c, "search_designs") and c.port in topo.ports
+                   and spec.supply.kind in getattr(c, "supplies", (spec.supply.kind,)))
     choice = spec.amplitude_control
     designed = () if choice == "diode" else hooked if choice == "auto" else (CONTROLS[choice],)
     dropped: list[tuple[str, str]] = []
