@@ -126,7 +126,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         pool = _Pool(phase(), _cost_first(rank_by), _hopeless(spec))
         searched += pool.size
         t_search += time.perf_counter() - t_s
-        while len(verified) < budget:
+        start = len(verified)   # each phase has its own budget (a fallback must get its turn)
+        while len(verified) - start < budget:
             c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
             if c is None or _certified(verified, c, pool, n, rank_by):
                 break
