@@ -28,7 +28,7 @@ from dataclasses import replace
 import numpy as np
 
 from partpick.search.candidates import Candidate, on_shelf
-from partpick.search.enumerate import m_sigma, r_limits
+from partpick.search.enumerate import SIMPSON, m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
 from partpick.search.tables import K_BIN, STAGE_RATIO
 
@@ -37,7 +37,6 @@ __all__ = ["DesignedBatch", "designed_batch", "OPAMPS", "THD_SPREAD"]
 OPAMPS = 1            # op-amps the hook designs for (cheapest first) ...
 TRIES = 3             # ... out of at most this many tried
 THD_SPREAD = 0.3      # relative spread (1 sigma) of a designed control's THD over builds, assumed
-SIMPSON = (1 / 6, 4 / 6, 1 / 6)   # the temperature is uniform over the range: weights of min, nominal, max
 
 
 class DesignedBatch:

@@ -36,7 +36,7 @@ from partpick.search.problem import REF_T, Problem
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo
 from partpick.verify import package_limit
 
-__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits"]
+__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits", "SIMPSON"]
 
 M_GRID = np.geomspace(0.003, 0.2, 16)   # gain excesses (nepers) the feedback resistors are chosen for
 RG_TARGET = 10e3         # ohm: the gain network's level (see DEVELOPERS.md, search rules)
