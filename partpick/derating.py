@@ -45,8 +45,9 @@ RULES = (
          "the junction-temperature rule of any thermal-design text; the share is house practice"),
     Rule("unknown_package", 0.5, "power", "op-amp package limit when the catalog gives no thermal data",
          "common practice for SOIC-8 class packages at 70 degC ambient, no published source"),
-    Rule("thd_share", 0.8, "fraction",
-         "share of distortion.max_thd the search aims the nominal design at (the rest is spread)",
+    Rule("thd_share", 1.0, "fraction",
+         "share of distortion.max_thd a design's nominal THD may take (by the search's estimate; the Monte "
+         "Carlo yield judges the spread)",
          "partpick's choice, no published source"),
     Rule("output_current", 0.6, "fraction",
          "share of the op-amp's output current the search plans for (the rest is peaks and spread)",
@@ -63,7 +64,7 @@ class Derating:
     resistor_power: float = 0.5
     package_power: float = 1.0
     unknown_package: float = 0.5
-    thd_share: float = 0.8
+    thd_share: float = 1.0
     output_current: float = 0.6
     origin: tuple[tuple[str, str], ...] = ()
 

@@ -118,27 +118,46 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     verified: list[Ranked] = []
     budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
     searched, t_search = 0, 0.0
+    held: set = set()   # the configurations verified to pass: one design each is shown
+    tried: set = set()  # (signature, values) of every candidate verified
+    capped = False      # the last phase stopped on its budget
     for i, phase in enumerate(_phases(spec, catalog, stock, problem, searcher, fixed, nearest is None)):
-        if problem.fallback and i and (sum(r.verdict.passed for r in verified) >= n
-                                       or not _control_may_help(verified, spec)):
-            break   # 'auto': the limiter gave the designs asked, or failed where no control helps
+        passed = sum(r.verdict.passed for r in verified)
+        if problem.fallback and i and (passed >= n or (passed and capped) or not _control_may_help(verified, spec)):
+            break   # 'auto': the limiter gave the designs asked (or more than its budget shows), or
+            # failed where no control helps
         t_s = time.perf_counter()
-        pool = _Pool(phase(), _cost_first(rank_by), _hopeless(spec))
-        searched += pool.size
+        batches = phase()
         t_search += time.perf_counter() - t_s
         start = len(verified)   # each phase has its own budget (a fallback must get its turn)
-        while len(verified) - start < budget:
-            c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
-            if c is None or _certified(verified, c, pool, n, rank_by):
+        # a cost-first order that spends its budget on cheap candidates none of which passes
+        # is followed by the yield order, with a budget of its own (the spec designs, if
+        # not at the cheapest)
+        for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
+            pool = _Pool(batches, cost_first, _hopeless(spec))
+            searched += pool.size if cost_first or not _cost_first(rank_by) else 0
+            start_order = len(verified)
+            while len(verified) - start_order < budget:
+                c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
+                if c is None or _certified(verified, c, pool, n, rank_by):
+                    break
+                if c.yield_est < _hopeless(spec):
+                    if pool.cost_first:
+                        continue   # (a cheaper candidate with a good yield may still follow)
+                    break   # (the pool comes in yield order: what follows cannot pass either)
+                key = (c.signature, tuple(sorted(c.values.items())))
+                if c.signature in held or key in tried:
+                    continue   # its configuration passes already (at another impedance level)
+                tried.add(key)
+                verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
+                                        problem, samples, seed + 1, fixed))
+                if verified[-1].verdict.passed:
+                    held.add(c.signature)
+                if progress is not None:
+                    progress(len(verified), max(n, len(verified)))
+            capped = len(verified) - start_order >= budget
+            if any(r.verdict.passed for r in verified[start:]) or not capped:
                 break
-            if c.yield_est < _hopeless(spec):
-                if pool.cost_first:
-                    continue   # (a cheaper candidate with a good yield may still follow)
-                break   # (the pool comes in yield order: what follows cannot pass either)
-            verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
-                                    problem, samples, seed + 1, fixed))
-            if progress is not None:
-                progress(len(verified), max(n, len(verified)))
     t2 = time.perf_counter()
     timings["search"] = t_search
     timings["verify"] = t2 - t1 - t_search
@@ -159,8 +178,8 @@ def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Sea
     configurations, then the designs of the controls with a design hook (each phase a
     function, so that a phase not needed costs nothing)."""
     def surface():
-        return [b for lim in problem.limiters for gf in problem.r_families
-                if (b := searcher.configurations(lim, gf)) is not None]
+        return [b for lim in problem.limiters for gf in problem.r_families for r_gnd in searcher.levels(gf)
+                if (b := searcher.configurations(lim, gf, r_gnd)) is not None]
 
     def hooked():
         def cost(c: Candidate) -> float:
@@ -212,14 +231,17 @@ _CONTROL_FIELDS = ("amplitude.target", "amplitude.tolerance", "distortion.max_th
 
 def _control_may_help(verified: list[Ranked], spec: Spec) -> bool:
     """Whether another amplitude control could pass where the limiter's verified
-    candidates failed: one of them misses an amplitude, THD or settling requirement, or
-    its builds fail the yield on amplitude or THD (an amplitude control changes those,
-    not the frequency network, the startup or the op-amp's limits); True when none was
-    verified."""
+    candidates failed: one of them misses only amplitude, THD or settling requirements,
+    or its builds fail the yield on amplitude or THD (an amplitude control changes those,
+    not the frequency network, the startup or the op-amp's limits: a candidate that also
+    misses one of those does not count); True when none was verified."""
     if not verified:
         return True
     for r in verified:
-        if any(not ch.passed and ch.field in _CONTROL_FIELDS for ch in r.verdict.checks):
+        failed = {ch.field for ch in r.verdict.checks if not ch.passed}
+        if not failed <= {*_CONTROL_FIELDS, "yield.min"}:
+            continue   # (it fails where no amplitude control helps: clipping, startup, frequency, ...)
+        if failed & set(_CONTROL_FIELDS):
             return True
         if r.mc is not None and min(r.mc.share.get("amplitude", 1.0), r.mc.share.get("thd", 1.0)) < spec.yield_min_frac:
             return True

@@ -115,7 +115,9 @@ def rank(items: list[Ranked], rank_by: tuple[str, ...]) -> list[Ranked]:
     seen = set()
     unique = []
     for r in items:
-        sig = tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines)
+        # (the stage counts: a follower uses the package's spare channel, so its lines are the
+        # same as without one)
+        sig = (r.bom.stage, *((ln.role, ln.family, ln.value) for ln in r.bom.lines))
         if sig not in seen:
             seen.add(sig)
             unique.append(r)

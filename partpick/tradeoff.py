@@ -105,7 +105,7 @@ def tradeoff(spec: Spec, catalog: Catalog, *, stock=None, samples: int = 20_000,
     runs = _runs(spec, catalog)
 
     def add(r: Ranked, label: str) -> None:
-        key = tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines)
+        key = (r.bom.stage, *((ln.role, ln.family, ln.value) for ln in r.bom.lines))
         if key in found:
             found[key] = dataclasses.replace(found[key], source=found[key].source + "; " + label)
             return

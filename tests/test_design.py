@@ -32,8 +32,8 @@ def test_every_demo_spec_gets_passing_ranked_boms(designs, path):
     spec = Spec.from_yaml(path)
     assert d.ranked and d.ranked[0].verdict.passed
     assert len(d.ranked) <= spec.results
-    sigs = [tuple((ln.role, ln.family, ln.value) for ln in r.bom.lines) for r in d.ranked]
-    assert len(sigs) == len(set(sigs))  # distinct in at least one part value or family
+    sigs = [(r.bom.stage, *((ln.role, ln.family, ln.value) for ln in r.bom.lines)) for r in d.ranked]
+    assert len(sigs) == len(set(sigs))  # distinct in at least one part value, family or the output stage
     # every BOM value is a series value of its family, within its range (IEC 60063)
     from partpick import series
     from partpick.bom import ROLES

@@ -21,7 +21,7 @@ import pytest
 
 from partpick.cache import content_key, part_content, shipped_dir
 from partpick.circuits import CONTROLS, TOPOLOGIES, Conditions, balance, build_loop, linear
-from partpick.circuits.limiter_surface import F_SLICES, Planner, compute, surface, surface_at
+from partpick.circuits.limiter_surface import F_SLICES, LEVELS, Planner, compute, surface, surface_at
 from partpick.circuits.wien import circuit
 from partpick.physics.junction import wright_omega
 
@@ -38,19 +38,21 @@ def test_wright_omega_against_scipy():
 
 @pytest.mark.parametrize("topology", list(TOPOLOGIES))
 def test_shipped_tables_are_fresh(demo_catalog, topology):
-    # one slice recomputed: a change to the physics that the version key missed shows here
+    # one slice recomputed at the topology's lowest level: a change to the physics that
+    # the version key missed shows here
     lim = demo_catalog.find("limiters", "led-red")
     topo = TOPOLOGIES[topology]
-    shipped = surface(topo, lim, CTL, F_SLICES[2])
-    fresh = compute(topo, lim, CTL, F_SLICES[2])
+    level = min(topo.gain_levels)
+    shipped = surface(topo, lim, CTL, F_SLICES[2], level)
+    fresh = compute(topo, lim, CTL, F_SLICES[2], level)
     for name in ("vo", "thd", "pull"):
         a, b = getattr(shipped, name), fresh[name]
         assert np.array_equal(np.isnan(a), np.isnan(b)), name
         ok = ~np.isnan(a)
         assert np.allclose(a[ok], b[ok], rtol=1e-9, atol=1e-12), name
     # and every demo limiter's slices ship with the package
-    assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= (len(demo_catalog.limiters) * len(F_SLICES)
-                                                                            * len(TOPOLOGIES))
+    assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= (
+        len(demo_catalog.limiters) * len(F_SLICES) * sum(len(t.gain_levels) for t in TOPOLOGIES.values()))
 
 
 def test_cache_keys_follow_the_content_not_the_name(demo_catalog):
@@ -64,9 +66,10 @@ def test_cache_keys_follow_the_content_not_the_name(demo_catalog):
     assert content_key(part_content(lim, ignore)) != content_key(part_content(other, ignore))
 
 
-def _cases(demo_catalog, count=40, seed=7):
+def _cases(demo_catalog, count=40, seed=7, rg=10e3):
     """Random circuits the search could propose: unequal arms (K 2.6..3.5), gain
-    excess 0.5..15 %, Rd from none to 10 Rg, a real op-amp well above the frequency."""
+    excess 0.5..15 %, Rd from none to 10 Rg, a real op-amp well above the frequency,
+    the gain network at the level rg (ohm)."""
     rng = np.random.default_rng(seed)
     out = []
     ops = [o for o in demo_catalog.opamps if o.gbw_hz >= 3e6]
@@ -80,7 +83,6 @@ def _cases(demo_catalog, count=40, seed=7):
         rs, rp, cs, cp = r * math.sqrt(a), r / math.sqrt(a), c / math.sqrt(b), c * math.sqrt(b)
         k = 1 + rs / rp + cp / cs
         m = 10 ** rng.uniform(-2.3, -0.8)
-        rg = 10e3
         rf = rg * (k * math.exp(m) - 1)
         rd = 0.0 if rng.random() < 0.25 else rg * 10 ** rng.uniform(-1.5, 1.0)
         out.append((lim, op, rs, cs, rp, cp, rg, rf, rd))
@@ -88,15 +90,21 @@ def _cases(demo_catalog, count=40, seed=7):
 
 
 @pytest.mark.slow
-def test_surface_against_harmonic_balance(demo_catalog):
+@pytest.mark.parametrize("rg", [1e3, 1.8e3, 3.3e3, 5.6e3, 10e3])
+def test_surface_against_harmonic_balance(demo_catalog, rg):
     # At the conductance the loop needs (the linear analysis's marginal conductance):
     # amplitude within 6 % (median 1 %), THD within 20 % (median 5 %) where it is under
     # 10 %, frequency pull within 1 % (median 0.05 %), the accuracy the search's estimates rest on
     # (measured when the surrogate was built: 5.1 %, 0.2 %, 14 %, 1 %; the worst are
     # Schottky pairs at tens of mV and Zener pairs in their knee, where the amplitude
     # moves fast with the gain and yields are low anyway). Verification decides.
+    # Each impedance level of LEVELS (1k, 3.3k, 10k, 33k) has its own tables and holds
+    # these bounds (measured: amplitude 0.8-4.6 %, THD 3-8 %, pull 0.08-0.8 %); a level
+    # between two (1.8k, 5.6k, 18k) blends both, with THD within 40 % and pull within
+    # 2 % (measured 18-33 % and 0.3-1.4 %, medians 0.9 % and 0.05 %).
+    between = rg not in LEVELS
     amp_err, thd_err, pull_err = [], [], []
-    for lim, op, rs, cs, rp, cp, rg, rf, rd in _cases(demo_catalog):
+    for lim, op, rs, cs, rp, cp, _, rf, rd in _cases(demo_catalog, rg=rg):
         c = circuit(rs, cs, rp, cp, rg, rf, op, lim, rd_ohm=rd)
         cond = Conditions(15.0, 298.15, math.inf)
         loop = build_loop(c, cond)
@@ -118,13 +126,14 @@ def test_surface_against_harmonic_balance(demo_catalog):
         if hb.osc_thd < 0.10:
             thd_err.append(abs(ev["thd"][0] / hb.osc_thd - 1))
         pull_err.append(abs(ev["pull"][0] - math.log(hb.freq_hz / lin.marginal_hz)))
-    assert len(amp_err) >= 25
+    assert len(amp_err) >= 20
     assert max(amp_err) < 0.06 and np.median(amp_err) < 0.01, (max(amp_err), np.median(amp_err))
-    assert max(thd_err) < 0.20 and np.median(thd_err) < 0.05, (max(thd_err), np.median(thd_err))
+    assert max(thd_err) < (0.40 if between else 0.20) and np.median(thd_err) < 0.05, (max(thd_err), np.median(thd_err))
     # the pull read at the reference's gain excess (or, off the table, at the same
     # conductance): up to 0.8 % measured, median 0.02 %; the pipeline re-chooses the arms
     # with the pull exact physics measures (pipeline._refined)
-    assert max(pull_err) < 0.01 and np.median(pull_err) < 5e-4, (max(pull_err), np.median(pull_err))
+    assert max(pull_err) < (0.02 if between else 0.01), max(pull_err)
+    assert np.median(pull_err) < (1e-3 if between else 5e-4), np.median(pull_err)
 
 
 def test_blended_slices_are_blended_lookups(demo_catalog):

@@ -181,7 +181,8 @@ class Topology(Protocol):
     driving a load of its own: a quadrature oscillator's cosine 'load2'), output_labels
     and output_phase_rad (each further output's word in messages and its intended phase
     lead over the first, rad), input_note (how its op-amp inputs swing, for the
-    common-mode check's note).
+    common-mode check's note), gain_levels (the impedance levels, Rg in ohm, the
+    search puts the gain network at: the control's surrogate tables hold them).
 
     Search hooks (:mod:`partpick.search.enumerate`): ``network_table`` (every
     frequency-setting network of a family pair in a frequency window, as a
@@ -209,6 +210,7 @@ class Topology(Protocol):
     output_labels: dict
     output_phase_rad: dict
     input_note: str
+    gain_levels: tuple[float, ...]
 
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:
         """Textbook frequency over arrays of builds (role -> values), Hz."""

@@ -5,8 +5,9 @@ carries it to other temperatures.
 Two numbers fix the steady state of a limiter branch on a given network: the series
 resistor rd and the conductance g the branch must supply on average for the loop gain
 to be one (the linear analysis's ``marginal_g_s``). The table holds, over r = rd / Rg
-and x = g Rg on the reference network (the topology's equal-arm network with
-Rg = 10 kohm, an ideal op-amp, 25 degC) at a few frequencies F_SLICES, the output
+and x = g Rg on the reference network (the topology's equal-arm network with Rg at one
+of the impedance levels LEVELS, an ideal op-amp, 25 degC) at a few frequencies
+F_SLICES, the output
 peak, the THD and the frequency pull that harmonic balance finds
 (:func:`partpick.physics.harmonic.harmonic_balance`, the same solver verification
 uses; the pull includes what the junction capacitance does, which grows with
@@ -15,9 +16,13 @@ in frequency between slices (capacitive effects grow in proportion to frequency 
 they are small); at another temperature the output is scaled by the ratio of the
 branch's describing-function amplitudes (Gelb and Vander Velde, Multiple-Input
 Describing Functions, 1968) at that temperature and at 25 degC, which moves with the
-junction's forward voltage. A slice depends only on the part, the topology and its
-frequency, so it is computed when first needed and cached in the user's cache folder
-(:mod:`partpick.cache`).
+junction's forward voltage. A junction is not scale-free (its voltage grows with the
+current a lower impedance level drives through it), so each level has its own tables;
+a gain network between levels reads the two around it, each carried to the network's
+own rd and g by the same describing-function ratio, and blends them in ln Rg. A slice depends only on
+the part, the topology, its level and its frequency, so it is computed when first
+needed and cached in the user's cache folder (:mod:`partpick.cache`); the demo parts'
+are shipped.
 
 Accuracy against direct harmonic balance on the reference is checked in
 tests/test_limiter_surface.py over the range the search uses.
@@ -38,11 +43,15 @@ from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import ideal_opamp
 
 __all__ = ["Surface", "surface", "compute", "ship", "df_table", "compute_df", "DF_T", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
-           "F_SLICES"]
+           "F_SLICES", "LEVELS", "level_of"]
 
 R_GRID = np.concatenate([[0.0], np.geomspace(0.01, 40.0, 25)])    # rd / Rg
 X_GRID = np.geomspace(3e-4, 0.32, 24)                               # Rg * conductance needed
-REF_RG = 10e3          # ohm
+REF_RG = 10e3          # ohm: the default level
+LEVELS = (1e3, 3.3e3, 10e3)   # ohm: the impedance levels (Rg) tabulated, a half decade apart
+# ln Rg this close to a level reads its tables as they are: a junction's voltage moves by
+# n Vt ln(1.05), about 2.5 mV of some 500 mV, across it
+AT_LEVEL = 0.05
 REF_T = 298.15         # K
 F_SLICES = (200.0, 1e3, 3e3, 10e3, 30e3, 100e3, 300e3)   # Hz: the frequencies the surface is solved at
 _R0 = 2e-3             # r axis offset, so r = 0 sits on the log axis
@@ -107,41 +116,48 @@ def _bilinear(z: np.ndarray, at) -> np.ndarray:
     return np.where(outside, np.nan, out)
 
 
-def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float, start=None):
-    """Harmonic balance of the reference network at f_hz (Hz) with branch rd (ohm)
-    asked to supply x / REF_RG (S)."""
+def level_of(rg_ohm: float) -> float:
+    """The tabulated level (LEVELS, ohm) nearest rg_ohm on a log scale."""
+    return min(LEVELS, key=lambda lv: abs(math.log(rg_ohm / lv)))
+
+
+def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float, start=None, rg: float = REF_RG):
+    """Harmonic balance of the reference network at f_hz (Hz), gain network at the
+    level rg (ohm), with branch rd (ohm) asked to supply x / rg (S)."""
     from partpick.circuits import Conditions, build_loop
 
-    gv = topology.reference_gain_values(REF_RG, x / REF_RG)
+    gv = topology.reference_gain_values(rg, x / rg)
     c = topology.reference(f_hz, gv, ideal_opamp(), control.name, {"limiter": lim}, {"rd": rd})
     cond = Conditions(1e3, REF_T, math.inf)
     loop = build_loop(c, cond)
     br = control.branch(c, cond.temp_k)
     # the reference's linear facts are known: it oscillates at f0 and the branch must
     # supply x / Rg; harmonic balance only takes them as its starting point
-    if x / REF_RG <= br.g0_s / (1.0 + rd * br.g0_s) * 1.001:
+    if x / rg <= br.g0_s / (1.0 + rd * br.g0_s) * 1.001:
         return None  # the branch's own leakage already takes the gain excess: no oscillation
-    lin = LinearResult((), True, 1.0, f_hz, 0.0, f_hz, f_hz, x / REF_RG)
+    lin = LinearResult((), True, 1.0, f_hz, 0.0, f_hz, f_hz, x / rg)
     hb = harmonic_balance(loop, br, lin, cond.rails("dual"), kmax=11, start=start, escalate=1)
     # a solution that collapsed to (almost) nothing is the trivial one, not an oscillation
     ok = hb is not None and hb.converged and hb.regime == "limiter" and hb.osc_peak_v > 1e-4
     return hb if ok else None
 
 
-def compute(topology, lim, control, f_hz: float) -> dict[str, np.ndarray]:
+def compute(topology, lim, control, f_hz: float, rg: float = REF_RG) -> dict[str, np.ndarray]:
+    """The surface's arrays (see Surface) at f_hz (Hz) and the level rg (ohm), by
+    harmonic balance at every grid point."""
     shape = (R_GRID.size, X_GRID.size)
     vo, thd, pull = (np.full(shape, np.nan) for _ in range(3))
     for a, r in enumerate(R_GRID):
         prev = None
         for b, x in enumerate(X_GRID):
-            hb = _reference_balance(topology, lim, r * REF_RG, x, control, f_hz, prev)
+            hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, prev, rg)
             if hb is None and prev is not None:
-                hb = _reference_balance(topology, lim, r * REF_RG, x, control, f_hz)
+                hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, rg=rg)
             prev = hb
             if hb is not None:
                 vo[a, b] = hb.osc_peak_v * (1 - x * r)
                 thd[a, b], pull[a, b] = hb.osc_thd, math.log(hb.freq_hz / f_hz)
-    a_df = df_amplitude(lim, R_GRID[:, None] * REF_RG, X_GRID[None, :] / REF_RG, REF_T)
+    a_df = df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, REF_T)
     return {"vo": vo, "thd": thd, "pull": pull, "a_df": a_df}
 
 
@@ -151,34 +167,41 @@ _NOT_PHYSICS = ("id", "description", "vf_spread_v", "parts", "package", "price_u
                 "maker_part")
 
 
-def _key(topology, lim, f_hz: float) -> str:
-    return content_key("limiter-surface-3", topology.name, part_content(lim, _NOT_PHYSICS), REF_RG, REF_T, f_hz,
+def _key(topology, lim, f_hz: float, rg: float = REF_RG) -> str:
+    return content_key("limiter-surface-3", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
                        R_GRID.tolist(), X_GRID.tolist())
 
 
+def _df_key(lim, rg: float = REF_RG) -> str:
+    return content_key("limiter-df-2", part_content(lim, _NOT_PHYSICS), rg, R_GRID.tolist(), X_GRID.tolist(),
+                       DF_T.tolist())
+
+
 @functools.lru_cache(maxsize=256)
-def surface(topology, lim, control, f_hz: float = F_SLICES[0]) -> Surface:
-    """The limiter part's surface on the topology at one frequency of F_SLICES (shipped
-    with the package for the demo parts, else computed once and cached on disk)."""
-    key = _key(topology, lim, f_hz)
+def surface(topology, lim, control, f_hz: float = F_SLICES[0], rg: float = REF_RG) -> Surface:
+    """The limiter part's surface on the topology at one frequency of F_SLICES and one
+    level of LEVELS (ohm) (shipped with the package for the demo parts, else computed
+    once and cached on disk)."""
+    key = _key(topology, lim, f_hz, rg)
     arrays = load_arrays("limiter-surface", key)
     if arrays is None or set(arrays) != {"vo", "thd", "pull", "a_df"}:
-        arrays = compute(topology, lim, control, f_hz)
+        arrays = compute(topology, lim, control, f_hz, rg)
         store_arrays("limiter-surface", key, arrays)
     return Surface(arrays["vo"], arrays["thd"], arrays["pull"], arrays["a_df"])
 
 
 @functools.lru_cache(maxsize=256)
-def surface_at(topology, lim, control, f_hz: float) -> Surface:
-    """The surface at f_hz (Hz): the lowest slice below it, else the two slices around
-    it blended linearly in frequency (output and THD on their log axes, as the lookup
-    interpolates them, so blending the tables is blending the lookups)."""
+def surface_at(topology, lim, control, f_hz: float, rg: float = REF_RG) -> Surface:
+    """The surface at f_hz (Hz) and level rg (ohm, one of LEVELS): the lowest slice
+    below it, else the two slices around it blended linearly in frequency (output and
+    THD on their log axes, as the lookup interpolates them, so blending the tables is
+    blending the lookups)."""
     if f_hz <= F_SLICES[0]:
-        return surface(topology, lim, control, F_SLICES[0])
+        return surface(topology, lim, control, F_SLICES[0], rg)
     i = min(int(np.searchsorted(F_SLICES, f_hz)), len(F_SLICES) - 1)
     lo, hi = F_SLICES[i - 1], F_SLICES[i]
     t = min((f_hz - lo) / (hi - lo), 1.0)
-    a, b = surface(topology, lim, control, lo), surface(topology, lim, control, hi)
+    a, b = surface(topology, lim, control, lo, rg), surface(topology, lim, control, hi, rg)
     with np.errstate(divide="ignore", invalid="ignore"):
         return Surface(np.exp((1 - t) * np.log(a.vo) + t * np.log(b.vo)),
                        np.exp((1 - t) * np.log(a.thd) + t * np.log(b.thd)),
@@ -220,24 +243,23 @@ DF_T = np.arange(213.15, 443.16, 10.0)   # K: the temperatures the describing-fu
 
 
 @functools.lru_cache(maxsize=64)
-def df_table(lim) -> np.ndarray:
+def df_table(lim, rg: float = REF_RG) -> np.ndarray:
     """ln of the describing-function amplitude (df_amplitude) of the pair behind
-    rd = R_GRID x REF_RG asked for g = X_GRID / REF_RG, at every temperature of DF_T:
-    array (DF_T, R_GRID, X_GRID); NaN where the branch cannot supply g. Shipped for the
-    demo parts and cached by content like the surface."""
-    key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
-                      DF_T.tolist())
+    rd = R_GRID x rg asked for g = X_GRID / rg (rg: a level of LEVELS, ohm), at every
+    temperature of DF_T: array (DF_T, R_GRID, X_GRID); NaN where the branch cannot
+    supply g. Shipped for the demo parts and cached by content like the surface."""
+    key = _df_key(lim, rg)
     arrays = load_arrays("limiter-df", key)
     if arrays is None or "ln_a" not in arrays:
-        arrays = {"ln_a": compute_df(lim)}
+        arrays = {"ln_a": compute_df(lim, rg)}
         store_arrays("limiter-df", key, arrays)
     return arrays["ln_a"]
 
 
-def compute_df(lim) -> np.ndarray:
+def compute_df(lim, rg: float = REF_RG) -> np.ndarray:
     """The table df_table holds, computed."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.stack([np.log(df_amplitude(lim, R_GRID[:, None] * REF_RG, X_GRID[None, :] / REF_RG, float(t)))
+        return np.stack([np.log(df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, float(t)))
                          for t in DF_T])
 
 
@@ -254,7 +276,11 @@ class Planner:
     it predicts, for every Rd choice, the output peak at each temperature, the THD, the
     harmonic pull and their slopes in the gain excess, from the surface.
 
-    choices: Rd values (ohm), 0 first (the pair straight across the port).
+    choices: Rd values (ohm), 0 first (the pair straight across the port); rg: the
+    gain network's level (Rg, ohm): read on the tables of that level of LEVELS, or
+    between two levels on both, blended linearly in ln Rg (each level's output carried
+    to the real rd and g by the describing-function ratio); beyond the levels, on the
+    nearest one with that ratio.
     """
 
     def __init__(self, topology, lim, control, rd_values, temps_k, f_hz: float, rg_ohm: float = REF_RG) -> None:
@@ -262,15 +288,28 @@ class Planner:
         self.topology = topology
         # output per port amplitude on the reference (the Wien bridge's 1.5 at gain 3)
         self.osc_ref = float(topology.osc_per_port_k(np.asarray(topology.reference_required_gain, float)))
-        self.surface = surface_at(topology, lim, control, f_hz)
+        self.level = level_of(rg_ohm)
         self.choices = np.concatenate([[0.0], np.asarray(rd_values, float)])
         self.temps_k = tuple(float(t) for t in temps_k)
         self.rg = rg_ohm
-        table = df_table(lim)
+        lv = sorted(LEVELS)
+        k = int(np.searchsorted(lv, rg_ohm))
+        # within AT_LEVEL of a level (a value of the family nearest it) the level's own
+        # tables serve as they are
+        self.scaled = abs(math.log(rg_ohm / self.level)) > AT_LEVEL
+        if not self.scaled or k in (0, len(lv)):
+            weights = {self.level: 1.0}
+        else:
+            t = math.log(rg_ohm / lv[k - 1]) / math.log(lv[k] / lv[k - 1])
+            weights = {lv[k - 1]: 1.0 - t, lv[k]: t}
+        self._tables = []
+        with np.errstate(divide="ignore", invalid="ignore"):
+            for level, w in weights.items():
+                sf = surface_at(topology, lim, control, f_hz, level)
+                self._tables.append((w, np.log(sf.vo), np.log(sf.thd), sf.pull, np.log(sf.a_df)))
+        table = df_table(lim, self.level)
         ref = _df_at(table, REF_T)
         self._df_shift = [_df_at(table, t) - ref for t in self.temps_k]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            self._ln_vo, self._ln_thd = np.log(self.surface.vo), np.log(self.surface.thd)
 
     def _lookup(self, rd, g, vo: bool, thd: bool, pull: bool):
         """What Surface.lookup gives, only the fields asked for (None for the others)."""
@@ -278,11 +317,15 @@ class Planner:
         out_vo = out_thd = out_pull = None
         if vo:
             q = np.asarray(g, float) * np.asarray(rd, float)
-            out_vo = np.exp(_bilinear(self._ln_vo, at)) / np.where(q < 1, 1 - q, np.nan)
+            ln_vo = sum(w * _bilinear(t[0], at) for w, *t in self._tables)
+            if self.scaled:
+                ln_vo = ln_vo + np.log(df_amplitude(self.lim, rd, g, REF_T)) - sum(w * _bilinear(t[3], at)
+                                                                                    for w, *t in self._tables)
+            out_vo = np.exp(ln_vo) / np.where(q < 1, 1 - q, np.nan)
         if thd:
-            out_thd = np.exp(_bilinear(self._ln_thd, at))
+            out_thd = np.exp(sum(w * _bilinear(t[1], at) for w, *t in self._tables))
         if pull:
-            out_pull = _bilinear(self.surface.pull, at)
+            out_pull = sum(w * _bilinear(t[2], at) for w, *t in self._tables)
         return out_vo, out_thd, out_pull
 
     def thd(self, g_s: np.ndarray, thd_scale=1.0) -> np.ndarray:
@@ -336,7 +379,7 @@ class Planner:
             # the output at another temperature: scaled by the ratio of the branch's
             # describing-function amplitudes there and at 25 degC (the table, in the
             # branch's own units: rd and g as they are)
-            at = _coords(rd, g, REF_RG)
+            at = _coords(rd, g, self.level)
             for i, t in enumerate(self.temps_k):
                 ratio = 1.0 if t == REF_T else np.exp(_bilinear(self._df_shift[i], at))
                 out[f"vo{i}"] = vo * scale * ratio
@@ -358,13 +401,12 @@ def ship(catalog_dir: str) -> int:
         if not hasattr(topology, "reference_gain_values"):
             continue  # no reference network to tabulate on
         for lim in catalog.limiters:
-            key = content_key("limiter-df-1", part_content(lim, _NOT_PHYSICS), R_GRID.tolist(), X_GRID.tolist(),
-                              DF_T.tolist())
-            store_arrays("limiter-df", key, {"ln_a": compute_df(lim)}, root=shipped_dir())
-            for f_hz in F_SLICES:
-                store_arrays("limiter-surface", _key(topology, lim, f_hz), compute(topology, lim, control, f_hz),
-                             root=shipped_dir())
-                n += 1
+            for rg in topology.gain_levels:
+                store_arrays("limiter-df", _df_key(lim, rg), {"ln_a": compute_df(lim, rg)}, root=shipped_dir())
+                for f_hz in F_SLICES:
+                    store_arrays("limiter-surface", _key(topology, lim, f_hz, rg),
+                                 compute(topology, lim, control, f_hz, rg), root=shipped_dir())
+                    n += 1
     return n
 
 

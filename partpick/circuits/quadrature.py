@@ -442,6 +442,7 @@ class Quadrature:
         return np.ones_like(np.asarray(k_eff, float))
 
     reference_required_gain = 2.0   # what the reference (equal integrators, unity inverter) needs
+    gain_levels = (REF_RG,)         # Rg, ohm: thd_transfer is referred to the reference's own Rq
 
     def reference_conductance(self, m: np.ndarray, rg: float) -> np.ndarray:
         """Conductance the branch supplies on the reference (gain 2) at gain excess m

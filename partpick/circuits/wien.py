@@ -21,6 +21,7 @@ import numpy as np
 
 from partpick.circuits import periphery
 from partpick.circuits.base import STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot
+from partpick.circuits.limiter_surface import LEVELS
 from partpick.circuits.options import (NetTable, sigma, values_of)
 from partpick.physics.loop import AmpProbe, Loop
 from partpick.physics.netlist import Capacitor, OpAmpX, Resistor
@@ -326,6 +327,7 @@ class WienBridge:
         return k_eff / (k_eff - 1.0)
 
     reference_required_gain = 3.0   # what the equal-arm reference network needs
+    gain_levels = LEVELS            # Rg, ohm: the limiter's tables hold each (limiter_surface)
 
     def reference_conductance(self, m: np.ndarray, rg: float) -> np.ndarray:
         """Conductance the branch supplies on the equal-arm reference (gain 3) at gain

@@ -56,6 +56,7 @@ class Batch:
     searcher: object   # the Searcher whose tables the rows index
     lim: object
     gf: object
+    r_gnd: float          # the gain network's fixed resistor, ohm
     groups: list
     group: np.ndarray
     pair: np.ndarray
@@ -89,9 +90,9 @@ class Batch:
         rfa, cfa, table = s.pairs[self.pair[i]][:3]
         values = dict(zip(table.roles, (float(v) for v in self.vals[i])))
         families = dict(zip(table.roles, table.families))
-        for role, v in topo.gain_values(s.amp_rg(self.lim, self.gf), float(self.r_fb[i])).items():
+        for role, v in topo.gain_values(self.r_gnd, float(self.r_fb[i])).items():
             values[role], families[role] = float(v), self.gf.id
-        r_ser = float(s.rd_choices(self.lim, self.gf)[self.ird[i]])
+        r_ser = float(s.rd_choices(self.lim, self.gf, self.r_gnd)[self.ird[i]])
         if r_ser > 0:
             role = s.problem.control.series_role
             values[role], families[role] = r_ser, self.gf.id

@@ -16,7 +16,8 @@ candidate's BOM); verification decides.
 Designing a control costs one to several seconds of physics the first time (its hook
 caches by content), so the search bounds what it asks the hook for: the cheapest
 screened op-amp with two or more channels (the control takes one for its integrator)
-whose designs fit an arm set (the next two tried in price order when not)
+whose designs fit an arm set (the next two tried in price order when its designs fit
+none; none when the rule designs nothing for the cheapest)
 and one gain family (:func:`_gain_families`); every allowed JFET, both gate networks.
 """
 
@@ -30,6 +31,7 @@ import numpy as np
 from partpick.search.candidates import Candidate, on_shelf
 from partpick.search.enumerate import SIMPSON, m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
+from partpick.circuits.jfet_design import THD_AIM
 from partpick.search.tables import K_BIN, STAGE_RATIO
 
 __all__ = ["DesignedBatch", "designed_batch", "OPAMPS", "THD_SPREAD"]
@@ -97,16 +99,23 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
     k_ref = math.log(topo.reference_required_gain)
     out: list[Candidate] = []
     for op in _opamps(p):
+        if p.amp_v > op.swing_v:
+            continue   # the stages are of gain one: the oscillator would have to swing the load's peak
+        made = 0
         for gf in _gain_families(p):
             designs = ctl.search_designs(spec, p.catalog, topo, searcher.f_t, gf, p.temps_k, opamp=op.opamp)
+            made += len(designs)
             for d in designs:
                 if max(d.amp_v) > op.swing_v:
                     continue
                 for c in _placed(searcher, op, gf, d, kinds, k_ref):
                     if p.shelf is None or on_shelf(c, p.shelf, spec.builds):
                         out.append(c)
-        if len({c.parts["opamp"] for c in out}) >= OPAMPS:
-            break   # the next op-amp is tried only when the cheaper ones place nothing
+        if len({c.parts["opamp"] for c in out}) >= OPAMPS or not made:
+            break   # the next op-amp is tried only when the cheaper ones' designs fit no arm set
+            # (not when the rule designs nothing at all: a bound on the seconds each design
+            # costs, for a refusal's sake; there the target or the JFETs bind more often than
+            # the op-amp)
     if not out:
         return None
     priced = [replace(c, cost=bom_cost(c)) for c in out]
@@ -155,7 +164,7 @@ def _placed(searcher, op, gf, d, kinds, k_ref: float) -> list[Candidate]:
                         for a, w in zip(d.amp_v, SIMPSON))
         y = (float(frequency_share(np.array([err]), table.sigma_lnf, drift, p.tol_f)[0]) * float(phi(margin / s_m))
              * float(below_share(np.array([d.thd]), np.array([THD_SPREAD * d.thd]), p.thd_max)[0]) * amp_share)
-        if not math.isfinite(y) or y <= 0 or d.thd > p.thd_aim:
+        if not math.isfinite(y) or y <= 0 or d.thd > THD_AIM * p.thd_aim:   # (what its design rule aims at)
             continue
         for kind in kinds:
             sig = (op.id, d.control + ":" + parts.get("jfet", ""), rfa.id, cfa.id, gf.id, kind, "",

@@ -4,13 +4,15 @@ A configuration is what a buyer tells designs apart by: the op-amp, the limiter 
 the resistor family of the arms, the capacitor family, the resistor family of the gain
 network, the output stage kind and its resistor family. Within one, the values are
 chosen jointly: every arm set of the family pair in the frequency window (the
-topology's table, nothing pruned), every feedback resistor of the gain family that puts
-the gain excess where the loop can use it, every series resistor Rd of a log grid of
-the family, and the stage pair whose ratio is nearest the one that centres the
-amplitude over temperature.
+topology's table, nothing pruned), the gain network at each of the topology's
+impedance levels (Rg the family's value nearest each of ``gain_levels``: a junction
+limiter is not scale-free, so the level moves the amplitude and the THD), every
+feedback resistor of the gain family that puts the gain excess where the loop can use
+it, every series resistor Rd of a log grid of the family, and the stage pair whose
+ratio is nearest the one that centres the amplitude over temperature.
 
 The amplitude side (Rf, Rd, stage) depends on the arms only through their required
-gain K, so it is scored once per (op-amp, limiter, gain family) on a fixed grid of K
+gain K, so it is scored once per (op-amp, limiter, gain family, level) on a fixed grid of K
 bins (0.4 % wide); each bin's best choices are then matched with the cheapest arm set
 of that bin whose frequency, with the op-amp's and the limiter's pull, lands within the
 frequency resolution of the target (a range-minimum query over the arm sets sorted by
@@ -39,7 +41,6 @@ from partpick.verify import package_limit
 __all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits", "SIMPSON"]
 
 M_GRID = np.geomspace(0.003, 0.2, 16)   # gain excesses (nepers) the feedback resistors are chosen for
-RG_TARGET = 10e3         # ohm: the gain network's level (see DEVELOPERS.md, search rules)
 RD_GRID = 24             # series resistor values per limiter, log-spaced from the family
 M_RANGE = (0.002, 0.25)  # nepers of gain excess the amplitude side considers
 SIMPSON = (1 / 6, 4 / 6, 1 / 6)   # the temperature is uniform over the range: weights of min, nominal, max
@@ -94,8 +95,8 @@ class Searcher:
 
     def _build_pairs(self) -> list:
         problem, price = self.problem, self.price
-        pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families
-                 if (a := self._amp_side(lim, gf)) is not None and a["pull"].size]
+        pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families for r_gnd in self.levels(gf)
+                 if (a := self._amp_side(lim, gf, r_gnd)) is not None and a["pull"].size]
         op_pull = [op.pull for op in problem.ops] or [0.0]
         row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
         row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
@@ -122,31 +123,32 @@ class Searcher:
                 pairs.append((rfa, cfa, table, index, drift, best))
         return pairs
 
-    def groups(self):
-        """(op, limiter, gain family) triples to search."""
+    def levels(self, gf) -> list[float]:
+        """The gain network's fixed resistors (Rg, ohm) searched with gain family gf: the
+        family's (shelf's) value nearest each of the topology's impedance levels."""
         p = self.problem
-        return [(op, lim, gf) for op in p.ops for lim in p.limiters for gf in p.r_families]
+        gvals = np.array(values_of(gf, p.shelf))
+        return sorted({nearest(gvals, lv) for lv in p.topology.gain_levels}) if gvals.size else []
 
-    def _amp_side(self, lim, gf):
-        """The amplitude side of one limiter and gain family on the grid of required
-        gains K_eff (op-amp loss included): for each bin, the feedback resistors nearest
-        a log grid of gain excesses, each with every Rd of the planner. Arrays over the
-        rows (bin, Rf, Rd) that can meet the THD limit with the loop starting, sorted by
-        bin; shared by every op-amp."""
-        key = (lim.id, gf.id)
+    def _amp_side(self, lim, gf, r_gnd: float):
+        """The amplitude side of one limiter and gain family with the fixed resistor r_gnd (ohm) on the
+        grid of required gains K_eff (op-amp loss included): for each bin, the feedback
+        resistors nearest a log grid of gain excesses, each with every Rd of the
+        planner. Arrays over the rows (bin, Rf, Rd) that can meet the THD limit with the
+        loop starting, sorted by bin; shared by every op-amp."""
+        key = (lim.id, gf.id, r_gnd)
         if key not in self._amp:
             p = self.problem
-            self._amp[key] = memo(("amp", p.topology.name, self.all_outputs, lim, gf, p.shelf, self.f_t, p.temps_k,
-                                    p.thd_aim, self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf))
+            self._amp[key] = memo(("amp", p.topology.name, self.all_outputs, lim, gf, r_gnd, p.shelf, self.f_t,
+                                   p.temps_k, p.thd_aim, self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf, r_gnd))
         return self._amp[key]
 
-    def _amp_rows(self, lim, gf):
+    def _amp_rows(self, lim, gf, r_gnd: float):
         p = self.problem
         topo, ctl = p.topology, p.control
         gvals = np.array(values_of(gf, p.shelf))
         if gvals.size == 0:
             return None
-        r_gnd = nearest(gvals, RG_TARGET)
         rd_pool = gvals[(gvals >= 0.003 * r_gnd) & (gvals <= 30 * r_gnd)]
         if rd_pool.size > RD_GRID:
             rd_pool = np.unique(rd_pool[np.round(np.linspace(0, rd_pool.size - 1, RD_GRID)).astype(int)])
@@ -179,31 +181,27 @@ class Searcher:
                "vf_rel": ctl.amplitude_spread_of(lim, p.temps_k[1])}
         return amp
 
-    def amp_rg(self, lim, gf) -> float:
-        """The gain network's fixed resistor of a limiter and gain family, ohm."""
-        return self._amp_side(lim, gf)["r_gnd"]
+    def rd_choices(self, lim, gf, r_gnd: float) -> np.ndarray:
+        """The series resistors (ohm, 0 first) a limiter, gain family and level's rows index."""
+        return self._amp_side(lim, gf, r_gnd)["planner"].choices
 
-    def rd_choices(self, lim, gf) -> np.ndarray:
-        """The series resistors (ohm, 0 first) a limiter and gain family's rows index."""
-        return self._amp_side(lim, gf)["planner"].choices
-
-    def _stage_of(self, lim, gf, kind, sf):
-        """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter and gain
-        family (cached for this spec's load and amplitude)."""
-        key = (lim.id, gf.id, kind, sf.id)
+    def _stage_of(self, lim, gf, r_gnd, kind, sf):
+        """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter, gain
+        family and level (cached for this spec's load and amplitude)."""
+        key = (lim.id, gf.id, r_gnd, kind, sf.id)
         if key not in self._stages:
-            self._stages[key] = self._stage(kind, sf, self._amp_side(lim, gf)["vo"])
+            self._stages[key] = self._stage(kind, sf, self._amp_side(lim, gf, r_gnd)["vo"])
         return self._stages[key]
 
-    def _choices(self, op, lim, gf):
+    def _choices(self, op, lim, gf, r_gnd):
         """The amplitude side's best rows per K bin for each stage kind and stage
         family, for one op-amp (cached): (kind, stage family, rows, the arms' K bins,
         stage ratio, Ra, Rb)."""
-        key = (op.id, lim.id, gf.id)
+        key = (op.id, lim.id, gf.id, r_gnd)
         if key in self._ch:
             return self._ch[key]
         p = self.problem
-        amp = self._amp_side(lim, gf)
+        amp = self._amp_side(lim, gf, r_gnd)
         out = []
         if amp is None or amp["m"].size == 0:
             self._ch[key] = (amp, out)
@@ -222,7 +220,7 @@ class Searcher:
         cheapest = min(p.r_families, key=lambda f: f.price_unit)
         for kind in self.kinds:
             for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values())):
-                res = self._stage_of(lim, gf, kind, sf)
+                res = self._stage_of(lim, gf, r_gnd, kind, sf)
                 if res is None:
                     continue
                 ratio, ra, rb = (np.broadcast_to(x, m.shape) for x in res)
@@ -235,17 +233,18 @@ class Searcher:
         self._ch[key] = (amp, out)
         return amp, out
 
-    def configurations(self, lim, gf) -> "Batch | None":
-        """The best estimated design of every configuration with this limiter and gain
-        family: every op-amp, arm family pair, stage kind and stage family at once. Each
+    def configurations(self, lim, gf, r_gnd: float) -> "Batch | None":
+        """The best estimated design of every configuration with this limiter, gain
+        family and the fixed resistor r_gnd (ohm): every op-amp, arm family pair, stage kind and stage
+        family at once. Each
         amplitude-side choice is matched with the cheapest arm set of its K bin landing
         within the frequency resolution of target (or the nearest one) and evaluated
         again exactly at that arm set's K: one evaluation over all rows."""
-        amp = self._amp_side(lim, gf)
+        amp = self._amp_side(lim, gf, r_gnd)
         p = self.problem
         groups, parts = [], []
         for op in p.ops:
-            for kind, sf, rows, bins, ratio_c, ra_c, rb_c in self._choices(op, lim, gf)[1]:
+            for kind, sf, rows, bins, ratio_c, ra_c, rb_c in self._choices(op, lim, gf, r_gnd)[1]:
                 parts.append((np.full(rows.size, len(groups)), rows, bins, ratio_c, ra_c, rb_c))
                 groups.append((op, kind, sf))
         if not parts:
@@ -356,7 +355,7 @@ class Searcher:
         cfg = cfg_of[g_row[order]] * len(self.pairs) + pair_i[order]
         i = order[np.r_[True, cfg[1:] != cfg[:-1]]]      # the best row of each configuration
         cost = self.price.row_costs(*slots(i), lim.id)
-        return Batch(self, lim, gf, groups, g_row[i], pair_i[i], vals[i], r_fb[i], ird[i], ra[i], rb[i], err[i],
+        return Batch(self, lim, gf, r_gnd, groups, g_row[i], pair_i[i], vals[i], r_fb[i], ird[i], ra[i], rb[i], err[i],
                      load[:, i], vo[1, i], ev["thd"][i], m[i], y[i], ev["dln_vo"][i], ev["dthd"][i], ev["pull"][i],
                      cost)
 
