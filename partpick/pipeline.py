@@ -135,7 +135,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         # not at the cheapest)
         for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
             pool = _Pool(batches, cost_first, _hopeless(spec))
-            searched += pool.size if cost_first or not _cost_first(rank_by) else 0
+            searched += pool.size if cost_first == _cost_first(rank_by) else 0   # (the same rows, reordered)
             start_order = len(verified)
             while len(verified) - start_order < budget:
                 c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
@@ -147,7 +147,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                     break   # (the pool comes in yield order: what follows cannot pass either)
                 key = (c.signature, tuple(sorted(c.values.items())))
                 if c.signature in held or key in tried:
-                    continue   # its configuration passes already (at another impedance level)
+                    continue   # its configuration passes (at another level), or the cost order verified it
                 tried.add(key)
                 verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
                                         problem, samples, seed + 1, fixed))
