@@ -11,7 +11,13 @@ exit code, one-line or multi-line message, traceback, hang over 20 s, peak memor
 1 GB, and whether an exit-2 message names the file (and line and field) it is about.
 
 Done when (issue "bad input"): 0 tracebacks, 0 internal errors, 0 hangs, 0 processes
-over 1 GB, every exit 2 one line, naming the file where a file is at fault.
+over 1 GB, every exit 2 one line, naming the file where a file is at fault. A refused
+spec (exit 1, "error: no design meets the spec") prints its why-not over several lines
+(what binds, what would make it design, the nearest designs): its own class, not a bad
+outcome; any other multi-line message is one.
+
+``--kinds spec-edge,catalog`` runs only those categories (the same cases as in the full
+run, under the same numbers); ``--keep DIR`` copies each bad case's folder and command.
 
 Each process is forked from this one after the imports (so 10,000 runs take minutes,
 not hours) and runs ``partpick.cli.main`` as the ``partpick`` command does; ``--exec``
@@ -537,7 +543,10 @@ def _child(folder: Path, argv: list[str], as_nobody, use_exec: bool) -> None:
 _NOT_STARTED = 99
 
 
-def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
+def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = None,
+        keep: Path | None = None) -> dict:
+    """Run the cases (only ``kinds`` when given: the same cases, with the same numbers, as
+    in the full run); ``keep`` receives a copy of every bad case's folder and command."""
     nobody = _nobody()
     base = Path(tempfile.mkdtemp(prefix="partpick-fuzz-"))
     base.chmod(0o755)
@@ -545,12 +554,14 @@ def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
     by_kind: dict[str, collections.Counter] = collections.defaultdict(collections.Counter)
     examples: dict[str, list[str]] = collections.defaultdict(list)
     running: dict[int, tuple] = {}
-    todo = iter(enumerate(cases(n, seed)))
+    todo = ((i, c) for i, c in enumerate(cases(n, seed)) if kinds is None or c[0] in kinds)
     t_start = time.perf_counter()
     slowest = 0.0
+    ran = 0
 
     def finish(pid: int, status: int, usage) -> None:
-        nonlocal slowest
+        nonlocal slowest, ran
+        ran += 1
         i, kind, folder, argv, blamed, started, before = running.pop(pid)
         elapsed = time.perf_counter() - started
         slowest = max(slowest, elapsed)
@@ -566,6 +577,8 @@ def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
         if kind == "files" and any(p.startswith("..") or (p.split("/")[0] not in (".stdout", ".stderr") and
                                                           p.split("/")[0] != blamed_out(blamed)) for p in new):
             classes.append("wrote outside the named place")
+        if keep is not None and any(c in BAD for c in classes):
+            _keep(folder, keep / f"case-{i}", argv, classes, elapsed)
         for c in classes:
             counts[c] += 1
             by_kind[kind][c] += 1
@@ -601,12 +614,28 @@ def run(n: int, seed: int, use_exec: bool, show: int) -> dict:
         time.sleep(0.005)
     shutil.rmtree(base, ignore_errors=True)
     return {"counts": counts, "by_kind": by_kind, "examples": examples, "seconds": time.perf_counter() - t_start,
-            "slowest": slowest, "n": n}
+            "slowest": slowest, "n": ran}
+
+
+BAD = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "multi-line message", "killed",
+       "temporary file left", "refusal wrote files", "wrote outside the named place")
+
+
+def _keep(folder: Path, dest: Path, argv: list[str], classes: list[str], elapsed: float) -> None:
+    """Copy a bad case (its files, streams and command) for reproduction by hand."""
+    shutil.rmtree(dest, ignore_errors=True)
+    shutil.copytree(folder, dest, symlinks=True, ignore_dangling_symlinks=True,
+                    ignore=lambda d, names: [n for n in names if not (Path(d) / n).is_file()
+                                             and not (Path(d) / n).is_dir()])
+    (dest / ".command").write_text(f"partpick {' '.join(argv)}\n# {', '.join(classes)}; {elapsed:.1f} s\n")
 
 
 SHOW = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "multi-line message",
         "exit 2 not naming the file at fault", "killed", "temporary file left", "refusal wrote files",
         "wrote outside the named place", "exit 2 with file:line, no field")
+
+
+REFUSAL = "error: no design meets the spec"
 
 
 def _classify(code: int, err: str, elapsed: float, maxrss_kb: int, blamed: str | None) -> list[str]:
@@ -622,7 +651,11 @@ def _classify(code: int, err: str, elapsed: float, maxrss_kb: int, blamed: str |
         out.append("hang > 20 s")
     if maxrss_kb > BIG_RSS_KB:
         out.append("over 1 GB")
-    if code == 2 or (code == 1 and lines):
+    if code == 1 and lines and lines[0] == REFUSAL:
+        # a refused spec's why-not: what binds, what would make it design and the nearest
+        # designs, one per line (issue "the search designs what users ask for")
+        out.append("refusal with its analysis")
+    elif code == 2 or (code == 1 and lines):
         errors = [ln for ln in lines if ln.startswith("error:")]
         out.append("one-line message" if len(errors) == 1 and len(lines) == 1 else "multi-line message")
     elif code == 1:
@@ -680,12 +713,15 @@ def main() -> None:
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--exec", dest="use_exec", action="store_true", help="run python -m partpick per input")
     ap.add_argument("--show", type=int, default=5, help="examples shown per bad outcome class")
+    ap.add_argument("--kinds", default="", help="comma-separated categories to run (the full run's same cases)")
+    ap.add_argument("--keep", type=Path, default=None, help="copy each bad case's folder here")
     args = ap.parse_args()
-    res = run(args.n, args.seed, args.use_exec, args.show)
+    res = run(args.n, args.seed, args.use_exec, args.show, set(args.kinds.split(",")) if args.kinds else None,
+              args.keep)
     counts = res["counts"]
     print(f"{res['n']} inputs in {res['seconds']:.0f} s ({res['seconds'] / res['n'] * 2:.2f} s per input per "
           f"process), slowest {res['slowest']:.1f} s")
-    order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "not started (harness)", "exit 1 with a result on stdout", "one-line message",
+    order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "not started (harness)", "exit 1 with a result on stdout", "refusal with its analysis", "one-line message",
              "multi-line message", "temporary file left", "refusal wrote files", "wrote outside the named place",
              "traceback",
              "internal error (exit 3)", "hang > 20 s", "over 1 GB", "exit 2 naming the file", "exit 2 with file:line",
@@ -701,9 +737,7 @@ def main() -> None:
         print(f"\n{c}:")
         for item in items:
             print(f"  {item}")
-    bad = sum(counts.get(c, 0) for c in ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB",
-                                         "multi-line message", "killed", "temporary file left", "refusal wrote files",
-                                         "wrote outside the named place"))
+    bad = sum(counts.get(c, 0) for c in BAD)
     print(f"\n{'PASS' if bad == 0 else 'FAIL'}: {bad} bad outcomes")
 
 

@@ -67,6 +67,7 @@ SIDE_V = (-100.0, 100.0)            # headroom, common-mode distance from a rail
 CURRENT_A = (1e-9, 100.0)
 SMALL_CURRENT_A = (0.0, 1.0)        # input bias
 OUTPUT_OHM = (0.0, 1e6)
+THETA_JA_K_PER_W = (0.1, 1e4)       # a heatsinked power package .. the smallest chip-scale one in still air
 SATURATION_A = (1e-30, 1.0)
 JUNCTION_F = (0.0, 1e-6)
 BANDGAP_J = (0.1 * 1.602176634e-19, 10 * 1.602176634e-19)

@@ -22,6 +22,7 @@ from partpick.catalog import (  # noqa: I001 (the ranges every value must lie in
     LIMITER_KINDS,
     MIN_TOLERANCE,
     OUTPUT_OHM,
+    THETA_JA_K_PER_W,
     POLE_HZ,
     POWER_W,
     RATING_V,
@@ -57,8 +58,8 @@ def with_thermal(op: OpAmp, pkg: Package | None) -> OpAmp:
 
 
 def read_package(rec: Fields) -> Package:
-    theta = rec.quantity("theta_ja", "thermal_resistance", positive=True)
-    tj = rec.quantity("max_junction", "temperature")
+    theta = rec.quantity("theta_ja", "thermal_resistance", positive=True, bounds=THETA_JA_K_PER_W)
+    tj = rec.quantity("max_junction", "temperature", bounds=BAND_K)
     if tj <= 273.15:
         raise rec.error("max_junction", f"must be above 0 degC (got {tj - 273.15:g} degC)")
     return Package(_id(rec), theta, tj, _where(rec))

@@ -29,17 +29,39 @@ from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
 from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
-from partpick.search.enumerate import STAGE_RATIO, Candidate, PriceBook, Searcher
+from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.refusal import default_notes, explain_refusal, structural_refusal
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
+from partpick.physics.harmonic import NeedsTransient
 from partpick.verify import operating_conditions, verify
 
 __all__ = ["Design", "design", "candidate_bom", "evaluate_bom", "netlist_text"]
 
 MAX_VERIFY = 40          # verifications at most per design run (the note says when it binds)
 BARE_VERIFY = 6          # ... in the runs that work out why a spec does not design
+# Operating points solved by a transient run (an op-amp out of its linear range: swing,
+# slew or current, where harmonic balance does not hold) at most per design run, and in
+# all the runs of one refusal's analysis together: each takes one to a few seconds
+# against milliseconds by harmonic balance, so a space of such candidates would
+# otherwise take minutes (the note says when it binds)
+MAX_TRANSIENT = 3
+REFUSAL_TRANSIENT = 1
+# a candidate skipped for want of a transient run counts this many against the order's
+# verification budget: its harmonic balance was solved and failed, which for a JFET
+# control's slow loop costs about as much as verifying several limiter candidates
+SKIP_WEIGHT = 5
+
+
+@dataclass
+class _Work:
+    """The transient runs a command's verifications may still make (shared by the
+    runs of one command, so that the bound holds for the command, not per run), and
+    the candidates skipped since they ran out."""
+
+    left: int
+    skipped: int = 0
 OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 
 
@@ -88,7 +110,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
            rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
-           nearest: int | None = 3) -> Design:
+           nearest: int | None = 3, work: _Work | None = None) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
@@ -105,7 +127,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     check_spec(spec)
     if spec.topology == AUTO_TOPOLOGY:
         return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
-                            progress=progress, nearest=nearest)
+                            progress=progress, nearest=nearest,
+                            work=work if work is not None else _Work(MAX_TRANSIENT))   # one budget for all
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
@@ -117,6 +140,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     timings["setup"] = t1 - t0
     verified: list[Ranked] = []
     budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
+    work = work if work is not None else _Work(MAX_TRANSIENT)
     searched, t_search = 0, 0.0
     held: set = set()   # the configurations verified to pass: one design each is shown
     tried: set = set()  # (signature, values) of every candidate verified
@@ -136,8 +160,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
             pool = _Pool(batches, cost_first, _hopeless(spec))
             searched += pool.size if cost_first == _cost_first(rank_by) else 0   # (the same rows, reordered)
-            start_order = len(verified)
-            while len(verified) - start_order < budget:
+            attempts = 0   # candidates verified, or skipped for want of transient runs
+            while attempts < budget:
                 c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
                 if c is None or _certified(verified, c, pool, n, rank_by):
                     break
@@ -149,19 +173,29 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                 if c.signature in held or key in tried:
                     continue   # its configuration passes (at another level), or the cost order verified it
                 tried.add(key)
-                verified.append(_verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock,
-                                        problem, samples, seed + 1, fixed))
-                if verified[-1].verdict.passed:
+                attempts += 1
+                r = _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem,
+                            samples, seed + 1, fixed, transient=work.left > 0)
+                if r is None:
+                    work.skipped += 1
+                    attempts += SKIP_WEIGHT - 1
+                    continue
+                verified.append(r)
+                if r.verdict.passed:
                     held.add(c.signature)
+                work.left -= _transients(r)
                 if progress is not None:
                     progress(len(verified), max(n, len(verified)))
-            capped = len(verified) - start_order >= budget
+            capped = attempts >= budget
             if any(r.verdict.passed for r in verified[start:]) or not capped:
                 break
     t2 = time.perf_counter()
     timings["search"] = t_search
     timings["verify"] = t2 - t1 - t_search
     notes = tuple(f"{i}: {w}" for i, w in problem.dropped) + default_notes(spec)
+    if searcher.window_capped:
+        notes += (f"arm sets searched within +/-{math.expm1(WINDOW_CAP):.0%} of the target frequency (the tolerance "
+                  "allows more; a cheaper capacitor value further off is not looked for)",)
     ranked = rank(verified, rank_by)
     timings["rank"] = time.perf_counter() - t2
     if not any(r.verdict.passed for r in ranked):
@@ -170,6 +204,9 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed))
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
+    if work.skipped:
+        notes += (f"{work.skipped} candidates not verified: they needed transient runs (an op-amp out of its linear "
+                  f"range: swing, slew or current limited) after the {MAX_TRANSIENT} such runs a design allows",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
 
 
@@ -317,10 +354,12 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     what the parts allowed cannot do named first."""
     from partpick.refusal import SAMPLES
 
+    work = _Work(REFUSAL_TRANSIENT)   # shared by every run of the analysis
+
     def run(s: Spec, keys=None, st=stock) -> list[Bom]:
         try:
             return [r.bom for r in design(s, catalog, stock=st, results=3, rank_by=keys, samples=SAMPLES, seed=seed,
-                                          nearest=None).passing]
+                                          nearest=None, work=work).passing]
         except InfeasibleError:
             return []
 
@@ -382,6 +421,11 @@ def _hopeless(spec: Spec) -> float:
     come out up to about 8 % pessimistic (lower than the Monte Carlo of verification),
     more where the spec's own failure budget is large."""
     return spec.yield_min_frac - max(0.08, 1.5 * (1 - spec.yield_min_frac))
+
+
+def _transients(r: Ranked) -> int:
+    """Operating points of r's verification solved by a transient run."""
+    return sum(p.method == "transient" for p in r.verdict.corners.values())
 
 
 def _certified(verified: list[Ranked], c: Candidate, pool: "_Pool", n: int, rank_by) -> bool:
@@ -466,18 +510,24 @@ def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searc
 
 
 def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem, samples: int, seed: int,
-            fixed) -> Ranked:
-    r = evaluate_bom(candidate_bom(c, spec, problem, fixed), spec, catalog, stock, samples=samples, seed=seed)
+            fixed, transient: bool = True) -> Ranked | None:
+    """The candidate verified; None when ``transient`` is False and an operating point
+    needs a transient run."""
+    try:
+        r = evaluate_bom(candidate_bom(c, spec, problem, fixed), spec, catalog, stock, samples=samples, seed=seed,
+                         transient=transient)
+    except NeedsTransient:
+        return None
     return replace(r, pick=c)
 
 
 def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples: int = 20_000,
-                 seed: int = 1) -> Ranked:
+                 seed: int = 1, transient: bool = True) -> Ranked:
     """Verify one BOM exactly (physics at every operating point, Monte Carlo yield) as a
-    ranked item."""
+    ranked item (``transient=False``: raise NeedsTransient rather than simulate)."""
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
-    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=_points(circuit, spec))
+    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=_points(circuit, spec, transient))
     mc = wc = None
     if v.nominal.starts:
         v, mc, wc = with_yield(v, circuit, bom, catalog, spec, samples=samples, seed=seed)
@@ -493,7 +543,7 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
 _POINTS: dict = {}   # predictions by (circuit, operating points): the why-not's runs judge one BOM often
 
 
-def _points(circuit, spec: Spec) -> dict:
+def _points(circuit, spec: Spec, transient: bool = True) -> dict:
     """The predictions at the spec's operating points (shared by specs that differ
     only in their limits: the physics does not read them)."""
     from partpick.verify import predict
@@ -503,8 +553,9 @@ def _points(circuit, spec: Spec) -> dict:
     if key not in _POINTS:
         if len(_POINTS) > 256:
             _POINTS.clear()
-        nominal = predict(circuit, conds["nominal"])
-        _POINTS[key] = {name: nominal if name == "nominal" else predict(circuit, cond, near=nominal)
+        nominal = predict(circuit, conds["nominal"], transient=transient)
+        _POINTS[key] = {name: nominal if name == "nominal" else predict(circuit, cond, near=nominal,
+                                                                          transient=transient)
                         for name, cond in conds.items()}
     return dict(_POINTS[key])
 

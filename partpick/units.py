@@ -56,6 +56,7 @@ from __future__ import annotations
 import difflib
 import math
 import re
+import sys
 from dataclasses import dataclass, replace
 
 from partpick.errors import UnitError
@@ -310,7 +311,8 @@ def _to_si(number: re.Match[str], unit: _Unit, text: object, label: str) -> floa
     offset = unit.offset if not unit.decibel and unit.factor == 1.0 else (0, 0)
     value, nonzero = _decimal(number["sign"], number["int"] or "", frac,
                               _exponent(number["exp"]) + unit.exp10, offset)
-    if nonzero and value == 0.0 and not offset[0]:
+    # a subnormal float has lost its precision: no physical quantity is written that small
+    if nonzero and abs(value) < sys.float_info.min and not offset[0]:
         raise _cannot(text, label, "the value is too small to represent")
     if unit.decibel:
         try:

@@ -19,7 +19,7 @@ import numpy as np
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
                                margin_fn, periphery, rest_conductance)
 from partpick.physics.envelope import START_V
-from partpick.physics.harmonic import BalanceResult, output_figures
+from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
 from partpick.spec import Spec
@@ -133,24 +133,23 @@ class Verdict:
         return tuple(c for c in self.checks if not c.is_info)
 
 
-def _swing(c: Circuit, cond: Conditions) -> tuple[float, float]:
-    return swing_limits(c.opamp, cond.rails(c.supply_kind))
-
-
 def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None,
-            near: OperatingPoint | None = None) -> OperatingPoint:
+            near: OperatingPoint | None = None, transient: bool = True) -> OperatingPoint:
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
     ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
-    balance starts this one's Newton iteration (the answer is the same, only sooner)."""
+    balance starts this one's Newton iteration (the answer is the same, only sooner);
+    ``transient=False`` raises NeedsTransient where a transient run would be needed."""
     loop = build_loop(c, cond)
     lin = linear(c, cond, loop)
-    lo, hi = _swing(c, cond)
+    lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
     hb = balance(c, cond, lin, loop=loop, start=near.balance if near is not None else None)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
+    if not transient:
+        raise NeedsTransient
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 
 

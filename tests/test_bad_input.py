@@ -131,6 +131,14 @@ CATALOG_CASES = [
     ("gbw: 1 MHz", "gbw: 1 MHz, gwb: 2 MHz", "opamps[0].gwb", ["did you mean 'gbw'"]),
     ("emission: 1.8, series", "emission: 0.1, series", "limiters[0].emission", ["between 0.5 and 10"]),
     ("price: {unit: 0.1}", "price: {unit: -0.1}", "opamps[0].price.unit", ["between 0 and inf"]),
+    # bad-input fuzz reproducers: a subnormal value (it reached the junction physics as a
+    # math domain error), and a package no op-amp could dissipate a microwatt in (the
+    # search verified for minutes, then named the wrong requirement)
+    ("series_resistance: 0.6 ohm", "series_resistance: 4.9e-324 ohm", "limiters[0].series_resistance",
+     ["too small to represent"]),
+    ("price: {unit: 0.1}}\nlimiters:", "price: {unit: 0.1}, package: P8}\npackages:\n"
+     "  - {id: P8, theta_ja: 1.5e8 K/W, max_junction: 150 degC}\nlimiters:", "packages[0].theta_ja",
+     ["must lie within 0.1 K/W .. 10000 K/W"]),
 ]
 
 

@@ -42,7 +42,12 @@ from partpick.physics.linear import LinearResult
 from partpick.physics.loop import Branch, Loop
 from partpick.physics.opamp import loop_figures
 
-__all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude", "output_figures"]
+__all__ = ["BalanceResult", "harmonic_balance", "describing_amplitude", "output_figures", "NeedsTransient"]
+
+
+class NeedsTransient(Exception):
+    """Harmonic balance does not hold at a point (an op-amp out of its linear range) and
+    the caller asked not to simulate it (partpick.verify.predict)."""
 
 
 @dataclass(frozen=True, slots=True)

@@ -50,6 +50,7 @@ _EG_REF_EV = 1.1150877
 # Boltzmann constant (J/K) and elementary charge (C): exact in the 2019 SI (CODATA 2018).
 _K_B = 1.380649e-23
 _Q_E = 1.602176634e-19
+RS_NEGLIGIBLE = 1e-6   # ohm: a series resistance below this drops a microvolt at an ampere: none
 
 
 def thermal_voltage(temp_k: float) -> float:
@@ -129,7 +130,9 @@ class Junction:
         """Current through the junction plus its series resistance at terminal voltage v (V), A."""
         v = np.asarray(v, dtype=float)
         nvt = self.n * self.vt
-        if self.rs_ohm <= 0:
+        if self.rs_ohm < RS_NEGLIGIBLE:
+            # the Wright-omega form's argument would underflow for a vanishing Rs, whose
+            # drop is nothing anyway: the plain Shockley equation
             return self.is_a * np.expm1(np.minimum(v / nvt, 700.0))
         z = math.log(self.is_a * self.rs_ohm / nvt) + (v + self.is_a * self.rs_ohm) / nvt
         return nvt / self.rs_ohm * wright_omega(z) - self.is_a

@@ -46,6 +46,11 @@ M_RANGE = (0.002, 0.25)  # nepers of gain excess the amplitude side considers
 SIMPSON = (1 / 6, 4 / 6, 1 / 6)   # the temperature is uniform over the range: weights of min, nominal, max
 HOPELESS_PAIR = 0.05     # a family pair whose best frequency share is this far under the yield is left out
 WINDOW_MARGIN = 0.01     # ln f: beyond the pulls and the tolerance, for the retuning with measured pulls
+# ln f: the arm sets searched lie within this of the target (beyond the pulls) even when
+# the tolerance is wider: the table grows with the window (a +/-49 % window of 0.1 %
+# resistors is millions of arm sets, gigabytes), and an arm set further off than 5 % only
+# wins where a capacitor value that far away is cheaper (the note says when it binds)
+WINDOW_CAP = math.log(1.05)
 
 
 class Searcher:
@@ -80,6 +85,7 @@ class Searcher:
         arm_bins = np.arange(math.floor(math.log(k_lo) / K_BIN), math.ceil(math.log(k_hi) / K_BIN) + 1)
         self.ke_bins = np.unique(arm_bins[:, None] + shifts[None, :])
         self._pairs = None
+        self.window_capped = False   # the arm sets' window is narrower than the tolerance (WINDOW_CAP)
         self.best_hold = None   # (resistor family, capacitor family, frequency share centred) of the best pair
 
     @property
@@ -100,8 +106,10 @@ class Searcher:
         op_pull = [op.pull for op in problem.ops] or [0.0]
         row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
         row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
-        ln_lo = problem.ln_f - max(op_pull) - row_hi - problem.tol_f - WINDOW_MARGIN
-        ln_hi = problem.ln_f - min(op_pull) - row_lo + problem.tol_f + WINDOW_MARGIN
+        half = min(problem.tol_f, WINDOW_CAP)
+        self.window_capped = problem.tol_f > WINDOW_CAP
+        ln_lo = problem.ln_f - max(op_pull) - row_hi - half - WINDOW_MARGIN
+        ln_hi = problem.ln_f - min(op_pull) - row_lo + half + WINDOW_MARGIN
         pairs = []
         for rfa in problem.r_families:
             for cfa in problem.c_families:

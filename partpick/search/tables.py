@@ -43,7 +43,9 @@ class RangeMin:
     def __init__(self, cost: np.ndarray) -> None:
         self.cost = cost
         n = cost.size
-        levels = [np.arange(n)]
+        # int32 positions: the table's levels are its memory (log2 n arrays of n), and no
+        # table comes near 2**31 rows
+        levels = [np.arange(n, dtype=np.int32)]
         j = 1
         while (1 << j) <= n:
             prev = levels[-1]
@@ -101,8 +103,8 @@ class ArmIndex:
     def __init__(self, table, price, rfa, cfa) -> None:
         self.table = table
         n = len(table)
-        self.bins = np.round(table.ln_k / K_BIN).astype(int)
-        order = np.lexsort((table.ln_f0, self.bins))
+        self.bins = np.round(table.ln_k / K_BIN).astype(np.int32)
+        order = np.lexsort((table.ln_f0, self.bins)).astype(np.int32)
         self.order = order
         self.rank = np.empty_like(order)       # table row -> position in the sorted order
         self.rank[order] = np.arange(n)

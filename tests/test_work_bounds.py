@@ -1,0 +1,78 @@
+"""Bounds on the work one command does, from the bad-input fuzz run's hangs and memory
+blow-ups (benchmarks/bench_fuzz.py): transient runs per command, the arm-set window of a
+very wide frequency tolerance, the JFET rule's op-amps, and a vanishing series
+resistance in the junction physics."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import partpick.pipeline as pipeline
+from partpick.inputs import load_inputs
+from partpick.physics.junction import Junction
+from tests.conftest import CATALOGS, SPECS
+
+COVERAGE = Path(__file__).parent / "data" / "coverage"
+
+
+def test_a_vanishing_series_resistance_is_the_shockley_equation():
+    """I = Is (exp(V / (n Vt)) - 1), the Shockley diode equation (any device text, e.g.
+    Sedra and Smith, Microelectronic Circuits, ch. 4): an Rs of 1e-300 ohm drops
+    nothing (it reached the Wright-omega form as a math domain error)."""
+    v = np.linspace(-0.5, 0.8, 27)
+    j = Junction(1e-14, 1.8, 1e-300, 0.025852)
+    np.testing.assert_allclose(j.current(v), 1e-14 * np.expm1(v / (1.8 * 0.025852)), rtol=1e-12)
+    # and a real Rs still takes its drop: at 10 mA through 5 ohm the terminal voltage is
+    # 50 mV above the bare junction's (the junction's own voltage from the same equation)
+    jr = Junction(1e-14, 1.8, 5.0, 0.025852)
+    vj = 1.8 * 0.025852 * math.log1p(10e-3 / 1e-14)
+    assert float(jr.current(np.array([vj + 0.05]))[0]) == pytest.approx(10e-3, rel=1e-9)
+
+
+def test_the_jfet_rule_skips_op_amps_that_would_slew():
+    """Full-power bandwidth: a sine of peak V at f needs a slew rate of 2 pi f V (op-amp
+    handbooks, e.g. Jung, Op Amp Applications Handbook, 1.5); the rule keeps the
+    verification's linear share of it (SLEW_SHARE of the slew rate)."""
+    from partpick.physics.opamp import SLEW_SHARE
+    from partpick.search.designed import _full_power
+
+    class Op:
+        slew_v_per_s = 0.5e6   # 0.5 V/us
+
+    need = 2 * math.pi * 50e3 * math.sqrt(2)      # 1 Vrms at 50 kHz: 0.444 V/us
+    assert not _full_power(Op, 50e3, math.sqrt(2))
+    assert _full_power(Op, 1e3, math.sqrt(2))
+    edge = SLEW_SHARE * Op.slew_v_per_s / (2 * math.pi * math.sqrt(2))   # Hz where it just holds
+    assert _full_power(Op, edge * 0.999, math.sqrt(2)) and not _full_power(Op, edge * 1.001, math.sqrt(2))
+    assert need == pytest.approx(4.443e5, rel=1e-3)
+
+
+def test_candidates_needing_transient_runs_are_skipped_once_the_budget_is_spent(monkeypatch):
+    """ord-027 (25 Hz, 680 mVrms into 220 ohm from 3.3 V): the cheapest candidate drives
+    the load straight from a small op-amp, whose current limit needs transient runs at
+    every point; with no transient run allowed it is skipped (and said so), and the
+    follower that passes is still found, verified by harmonic balance throughout."""
+    spec, cat, stock = load_inputs(COVERAGE / "ord-027.yaml", (str(CATALOGS),))
+    monkeypatch.setattr(pipeline, "MAX_TRANSIENT", 0)
+    d = pipeline.design(spec, cat, stock=stock, results=1, rank_by=("cost",), samples=2000)
+    best = d.ranked[0]
+    assert best.verdict.passed
+    assert all(p.method == "harmonic balance" for p in best.verdict.corners.values())
+    assert any("candidates not verified: they needed transient runs" in x for x in d.notes), d.notes
+
+
+def test_a_very_wide_frequency_tolerance_searches_a_bounded_window():
+    """A +/-20 % tolerance designs on arm sets within +/-5 % of the target (a +/-49 %
+    window of 0.1 % resistors held millions of arm sets, over 2 GB), and says so."""
+    spec, cat, stock = load_inputs(SPECS / "lvdt-exciter.yaml", (str(CATALOGS),))
+    from dataclasses import replace
+
+    wide = replace(spec, frequency=replace(spec.frequency, tolerance_frac=0.20))
+    d = pipeline.design(wide, cat, stock=stock, results=1, samples=2000)
+    assert d.ranked[0].verdict.passed
+    assert abs(d.ranked[0].freq_error) < 0.05 + 0.01
+    assert any("arm sets searched within +/-5% of the target frequency" in x for x in d.notes), d.notes
