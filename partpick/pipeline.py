@@ -52,6 +52,7 @@ REFUSAL_TRANSIENT = 1
 # verification budget: its harmonic balance was solved and failed, which for a JFET
 # control's slow loop costs about as much as verifying several limiter candidates
 SKIP_WEIGHT = 5
+OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 
 
 @dataclass
@@ -62,7 +63,6 @@ class _Work:
 
     left: int
     skipped: int = 0
-OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 
 
 @dataclass(frozen=True, slots=True)

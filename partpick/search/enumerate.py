@@ -106,8 +106,9 @@ class Searcher:
         op_pull = [op.pull for op in problem.ops] or [0.0]
         row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
         row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
-        half = min(problem.tol_f, WINDOW_CAP)
-        self.window_capped = problem.tol_f > WINDOW_CAP
+        # (a shelf's table is small whatever the window, and may hold only values far off)
+        half = problem.tol_f if problem.shelf is not None else min(problem.tol_f, WINDOW_CAP)
+        self.window_capped = half < problem.tol_f
         ln_lo = problem.ln_f - max(op_pull) - row_hi - half - WINDOW_MARGIN
         ln_hi = problem.ln_f - min(op_pull) - row_lo + half + WINDOW_MARGIN
         pairs = []
