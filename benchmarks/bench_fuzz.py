@@ -630,9 +630,7 @@ def _keep(folder: Path, dest: Path, argv: list[str], classes: list[str], elapsed
     (dest / ".command").write_text(f"partpick {' '.join(argv)}\n# {', '.join(classes)}; {elapsed:.1f} s\n")
 
 
-SHOW = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "multi-line message",
-        "exit 2 not naming the file at fault", "killed", "temporary file left", "refusal wrote files",
-        "wrote outside the named place", "exit 2 with file:line, no field")
+SHOW = BAD + ("exit 2 not naming the file at fault", "exit 2 with file:line, no field")   # examples printed
 
 
 REFUSAL = "error: no design meets the spec"

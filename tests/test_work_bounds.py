@@ -33,21 +33,19 @@ def test_a_vanishing_series_resistance_is_the_shockley_equation():
     assert float(jr.current(np.array([vj + 0.05]))[0]) == pytest.approx(10e-3, rel=1e-9)
 
 
-def test_the_jfet_rule_skips_op_amps_that_would_slew():
+def test_the_linear_peak_is_the_full_power_bandwidth_relation():
     """Full-power bandwidth: a sine of peak V at f needs a slew rate of 2 pi f V (op-amp
-    handbooks, e.g. Jung, Op Amp Applications Handbook, 1.5); the rule keeps the
-    verification's linear share of it (SLEW_SHARE of the slew rate)."""
-    from partpick.physics.opamp import SLEW_SHARE
-    from partpick.search.designed import _full_power
+    handbooks, e.g. Jung, Op Amp Applications Handbook, 1.5; from memory: 0.5 V/us
+    gives a 10 V peak up to 7.96 kHz). The search and the JFET rule take the share of it
+    the verification counts as linear (SLEW_SHARE); 1 Vrms at 50 kHz (0.444 V/us) is out
+    of a 0.5 V/us op-amp's linear range, at 1 kHz it is in."""
+    from partpick.physics.opamp import SLEW_SHARE, linear_peak_v
 
     class Op:
         slew_v_per_s = 0.5e6   # 0.5 V/us
 
-    # 1 Vrms at 50 kHz needs 2 pi 50e3 1.414 = 0.444 V/us, above a fifth of 0.5 V/us
-    assert not _full_power(Op, 50e3, math.sqrt(2))
-    assert _full_power(Op, 1e3, math.sqrt(2))
-    edge = SLEW_SHARE * Op.slew_v_per_s / (2 * math.pi * math.sqrt(2))   # Hz where it just holds
-    assert _full_power(Op, edge * 0.999, math.sqrt(2)) and not _full_power(Op, edge * 1.001, math.sqrt(2))
+    assert linear_peak_v(Op, 7.958e3) / SLEW_SHARE == pytest.approx(10.0, rel=1e-3)
+    assert linear_peak_v(Op, 50e3) < math.sqrt(2) < linear_peak_v(Op, 1e3)
 
 
 def test_candidates_needing_transient_runs_are_skipped_once_the_budget_is_spent(monkeypatch):

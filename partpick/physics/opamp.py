@@ -22,7 +22,7 @@ import numpy as np
 from partpick.catalog import OpAmp
 from partpick.physics.rational import Rational
 
-__all__ = ["open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
+__all__ = ["linear_peak_v", "open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
            "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss", "loop_figures"]
 
 # The linear model holds while the signal's slew stays under this share of the slew rate
@@ -30,6 +30,14 @@ __all__ = ["open_loop_gain", "output_resistance", "MacroParams", "macro_params",
 # stage distorts; common practice, no published source).
 SLEW_SHARE = 0.2
 CURRENT_SHARE = 0.7
+
+
+def linear_peak_v(op: OpAmp, f_hz: float) -> float:
+    """The highest sine peak (V) at f_hz (Hz) the op-amp follows in its linear range:
+    the sine's steepest slope 2 pi f Vpk (the full-power bandwidth relation of op-amp
+    handbooks) within SLEW_SHARE of the slew rate, the share :func:`regime` counts as
+    linear."""
+    return SLEW_SHARE * op.slew_v_per_s / (2 * math.pi * f_hz)
 
 
 def ideal_opamp() -> OpAmp:

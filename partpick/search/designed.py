@@ -33,7 +33,7 @@ from partpick.search.enumerate import SIMPSON, m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
 from partpick.circuits.jfet_design import THD_AIM
 from partpick.search.tables import K_BIN, STAGE_RATIO
-from partpick.physics.opamp import SLEW_SHARE
+from partpick.physics.opamp import linear_peak_v
 
 __all__ = ["DesignedBatch", "designed_batch", "OPAMPS", "THD_SPREAD"]
 
@@ -79,16 +79,6 @@ def _opamps(problem) -> list:
     return ops[:TRIES]
 
 
-def _full_power(opamp, f_hz: float, peak_v: float) -> bool:
-    """Whether the op-amp follows a sine of peak_v (V) at f_hz (Hz) without slewing: the
-    sine's steepest slope, 2 pi f Vpk (the full-power bandwidth relation of op-amp
-    handbooks), within the share SLEW_SHARE of its slew rate that the verification
-    counts as linear. One that slews cannot give the clean sine this control is for,
-    and its verification needs a transient run of the slow control loop (tens of
-    seconds)."""
-    return SLEW_SHARE * opamp.slew_v_per_s >= 2 * math.pi * f_hz * peak_v
-
-
 def _gain_families(problem) -> list:
     """The gain family the hook designs with: the cheapest of 1 % or better (the
     control's start margin is planned against the gain network's tolerance), else the
@@ -110,14 +100,18 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
     k_ref = math.log(topo.reference_required_gain)
     out: list[Candidate] = []
     for op in _opamps(p):
-        if p.amp_v > op.swing_v or not _full_power(op.opamp, spec.frequency.target_hz, p.amp_v):
-            continue   # the stages are of gain one: the oscillator would have to swing (and slew) the load's peak
+        # the stages are of gain one: the oscillator swings (and slews) the load's peak; one
+        # that slews cannot give the clean sine this control is for, and its verification
+        # would need a transient run of the slow control loop (tens of seconds)
+        osc_max = min(op.swing_v, linear_peak_v(op.opamp, spec.frequency.target_hz))
+        if p.amp_v > osc_max:
+            continue
         made = 0
         for gf in _gain_families(p):
             designs = ctl.search_designs(spec, p.catalog, topo, searcher.f_t, gf, p.temps_k, opamp=op.opamp)
             made += len(designs)
             for d in designs:
-                if max(d.amp_v) > op.swing_v or not _full_power(op.opamp, spec.frequency.target_hz, max(d.amp_v)):
+                if max(d.amp_v) > osc_max:
                     continue
                 for c in _placed(searcher, op, gf, d, kinds, k_ref):
                     if p.shelf is None or on_shelf(c, p.shelf, spec.builds):

@@ -30,7 +30,7 @@ import numpy as np
 from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner
 from partpick.circuits.options import nearest, sigma, values_of
-from partpick.physics.opamp import class_b_loss
+from partpick.physics.opamp import class_b_loss, linear_peak_v
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.prices import PriceBook
@@ -216,7 +216,7 @@ class Searcher:
             self._ch[key] = (amp, out)
             return amp, out
         vo, thd, m = amp["vo"], amp["thd"], amp["m"]
-        osc_max = min(op.swing_v, 0.2 * op.opamp.slew_v_per_s / (2 * math.pi * self.f_t))
+        osc_max = min(op.swing_v, linear_peak_v(op.opamp, self.f_t))
         typical_sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
         s_m = m_sigma(p, gf, amp["gain"], typical_sk, op.loss, op.opamp.gbw_spread_frac)
         with np.errstate(invalid="ignore", divide="ignore"):
