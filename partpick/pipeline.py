@@ -30,7 +30,8 @@ from partpick.rank import Ranked, rank
 from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
-from partpick.refusal import default_notes, explain_refusal, structural_refusal
+from partpick.forked import fork_map
+from partpick.refusal import default_notes, explain_refusal, loosened, structural_refusal
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -41,13 +42,16 @@ __all__ = ["Design", "design", "candidate_bom", "evaluate_bom", "netlist_text"]
 
 MAX_VERIFY = 40          # verifications at most per design run (the note says when it binds)
 BARE_VERIFY = 6          # ... in the runs that work out why a spec does not design
-# Operating points solved by a transient run (an op-amp out of its linear range: swing,
-# slew or current, where harmonic balance does not hold) at most per design run, and in
-# all the runs of one refusal's analysis together: each takes one to a few seconds
-# against milliseconds by harmonic balance, so a space of such candidates would
-# otherwise take minutes (the note says when it binds)
+# Transient runs (the operating points of an op-amp out of its linear range: swing, slew
+# or current, where harmonic balance does not hold) at most per design command, counted
+# run by run: each takes one to a few seconds (a 60-period run of a 50 kHz circuit 3.4 s
+# on this project's 2-core machine) against milliseconds for a point by harmonic
+# balance, so a space of such candidates would otherwise take minutes (the note says when
+# it binds). A refusal's analysis, seven re-searches with loosened requirements, runs
+# none: it judges by harmonic balance and skips what would need one. Counted in runs, not
+# seconds, so that the result does not depend on the machine.
 MAX_TRANSIENT = 3
-REFUSAL_TRANSIENT = 1
+REFUSAL_TRANSIENT = 0
 # a candidate skipped for want of a transient run counts this many against the order's
 # verification budget: its harmonic balance was solved and failed, which for a JFET
 # control's slow loop costs about as much as verifying several limiter candidates
@@ -57,12 +61,19 @@ OPTIMISM = 0.02          # how much better than estimated an unverified candidat
 
 @dataclass
 class _Work:
-    """The transient runs a command's verifications may still make (shared by the
-    runs of one command, so that the bound holds for the command, not per run), and
-    the candidates skipped since they ran out."""
+    """The transient runs a command's verifications may still make (shared by the runs
+    of one command, so that the bound holds for the command, not per run), and the
+    candidates skipped since they ran out."""
 
     left: int
     skipped: int = 0
+
+    def take(self) -> bool:
+        """Whether one more run is allowed (then counted)."""
+        if self.left <= 0:
+            return False
+        self.left -= 1
+        return True
 
 
 @dataclass(frozen=True, slots=True)
@@ -175,7 +186,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                 tried.add(key)
                 attempts += 1
                 r = _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem,
-                            samples, seed + 1, fixed, transient=work.left > 0)
+                            samples, seed + 1, fixed, transient=work.take)
                 if r is None:
                     work.skipped += 1
                     attempts += SKIP_WEIGHT - 1
@@ -183,7 +194,6 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                 verified.append(r)
                 if r.verdict.passed:
                     held.add(c.signature)
-                work.left -= _transients(r)
                 if progress is not None:
                     progress(len(verified), max(n, len(verified)))
             capped = attempts >= budget
@@ -206,7 +216,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
         notes += (f"{work.skipped} candidates not verified: they needed transient runs (an op-amp out of its linear "
-                  f"range: swing, slew or current limited) after the {MAX_TRANSIENT} such runs a design allows",)
+                  f"range: swing, slew or current limited) after the {MAX_TRANSIENT} such runs a design "
+                  "allows",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
 
 
@@ -307,9 +318,12 @@ class _Pool:
         # each row's estimated yield, cost and THD, for the certification (_certified)
         figures = [np.concatenate([np.asarray(getattr(b, f), float) for b in batches]) if batches else np.zeros(0)
                    for f in ("y", "cost", "thd")]
+        # a row whose estimated yield is hopeless is never verified (its Monte Carlo
+        # model would have to come out better than the estimates ever do), so it is not
+        # simulated either: a spec nothing meets would otherwise place every row
+        keep = np.flatnonzero(figures[0] >= hopeless)
+        keys, src, row, figures = ([k[keep] for k in keys], src[keep], row[keep], [f[keep] for f in figures])
         if cost_first:
-            keep = np.flatnonzero(figures[0] >= hopeless)
-            keys, src, row, figures = ([k[keep] for k in keys], src[keep], row[keep], [f[keep] for f in figures])
             keys = [keys[1], keys[0], keys[2]]
         order = np.lexsort(tuple(reversed(keys)))
         self.src, self.row = src[order], row[order]
@@ -355,28 +369,45 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     from partpick.refusal import SAMPLES
 
     work = _Work(REFUSAL_TRANSIENT)   # shared by every run of the analysis
+    done: dict = {}   # the runs made, by (spec, ranking)
 
-    def run(s: Spec, keys=None, st=stock) -> list[Bom]:
+    def fresh(job) -> list[Bom]:
+        s, keys = job
         try:
-            return [r.bom for r in design(s, catalog, stock=st, results=3, rank_by=keys, samples=SAMPLES, seed=seed,
-                                          nearest=None, work=work).passing]
+            return [r.bom for r in design(s, catalog, stock=stock, results=3, rank_by=keys, samples=SAMPLES,
+                                          seed=seed, nearest=None, work=work).passing]
         except InfeasibleError:
             return []
+
+    def run(s: Spec, keys=None) -> list[Bom]:
+        if (s, keys) not in done:
+            done[(s, keys)] = fresh((s, keys))
+        return done[(s, keys)]
+
+    # the runs that do not depend on one another's results (each requirement loosened
+    # alone, each restricted kind of part opened up, the shelf made a preference), made
+    # at once over the CPUs; what follows only reads them. A run is a pure function of its
+    # spec (no transient run is allowed in any), so the answer is the same either way.
+    opened = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
+              for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
+    prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None
+    first = [(s, keys) for _, s, keys in loosened(spec)] + [(s, None) for _, s in opened]
+    first += [(prefer, None)] if prefer is not None else []
+    done.update(zip(first, fork_map(fresh, first)))
 
     def evaluate(s: Spec, bom: Bom) -> Ranked:
         return evaluate_bom(bom, s, catalog, stock, samples=SAMPLES, seed=seed + 1)
 
     more = []
-    for kind in ("resistors", "capacitors", "opamps", "limiters"):
-        if spec.parts.of_kind(kind) is not None:
-            boms = run(replace(spec, parts=replace(spec.parts, **{kind: None})))
-            new = sorted({ln.family for b in boms[:1] for ln in b.lines} - set(spec.parts.of_kind(kind)))
-            new = [f for f in new if any(f == x.id for x in catalog.of_kind(kind))]
-            if new:
-                more.append((f"allow {kind} {', '.join(new)}", "the search designs with it"))
+    for kind, s in opened:
+        boms = run(s)
+        new = sorted({ln.family for b in boms[:1] for ln in b.lines} - set(spec.parts.of_kind(kind)))
+        new = [f for f in new if any(f == x.id for x in catalog.of_kind(kind))]
+        if new:
+            more.append((f"allow {kind} {', '.join(new)}", "the search designs with it"))
     lead = []
-    if problem.shelf is not None:
-        boms = run(replace(spec, stock=replace(spec.stock, mode="prefer")))
+    if prefer is not None:
+        boms = run(prefer)
         if boms:
             lead.append(("stock quantities", _shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
     hold = _hold_text(spec, searcher)
@@ -421,11 +452,6 @@ def _hopeless(spec: Spec) -> float:
     come out up to about 8 % pessimistic (lower than the Monte Carlo of verification),
     more where the spec's own failure budget is large."""
     return spec.yield_min_frac - max(0.08, 1.5 * (1 - spec.yield_min_frac))
-
-
-def _transients(r: Ranked) -> int:
-    """Operating points of r's verification solved by a transient run."""
-    return sum(p.method == "transient" for p in r.verdict.corners.values())
 
 
 def _certified(verified: list[Ranked], c: Candidate, pool: "_Pool", n: int, rank_by) -> bool:
@@ -510,9 +536,9 @@ def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searc
 
 
 def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem, samples: int, seed: int,
-            fixed, transient: bool = True) -> Ranked | None:
-    """The candidate verified; None when ``transient`` is False and an operating point
-    needs a transient run."""
+            fixed, transient=True) -> Ranked | None:
+    """The candidate verified; None when an operating point needs a transient run that
+    ``transient`` (as :func:`partpick.verify.predict` takes it) does not allow."""
     try:
         r = evaluate_bom(candidate_bom(c, spec, problem, fixed), spec, catalog, stock, samples=samples, seed=seed,
                          transient=transient)
@@ -522,9 +548,10 @@ def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem,
 
 
 def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples: int = 20_000,
-                 seed: int = 1, transient: bool = True) -> Ranked:
+                 seed: int = 1, transient=True) -> Ranked:
     """Verify one BOM exactly (physics at every operating point, Monte Carlo yield) as a
-    ranked item (``transient=False``: raise NeedsTransient rather than simulate)."""
+    ranked item (``transient`` as :func:`partpick.verify.predict` takes it: raise
+    NeedsTransient rather than simulate where it says no)."""
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
     v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=_points(circuit, spec, transient))
@@ -543,7 +570,7 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
 _POINTS: dict = {}   # predictions by (circuit, operating points): the why-not's runs judge one BOM often
 
 
-def _points(circuit, spec: Spec, transient: bool = True) -> dict:
+def _points(circuit, spec: Spec, transient=True) -> dict:
     """The predictions at the spec's operating points (shared by specs that differ
     only in their limits: the physics does not read them)."""
     from partpick.verify import predict

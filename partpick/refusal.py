@@ -25,7 +25,7 @@ from dataclasses import dataclass, replace
 from partpick import units
 from partpick.spec import Spec
 
-__all__ = ["RELAXABLE", "Relaxation", "relaxed", "requirement_value", "explain_refusal", "default_notes", "miss_text",
+__all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
            "structural_refusal"]
 
 # requirement -> (how loose a run may make it, how it reads, unit dimension, tighter is smaller)
@@ -69,6 +69,18 @@ def relaxed(spec: Spec, field: str, value: float) -> Spec:
     if field == "distortion.max_thd":
         return replace(spec, max_thd_frac=value)
     return replace(spec, yield_min_frac=value)
+
+
+def loosened(spec: Spec) -> list[tuple[str, Spec, tuple[str, ...]]]:
+    """(field, the spec with it at its loose value, the ranking that puts the designs
+    best at it first) for each relaxable requirement the spec holds tighter than
+    loose: the first run explain_refusal makes for each."""
+    out = []
+    for field, (loose, _, keys, smaller) in RELAXABLE.items():
+        now = requirement_value(spec, field)
+        if not ((now >= loose) if smaller else (now <= loose)):
+            out.append((field, relaxed(spec, field, loose), keys))
+    return out
 
 
 def default_notes(spec: Spec) -> tuple[str, ...]:
@@ -171,13 +183,12 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     tried = []
     lines = ["no design meets the spec"] + [f"  ({n})" for n in default_notes(spec)]
     found: list[Relaxation] = []
-    for field, (loose, _, keys, smaller) in RELAXABLE.items():
+    for field, loose_spec, keys in loosened(spec):
+        loose, _, _, smaller = RELAXABLE[field]
         now = requirement_value(spec, field)
-        if (now >= loose) if smaller else (now <= loose):
-            continue
         # the loose run first (if it refuses, this requirement does not bind alone), then
         # nearer steps, so that the designs bisected on are good at this requirement
-        boms = run(relaxed(spec, field, loose), keys)
+        boms = run(loose_spec, keys)
         for step in LADDER if boms else ():
             value = now * step if smaller else 1 - (1 - now) * step
             if (value >= loose) if smaller else (value <= loose):

@@ -134,11 +134,13 @@ class Verdict:
 
 
 def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None,
-            near: OperatingPoint | None = None, transient: bool = True) -> OperatingPoint:
+            near: OperatingPoint | None = None, transient=True) -> OperatingPoint:
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
     ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
     balance starts this one's Newton iteration (the answer is the same, only sooner);
-    ``transient=False`` raises NeedsTransient where a transient run would be needed."""
+    ``transient``: False raises NeedsTransient where a transient run would be needed; a
+    callable is asked before each run whether it may (a budget that counts them), and
+    NeedsTransient is raised when it says no."""
     loop = build_loop(c, cond)
     lin = linear(c, cond, loop)
     lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
@@ -148,7 +150,7 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
     hb = balance(c, cond, lin, loop=loop, start=near.balance if near is not None else None)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
-    if not transient:
+    if not transient or (callable(transient) and not transient()):
         raise NeedsTransient
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 

@@ -148,3 +148,33 @@ def test_blended_slices_are_blended_lookups(demo_catalog):
     a, b, c = blend.lookup(rd, g), lo.lookup(rd, g), hi.lookup(rd, g)
     assert np.allclose(a[0], np.exp((1 - t) * np.log(b[0]) + t * np.log(c[0])))
     assert np.allclose(a[2], (1 - t) * b[2] + t * c[2])
+
+
+@pytest.mark.parametrize("ks", [np.arange(1, 48, 2), np.arange(1, 192, 2), np.arange(0, 48)])
+def test_conversion_matrix_is_the_sampled_product(ks):
+    # The Jacobian of i = g(theta) v(theta) over the harmonics, from g's Fourier
+    # coefficients (the conversion matrix: Kundert, Sangiovanni-Vincentelli and White,
+    # Steady-State Methods for Simulating Analog and Microwave Circuits, 1990, ch. 7),
+    # against its definition: the analysis of g times each synthesised harmonic, sample
+    # by sample. Odd harmonics (one junction) and all harmonics with DC (the Zener
+    # pair's middle node, whose DC row the analysis weighs by half).
+    from partpick.physics.harmonic import _product_jacobian, _transforms
+
+    nt = max(64, 8 * (int(ks[-1]) + 1))
+    synth, anal = _transforms(ks, nt)
+    g = np.exp(np.random.default_rng(3).normal(size=nt))   # a conductance waveform, positive
+    direct = anal @ (g[:, None] * synth)
+    assert np.max(np.abs(_product_jacobian(g, ks) - direct)) < 1e-12 * np.max(np.abs(direct))
+
+
+def test_rows_computed_apart_equal_rows_computed_together(demo_catalog, monkeypatch):
+    # the surface's rows are independent (each starts its own continuation), so the table
+    # computed over forked processes is the table computed in one, to the last bit
+    lim = demo_catalog.find("limiters", "d-schottky")
+    monkeypatch.setenv("PARTPICK_WORKERS", "1")
+    alone = compute(TOPO, lim, CTL, F_SLICES[1], LEVELS[0])
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    together = compute(TOPO, lim, CTL, F_SLICES[1], LEVELS[0])
+    for name in ("vo", "thd", "pull", "a_df"):
+        assert np.array_equal(alone[name], together[name], equal_nan=True), name
+    assert np.count_nonzero(np.isfinite(alone["vo"])) > 0.5 * alone["vo"].size

@@ -62,6 +62,45 @@ def test_candidates_needing_transient_runs_are_skipped_once_the_budget_is_spent(
     assert any("candidates not verified: they needed transient runs" in x for x in d.notes), d.notes
 
 
+def test_the_transient_budget_counts_runs_not_candidates(monkeypatch):
+    """ord-027 again, one transient run allowed: its cheapest candidate needs one at
+    every operating point, so the budget is spent by its first and the candidate is
+    skipped at its second (a candidate used to run all its points once any budget was
+    left: five runs for a budget of one)."""
+    from partpick.physics import transient
+
+    runs = []
+    real = transient.simulate
+    monkeypatch.setattr(transient, "simulate", lambda *a, **k: runs.append(1) or real(*a, **k))
+    monkeypatch.setattr(pipeline, "MAX_TRANSIENT", 1)
+    pipeline._POINTS.clear()   # (predictions an earlier test made would need no run)
+    spec, cat, stock = load_inputs(COVERAGE / "ord-027.yaml", (str(CATALOGS),))
+    d = pipeline.design(spec, cat, stock=stock, results=1, rank_by=("cost",), samples=2000)
+    assert d.ranked[0].verdict.passed
+    assert len(runs) == 1
+    assert any("after the 1 such runs a design allows" in x for x in d.notes), d.notes
+
+
+def test_a_refusal_analysed_over_processes_is_the_one_analysed_here(monkeypatch):
+    """The refusal's independent re-searches run over forked processes
+    (partpick/forked.py); each is a pure function of its spec, so the message is the
+    same word for word as with everything in one process."""
+    from dataclasses import replace
+
+    from partpick.errors import InfeasibleError
+
+    spec, cat, stock = load_inputs(SPECS / "seismic-cal-20hz.yaml", (str(CATALOGS),))
+    tight = replace(spec, max_thd_frac=0.001, amplitude_control="diode")
+    messages = []
+    for n in ("1", "2"):
+        monkeypatch.setenv("PARTPICK_WORKERS", n)
+        with pytest.raises(InfeasibleError) as exc:
+            pipeline.design(tight, cat, stock=stock, samples=2000)
+        messages.append(exc.value.message)
+    assert messages[0] == messages[1]
+    assert "distortion.max_thd binds" in messages[0]
+
+
 def test_a_very_wide_frequency_tolerance_searches_a_bounded_window():
     """A +/-20 % tolerance designs on arm sets within +/-5 % of the target (a +/-49 %
     window of 0.1 % resistors held millions of arm sets, over 2 GB), and says so."""

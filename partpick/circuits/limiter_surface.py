@@ -37,6 +37,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from partpick.cache import content_key, load_arrays, part_content, store_arrays
+from partpick.forked import fork_map
 from partpick.physics.harmonic import harmonic_balance
 from partpick.physics.junction import limiter_table
 from partpick.physics.linear import LinearResult
@@ -142,21 +143,38 @@ def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float,
     return hb if ok else None
 
 
+def _row(job: tuple, a: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Row a (r = R_GRID[a]) of the surface for job = (topology, lim, control, f_hz,
+    rg): (vo (1 - x r), thd, pull) over X_GRID, NaN where the branch cannot hold the
+    loop. Each point starts from the one before it in the same row."""
+    topology, lim, control, f_hz, rg = job
+    r = R_GRID[a]
+    vo, thd, pull = (np.full(X_GRID.size, np.nan) for _ in range(3))
+    prev = None
+    for b, x in enumerate(X_GRID):
+        if x * r >= 1.0:
+            # the branch cannot conduct more than 1 / rd: no steady state (and the
+            # stored vo (1 - x r) would not be positive), so nothing to solve
+            prev = None
+            continue
+        hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, prev, rg)
+        if hb is None and prev is not None:
+            hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, rg=rg)
+        prev = hb
+        if hb is not None:
+            vo[b] = hb.osc_peak_v * (1 - x * r)
+            thd[b], pull[b] = hb.osc_thd, math.log(hb.freq_hz / f_hz)
+    return vo, thd, pull
+
+
 def compute(topology, lim, control, f_hz: float, rg: float = REF_RG) -> dict[str, np.ndarray]:
     """The surface's arrays (see Surface) at f_hz (Hz) and the level rg (ohm), by
-    harmonic balance at every grid point."""
-    shape = (R_GRID.size, X_GRID.size)
-    vo, thd, pull = (np.full(shape, np.nan) for _ in range(3))
-    for a, r in enumerate(R_GRID):
-        prev = None
-        for b, x in enumerate(X_GRID):
-            hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, prev, rg)
-            if hb is None and prev is not None:
-                hb = _reference_balance(topology, lim, r * rg, x, control, f_hz, rg=rg)
-            prev = hb
-            if hb is not None:
-                vo[a, b] = hb.osc_peak_v * (1 - x * r)
-                thd[a, b], pull[a, b] = hb.osc_thd, math.log(hb.freq_hz / f_hz)
+    harmonic balance at every grid point the branch can hold (the rows over the CPUs:
+    :func:`partpick.forked.fork_map`)."""
+    # the rows are independent (each starts its own continuation): spread over the CPUs
+    job = (topology, lim, control, f_hz, rg)
+    rows = fork_map(functools.partial(_row, job), range(R_GRID.size))
+    vo, thd, pull = (np.stack([row[i] for row in rows]) for i in range(3))
     a_df = df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, REF_T)
     return {"vo": vo, "thd": thd, "pull": pull, "a_df": a_df}
 

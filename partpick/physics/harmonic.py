@@ -33,6 +33,7 @@ caller integrates the full nonlinear circuit instead (:mod:`partpick.physics.tra
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -140,13 +141,13 @@ class _Balance:
         al, ga = self.coeffs(w)
         r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
         g_t = self.table.conductance(v_t)
-        dI = self.anal @ (g_t[:, None] * self.synth)  # d(re,im I)/d(re,im V)
+        dI = _product_jacobian(g_t, self.ks)  # d(re,im I)/d(re,im V)
         if self.charged:
             # the charging current j k w Q_k: the capacitance waveform C(v(theta))
             # mapped like the conductance, times j k w
             c_t = self.table.capacitance(v_t)
-            dI = dI + _cmul_block(1j * self.ks * (w * self.loop.w_ref)) @ (self.anal @ (c_t[:, None] * self.synth))
-        J = _cmul_block(ga) @ dI + _cmul_block(al)
+            dI = dI + _cmul_rows(1j * self.ks * (w * self.loop.w_ref), _product_jacobian(c_t, self.ks))
+        J = _cmul_rows(ga, dI) + _cmul_block(al)
         h = 1e-7 * w
         al2, ga2 = self.coeffs(w + h)
         dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
@@ -194,6 +195,12 @@ class _Balance:
             vk = vk + lam * dv
             self.advance(lam * dother)
             w += lam * step[-1]
+            if abs(vk[0]) < COLLAPSED * a0:
+                # on its way to the trivial root: at this amplitude the element is linear
+                # and Newton only shrinks the fundamental further (a fifth a step, by the
+                # damping above), never back; stop here, converged to it
+                converged = True
+                break
         return vk, w, converged
 
     def begin(self, vk: np.ndarray, start_even: np.ndarray | None) -> None:
@@ -287,14 +294,14 @@ class _SeriesBalance(_Balance):
         r[self.odd] = al * vk + ga * ik[self.odd]
         r[~self.odd] = zs * ik[~self.odd]
         g_t, c_t = self.elem.conductance(u_t), self.elem.capacitance(u_t)
-        jkw = _cmul_block(1j * self.kall * (w * self.loop.w_ref))
-        dI = self.anal_all @ (g_t[:, None] * self.synth_all) + jkw @ (self.anal_all @ (c_t[:, None] * self.synth_all))
+        dI = (_product_jacobian(g_t, self.kall)
+              + _cmul_rows(1j * self.kall * (w * self.loop.w_ref), _product_jacobian(c_t, self.kall)))
         # rows: odd k -> ga dI/du + 2 al (u_k = v_k / 2); even k -> zs dI/du
         rowscale = np.ones(nk, dtype=complex)
         rowscale[self.odd], rowscale[~self.odd] = ga, zs
         diag = np.zeros(nk, dtype=complex)
         diag[self.odd] = 2 * al
-        J = _cmul_block(rowscale) @ dI + _cmul_block(diag)
+        J = _cmul_rows(rowscale, dI) + _cmul_block(diag)
         h = 1e-7 * w
         al2, ga2 = self.coeffs(w + h)
         dr = np.empty(nk, dtype=complex)
@@ -320,9 +327,16 @@ class _SeriesBalance(_Balance):
 
 
 def _transforms(ks: np.ndarray, nt: int) -> tuple[np.ndarray, np.ndarray]:
+    """The (synthesis, analysis) pair of _transforms_for, for an array of harmonics."""
+    return _transforms_for(tuple(int(k) for k in ks), nt)
+
+
+@functools.lru_cache(maxsize=64)
+def _transforms_for(harmonics: tuple[int, ...], nt: int) -> tuple[np.ndarray, np.ndarray]:
     """(synthesis, analysis) matrices of harmonics ks on nt samples of a period:
     columns re_k, im_k for each k, v(theta) = sum Re(V_k e^{j k theta}); the analysis
     is the inverse on those harmonics (a DC term k = 0 weighs 1/nt, the others 2/nt)."""
+    ks = np.asarray(harmonics)
     theta = 2 * np.pi * np.arange(nt) / nt
     kt = np.outer(theta, ks)
     synth = np.empty((nt, 2 * ks.size))
@@ -330,6 +344,8 @@ def _transforms(ks: np.ndarray, nt: int) -> tuple[np.ndarray, np.ndarray]:
     synth[:, 1::2] = -np.sin(kt)
     anal = synth.T * (2.0 / nt)
     anal[0::2][ks == 0] /= 2.0
+    # shared between problems of the same size: read-only
+    synth.flags.writeable = anal.flags.writeable = False
     return synth, anal
 
 
@@ -341,6 +357,44 @@ def _ri(z: np.ndarray) -> np.ndarray:
 
 def _cx(x: np.ndarray) -> np.ndarray:
     return x[0::2] + 1j * x[1::2]
+
+
+def _product_jacobian(g_t: np.ndarray, ks: np.ndarray) -> np.ndarray:
+    """The real Jacobian d(re, im I_k)/d(re, im V_m) over harmonics ks (rows and columns
+    interleaved as _transforms orders them) of i(theta) = g(theta) v(theta), g sampled
+    at the nt points of a period: what ``anal @ (g_t[:, None] * synth)`` computes, from
+    g's Fourier coefficients G_n = (1/nt) sum g e^(-j n theta) in O(nt log nt + K^2)
+    instead of O(nt K^2). A change dV in V_m changes I_k by dV G_(k-m) + conj(dV) G_(k+m)
+    (the product of two Fourier series; the conversion matrix of harmonic-balance
+    analysis, Kundert, Sangiovanni-Vincentelli and White, Steady-State Methods for
+    Simulating Analog and Microwave Circuits, 1990, chapter 7); the DC row (k = 0) is
+    half of it, as the analysis weighs DC by 1/nt."""
+    if ks.size < 24:
+        # few harmonics: the plain product is cheaper than the transform's overhead
+        synth, anal = _transforms(ks, g_t.size)
+        return anal @ (g_t[:, None] * synth)
+    nt = g_t.size
+    big = np.fft.fft(g_t) / nt
+    k, m = ks[:, None], ks[None, :]
+    a, b = big[(k - m) % nt], big[(k + m) % nt]
+    out = np.empty((2 * ks.size, 2 * ks.size))
+    out[0::2, 0::2] = a.real + b.real
+    out[0::2, 1::2] = b.imag - a.imag
+    out[1::2, 0::2] = a.imag + b.imag
+    out[1::2, 1::2] = a.real - b.real
+    out[0::2][ks == 0] /= 2.0
+    return out
+
+
+def _cmul_rows(c: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """_cmul_block(c) @ m without forming the block-diagonal matrix: each (re, im) row
+    pair of m multiplied by the complex c of its harmonic."""
+    re, im = m[0::2], m[1::2]
+    cr, ci = c.real[:, None], c.imag[:, None]
+    out = np.empty_like(m)
+    out[0::2] = cr * re - ci * im
+    out[1::2] = ci * re + cr * im
+    return out
 
 
 def _cmul_block(c: np.ndarray) -> np.ndarray:
@@ -373,6 +427,11 @@ def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 2
     return math.exp(x0 + (g_target - y0) * (x1 - x0) / (y1 - y0))
 
 
+# the fundamental's share of its starting amplitude below which a converged solution is
+# the trivial one
+COLLAPSED = 1e-6
+
+
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
                      kmax: int = 21, start: BalanceResult | None = None, escalate: int = 2) -> BalanceResult | None:
     """Settled oscillation of the loop closed through a nonlinear branch; rails (V) are
@@ -400,6 +459,10 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     for k in (kmax, 2 * kmax + 1, 4 * kmax + 3)[:escalate + 1]:
         hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
+        # a fundamental that collapsed to nothing is the trivial root (no oscillation):
+        # more harmonics cannot change that, and its tail ratio is 0 / 0
+        if ok and abs(vk[0]) < COLLAPSED * a_df:
+            break
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
         if ok and tail < 3e-4:
             break
