@@ -544,12 +544,18 @@ _NOT_STARTED = 99
 
 
 def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = None,
-        keep: Path | None = None) -> dict:
+        keep: Path | None = None, jobs: int = 1) -> dict:
     """Run the cases (only ``kinds`` when given: the same cases, with the same numbers, as
-    in the full run); ``keep`` receives a copy of every bad case's folder and command."""
+    in the full run), ``jobs`` at once; ``keep`` receives a copy of every bad case's
+    folder and command. The user cache starts empty (a folder of the run's own), as on
+    a fresh install: a part the fuzz changed pays for its first use."""
     nobody = _nobody()
     base = Path(tempfile.mkdtemp(prefix="partpick-fuzz-"))
     base.chmod(0o755)
+    cache = base / ".cache"
+    cache.mkdir()
+    cache.chmod(0o777)   # (cases run as 'nobody' share it)
+    os.environ["PARTPICK_CACHE"] = str(cache)
     counts: collections.Counter = collections.Counter()
     by_kind: dict[str, collections.Counter] = collections.defaultdict(collections.Counter)
     examples: dict[str, list[str]] = collections.defaultdict(list)
@@ -587,7 +593,7 @@ def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = N
         _remove(folder)
 
     while True:
-        while len(running) < 2:
+        while len(running) < jobs:
             nxt = next(todo, None)
             if nxt is None:
                 break
@@ -713,12 +719,15 @@ def main() -> None:
     ap.add_argument("--show", type=int, default=5, help="examples shown per bad outcome class")
     ap.add_argument("--kinds", default="", help="comma-separated categories to run (the full run's same cases)")
     ap.add_argument("--keep", type=Path, default=None, help="copy each bad case's folder here")
+    ap.add_argument("--jobs", type=int, default=1,
+                    help="cases run at once (default 1: each case has the whole machine, as a user's command has; "
+                         "partpick spreads independent work over the CPUs itself)")
     args = ap.parse_args()
     res = run(args.n, args.seed, args.use_exec, args.show, set(args.kinds.split(",")) if args.kinds else None,
-              args.keep)
+              args.keep, max(1, args.jobs))
     counts = res["counts"]
-    print(f"{res['n']} inputs in {res['seconds']:.0f} s ({res['seconds'] / res['n'] * 2:.2f} s per input per "
-          f"process), slowest {res['slowest']:.1f} s")
+    print(f"{res['n']} inputs in {res['seconds']:.0f} s ({res['seconds'] / res['n'] * args.jobs:.2f} s per input "
+          f"per job, {args.jobs} at once, empty user cache), slowest {res['slowest']:.1f} s")
     order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "not started (harness)", "exit 1 with a result on stdout", "refusal with its analysis", "one-line message",
              "multi-line message", "temporary file left", "refusal wrote files", "wrote outside the named place",
              "traceback",

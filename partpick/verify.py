@@ -138,9 +138,8 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
     ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
     balance starts this one's Newton iteration (the answer is the same, only sooner);
-    ``transient``: False raises NeedsTransient where a transient run would be needed; a
-    callable is asked before each run whether it may (a budget that counts them), and
-    NeedsTransient is raised when it says no."""
+    ``transient``: False, or a callable (a budget) that says no before a run, raises
+    NeedsTransient where a transient run would be needed."""
     loop = build_loop(c, cond)
     lin = linear(c, cond, loop)
     lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
