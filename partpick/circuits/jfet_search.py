@@ -29,7 +29,8 @@ A design costs one to three seconds of physics (the design rule's iterations, th
 figures here); each is stored in the cache folder (:mod:`partpick.cache`) under the
 content of everything it depends on (parts, target, topology, frequency), so a second
 run, or another spec with the same target, takes milliseconds. Refused designs are
-stored too.
+stored too. The designs not in the cache are made at once over the CPUs
+(:func:`partpick.forked.fork_map`): each depends only on its own choice.
 """
 
 from __future__ import annotations
@@ -41,6 +42,7 @@ from partpick.cache import content_key, load_arrays, part_content, store_arrays
 from partpick.circuits.base import Conditions
 from partpick.circuits.jfet_design import design, target_for, weakest
 from partpick.circuits.options import ControlDesign, allowed_families, z_of
+from partpick.forked import fork_map
 
 __all__ = ["search_designs", "default_opamp", "CACHE_KIND"]
 
@@ -77,29 +79,29 @@ def search_designs(spec, catalog, topology, f_hz: float, gain_family, temps_k, *
         ref = min(usable, key=lambda r: (r.price_unit, r.id))
     cfams = [c for c in allowed_families(spec, catalog, "capacitors") if "electrolytic" not in c.dielectric.lower()]
     z = z_of(spec)
-    out = []
-    for jfet in jfets:
-        for amp in amps_v or (spec.amplitude.peak_v,):
-            for lin in linearise:
-                tgt = target_for(spec, f_hz, amp, gain_family, z, temps_k)
-                got = _cached(topology, tgt, jfet, diode, ref, gain_family, cfams, opamp, lin)
-                if got is not None:
-                    out.append(got)
-    return tuple(out)
+    choices = [(topology, target_for(spec, f_hz, amp, gain_family, z, temps_k), jfet, diode, ref, gain_family, cfams,
+                opamp, lin) for jfet in jfets for amp in amps_v or (spec.amplitude.peak_v,) for lin in linearise]
+    found = [load_arrays(CACHE_KIND, _key(*c)) for c in choices]
+    # the designs not in the cache are independent: made at once over the CPUs
+    made = iter(fork_map(_made, [c for c, got in zip(choices, found) if got is None]))
+    out = [_from_arrays(got) if got is not None else next(made) for got in found]
+    return tuple(d for d in out if d is not None)
 
 
-def _cached(topology, tgt, jfet, diode, ref, rfam, cfams, opamp, lin: bool) -> ControlDesign | None:
-    """The design for one choice, from the cache or made (and stored)."""
-    key = content_key(_VERSION, topology.name, tgt, part_content(jfet, ("description",)),
-                      part_content(diode, ("description",)), part_content(ref, ("description",)) if ref else None,
-                      part_content(rfam, ("description",)), [part_content(c, ("description",)) for c in cfams],
-                      part_content(opamp, ("description",)), lin)
-    got = load_arrays(CACHE_KIND, key)
-    if got is not None:
-        return _from_arrays(got)
+def _key(topology, tgt, jfet, diode, ref, rfam, cfams, opamp, lin: bool) -> str:
+    return content_key(_VERSION, topology.name, tgt, part_content(jfet, ("description",)),
+                       part_content(diode, ("description",)), part_content(ref, ("description",)) if ref else None,
+                       part_content(rfam, ("description",)), [part_content(c, ("description",)) for c in cfams],
+                       part_content(opamp, ("description",)), lin)
+
+
+def _made(choice: tuple) -> ControlDesign | None:
+    """The design for one choice (topology, target, jfet, diode, reference, resistor
+    family, capacitor families, op-amp, linearised), made and stored in the cache."""
+    topology, tgt, jfet, diode, ref, rfam, cfams, opamp, lin = choice
     d = design(topology, tgt, jfet, diode, ref, rfam, cfams, opamp, linearise=lin)
     made = _figures(topology, tgt, d, rfam, lin) if d.ok else None
-    store_arrays(CACHE_KIND, key, _to_arrays(made, d.why))
+    store_arrays(CACHE_KIND, _key(*choice), _to_arrays(made, d.why))
     return made
 
 

@@ -141,13 +141,10 @@ class _Balance:
         al, ga = self.coeffs(w)
         r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
         g_t = self.table.conductance(v_t)
-        dI = _product_jacobian(g_t, self.ks)  # d(re,im I)/d(re,im V)
-        if self.charged:
-            # the charging current j k w Q_k: the capacitance waveform C(v(theta))
-            # mapped like the conductance, times j k w
-            c_t = self.table.capacitance(v_t)
-            dI = dI + _cmul_rows(1j * self.ks * (w * self.loop.w_ref), _product_jacobian(c_t, self.ks))
-        J = _cmul_rows(ga, dI) + _cmul_block(al)
+        # ga d(re,im I)/d(re,im V); with charge, the charging current j k w Q_k too (the
+        # capacitance waveform C(v(theta)) mapped like the conductance, times j k w)
+        c_t = self.table.capacitance(v_t) if self.charged else None
+        J = _product_jacobian(g_t, self.ks, c_t, 1j * self.ks * (w * self.loop.w_ref), ga) + _cmul_block(al)
         h = 1e-7 * w
         al2, ga2 = self.coeffs(w + h)
         dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
@@ -294,14 +291,12 @@ class _SeriesBalance(_Balance):
         r[self.odd] = al * vk + ga * ik[self.odd]
         r[~self.odd] = zs * ik[~self.odd]
         g_t, c_t = self.elem.conductance(u_t), self.elem.capacitance(u_t)
-        dI = (_product_jacobian(g_t, self.kall)
-              + _cmul_rows(1j * self.kall * (w * self.loop.w_ref), _product_jacobian(c_t, self.kall)))
         # rows: odd k -> ga dI/du + 2 al (u_k = v_k / 2); even k -> zs dI/du
         rowscale = np.ones(nk, dtype=complex)
         rowscale[self.odd], rowscale[~self.odd] = ga, zs
         diag = np.zeros(nk, dtype=complex)
         diag[self.odd] = 2 * al
-        J = _cmul_rows(rowscale, dI) + _cmul_block(diag)
+        J = _product_jacobian(g_t, self.kall, c_t, 1j * self.kall * (w * self.loop.w_ref), rowscale) + _cmul_block(diag)
         h = 1e-7 * w
         al2, ga2 = self.coeffs(w + h)
         dr = np.empty(nk, dtype=complex)
@@ -359,7 +354,8 @@ def _cx(x: np.ndarray) -> np.ndarray:
     return x[0::2] + 1j * x[1::2]
 
 
-def _product_jacobian(g_t: np.ndarray, ks: np.ndarray) -> np.ndarray:
+def _product_jacobian(g_t: np.ndarray, ks: np.ndarray, c_t: np.ndarray | None = None, jw: np.ndarray | None = None,
+                      rows: np.ndarray | None = None) -> np.ndarray:
     """The real Jacobian d(re, im I_k)/d(re, im V_m) over harmonics ks (rows and columns
     interleaved as _transforms orders them) of i(theta) = g(theta) v(theta), g sampled
     at the nt points of a period: what ``anal @ (g_t[:, None] * synth)`` computes, from
@@ -368,21 +364,35 @@ def _product_jacobian(g_t: np.ndarray, ks: np.ndarray) -> np.ndarray:
     (the product of two Fourier series; the conversion matrix of harmonic-balance
     analysis, Kundert, Sangiovanni-Vincentelli and White, Steady-State Methods for
     Simulating Analog and Microwave Circuits, 1990, chapter 7); the DC row (k = 0) is
-    half of it, as the analysis weighs DC by 1/nt."""
+    half of it, as the analysis weighs DC by 1/nt. With c_t (a capacitance waveform)
+    its charge's conversion matrix times jw (per row: j k w) is added, and with rows
+    every row is multiplied by its complex factor: the whole d(rows (I + jw Q))/dV in
+    one pass."""
     if ks.size < 24:
         # few harmonics: the plain product is cheaper than the transform's overhead
         synth, anal = _transforms(ks, g_t.size)
-        return anal @ (g_t[:, None] * synth)
+        out = anal @ (g_t[:, None] * synth)
+        if c_t is not None:
+            out = out + _cmul_rows(jw, anal @ (c_t[:, None] * synth))
+        return out if rows is None else _cmul_rows(rows, out)
     nt = g_t.size
-    big = np.fft.fft(g_t) / nt
     k, m = ks[:, None], ks[None, :]
-    a, b = big[(k - m) % nt], big[(k + m) % nt]
+    lo, hi = (k - m) % nt, (k + m) % nt
+    big = np.fft.fft(g_t) / nt
+    a, b = big[lo], big[hi]
+    if c_t is not None:
+        cap = np.fft.fft(c_t) / nt
+        a, b = a + jw[:, None] * cap[lo], b + jw[:, None] * cap[hi]
+    if rows is not None:
+        a, b = a * rows[:, None], b * rows[:, None]
+    dc = ks == 0
+    a[dc] /= 2.0
+    b[dc] /= 2.0
     out = np.empty((2 * ks.size, 2 * ks.size))
     out[0::2, 0::2] = a.real + b.real
     out[0::2, 1::2] = b.imag - a.imag
     out[1::2, 0::2] = a.imag + b.imag
     out[1::2, 1::2] = a.real - b.real
-    out[0::2][ks == 0] /= 2.0
     return out
 
 
