@@ -192,12 +192,6 @@ class _Balance:
             vk = vk + lam * dv
             self.advance(lam * dother)
             w += lam * step[-1]
-            if abs(vk[0]) < COLLAPSED * a0:
-                # on its way to the trivial root: at this amplitude the element is linear
-                # and Newton only shrinks the fundamental further (a fifth a step, by the
-                # damping above), never back; stop here, converged to it
-                converged = True
-                break
         return vk, w, converged
 
     def begin(self, vk: np.ndarray, start_even: np.ndarray | None) -> None:
