@@ -233,3 +233,17 @@ def test_demo_netlist_in_ngspice(tmp_path):
     spec = Spec.from_yaml(SPEC)
     assert abs(st.peak_v / spec.amplitude.peak_v - 1) < spec.amplitude.tolerance_frac
     assert abs(st.freq_hz / spec.frequency.target_hz - 1) < spec.frequency.tolerance_frac
+
+
+def test_design_rule_refuses_an_amplitude_under_the_detector_drop(demo_catalog):
+    """A 20 mV peak target: the detector's diode drops more than that at its hold
+    current (a silicon junction at 10 uA, some 0.5 V: common practice, no published
+    source), so no reference can set it; the rule says so at once instead of tuning."""
+    spec = Spec.from_yaml(SPEC)
+    rfam = demo_catalog.find("resistors", "mf-1")
+    caps = [demo_catalog.find("capacitors", i) for i in spec.parts.capacitors]
+    tgt = target_for(spec, spec.frequency.target_hz, 0.02, rfam, z_of(spec))
+    d = design(TOPOLOGIES["wien-bridge"], tgt, demo_catalog.find("jfets", "jf-n-gp"),
+               demo_catalog.find("diodes", "dd-si-signal"), None, rfam, caps, demo_catalog.find("opamps", "oa-jfet-4m"))
+    assert not d.ok
+    assert "under the detector diode's drop" in d.why and "20 mV" in d.why

@@ -243,3 +243,23 @@ def test_spice_cards_of_the_new_elements(demo_catalog):
     assert "JQ1 d g 0 pp_q1_njf" in text and "CQ1GS g 0 3e-12" in text and "CQ1GD g d 3e-12" in text
     assert "D3 d h pp_d3_d" in text and "CD3 d h 2e-12" in text
     assert ".model pp_d3_d D(" in text
+
+
+@pytest.mark.parametrize("positive", [True, False])
+@pytest.mark.parametrize("amp,offset", [(0.05, 0.0), (1.414, 0.2), (9.0, -0.5)])
+def test_averaged_hold_level_is_the_root_of_the_net_current(demo_catalog, positive, amp, offset):
+    """The start of the periodic solution (the hold level where the averaged diode
+    current feeds the loads, a safeguarded Newton iteration) against scipy.optimize's
+    brentq on the same net current, to 1e-9 V."""
+    from scipy.optimize import brentq
+
+    from partpick.physics.detector import _level, average_current
+
+    j = junctions_at(demo_catalog.find("diodes", "dd-si-signal"), 300.15)[0]
+    det = Detector(j, positive, 100e-9, ((1 / 100e3, 0.0), (1 / 330e3, 0.8)))
+
+    def net(v):
+        return average_current(det, amp, v - offset)[0] - det.g_load_s * v + det.i_load_a
+
+    ref = brentq(net, offset - amp - 1.0, offset + amp + 1.0, xtol=1e-13)
+    assert _level(det, amp, offset) == pytest.approx(ref, abs=1e-9)

@@ -289,6 +289,7 @@ class _Build:
             self.parts["comp"] = diode
             self.vals["agc_rc"] = nearest(self.rvals, mean / i_c)
             self.drop = tgt.amp_v - mean
+        self.mean = mean
         self.aim(mean)
 
     def aim(self, want_v: float) -> None:
@@ -368,6 +369,9 @@ def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) 
         if not b.integrator(loop, vcr, vc_op, w_n):
             return got
         b.reference(diode, reference)
+        if b.mean <= 0:
+            return AgcDesign(why=f"the amplitude, {tgt.amp_v * 1e3:.3g} mV peak at the oscillator, is under the "
+                                 "detector diode's drop at its hold current: no reference voltage sets it")
         c = b.circuit()
         lin = linear(c, b.cond)
         hb, _ = settled(loop, model(c, b.cond), lin, b.cond.rails(kind))
@@ -381,6 +385,14 @@ def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) 
             hb, _ = settled(loop, model(c, b.cond), lin, b.cond.rails(kind))
         if hb is None or not hb.converged:
             return got
+        if hb.regime != "limiter":
+            # an op-amp out of its linear range (the integrator at its swing: the
+            # control voltage the amplitude needs lies beyond it); the loop's speed does
+            # not change that, and the envelope map would only run to its cycle limit
+            return AgcDesign(dict(b.vals), dict(b.parts), dict(b.fams), hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
+                             math.inf, math.nan, math.nan, lin.margin,
+                             f"best tried: the op-amps leave their linear range ({hb.regime}): the control does "
+                             "not hold the amplitude")
         stl = CONTROL.settling(c, b.cond, loop, lin, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
                                clip_v=min(hi_sw, -lo_sw))
         slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s

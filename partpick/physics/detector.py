@@ -119,16 +119,26 @@ def average_current(det: Detector, amp_v: float, v_hold: float) -> tuple[float, 
 
 
 def _level(det: Detector, amp_v: float, offset_v: float = 0.0) -> float:
-    """The hold level where the averaged diode current feeds the loads (bisection)."""
+    """The hold level where the averaged diode current feeds the loads: Newton's
+    method on the net current (which falls as the hold rises), kept inside a bisection
+    bracket (a Newton step outside it bisects instead)."""
     lo, hi = offset_v - amp_v - 1.0, offset_v + amp_v + 1.0
+    v = 0.5 * (lo + hi)
     for _ in range(80):
-        mid = 0.5 * (lo + hi)
-        net = average_current(det, amp_v, mid - offset_v)[0] - det.g_load_s * mid + det.i_load_a
+        i, g = average_current(det, amp_v, v - offset_v)
+        net = i - det.g_load_s * v + det.i_load_a
         if net > 0:
-            lo = mid
+            lo = v
         else:
-            hi = mid
-    return 0.5 * (lo + hi)
+            hi = v
+        slope = g - det.g_load_s
+        nxt = v - net / slope if slope < 0 else math.nan
+        if not lo < nxt < hi:
+            nxt = 0.5 * (lo + hi)
+        if abs(nxt - v) < 1e-12 * max(1.0, amp_v) or hi - lo < 1e-12 * max(1.0, amp_v):
+            return nxt
+        v = nxt
+    return v
 
 
 def hold_waveform(det: Detector, amp_v: float, f_hz: float, *, points: int = POINTS, kmax: int = 9,
