@@ -530,10 +530,13 @@ def _place(digits: str, point: int) -> str:
 
 def _engineering(v: float, d: int) -> tuple[str, str]:
     """(signed mantissa, printed prefix) of v at d significant digits; the prefix is
-    picked after rounding and clamped to the prefix table."""
+    picked after rounding. Beyond the prefix table the mantissa takes a power of ten
+    and no prefix (``2.7e-22 V``, not a femto with six leading zeros)."""
     digits, e = _sci(v, d)
-    power = min(max(3 * (e // 3), _POWER_MIN), _POWER_MAX)
+    power = 3 * (e // 3)
     sign = "-" if v < 0 else ""
+    if not _POWER_MIN <= power <= _POWER_MAX:
+        return sign + digits[0] + ("." + digits[1:] if len(digits) > 1 else "") + f"e{e:+03d}", ""
     return sign + _place(digits, e - power + 1), _PRINTED_PREFIX[power]
 
 

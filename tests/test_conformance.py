@@ -18,7 +18,6 @@ in EXAMPLES below.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 
 import numpy as np
@@ -245,3 +244,23 @@ def test_wien_harmonic_transfer_against_the_divider():
         return (k - 1) ** 2 / k * math.sqrt(k ** 2 + (p * s3) ** 2) / (p * s3)
 
     assert float(topo.thd_transfer(np.array([kk]), arms)[0]) == pytest.approx(t(kk, pp) / t(3, 1), rel=1e-12)
+
+
+def test_a_far_warm_start_gives_the_cold_start_answer(demo_catalog):
+    """``predict(near=...)`` promises the same answer, only sooner. A red-LED limiter at
+    50 kHz warm-started at -100 degC from its 25 degC solution fell into the trivial
+    root (the fundamental collapsed to nanovolts, reported as the oscillation, though
+    the linear analysis says the circuit starts); it is now solved again from the
+    describing-function amplitude and equals the cold start's answer."""
+    values = dict(rs=25.5e3, cs=110e-12, rp=30.9e3, cp=100e-12, rg=3.32e3, rf=6.04e3, rd=5.9e3, stage_ra=845.0,
+                  stage_rb=21e3)
+    parts = {"opamp": demo_catalog.find("opamps", "oa-audio-10m"), "limiter": demo_catalog.find("limiters", "led-red")}
+    c = make_circuit("wien-bridge", "diode-limiter", values, parts, stage="attenuator")
+    near = predict(c, Conditions(5.0, 298.15, 1e3, 100e-12), transient=False)
+    for temp_k in (173.15, 203.15):
+        cond = Conditions(4.75, temp_k, 1e3, 100e-12)
+        cold, warm = predict(c, cond, transient=False), predict(c, cond, near=near, transient=False)
+        assert cold.method == warm.method == "harmonic balance"
+        assert cold.osc_peak_v > 2.5     # the LED pair's knee at the cold end, through the gain of 2.8
+        assert warm.osc_peak_v == pytest.approx(cold.osc_peak_v, rel=1e-9)
+        assert warm.freq_hz == pytest.approx(cold.freq_hz, rel=1e-9)

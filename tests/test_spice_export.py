@@ -361,7 +361,7 @@ def test_batch_block_with_the_predicted_frequency(demo_catalog):
     block = lines[lines.index(".control"):lines.index(".endc") + 1]
     load = f"v({nl.probes['load']})"
     assert "run" in block and f"fourier $&pp_freq {load}" in block
-    assert f"let pp_freq = 12/(pp_t2-pp_t1)" in block  # 15 periods measured from the end, 12 whole ones timed
+    assert "let pp_freq = 12/(pp_t2-pp_t1)" in block  # 15 periods measured from the end, 12 whole ones timed
     assert any(ln.startswith("if $?batchmode") for ln in block) and "  quit" in block
     assert ".control" not in to_spice(nl)
     with pytest.raises(ValueError, match="measure_hz"):

@@ -374,8 +374,8 @@ FORMAT_ROWS = [
     (-4700.0, "resistance", None, "-4.7 kΩ"),
     (999.96, "resistance", 3, "1.00 kΩ"),  # prefix picked after rounding
     (999.4, "resistance", 3, "999 Ω"),
-    (1e20, "resistance", None, "100000000 TΩ"),  # beyond the table: mantissa >= 1000
-    (1e-20, "capacitance", None, "0.00001 fF"),  # beyond the table: mantissa < 1
+    (1e20, "resistance", None, "1e+20 Ω"),  # beyond the table: a power of ten, no prefix
+    (1e-20, "capacitance", None, "1e-20 F"),
 ]
 
 
@@ -564,3 +564,13 @@ def test_three_digits_show_three_digits(mantissa: int, power: int, dim: str) -> 
 )
 def test_three_digit_examples(x: float, expected: str) -> None:
     assert format_quantity(x, "resistance", digits=3) == expected
+
+
+@pytest.mark.parametrize("value,dim,text", [(2.742e-22, "voltage", "2.742e-22 V"), (3.3e20, "resistance", "3.3e+20 Ω"),
+                                            (-2.5e-19, "voltage", "-2.5e-19 V"), (1e-15, "capacitance", "1 fF")])
+def test_values_beyond_the_prefix_table_take_a_power_of_ten(value, dim, text):
+    """SI prefixes (BIPM, The International System of Units, 9th ed., table 7) used by
+    the formatter run from femto to tera; beyond them the value is printed with a power
+    of ten, not as a prefixed number with leading zeros, and reads back."""
+    assert format_quantity(value, dim) == text
+    assert parse_quantity(text, dim) == pytest.approx(value, rel=1e-12)
