@@ -536,8 +536,13 @@ def _engineering(v: float, d: int) -> tuple[str, str]:
     power = 3 * (e // 3)
     sign = "-" if v < 0 else ""
     if not _POWER_MIN <= power <= _POWER_MAX:
-        return sign + digits[0] + ("." + digits[1:] if len(digits) > 1 else "") + f"e{e:+03d}", ""
+        return _e_form(sign, digits, e), ""
     return sign + _place(digits, e - power + 1), _PRINTED_PREFIX[power]
+
+
+def _e_form(sign: str, digits: str, e: int) -> str:
+    """``1.5e-11`` form of the significant digits ``digits`` times 10**e."""
+    return f"{sign}{digits[0]}{'.' + digits[1:] if len(digits) > 1 else ''}e{e:+03d}"
 
 
 def _plain(v: float, d: int, exact: bool) -> str:
@@ -549,8 +554,7 @@ def _plain(v: float, d: int, exact: bool) -> str:
     sign = "-" if v < 0 else ""
     if -5 <= e < 6:
         return sign + _place(digits, e + 1)
-    mantissa = digits[0] + ("." + digits[1:] if len(digits) > 1 else "")
-    return f"{sign}{mantissa}e{e:+03d}"
+    return _e_form(sign, digits, e)
 
 
 def _fit(x: float, digits: int | None, render, read) -> str:  # type: ignore[no-untyped-def]

@@ -109,7 +109,7 @@ class CycleMap:
         map, so a sub-step's charge is scalar arithmetic (the map runs for up to
         100,000 cycles of 32 sub-steps: array calls on six nodes cost more than the
         sums)."""
-        s = 1.0 if self.det.positive else -1.0
+        s = self._sign
         out = []
         for k in range(_SUB):
             a, b = 2 * math.pi * k / _SUB, 2 * math.pi * (k + 1) / _SUB
