@@ -365,6 +365,12 @@ def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) 
     kind = tgt.supply[0]
     lo_sw, hi_sw = swing_limits(b.parts["opamp"], b.cond.rails(kind))
     last, got = None, None
+
+    def tried(settle_s: float, overshoot: float, damping: float, why: str) -> AgcDesign:
+        """The design as it stands, with this try's settled oscillation (hb, lin)."""
+        return AgcDesign(dict(b.vals), dict(b.parts), dict(b.fams), hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
+                         settle_s, overshoot, damping, lin.margin, why)
+
     for _ in range(4):
         if not b.integrator(loop, vcr, vc_op, w_n):
             return got
@@ -389,18 +395,15 @@ def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) 
             # an op-amp out of its linear range (the integrator at its swing: the
             # control voltage the amplitude needs lies beyond it); the loop's speed does
             # not change that, and the envelope map would only run to its cycle limit
-            return AgcDesign(dict(b.vals), dict(b.parts), dict(b.fams), hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
-                             math.inf, math.nan, math.nan, lin.margin,
-                             f"best tried: the op-amps leave their linear range ({hb.regime}): the control does "
-                             "not hold the amplitude")
+            return tried(math.inf, math.nan, math.nan, f"best tried: the op-amps leave their linear range "
+                                                        f"({hb.regime}): the control does not hold the amplitude")
         stl = CONTROL.settling(c, b.cond, loop, lin, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
                                clip_v=min(hi_sw, -lo_sw))
         slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s
         ok = hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= 0.3
         why = "" if ok else (f"best tried: THD {hb.osc_thd * 100:.3g} %, settling {stl.settle_s * 1e3:.3g} ms, "
                              f"damping {stl.damping:.2g}")
-        got = AgcDesign(dict(b.vals), dict(b.parts), dict(b.fams), hb.osc_peak_v, hb.freq_hz, hb.osc_thd,
-                        stl.settle_s, stl.overshoot, stl.damping, lin.margin, why)
+        got = tried(stl.settle_s, stl.overshoot, stl.damping, why)
         if ok:
             return got
         if not slow and last is not None and hb.osc_thd > 0.8 * last:

@@ -453,25 +453,24 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     # across the series resistance, as the element's own amplitude
     a_df = max(a_df - branch.series_ohm * lin.marginal_g_s * a_df, 0.2 * a_df)
     w_lin = 2 * math.pi * lin.marginal_hz / loop.w_ref
-    series = getattr(branch.table, "element", None) is not None
     if start is not None and start.state:
         # the same network a little changed (another gain, temperature): same w_ref
         warm, w0, k0, *even = start.state
-        *got, collapsed = _escalated(loop, branch, series, a_df, w0, k0, escalate, np.asarray(warm),
+        *got, collapsed = _escalated(loop, branch, a_df, w0, k0, escalate, np.asarray(warm),
                                      np.asarray(even[0]) if even and even[0] else None)
         if not collapsed:
             return _result(loop, rails, *got)
         # a warm start too far off (a cold corner from the nominal point) can fall into
         # the trivial root: start again from the describing-function amplitude
-    *got, _ = _escalated(loop, branch, series, a_df, w_lin, kmax, escalate, None, None)
+    *got, _ = _escalated(loop, branch, a_df, w_lin, kmax, escalate, None, None)
     return _result(loop, rails, *got)
 
 
-def _escalated(loop: Loop, branch: Branch, series: bool, a_df: float, w0: float, kmax: int, escalate: int, warm,
-               warm_even):
+def _escalated(loop: Loop, branch: Branch, a_df: float, w0: float, kmax: int, escalate: int, warm, warm_even):
     """(balance, harmonics, scaled frequency, converged, collapsed) from the start
     given, the harmonics doubled while the highest are not yet negligible (at most
     ``escalate`` times)."""
+    series = getattr(branch.table, "element", None) is not None
     for k in (kmax, 2 * kmax + 1, 4 * kmax + 3)[:escalate + 1]:
         hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
