@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import re
 import tempfile
 from pathlib import Path
 
@@ -41,10 +42,22 @@ def shipped_dir() -> Path:
     return Path(__file__).resolve().parent / "tables"
 
 
+# a float in a repr: every number written with a point or an exponent
+_FLOAT = re.compile(r"(?<![\w.])-?(?:\d+\.\d*|\.\d+|\d+(?=[eE]))(?:[eE][-+]?\d+)?")
+
+
+def _canonical(text: str) -> str:
+    """text with every float in it written to 12 significant digits: a grid made by
+    numpy's exp and log (np.geomspace) differs in its last bit from one CPU's vector
+    instructions to another's, and a key must not (the shipped tables were once found by
+    no machine but the one that wrote them)."""
+    return _FLOAT.sub(lambda m: format(float(m.group()), ".12g"), text)
+
+
 def content_key(*parts) -> str:
-    """A stable key for the given inputs (their repr, which for frozen dataclasses and
-    numbers is deterministic)."""
-    text = _VERSION + "\x1f" + "\x1f".join(repr(p) for p in parts)
+    """A stable key for the given inputs: their repr (deterministic for frozen
+    dataclasses and numbers), floats to 12 significant digits (see _canonical)."""
+    text = _VERSION + "\x1f" + "\x1f".join(_canonical(repr(p)) for p in parts)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 
 

@@ -37,14 +37,21 @@ def test_wright_omega_against_scipy():
 
 
 @pytest.mark.parametrize("topology", list(TOPOLOGIES))
-def test_shipped_tables_are_fresh(demo_catalog, topology):
+def test_shipped_tables_are_fresh(demo_catalog, topology, tmp_path, monkeypatch):
     # one slice of every demo limiter recomputed at the topology's lowest level: a change
     # to the physics that the version key missed shows here (a solver change that bent
     # only the Schottky and Zener tables once passed a check of the LED's alone)
     topo = TOPOLOGIES[topology]
     level = min(topo.gain_levels)
+    # the shipped table itself, found by its key on this machine (an empty user cache:
+    # a table not found would be computed and stored there, and the comparison below
+    # would compare a fresh computation with itself; keys made on another machine's
+    # vector instructions once found none of the 140)
+    monkeypatch.setenv("PARTPICK_CACHE", str(tmp_path))
+    surface.cache_clear()
     for lim in demo_catalog.limiters:
         shipped = surface(topo, lim, CTL, F_SLICES[2], level)
+        assert not list(tmp_path.rglob("*.npz")), f"{lim.id}: no shipped table has this machine's key"
         fresh = compute(topo, lim, CTL, F_SLICES[2], level)
         for name in ("vo", "thd", "pull"):
             a, b = getattr(shipped, name), fresh[name]
@@ -54,6 +61,16 @@ def test_shipped_tables_are_fresh(demo_catalog, topology):
     # and every demo limiter's slices ship with the package
     assert len(list((shipped_dir() / "limiter-surface").glob("*.npz"))) >= (
         len(demo_catalog.limiters) * len(F_SLICES) * sum(len(t.gain_levels) for t in TOPOLOGIES.values()))
+
+
+def test_cache_keys_do_not_depend_on_the_last_bits():
+    # a grid from np.geomspace differs in its last bit between CPUs (AVX2 and AVX-512
+    # exp/log); a key must not: floats are keyed to 12 significant digits
+    grid = np.geomspace(0.01, 40.0, 25).tolist()
+    nudged = [np.nextafter(x, np.inf) for x in grid]
+    assert nudged != grid and content_key(grid) == content_key([float(x) for x in nudged])
+    assert content_key(0.1 + 0.2) == content_key(0.3) and content_key(1.0) != content_key(1.000001)
+    assert content_key("tn-0.1", 3e-10) != content_key("tn-0.2", 3e-10)
 
 
 def test_cache_keys_follow_the_content_not_the_name(demo_catalog):
