@@ -128,7 +128,9 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     Raises :class:`InfeasibleError` when no candidate can meet the spec, naming the
     requirements that bind, what the best allowed design reaches and what would make
     it design, with the ``nearest`` failing designs (:mod:`partpick.refusal`; None:
-    a bare refusal, as the runs that work this out use). ``progress(done, total)`` is
+    a bare refusal on a small verification budget, as the runs that work this out use;
+    0: a bare refusal after the full search, for a caller that has its own answer to a
+    refusal, as the trade-off's family runs). ``progress(done, total)`` is
     called as candidates are verified (physics and Monte Carlo). ``topology: auto``
     designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
@@ -209,7 +211,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     ranked = rank(verified, rank_by)
     timings["rank"] = time.perf_counter() - t2
     if not any(r.verdict.passed for r in ranked):
-        if nearest is None:
+        if not nearest:
             raise InfeasibleError("no design meets the spec")
         raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed))
     if len(verified) >= MAX_VERIFY:

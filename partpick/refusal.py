@@ -150,18 +150,19 @@ def miss_text(c, spec: Spec | None = None) -> str:
     return f"{c.name} {q(c.value)} (limit {limit})"
 
 
+def _distance(r) -> tuple:
+    """How far a failing design is from passing: requirements missed, then how far (each
+    shortfall relative to its limit), then its cost."""
+    misses = r.verdict.failed()
+    far = sum(abs(c.margin) / max(abs(c.high if c.high is not None else c.low or 1.0), 1e-12) for c in misses
+              if c.margin is not None and math.isfinite(c.margin))
+    return (len(misses), far, r.cost)
+
+
 def _nearest_lines(failing, count: int, spec: Spec) -> list[str]:
-    """The nearest failing designs: fewest requirements missed, then by how far
-    (each shortfall relative to its limit), then the cheaper."""
-
-    def distance(r):
-        misses = r.verdict.failed()
-        far = sum(abs(c.margin) / max(abs(c.high if c.high is not None else c.low or 1.0), 1e-12) for c in misses
-                  if c.margin is not None and math.isfinite(c.margin))
-        return (len(misses), far, r.cost)
-
+    """The first ``count`` failing designs, in the order given, each with what it misses."""
     out = []
-    for i, r in enumerate(sorted(failing, key=distance)[:count], 1):
+    for i, r in enumerate(failing[:count], 1):
         parts = ", ".join(dict.fromkeys(ln.family for ln in r.bom.lines))
         misses = "; ".join(miss_text(c, spec) for c in r.verdict.failed())
         out.append(f"  {i}. {parts} ({r.bom.stage} output stage), {r.cost:.3f} per board; misses: {misses}")
@@ -207,28 +208,41 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         what = RELAXABLE[rel.field][1]
         lines.append(f"{'or ' if k else ''}{rel.field} binds: {what} with every other requirement met is "
                      f"{_fmt(rel.field, rel.reached)}; relax {rel.field} to {_fmt(rel.field, rel.advice)}")
+    lead_designs: list = []
     if not found and not leading:
         joint = spec
         for field, (loose, _, _, smaller) in RELAXABLE.items():
             now = requirement_value(spec, field)
             joint = relaxed(joint, field, max(now, loose) if smaller else min(now, loose))
         boms = run(joint, None)
-        tried += boms[:3]
-        if boms:
-            binding = tuple(RELAXABLE)
-            lines.append("no single requirement binds alone; with all four loosened the nearest design is below: "
-                         "relax the requirements it misses to what it reaches")
+        # the designs the message points at, judged against the spec as written: first in the list
+        lead_designs = sorted((r for r in (evaluate(spec, bom) for bom in boms[:3]) if not r.verdict.passed),
+                              key=_distance)
+        if lead_designs:
+            binding = tuple(dict.fromkeys(c.field for c in lead_designs[0].verdict.failed()))
+            lines.append(f"no single requirement binds alone: {', '.join(binding)} together; with all four loosened "
+                         "the nearest design (1. below) reaches what it shows: relax those requirements to it")
         else:
-            lines.append("no allowed design oscillates within the supply, load and temperature given, even with "
-                         "the tolerances, the THD limit and the yield loosened")
+            near = sorted((r for r in failing if r.verdict.nominal.starts and not r.verdict.passed), key=_distance)
+            if near:   # designs oscillate, and miss what no loosened requirement touches: name it
+                misses = near[0].verdict.failed()
+                binding = tuple(dict.fromkeys(c.field for c in misses))
+                lines.append(f"{', '.join(binding)} {'binds' if len(binding) == 1 else 'bind'}: even with the "
+                             "tolerances, the THD limit and the yield loosened, no design meets the spec; the nearest "
+                             f"misses {'; '.join(miss_text(c, spec) for c in misses)}")
+            else:
+                lines.append("no allowed design oscillates within the supply, load and temperature given, even with "
+                             "the tolerances, the THD limit and the yield loosened")
     for what, advice in (allow_more or ()):
         lines.append(f"also: {what}: {advice}")
     # the designs the loosened runs found, judged against the spec as written
     failing = list(failing) + [evaluate(spec, bom) for bom in tried]
     failing = [r for r in failing if not r.verdict.passed]
-    if failing:
+    if failing or lead_designs:
+        # the joint run's designs first (the message points at them), then the nearest:
+        # fewest requirements missed, then by how far, then the cheaper
         lines.append("nearest designs (--why-not N shows N):")
-        lines += _nearest_lines(_unique(failing), nearest, spec)
+        lines += _nearest_lines(_unique(lead_designs + sorted(failing, key=_distance)), nearest, spec)
     return "\n".join(lines), binding
 
 
@@ -269,14 +283,30 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
                     f"amplitude.target to {_q(best[0] / (1 - a.tolerance_frac), 'voltage')} peak or raise the supply. "
                     f"Left out: {reasons}{notes}", ("amplitude.target",))
         return f"supply binds: no allowed op-amp can serve: {reasons}{notes}", ("supply",)
-    i_load = low / spec.load.resistance_ohm if spec.load.resistance_ohm > 0 else math.inf
+    # the least current the load takes at the target frequency: the sine's peak times the
+    # magnitude of the load's admittance, 1/R in parallel with j 2 pi f C
+    ld, f = spec.load, spec.frequency.target_hz
+    g, b = (0.0 if math.isinf(ld.resistance_ohm) else 1 / ld.resistance_ohm), 2 * math.pi * f * ld.capacitance_f
+    i_load = low * math.hypot(g, b)
     best_i = max(op.opamp.output_current_a for op in problem.ops) * problem.current_share
     if i_load > best_i:
-        return (f"load.resistance binds: {_q(low, 'voltage')} peak into {_q(spec.load.resistance_ohm, 'resistance')} "
-                f"takes {_q(i_load, 'current')}; the strongest allowed op-amp plans for {_q(best_i, 'current')} "
-                f"({problem.current_share:.0%} of its output current, derating rule output_current): raise "
-                f"load.resistance to {_q(low / best_i, 'resistance')} or add an external driver{notes}",
-                ("load.resistance",))
+        plans = (f"the strongest allowed op-amp plans for {_q(best_i, 'current')} ({problem.current_share:.0%} of its "
+                 f"output current, derating rule output_current)")
+        y_max = best_i / low   # the largest load admittance that current drives, S
+        if b > g:   # the capacitance takes most of it: name it, and what would do
+            # a bound, not a promise: the op-amp also drives its own network, and the
+            # search says what designs
+            fix = (f"a load.capacitance over {_q(math.sqrt(y_max ** 2 - g * g) / (2 * math.pi * f), 'capacitance')} "
+                   "cannot design" if y_max > g else
+                   f"even with no capacitance a load.resistance under {_q(1 / y_max, 'resistance')} cannot design")
+            return (f"load.capacitance binds: {_q(low, 'voltage')} peak into {_q(ld.capacitance_f, 'capacitance')} "
+                    f"at {_q(f, 'frequency')} (reactance {_q(1 / b, 'resistance')}) with "
+                    f"{_q(ld.resistance_ohm, 'resistance')} takes {_q(i_load, 'current')}; {plans}, so {fix}: lower "
+                    f"it or add an external driver{notes}", ("load.capacitance",))
+        r_need = 1 / math.sqrt(y_max ** 2 - b * b) if y_max > b else math.inf
+        return (f"load.resistance binds: {_q(low, 'voltage')} peak into {_q(ld.resistance_ohm, 'resistance')} "
+                f"takes {_q(i_load, 'current')}; {plans}: raise load.resistance to {_q(r_need, 'resistance')} or add "
+                f"an external driver{notes}", ("load.resistance",))
     if not pairs and hold:
         return f"frequency.tolerance binds: {hold}{notes}", ("frequency.tolerance",)
     if not pairs:

@@ -118,9 +118,13 @@ def tradeoff(spec: Spec, catalog: Catalog, *, stock=None, samples: int = 20_000,
             add(r, "given")
     for i, (label, sub, rank_by, results) in enumerate(runs, 1):
         try:
-            d = design(sub, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples)
+            # only the spec's own run explains a refusal (the others' analyses, seconds each,
+            # would be thrown away)
+            d = design(sub, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples,
+                       nearest=3 if i == 1 else 0)
         except InfeasibleError as exc:
-            refusal = refusal or exc
+            if i == 1:
+                refusal = exc
             continue
         finally:
             if progress is not None:

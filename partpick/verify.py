@@ -424,18 +424,17 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     sr = c.opamp.slew_v_per_s
     need = max(p.slew_v_per_s for p in pts.values())
     checks.append(make_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",
-                         f"2 pi f Vpk = {2 * math.pi * nom.freq_hz * nom.osc_peak_v / 1e6:.3g} V/µs; "
-                         f"op-amp {sr / 1e6:.3g} V/µs"))
+                         f"2 pi f Vpk = {2 * math.pi * nom.freq_hz * nom.osc_peak_v / 1e6:.3g} V/µs; op-amp {sr / 1e6:.3g} V/µs"))
     ipk = max(p.iout_peak_a for p in pts.values())
-    checks.append(make_check("op-amp output current", "load.resistance", ipk, None, c.opamp.output_current_a, "current",
+    ld = spec.load   # the part of the load that takes most of the current binds
+    load_field = "load.capacitance" if 2 * math.pi * nom.freq_hz * ld.capacitance_f * ld.resistance_ohm > 1 else "load.resistance"
+    checks.append(make_check("op-amp output current", load_field, ipk, None, c.opamp.output_current_a, "current",
                          f"load, {c.topology.network_name} and gain network"))
-    if periphery.has_buffer(c):
-        # the output stage's own channel drives the load: its current and swing
-        z = spec.load
-        y_load = periphery.stage_load_admittance(c, z.resistance_ohm, z.capacitance_f, nom.freq_hz)
-        i_buf = max(p.load_peak_v for p in pts.values()) * y_load
-        checks.append(make_check("output stage current", "load.resistance", i_buf, None, c.opamp.output_current_a,
-                             "current", "the buffer channel into the load"))
+    if periphery.has_buffer(c):   # the output stage's own channel drives the load: its current and swing
+        y_load = periphery.stage_load_admittance(c, ld.resistance_ohm, ld.capacitance_f, nom.freq_hz)
+        i_buf = max(p.load_peak_v for p in pts.values()) * abs(y_load)
+        checks.append(make_check("output stage current", load_field, i_buf, None, c.opamp.output_current_a, "current",
+                                 "the buffer channel into the load"))
         buf_head = min(low_pt.swing_high_v, -low_pt.swing_low_v) - low_pt.load_peak_v
         checks.append(make_check("output stage swing headroom", "supply.min", buf_head, 0.0, None, "voltage",
                              "the buffer channel at the minimum supply"))
@@ -545,15 +544,16 @@ def package_limit(op, spec: Spec) -> tuple[float, str]:
 def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:
     """(W, which package) the hottest op-amp package dissipates at the maximum supply:
     the quiescent power of every channel it holds (catalog figures are per channel) plus
-    the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`);
+    the output stage of each channel in use, class B (:func:`partpick.physics.opamp.class_b_loss`; a
+    buffer's load at its power factor: a capacitive load takes current, not power);
     an amplitude control's integrator channel counts as a channel in use, its output
     stage's loss left out (it drives a JFET's gate: microamps)."""
     op, span = c.opamp, spec.supply.span_max_v
     # each of the topology's channels at the worst channel's output current
     losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)] * c.topology.channels
     if periphery.has_buffer(c):
-        i_buf = nom.load_peak_v / max(spec.load.resistance_ohm, 1e-9)
-        losses.append(class_b_loss(span / 2, nom.load_peak_v, i_buf))
+        y = periphery.stage_load_admittance(c, spec.load.resistance_ohm, spec.load.capacitance_f, nom.freq_hz)
+        losses.append(class_b_loss(span / 2, nom.load_peak_v, nom.load_peak_v * abs(y), y.real / abs(y) if y else 1.0))
     quiescent = span * op.quiescent_current_a * op.channels
     used = periphery.channels_used(c)
     if op.channels >= used:

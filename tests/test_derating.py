@@ -153,3 +153,24 @@ def test_the_search_aims_with_the_spec_shares(demo_catalog):
         # then holds the design to the spec's own limit
         assert r.pick.thd <= 0.5 * base.max_thd_frac + 1e-12
         assert r.thd <= base.max_thd_frac
+
+
+@pytest.mark.parametrize("phase_deg", [0.0, 30.0, 60.0, 89.0, 90.0])
+def test_class_b_loss_with_a_reactive_load(phase_deg):
+    """The output stage's loss against its definition, integrated over a period: a
+    class-B stage draws the positive half of the load current from the upper rail and
+    the negative half from the lower one (Sedra and Smith, Microelectronic Circuits,
+    class B output stage), so it dissipates V_rail mean|i| - mean(v i); a load current
+    phi out of phase with the voltage (a capacitive load) takes less of that power."""
+    import math
+
+    import numpy as np
+
+    from partpick.physics.opamp import class_b_loss
+
+    v_rail, v_pk, i_pk = 12.0, 7.0, 0.05
+    phi = math.radians(phase_deg)
+    t = 2 * np.pi * (np.arange(100_000) + 0.5) / 100_000
+    v, i = v_pk * np.sin(t), i_pk * np.sin(t + phi)
+    loss = v_rail * np.mean(np.abs(i)) - np.mean(v * i)
+    assert float(class_b_loss(v_rail, v_pk, i_pk, math.cos(phi))) == pytest.approx(loss, rel=1e-6)

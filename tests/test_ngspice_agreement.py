@@ -53,6 +53,12 @@ DESIGNS = {
     "attenuator": (dict(rs=10e3, cs=4.7e-9, rp=10e3, cp=4.7e-9, rg=10e3, rf=22e3, rd=22e3,
                         op="oa-jfet-4m", lim="d-si-signal", stage="attenuator", ra=10e3, rb=4.7e3),
                    dict(v=12, rl=10e3)),
+    # a 100 nF load at 50 kHz (32 ohm of reactance) behind a 46.4 ohm attenuator: the
+    # design partpick returns for the carrier spec with that load (refused before the
+    # search counted the capacitance in the attenuator's ratio and the op-amp's current)
+    "attenuator-100nF-load": (dict(rs=24.3e3, cs=120e-12, rp=19.6e3, cp=150e-12, rg=3.32e3, rf=8.87e3, rd=13.3e3,
+                                   op="oa-fast-50m", lim="led-red", stage="attenuator", ra=46.4, rb=20e3),
+                              dict(v=5, rl=1e3, cl=100e-9)),
 }
 
 

@@ -16,6 +16,11 @@ from partpick.physics.ngspice import ngspice_available
 from tests.conftest import CATALOGS, SPECS
 
 DEMOS = sorted(SPECS.glob("*.yaml"))
+# rendered in the browser: every demo but the audio tone, whose report is a limiter design like the
+# carrier's and the transducer's, and whose trade-off runs (one per family pair, each designing the
+# JFET control's fallback for its own capacitor family on an empty cache) take about 4 minutes of a
+# CI run that must stay under 20
+RENDERED = [p for p in DEMOS if p.stem != "audio-tone-1k"]
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync"]
@@ -43,7 +48,7 @@ def _ink_tiles(png, rows: int, cols: int) -> list[list[bool]]:
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium not installed")
-@pytest.mark.parametrize("path", DEMOS, ids=lambda p: p.stem)
+@pytest.mark.parametrize("path", RENDERED, ids=lambda p: p.stem)
 def test_report_renders_in_chromium(tmp_path, path):
     pytest.importorskip("schemdraw")
     pytest.importorskip("PIL")

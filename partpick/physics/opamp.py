@@ -131,11 +131,13 @@ def regime(op: OpAmp, x_min_v: float, x_max_v: float, slew_v_per_s: float, limit
     return "limiter"
 
 
-def class_b_loss(v_rail, v_pk, i_pk):
+def class_b_loss(v_rail, v_pk, i_pk, power_factor=1.0):
     """Average output-stage loss, W, for a sine of v_pk (V peak) at i_pk (A peak) from
-    rails +/- v_rail (V) into a resistive load: 2 V I / pi - Vpk I / 2, the class-B
-    result of any power-amplifier text (vectorises over numpy arrays)."""
-    return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk / 2, 0.0)
+    rails +/- v_rail (V): what the rails supply, 2 V I / pi, less what the load takes,
+    Vpk I cos(phi) / 2 (power_factor = cos(phi), 1 for a resistive load, 0 for a
+    capacitive one, which takes nothing and leaves the whole supply power in the stage):
+    the class-B result of any power-amplifier text (vectorises over numpy arrays)."""
+    return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk * power_factor / 2, 0.0)
 
 
 def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:

@@ -66,15 +66,20 @@ class Searcher:
         self.f_t = spec.frequency.target_hz
         load_r = spec.load.resistance_ohm
         self.load_r = load_r
-        self.y_load = (0.0 if math.isinf(load_r) else 1.0 / load_r) + 2 * math.pi * self.f_t * spec.load.capacitance_f
+        # the load's admittance at the target: its magnitude sets the current, its phase the
+        # power the load takes (verification reads the same, periphery.stage_load_admittance)
+        y_load = complex(0.0 if math.isinf(load_r) else 1.0 / load_r, 2 * math.pi * self.f_t * spec.load.capacitance_f)
+        self.y_load_c = y_load
+        self.y_load = abs(y_load)
+        self.load_pf = y_load.real / abs(y_load) if y_load else 1.0
         self._amp: dict = {}
         # THD counts at every output the topology has only when the spec loads them all (a
         # second output without a load_cosine is not used)
         self.all_outputs = spec.load_cosine is not None
         self._ch: dict = {}
         self._stages: dict = {}
-        self.stage_tables = {(k, f.id): memo(("stage", k, f, load_r, problem.shelf),
-                                              lambda k=k, f=f: StageTable(k, f, load_r, problem.shelf))
+        self.stage_tables = {(k, f.id): memo(("stage", k, f, y_load, problem.shelf),
+                                              lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
                              for k in kinds if k in STAGE_RATIO for f in problem.r_families}
         limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
         self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id]}
@@ -322,7 +327,7 @@ class Searcher:
             # buffer needs a second channel the package lacks)
             span = p.spec.supply.span_max_v
             osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
-            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), load.max(axis=0) / self.load_r), 0.0)
+            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, self.load_pf), 0.0)
             watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
                                                                  np.maximum(osc_w, buf_w))
             rr = vals[:, [0, 2]]
@@ -471,14 +476,16 @@ class Searcher:
         the arms, the gain network and, without a buffer, the stage and the load (kinds:
         index of each row's stage kind in periphery.STAGE_KINDS)."""
         w = 2 * math.pi * self.f_t
-        z_arm = np.abs((vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3]))
+        z_arm = (vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3])
         y = 1 / z_arm + 1 / (r_fb + r_gnd)
         kind = np.array(periphery.STAGE_KINDS)[kinds]
         with np.errstate(invalid="ignore", divide="ignore"):
-            shunt = rb if math.isinf(self.load_r) else rb * self.load_r / (rb + self.load_r)
+            # complex: a capacitive load behind the attenuator's shunt leg can carry most
+            # of the current (100 nF at 50 kHz is 32 ohm)
             extra = np.select([kind == "none", kind == "attenuator", kind == "buffered-attenuator"],
-                              [np.full(y.shape, self.y_load), 1 / (ra + shunt), 1 / (ra + rb)], 0.0)
-        return y + extra
+                              [np.full(y.shape, self.y_load_c), 1 / (ra + 1 / (1 / rb + self.y_load_c)),
+                               1 / (ra + rb) + 0j], 0j)
+        return np.abs(y + extra)
 
 
 def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:

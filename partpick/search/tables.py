@@ -77,8 +77,8 @@ class StageTable:
     wanted gain, the pair within STAGE_RES of it whose level (Ra + Rb) is nearest
     STAGE_LEVEL, else the nearest gain."""
 
-    def __init__(self, kind: str, rfam, load_r: float, shelf=None) -> None:
-        self.gains, self.ra, self.rb = stage_table(kind, rfam, load_r, shelf)
+    def __init__(self, kind: str, rfam, load_y: complex, shelf=None) -> None:
+        self.gains, self.ra, self.rb = stage_table(kind, rfam, load_y, shelf)
         self.ln_g = np.log(self.gains)
         self._level = RangeMin(np.abs(np.log((self.ra + self.rb) / STAGE_LEVEL)))
 
@@ -149,10 +149,12 @@ class ArmIndex:
 
 
 
-def stage_table(kind: str, rfam, load_r: float, shelf=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def stage_table(kind: str, rfam, load_y: complex, shelf=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(gains ascending, Ra, Rb) of every resistor pair of the family for a ratio stage
     (resistors from 1 kohm, and from 10 ohm for a passive attenuator, which may need to
-    be stiff against a heavy load)."""
+    be stiff against a heavy load). load_y: the load's admittance at the target
+    frequency, S (complex: a passive attenuator's gain is the magnitude of its divider
+    with the load across Rb)."""
     lo = 10.0 if kind == "attenuator" else 1e3
     vals = np.array([v for v in values_of(rfam, shelf) if lo <= v <= 1e6])
     if vals.size == 0:
@@ -161,8 +163,8 @@ def stage_table(kind: str, rfam, load_r: float, shelf=None) -> tuple[np.ndarray,
     if kind == "gain":
         g = 1 + rb / ra
     elif kind == "attenuator":
-        shunt = rb if math.isinf(load_r) else rb * load_r / (rb + load_r)
-        g = shunt / (ra + shunt)
+        shunt = 1 / (1 / rb + load_y)
+        g = np.abs(shunt / (ra + shunt))
     else:
         g = rb / (ra + rb)
     lo_g, hi_g = STAGE_RATIO[kind]
