@@ -65,7 +65,6 @@ class Searcher:
         spec = problem.spec
         self.f_t = spec.frequency.target_hz
         load_r = spec.load.resistance_ohm
-        self.load_r = load_r
         # the load's admittance at the target: its magnitude sets the current, its phase the
         # power the load takes (verification reads the same, periphery.stage_load_admittance)
         y_load = complex(0.0 if math.isinf(load_r) else 1.0 / load_r, 2 * math.pi * self.f_t * spec.load.capacitance_f)
