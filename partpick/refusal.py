@@ -286,8 +286,8 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
     # the least current the load takes at the target frequency: the sine's peak times the
     # magnitude of the load's admittance, 1/R in parallel with j 2 pi f C
     ld, f = spec.load, spec.frequency.target_hz
-    g, b = (0.0 if math.isinf(ld.resistance_ohm) else 1 / ld.resistance_ohm), 2 * math.pi * f * ld.capacitance_f
-    i_load = low * math.hypot(g, b)
+    y = ld.admittance_s(f)
+    g, b, i_load = y.real, y.imag, low * abs(y)
     best_i = max(op.opamp.output_current_a for op in problem.ops) * problem.current_share
     if i_load > best_i:
         plans = (f"the strongest allowed op-amp plans for {_q(best_i, 'current')} ({problem.current_share:.0%} of its "

@@ -118,6 +118,12 @@ class LoadReq:
     resistance_ohm: float
     capacitance_f: float
 
+    def admittance_s(self, f_hz: float) -> complex:
+        """The load's admittance at f_hz (Hz), S: 1/R + j 2 pi f C (complex: its magnitude
+        sets the current the load takes, its phase the power)."""
+        return complex(0.0 if math.isinf(self.resistance_ohm) else 1 / self.resistance_ohm,
+                       2 * math.pi * f_hz * self.capacitance_f)
+
 
 @dataclass(frozen=True, slots=True)
 class QuadratureReq:

@@ -21,7 +21,7 @@ from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_n
 from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
 from partpick.physics.linear import LinearResult
-from partpick.physics.opamp import class_b_loss, regime as opamp_regime, swing_limits
+from partpick.physics.opamp import class_b_loss, power_factor, regime as opamp_regime, swing_limits
 from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin",
@@ -426,13 +426,12 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     checks.append(make_check("slew rate needed", "frequency.target", need, None, sr, "slew_rate",
                          f"2 pi f Vpk = {2 * math.pi * nom.freq_hz * nom.osc_peak_v / 1e6:.3g} V/µs; op-amp {sr / 1e6:.3g} V/µs"))
     ipk = max(p.iout_peak_a for p in pts.values())
-    ld = spec.load   # the part of the load that takes most of the current binds
-    load_field = "load.capacitance" if 2 * math.pi * nom.freq_hz * ld.capacitance_f * ld.resistance_ohm > 1 else "load.resistance"
+    y_load = spec.load.admittance_s(nom.freq_hz)   # the part of the load that takes most of the current binds
+    load_field = "load.capacitance" if y_load.imag > y_load.real else "load.resistance"
     checks.append(make_check("op-amp output current", load_field, ipk, None, c.opamp.output_current_a, "current",
                          f"load, {c.topology.network_name} and gain network"))
     if periphery.has_buffer(c):   # the output stage's own channel drives the load: its current and swing
-        y_load = periphery.stage_load_admittance(c, ld.resistance_ohm, ld.capacitance_f, nom.freq_hz)
-        i_buf = max(p.load_peak_v for p in pts.values()) * abs(y_load)
+        i_buf = max(p.load_peak_v for p in pts.values()) * abs(periphery.stage_load_admittance(c, y_load))
         checks.append(make_check("output stage current", load_field, i_buf, None, c.opamp.output_current_a, "current",
                                  "the buffer channel into the load"))
         buf_head = min(low_pt.swing_high_v, -low_pt.swing_low_v) - low_pt.load_peak_v
@@ -552,8 +551,8 @@ def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[f
     # each of the topology's channels at the worst channel's output current
     losses = [class_b_loss(span / 2, nom.osc_peak_v, nom.iout_peak_a)] * c.topology.channels
     if periphery.has_buffer(c):
-        y = periphery.stage_load_admittance(c, spec.load.resistance_ohm, spec.load.capacitance_f, nom.freq_hz)
-        losses.append(class_b_loss(span / 2, nom.load_peak_v, nom.load_peak_v * abs(y), y.real / abs(y) if y else 1.0))
+        y = periphery.stage_load_admittance(c, spec.load.admittance_s(nom.freq_hz))
+        losses.append(class_b_loss(span / 2, nom.load_peak_v, nom.load_peak_v * abs(y), power_factor(y)))
     quiescent = span * op.quiescent_current_a * op.channels
     used = periphery.channels_used(c)
     if op.channels >= used:

@@ -202,14 +202,11 @@ def to_load(c: Circuit, cond: Conditions, w_ref: float) -> Rational:
     return divider * a / (const(1.0) + yl.scale(ro) + a * b) * coupling
 
 
-def stage_load_admittance(c: Circuit, load_r_ohm: float, load_c_f: float, f_hz: float) -> complex:
-    """What the buffer channel drives at f_hz (Hz), S (complex: its magnitude sets the
-    current, its phase the power the load takes): the load and, for a gain stage, its
-    own feedback divider."""
-    g = 0.0 if math.isinf(load_r_ohm) else 1 / load_r_ohm
-    if c.stage == "gain":
-        g += 1 / (c.value("stage_ra") + c.value("stage_rb"))
-    return complex(g, 2 * math.pi * f_hz * load_c_f)
+def stage_load_admittance(c: Circuit, load_y: complex) -> complex:
+    """What the buffer channel drives, S (complex: its magnitude sets the current, its
+    phase the power the load takes): the load (load_y, S, at the frequency in question)
+    and, for a gain stage, its own feedback divider."""
+    return load_y + (1 / (c.value("stage_ra") + c.value("stage_rb")) if c.stage == "gain" else 0.0)
 
 
 # -- search hooks ---------------------------------------------------------------------------------

@@ -23,7 +23,7 @@ from partpick.catalog import OpAmp
 from partpick.physics.rational import Rational
 
 __all__ = ["linear_peak_v", "open_loop_gain", "output_resistance", "MacroParams", "macro_params", "swing_limits", "regime",
-           "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss", "loop_figures"]
+           "SLEW_SHARE", "CURRENT_SHARE", "ideal_opamp", "class_b_loss", "power_factor", "loop_figures"]
 
 # The linear model holds while the signal's slew stays under this share of the slew rate
 # and the output current under this share of the current limit (beyond them the output
@@ -138,6 +138,12 @@ def class_b_loss(v_rail, v_pk, i_pk, power_factor=1.0):
     capacitive one, which takes nothing and leaves the whole supply power in the stage):
     the class-B result of any power-amplifier text (vectorises over numpy arrays)."""
     return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk * power_factor / 2, 0.0)
+
+
+def power_factor(y: complex) -> float:
+    """cos(phi) of a load of admittance y (S): the share of Vpk I / 2 it takes as power
+    (1 for an open load, which takes nothing either way)."""
+    return y.real / abs(y) if y else 1.0
 
 
 def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:

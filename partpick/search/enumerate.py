@@ -30,7 +30,7 @@ import numpy as np
 from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner
 from partpick.circuits.options import nearest, sigma, values_of
-from partpick.physics.opamp import class_b_loss, linear_peak_v
+from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.prices import PriceBook
@@ -64,13 +64,9 @@ class Searcher:
         self.kinds = kinds
         spec = problem.spec
         self.f_t = spec.frequency.target_hz
-        load_r = spec.load.resistance_ohm
         # the load's admittance at the target: its magnitude sets the current, its phase the
-        # power the load takes (verification reads the same, periphery.stage_load_admittance)
-        y_load = complex(0.0 if math.isinf(load_r) else 1.0 / load_r, 2 * math.pi * self.f_t * spec.load.capacitance_f)
-        self.y_load_c = y_load
-        self.y_load = abs(y_load)
-        self.load_pf = y_load.real / abs(y_load) if y_load else 1.0
+        # power the load takes (as verification reads it)
+        y_load = self.y_load = spec.load.admittance_s(self.f_t)
         self._amp: dict = {}
         # THD counts at every output the topology has only when the spec loads them all (a
         # second output without a load_cosine is not used)
@@ -312,7 +308,7 @@ class Searcher:
         load = vo * ratio
         buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
         i_osc = vo.max(axis=0) * self._osc_admittance(vals, r_fb, r_gnd, kinds, ra, rb)
-        i_load = np.where(buffered, load.max(axis=0) * self.y_load, 0.0)
+        i_load = np.where(buffered, load.max(axis=0) * abs(self.y_load), 0.0)
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -326,7 +322,7 @@ class Searcher:
             # buffer needs a second channel the package lacks)
             span = p.spec.supply.span_max_v
             osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
-            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, self.load_pf), 0.0)
+            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, power_factor(self.y_load)), 0.0)
             watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
                                                                  np.maximum(osc_w, buf_w))
             rr = vals[:, [0, 2]]
@@ -482,7 +478,7 @@ class Searcher:
             # complex: a capacitive load behind the attenuator's shunt leg can carry most
             # of the current (100 nF at 50 kHz is 32 ohm)
             extra = np.select([kind == "none", kind == "attenuator", kind == "buffered-attenuator"],
-                              [np.full(y.shape, self.y_load_c), 1 / (ra + 1 / (1 / rb + self.y_load_c)),
+                              [np.full(y.shape, self.y_load), 1 / (ra + 1 / (1 / rb + self.y_load)),
                                1 / (ra + rb) + 0j], 0j)
         return np.abs(y + extra)
 
