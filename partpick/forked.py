@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 import pickle
+import struct
 
 __all__ = ["workers", "fork_map"]
 
@@ -30,41 +31,51 @@ def workers() -> int:
 
 
 def fork_map(func, items) -> list:
-    """[func(x) for x in items], over forked worker processes (item i to worker i mod n)
-    when there are more than one CPU and more than one item (func's results must
-    pickle); in this process when forking is not available or this process is a worker
-    itself. A worker that fails (an error, a result that does not pickle) has its items
-    computed here, so an error is raised as it would be without workers."""
+    """[func(x) for x in items], over forked worker processes when there are more than
+    one CPU and more than one item (func's results must pickle); in this process when
+    forking is not available or this process is a worker itself. The items are handed
+    out one at a time as workers come free (their costs differ by tens of times: a
+    static split leaves one CPU idle while the other works through the dear ones), and
+    each result is put back at its item's place. Items a worker did not return (an
+    error, a result that does not pickle) are computed here, so an error is raised as
+    it would be without workers."""
     global _IN_WORKER
     items = list(items)
     n = min(workers(), len(items))
     if n <= 1 or _IN_WORKER or not hasattr(os, "fork"):
         return [func(x) for x in items]
+    # the queue: every index written before any worker starts, so each 4-byte read a
+    # worker makes (reads of one pipe are serialised by the kernel) takes one whole index
+    tasks_r, tasks_w = os.pipe()
+    os.write(tasks_w, b"".join(struct.pack("<I", i) for i in range(len(items))))
+    os.close(tasks_w)
     children = []
-    for w in range(n):
-        mine = list(range(w, len(items), n))
+    for _ in range(n):
         read, write = os.pipe()
         pid = os.fork()
-        if pid == 0:   # the worker: compute, send, leave without running any exit handler
+        if pid == 0:   # the worker: take, compute, send, leave without running any exit handler
             try:
                 os.close(read)
                 _IN_WORKER = True
-                data = pickle.dumps([func(items[i]) for i in mine], protocol=pickle.HIGHEST_PROTOCOL)
+                done = []
+                while len(got := os.read(tasks_r, 4)) == 4:
+                    i = struct.unpack("<I", got)[0]
+                    done.append((i, func(items[i])))
+                data = pickle.dumps(done, protocol=pickle.HIGHEST_PROTOCOL)
                 with os.fdopen(write, "wb") as out:
                     out.write(data)
             finally:
                 os._exit(0)
         os.close(write)
-        children.append((pid, read, mine))
-    results: list = [None] * len(items)
-    for pid, read, mine in children:
+        children.append((pid, read))
+    os.close(tasks_r)
+    results: dict[int, object] = {}
+    for pid, read in children:
         with os.fdopen(read, "rb") as src:
             data = src.read()
         os.waitpid(pid, 0)
         try:
-            got = pickle.loads(data)
-        except Exception:   # the worker failed: its items again, here
-            got = [func(items[i]) for i in mine]
-        for i, value in zip(mine, got):
-            results[i] = value
-    return results
+            results.update(pickle.loads(data))
+        except Exception:   # the worker failed: what it took is computed below, here
+            pass
+    return [results[i] if i in results else func(items[i]) for i in range(len(items))]

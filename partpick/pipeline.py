@@ -333,8 +333,10 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     opened = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
               for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
     prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None
-    first = [(s, keys) for _, s, keys in loosened(spec)] + [(s, None) for _, s in opened]
-    first += [(prefer, None)] if prefer is not None else []
+    # (the runs with more parts allowed search the most: started first, so that the
+    # cheap ones fill the other CPUs meanwhile)
+    first = [(s, None) for _, s in opened] + [(prefer, None)] * (prefer is not None)
+    first += [(s, keys) for _, s, keys in loosened(spec)]
     done.update(zip(first, fork_map(fresh, first)))
 
     def evaluate(s: Spec, bom: Bom) -> Ranked:

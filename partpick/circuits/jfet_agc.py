@@ -252,6 +252,14 @@ class JfetAgc:
         return search_designs(spec, catalog, topology, f_hz, gain_family, temps_k, opamp=opamp, amps_v=amps_v,
                               linearise=linearise)
 
+    def amplitude_share_bound(self, spec, catalog) -> float:
+        """The most builds (fraction) whose amplitude any design of the search hook can
+        hold within the spec's tolerance, before designing one
+        (:func:`partpick.circuits.jfet_search.amplitude_share_bound`)."""
+        from partpick.circuits.jfet_search import amplitude_share_bound
+
+        return amplitude_share_bound(spec, catalog)
+
     def spread_model(self, c: Circuit, cond: Conditions):
         """The builds' share of the control's part spreads for the Monte Carlo
         (:func:`partpick.circuits.jfet_spread.spread_model`)."""

@@ -44,13 +44,17 @@ from partpick.circuits.jfet_design import design, target_for, weakest
 from partpick.circuits.options import ControlDesign, allowed_families, z_of
 from partpick.forked import fork_map
 
-__all__ = ["search_designs", "default_opamp", "CACHE_KIND"]
+__all__ = ["search_designs", "default_opamp", "amplitude_share_bound", "CACHE_KIND", "STAGE_ALLOWANCE"]
 
 CACHE_KIND = "jfet-design"
 _VERSION = "jfet-design-2"      # bump when the design rule or the figures change meaning
 _FIGURES = ("amp_min", "amp_nom", "amp_max", "thd", "pull", "amp_per_excess", "amp_spread", "settle_s", "channels",
             "margin", "start_loss")
 _NUDGE = 0.005                  # Rf raised by this share for d ln(amplitude) / d(gain excess)
+# the output stages a designed control is placed with are of gain one (a follower, or the
+# oscillator straight at the load): the load's amplitude is the oscillator's times at
+# least 1 / STAGE_ALLOWANCE (a loaded follower's gain just under one)
+STAGE_ALLOWANCE = 1.05
 
 
 def default_opamp(spec, catalog):
@@ -59,6 +63,29 @@ def default_opamp(spec, catalog):
     fit = [op for op in allowed_families(spec, catalog, "opamps")
            if op.supply_min_v <= s.span_min_v and op.supply_max_v >= s.span_max_v]
     return min(fit, key=lambda op: (op.price_unit, op.id)) if fit else None
+
+
+def amplitude_share_bound(spec, catalog) -> float:
+    """An upper bound (fraction) of the builds whose amplitude at the load can lie
+    within the spec's tolerance, for every design :func:`search_designs` makes: the
+    rule always designs the integrator, so the amplitude is the reference's plus the
+    detector's drop, and the Monte Carlo draws that drop's part-to-part spread as a
+    normal of sigma vf_spread / 3 (:mod:`partpick.circuits.jfet_spread`), volt for volt
+    and independent of everything else it draws. A symmetric unimodal spread added to
+    any independent rest lands in a fixed window no more often than alone and centred
+    (Anderson's theorem: T. W. Anderson, Proc. AMS 6, 1955), so the share is at most
+    erf(h / (sigma sqrt 2)) with h the band's half-width (tolerance times target, V)
+    carried back to the oscillator (STAGE_ALLOWANCE). 1 when no diode is allowed (the
+    hook designs nothing then anyway)."""
+    diodes = allowed_families(spec, catalog, "diodes")
+    if not diodes:
+        return 1.0
+    detector = min(diodes, key=lambda d: (d.price_unit, d.id))   # the one the hook designs with
+    sigma = detector.vf_spread_v / 3.0
+    if sigma <= 0:
+        return 1.0
+    half = STAGE_ALLOWANCE * spec.amplitude.tolerance_frac * spec.amplitude.peak_v
+    return math.erf(half / (sigma * math.sqrt(2.0)))
 
 
 def search_designs(spec, catalog, topology, f_hz: float, gain_family, temps_k, *, opamp=None, amps_v=None,

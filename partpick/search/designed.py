@@ -18,7 +18,9 @@ caches by content), so the search bounds what it asks the hook for: the cheapest
 screened op-amp with two or more channels (the control takes one for its integrator)
 whose designs fit an arm set (the next two tried in price order when its designs fit
 none; none when the rule designs nothing for the cheapest)
-and one gain family (:func:`_gain_families`); every allowed JFET, both gate networks.
+and one gain family (:func:`_gain_families`); every allowed JFET, both gate networks;
+and nothing at all when the control's parts alone cap the share of builds that can hold
+the amplitude tolerance below the yield asked (the control's ``amplitude_share_bound``).
 """
 
 from __future__ import annotations
@@ -98,6 +100,9 @@ def designed_batch(searcher, ctl, bom_cost) -> DesignedBatch | None:
     spec = p.spec
     kinds = [k for k in searcher.kinds if k not in STAGE_RATIO]   # the stages of gain one
     k_ref = math.log(topo.reference_required_gain)
+    bound = getattr(ctl, "amplitude_share_bound", None)
+    if bound is not None and bound(spec, p.catalog) < p.y_min:
+        return None   # its parts' spread alone breaks the yield: no design is worth its seconds
     out: list[Candidate] = []
     for op in _opamps(p):
         # the stages are of gain one: the oscillator swings (and slews) the load's peak; one

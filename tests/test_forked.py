@@ -1,0 +1,52 @@
+"""partpick/forked.py: work handed out over forked processes gives what the same work
+gives in one process, in the items' order, whatever the items cost."""
+
+from __future__ import annotations
+
+import os
+import time
+
+import pytest
+
+from partpick import forked
+
+
+def _slow_square(x: int) -> tuple[int, int]:
+    # uneven costs: the first item is dear, the rest cheap (the case a static split
+    # serves worst); the worker's pid tells who computed it
+    time.sleep(0.3 if x == 0 else 0.01)
+    return x * x, os.getpid()
+
+
+def test_results_in_item_order_and_shared_out_as_workers_come_free(monkeypatch):
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    if forked.workers() < 2:
+        pytest.skip("one CPU: everything runs here")
+    got = forked.fork_map(_slow_square, range(12))
+    assert [v for v, _ in got] == [x * x for x in range(12)]
+    pids = [p for _, p in got]
+    assert os.getpid() not in pids
+    # the worker that took the dear item 0 did not also get every other odd/even item:
+    # the other worker took the cheap ones as it came free
+    assert pids.count(pids[0]) < 6
+
+
+def _fails_on_three(x: int) -> int:
+    if x == 3:
+        raise ValueError("three")
+    return x
+
+
+def test_an_error_in_a_worker_is_raised_here_as_without_workers(monkeypatch):
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    with pytest.raises(ValueError, match="three"):
+        forked.fork_map(_fails_on_three, range(6))
+    monkeypatch.setenv("PARTPICK_WORKERS", "1")
+    with pytest.raises(ValueError, match="three"):
+        forked.fork_map(_fails_on_three, range(6))
+
+
+def test_one_worker_or_one_item_runs_here(monkeypatch):
+    monkeypatch.setenv("PARTPICK_WORKERS", "1")
+    assert forked.fork_map(_slow_square, [2])[0][1] == os.getpid()
+    assert [v for v, _ in forked.fork_map(_slow_square, range(3))] == [0, 1, 4]
