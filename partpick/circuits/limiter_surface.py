@@ -94,26 +94,31 @@ class Surface:
 
 
 def _coords(rd_ohm, g_s, rg_ohm: float):
-    """Where (rd_ohm, g_s) fall on the (R_GRID, X_GRID) log axes scaled by rg_ohm: cell
-    indices, fractions within the cell, and a mask of points off the table."""
+    """Where (rd_ohm, g_s) fall on the (R_GRID, X_GRID) log axes scaled by rg_ohm: the
+    flat index of each point's cell corner, the four corners' bilinear weights, and a
+    mask of points off the table (computed once for every table read at those points)."""
     u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
     with np.errstate(invalid="ignore", divide="ignore"):
         v = np.log(np.asarray(g_s, float) * rg_ohm)
-    ug = np.log(R_GRID + _R0)
-    vg = np.log(X_GRID)
-    i = np.clip(np.searchsorted(ug, u) - 1, 0, ug.size - 2)
-    j = np.clip(np.searchsorted(vg, v) - 1, 0, vg.size - 2)
-    tu = (u - ug[i]) / (ug[i + 1] - ug[i])
-    tv = (v - vg[j]) / (vg[j + 1] - vg[j])
+    i = np.clip(np.searchsorted(_UG, u) - 1, 0, _UG.size - 2)
+    j = np.clip(np.searchsorted(_VG, v) - 1, 0, _VG.size - 2)
+    tu = (u - _UG[i]) / (_UG[i + 1] - _UG[i])
+    tv = (v - _VG[j]) / (_VG[j + 1] - _VG[j])
     outside = (tu < -1e-9) | (tu > 1 + 1e-9) | (tv < -1e-9) | (tv > 1 + 1e-9) | ~np.isfinite(u * v)
-    return i, j, tu, tv, outside
+    return i * X_GRID.size + j, (1 - tu) * (1 - tv), tu * (1 - tv), (1 - tu) * tv, tu * tv, outside
+
+
+_UG = np.log(R_GRID + _R0)
+_VG = np.log(X_GRID)
 
 
 def _bilinear(z: np.ndarray, at) -> np.ndarray:
-    """Bilinear interpolation of grid z at the coordinates ``at`` (_coords); NaN off it."""
-    i, j, tu, tv, outside = at
-    out = ((1 - tu) * (1 - tv) * z[i, j] + tu * (1 - tv) * z[i + 1, j] + (1 - tu) * tv * z[i, j + 1]
-           + tu * tv * z[i + 1, j + 1])
+    """Bilinear interpolation of grid z (R_GRID x X_GRID) at the coordinates ``at``
+    (_coords); NaN off it."""
+    k, w00, w10, w01, w11, outside = at
+    flat = z.ravel()
+    nj = X_GRID.size
+    out = w00 * flat[k] + w10 * flat[k + nj] + w01 * flat[k + 1] + w11 * flat[k + nj + 1]
     return np.where(outside, np.nan, out)
 
 

@@ -73,6 +73,7 @@ class Searcher:
         self.all_outputs = spec.load_cosine is not None
         self._ch: dict = {}
         self._stages: dict = {}
+        self._sk = None
         self.stage_tables = {(k, f.id): memo(("stage", k, f, y_load, problem.shelf),
                                               lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
                              for k in kinds if k in STAGE_RATIO for f in problem.r_families}
@@ -199,8 +200,24 @@ class Searcher:
         family and level (cached for this spec's load and amplitude)."""
         key = (lim.id, gf.id, r_gnd, kind, sf.id)
         if key not in self._stages:
-            self._stages[key] = self._stage(kind, sf, self._amp_side(lim, gf, r_gnd)["vo"])
+            vo = self._amp_side(lim, gf, r_gnd)["vo"]
+            res = self._stage(kind, sf, vo)
+            if res is not None:
+                # the amplitude's margin to its tolerance at the worst temperature (ln), the
+                # same for every op-amp (only its spread, which divides it, is the op-amp's)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    dev = np.min(math.log1p(self.problem.tol_a) - np.abs(np.log(vo * res[0] / self.problem.amp_v)),
+                                 axis=0)
+                res = (*res, dev)
+            self._stages[key] = res
         return self._stages[key]
+
+    def _typical_sk(self) -> float:
+        """The spread of the arms' required gain (ln) of a typical family pair: the median
+        over the pairs of each one's smallest."""
+        if self._sk is None:
+            self._sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
+        return self._sk
 
     def _choices(self, op, lim, gf, r_gnd):
         """The amplitude side's best rows per K bin for each stage kind and stage
@@ -217,14 +234,12 @@ class Searcher:
             return amp, out
         vo, thd, m = amp["vo"], amp["thd"], amp["m"]
         osc_max = min(op.swing_v, linear_peak_v(op.opamp, self.f_t))
-        typical_sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
-        s_m = m_sigma(p, gf, amp["gain"], typical_sk, op.loss, op.opamp.gbw_spread_frac)
+        s_m = m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
         with np.errstate(invalid="ignore", divide="ignore"):
             s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2)
             # margins in standard deviations: the search's proxy for each share of the yield
             z_core = np.minimum(m / s_m, (p.thd_max - thd) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
             z_core = np.where(vo.max(axis=0) <= osc_max, z_core, -np.inf)
-        ln_tol = math.log1p(p.tol_a)
         shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
         cheapest = min(p.r_families, key=lambda f: f.price_unit)
         for kind in self.kinds:
@@ -232,9 +247,9 @@ class Searcher:
                 res = self._stage_of(lim, gf, r_gnd, kind, sf)
                 if res is None:
                     continue
-                ratio, ra, rb = (np.broadcast_to(x, m.shape) for x in res)
+                ratio, ra, rb = (np.broadcast_to(x, m.shape) for x in res[:3])
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    z_amp = np.min(ln_tol - np.abs(np.log(vo * ratio / p.amp_v)), axis=0) / s_a
+                    z_amp = res[3] / s_a
                     score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
                 rows = _best_rows(amp["bin"], score)
                 if rows.size:
