@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 import pickle
+import select
 import struct
 
 __all__ = ["workers", "fork_map"]
@@ -44,11 +45,10 @@ def fork_map(func, items) -> list:
     n = min(workers(), len(items))
     if n <= 1 or _IN_WORKER or not hasattr(os, "fork"):
         return [func(x) for x in items]
-    # the queue: every index written before any worker starts, so each 4-byte read a
-    # worker makes (reads of one pipe are serialised by the kernel) takes one whole index
+    # the queue: a pipe of 4-byte item indices, written in whole pieces of at most
+    # PIPE_BUF (each lands at once), so every 4-byte read a worker makes (reads of one
+    # pipe are serialised by the kernel) takes one whole index
     tasks_r, tasks_w = os.pipe()
-    os.write(tasks_w, b"".join(struct.pack("<I", i) for i in range(len(items))))
-    os.close(tasks_w)
     children = []
     for _ in range(n):
         read, write = os.pipe()
@@ -56,6 +56,7 @@ def fork_map(func, items) -> list:
         if pid == 0:   # the worker: take, compute, send, leave without running any exit handler
             try:
                 os.close(read)
+                os.close(tasks_w)
                 _IN_WORKER = True
                 done = []
                 while len(got := os.read(tasks_r, 4)) == 4:
@@ -69,6 +70,15 @@ def fork_map(func, items) -> list:
         os.close(write)
         children.append((pid, read))
     os.close(tasks_r)
+    queue = b"".join(struct.pack("<I", i) for i in range(len(items)))
+    piece = max(4, getattr(select, "PIPE_BUF", 512) // 4 * 4)
+    try:
+        for at in range(0, len(queue), piece):
+            os.write(tasks_w, queue[at:at + piece])
+    except BrokenPipeError:
+        pass   # every worker is gone: what they did not return is computed below, here
+    finally:
+        os.close(tasks_w)
     results: dict[int, object] = {}
     for pid, read in children:
         with os.fdopen(read, "rb") as src:

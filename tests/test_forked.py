@@ -50,3 +50,14 @@ def test_one_worker_or_one_item_runs_here(monkeypatch):
     monkeypatch.setenv("PARTPICK_WORKERS", "1")
     assert forked.fork_map(_slow_square, [2])[0][1] == os.getpid()
     assert [v for v, _ in forked.fork_map(_slow_square, range(3))] == [0, 1, 4]
+
+
+def _double(x: int) -> int:
+    return 2 * x
+
+
+def test_more_items_than_a_pipe_holds(monkeypatch):
+    """20,000 indices are 80 kB, more than a pipe's 64 kB: the queue is written while the
+    workers read it, so nothing waits for ever."""
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    assert forked.fork_map(_double, range(20_000)) == [2 * x for x in range(20_000)]
