@@ -213,7 +213,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if not any(r.verdict.passed for r in ranked):
         if not nearest:
             raise InfeasibleError("no design meets the spec")
-        raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed))
+        raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed, samples))
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
@@ -305,9 +305,13 @@ def _cost_first(rank_by) -> bool:
 
 
 def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, failing, nearest: int,
-             seed: int) -> tuple[str, tuple[str, ...]]:
+             seed: int, samples: int) -> tuple[str, tuple[str, ...]]:
     """The why-not of a refused spec (:func:`partpick.refusal.explain_refusal`), with
-    what the parts allowed cannot do named first."""
+    what the parts allowed cannot do named first. The re-searches verify with SAMPLES
+    builds (they only propose); every verdict the message states (the value to relax
+    to, the nearest designs' figures) is judged with the design's own ``samples`` and
+    seed, so that the relaxed spec's verification of the same BOM agrees with it (a
+    yield just at its limit at 4,000 builds can miss it at 20,000)."""
     from partpick.refusal import SAMPLES
 
     work = _Work(REFUSAL_TRANSIENT)   # shared by every run of the analysis
@@ -340,7 +344,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     done.update(zip(first, fork_map(fresh, first)))
 
     def evaluate(s: Spec, bom: Bom) -> Ranked:
-        return evaluate_bom(bom, s, catalog, stock, samples=SAMPLES, seed=seed + 1)
+        return evaluate_bom(bom, s, catalog, stock, samples=samples, seed=seed + 1)
 
     more = []
     for kind, s in opened:
