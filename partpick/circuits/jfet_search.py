@@ -65,6 +65,13 @@ def default_opamp(spec, catalog):
     return min(fit, key=lambda op: (op.price_unit, op.id)) if fit else None
 
 
+def _diode(spec, catalog):
+    """The diode every design is made with (detector, clamp, compensation): the cheapest
+    allowed one, or None."""
+    diodes = allowed_families(spec, catalog, "diodes")
+    return min(diodes, key=lambda d: (d.price_unit, d.id)) if diodes else None
+
+
 def amplitude_share_bound(spec, catalog) -> float:
     """An upper bound (fraction) of the builds whose amplitude at the load can lie
     within the spec's tolerance, for every design :func:`search_designs` makes: the
@@ -77,10 +84,9 @@ def amplitude_share_bound(spec, catalog) -> float:
     erf(h / (sigma sqrt 2)) with h the band's half-width (tolerance times target, V)
     carried back to the oscillator (STAGE_ALLOWANCE). 1 when no diode is allowed (the
     hook designs nothing then anyway)."""
-    diodes = allowed_families(spec, catalog, "diodes")
-    if not diodes:
+    detector = _diode(spec, catalog)
+    if detector is None:
         return 1.0
-    detector = min(diodes, key=lambda d: (d.price_unit, d.id))   # the one the hook designs with
     sigma = detector.vf_spread_v / 3.0
     if sigma <= 0:
         return 1.0
@@ -93,11 +99,10 @@ def search_designs(spec, catalog, topology, f_hz: float, gain_family, temps_k, *
     """Control designs for the search (see module docstring for the contract), in the
     order JFET family, amplitude, linearised first."""
     opamp = opamp or default_opamp(spec, catalog)
-    diodes = allowed_families(spec, catalog, "diodes")
+    diode = _diode(spec, catalog)
     jfets = allowed_families(spec, catalog, "jfets")
-    if opamp is None or not diodes or not jfets:
+    if opamp is None or diode is None or not jfets:
         return ()
-    diode = min(diodes, key=lambda d: (d.price_unit, d.id))
     ref = None
     if spec.supply.min_v != spec.supply.max_v:
         usable = [r for r in allowed_families(spec, catalog, "references") if r.voltage_v < 0.8 * spec.supply.min_v]

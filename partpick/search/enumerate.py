@@ -197,7 +197,9 @@ class Searcher:
 
     def _stage_of(self, lim, gf, r_gnd, kind, sf):
         """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter, gain
-        family and level (cached for this spec's load and amplitude)."""
+        family and level, with the row's amplitude margin to its tolerance at the worst
+        temperature (ln; None without a stage of this kind and family), cached for this
+        spec's load and amplitude."""
         key = (lim.id, gf.id, r_gnd, kind, sf.id)
         if key not in self._stages:
             vo = self._amp_side(lim, gf, r_gnd)["vo"]
