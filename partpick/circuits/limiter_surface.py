@@ -191,7 +191,7 @@ _NOT_PHYSICS = ("id", "description", "vf_spread_v", "parts", "package", "price_u
 
 
 def _key(topology, lim, f_hz: float, rg: float = REF_RG) -> str:
-    return content_key("limiter-surface-3", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
+    return content_key("limiter-surface-4", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
                        R_GRID.tolist(), X_GRID.tolist())
 
 
@@ -280,10 +280,14 @@ def df_table(lim, rg: float = REF_RG) -> np.ndarray:
 
 
 def compute_df(lim, rg: float = REF_RG) -> np.ndarray:
-    """The table df_table holds, computed."""
+    """The table df_table holds, computed (the temperatures over the CPUs)."""
+    return np.stack(fork_map(functools.partial(_df_slice, lim, rg), DF_T.tolist()))
+
+
+def _df_slice(lim, rg: float, temp_k: float) -> np.ndarray:
+    """One temperature's (K) slice of compute_df."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.stack([np.log(df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, float(t)))
-                         for t in DF_T])
+        return np.log(df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, float(temp_k)))
 
 
 def _df_at(table: np.ndarray, temp_k: float) -> np.ndarray:

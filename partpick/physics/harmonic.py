@@ -121,6 +121,14 @@ class _Balance:
         # unknowns are the harmonics of the voltage across the nonlinear element itself
         return self.branch.element_coefficients(self.loop, 1j * w * self.ks)
 
+    def coeffs_and_step(self, w: float) -> tuple[np.ndarray, np.ndarray, float, np.ndarray, np.ndarray]:
+        """(alpha, gamma) at w, the step h of the frequency derivative, and (alpha,
+        gamma) at w + h: the two evaluated together (half the calls)."""
+        h = 1e-7 * w
+        n = self.ks.size
+        al, ga = self.branch.element_coefficients(self.loop, 1j * np.concatenate([w * self.ks, (w + h) * self.ks]))
+        return al[:n], ga[:n], h, al[n:], ga[n:]
+
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
         """(loop residual per harmonic, element current harmonics Ie = I_k + j k w Q_k
         (A), charge harmonics Q_k (C), v(theta), i(theta)) at element harmonics vk and
@@ -138,15 +146,13 @@ class _Balance:
     def system(self, vk: np.ndarray, w: float):
         """(complex residual, real Newton Jacobian over re V1, (re, im) V3.., w (im V1 is
         the phase reference), al, ga) at vk, w."""
-        al, ga = self.coeffs(w)
+        al, ga, h, al2, ga2 = self.coeffs_and_step(w)
         r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
         g_t = self.table.conductance(v_t)
         # ga d(re,im I)/d(re,im V); with charge, the charging current j k w Q_k too (the
         # capacitance waveform C(v(theta)) mapped like the conductance, times j k w)
         c_t = self.table.capacitance(v_t) if self.charged else None
         J = _product_jacobian(g_t, self.ks, c_t, 1j * self.ks * (w * self.loop.w_ref), ga) + _cmul_block(al)
-        h = 1e-7 * w
-        al2, ga2 = self.coeffs(w + h)
         dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
         dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h + ga * dik_dw)
         return r, np.column_stack([J[:, 0], J[:, 2:], dw]), al, ga
@@ -172,11 +178,24 @@ class _Balance:
         self.begin(vk, start_even)
         w = w0
         converged = False
+        self.collapsed = False
+        floor = _HEADING_TO_ZERO * abs(vk[0])
+        first = None
         for _ in range(iters):
             r, Jr, al, _ = self.system(vk, w)
             scale = max(abs(vk[0]), 1e-12)
-            if np.max(np.abs(r)) < 1e-10 * scale * max(1.0, np.max(np.abs(al))):
+            res = np.max(np.abs(r))
+            if res < 1e-10 * scale * max(1.0, np.max(np.abs(al))):
                 converged = True
+                break
+            first = res if first is None else first
+            if abs(vk[0]) < floor:
+                # the fundamental has fallen to nothing (the damping lets it fall to a
+                # fifth per step, so this is six steps of it): on its way to the trivial
+                # root when the residual falls with it, else stuck with the residual
+                # where it was (never seen to climb back); either way, stop here rather
+                # than follow it to 1e-20 V: no oscillation from this start
+                self.collapsed = bool(res < _HEADING_TO_ZERO * first)
                 break
             step = np.linalg.solve(Jr, -self.rows(r))
             dv, dother = self.unpack(step)
@@ -278,7 +297,7 @@ class _SeriesBalance(_Balance):
         """(complex residual over all harmonics (odd: the loop, V; even: the middle node,
         scaled to V), the real Newton Jacobian over the kept unknowns and w, al, ga)."""
         nk = self.kall.size
-        al, ga = self.coeffs(w)
+        al, ga, h, al2, ga2 = self.coeffs_and_step(w)
         zs = abs(ga[0])
         ik, qk, u_t = self._currents(self._u(vk, self.ek), w)
         r = np.empty(nk, dtype=complex)
@@ -291,8 +310,6 @@ class _SeriesBalance(_Balance):
         diag = np.zeros(nk, dtype=complex)
         diag[self.odd] = 2 * al
         J = _product_jacobian(g_t, self.kall, c_t, 1j * self.kall * (w * self.loop.w_ref), rowscale) + _cmul_block(diag)
-        h = 1e-7 * w
-        al2, ga2 = self.coeffs(w + h)
         dr = np.empty(nk, dtype=complex)
         dr[self.odd] = (((al2 - al) * vk + (ga2 - ga) * ik[self.odd]) / h
                         + ga * 1j * self.ks * self.loop.w_ref * qk[self.odd])
@@ -434,6 +451,10 @@ def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 2
 # the fundamental's share of its starting amplitude below which a converged solution is
 # the trivial one
 COLLAPSED = 1e-6
+# the share below which Newton is known to be heading for that root (a settled
+# oscillation sits near the describing-function amplitude it starts from, within a few
+# times); stopping there spares the thirty steps that reach it at the damped rate
+_HEADING_TO_ZERO = 1e-4
 
 
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
@@ -443,7 +464,10 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     the circuit does not start or the branch cannot bring the loop gain down (then the
     op-amps' swing sets the amplitude and the transient simulation must answer). When
     the highest harmonics are not yet negligible the harmonics are doubled, at most
-    ``escalate`` times."""
+    ``escalate`` times; a warm start begins at its own harmonics, doubling them up to
+    the same highest count (a continuation of many solutions, each starting from the
+    last, must not climb past it one doubling at a time)."""
+    top = (kmax, 2 * kmax + 1, 4 * kmax + 3)[escalate]
     if branch.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
     a_df = describing_amplitude(branch.series_table, lin.marginal_g_s)
@@ -456,33 +480,40 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     if start is not None and start.state:
         # the same network a little changed (another gain, temperature): same w_ref
         warm, w0, k0, *even = start.state
-        *got, collapsed = _escalated(loop, branch, a_df, w0, k0, escalate, np.asarray(warm),
+        *got, collapsed = _escalated(loop, branch, a_df, w0, min(k0, top), top, np.asarray(warm),
                                      np.asarray(even[0]) if even and even[0] else None)
         if not collapsed:
             return _result(loop, rails, *got)
         # a warm start too far off (a cold corner from the nominal point) can fall into
         # the trivial root: start again from the describing-function amplitude
-    *got, _ = _escalated(loop, branch, a_df, w_lin, kmax, escalate, None, None)
+    *got, _ = _escalated(loop, branch, a_df, w_lin, kmax, top, None, None)
     return _result(loop, rails, *got)
 
 
-def _escalated(loop: Loop, branch: Branch, a_df: float, w0: float, kmax: int, escalate: int, warm, warm_even):
+def _escalated(loop: Loop, branch: Branch, a_df: float, w0: float, kmax: int, top: int, warm, warm_even):
     """(balance, harmonics, scaled frequency, converged, collapsed) from the start
-    given, the harmonics doubled while the highest are not yet negligible (at most
-    ``escalate`` times)."""
+    given with harmonics up to kmax, doubled (k -> 2 k + 1) while the highest are not
+    yet negligible and the count stays within top."""
     series = getattr(branch.table, "element", None) is not None
-    for k in (kmax, 2 * kmax + 1, 4 * kmax + 3)[:escalate + 1]:
+    k = kmax
+    while True:
         hb = (_SeriesBalance if series else _Balance)(loop, branch, k, max(64, 8 * (k + 1)))
         vk, w, ok = hb.solve(a_df, w0, start=warm, start_even=warm_even)
         # a fundamental that collapsed to nothing is the trivial root, which the linear
         # analysis has just shown unstable (the circuit starts): not the settled
         # oscillation, so no answer; more harmonics cannot change that, and its tail
         # ratio is 0 / 0
-        if ok and abs(vk[0]) < COLLAPSED * a_df:
+        if hb.collapsed or (ok and abs(vk[0]) < COLLAPSED * a_df):
             return hb, vk, w, False, True
         tail = np.max(np.abs(vk[-2:])) / abs(vk[0]) if ok else 1.0
-        if ok and tail < 3e-4:
+        if (ok and tail < 3e-4) or 2 * k + 1 > top:
             break
+        k = 2 * k + 1
+        if ok:
+            # more harmonics from this solution: its own harmonics and frequency are
+            # already those of the richer one to within the tail just measured
+            warm, w0 = vk, w
+            warm_even = getattr(hb, "ek", None)
     return hb, vk, w, ok, False
 
 
