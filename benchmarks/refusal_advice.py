@@ -7,7 +7,8 @@ refusals changes. It looks, in order, for:
 
 1. ``relax <field> to <value>`` (any number of them, e.g. "... binds: ... is +/-0.84 %;
    relax frequency.tolerance to +/-1 %", or "or distortion.max_thd binds: ...; relax
-   distortion.max_thd to 2 %");
+   distortion.max_thd to 2 %"), each applied alone, and ``relax jointly <field> to
+   <value> and <field> to <value>``, applied together (field ``joint``);
 2. ``allow family <id>[, <id>]`` (added to the spec's list of that kind);
 3. failing both, ``<field> binds: ... (is|reaches|of) <number unit>`` (the older wording:
    "amplitude.target binds: the nearest amplitude at the load is 2.48 V peak
@@ -35,6 +36,8 @@ FIELD = r"(?P<field>[a-z_]+(?:\.[a-z_]+)+)"
 VALUE = r"(?P<value>[^;,(\n]+?)"
 END = r"(?=\s*(?:[;,(\n]|$|\.\s|\.$|\bor\b))"
 RELAX = re.compile(rf"relax\s+{FIELD}\s+to\s+{VALUE}{END}")
+JOINT = re.compile(r"relax\s+jointly\s+(?P<items>[^\n]+)")
+ITEM = re.compile(rf"{FIELD}\s+to\s+(?P<value>.+?)(?=\s+and\s+[a-z_]+\.|\s*$)")
 NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"
 BINDS = re.compile(rf"{FIELD}\s+binds:[^;]*?\b(?:is|reaches|of)\s+{NUMBER}")
 ALLOW = re.compile(r"allow\s+(?:the\s+)?famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
@@ -67,6 +70,9 @@ def parse_refusal(message: str) -> list[Advice]:
     printed on one line with its line breaks escaped ('\\n') reads as its lines."""
     message = message.replace("\\n", "\n")
     out = [Advice(m["field"], spec_value(m["value"]), "relax") for m in RELAX.finditer(message)]
+    # a joint relaxation: its parts as field=value;field=value, applied together
+    out += [Advice("joint", ";".join(f"{i['field']}={spec_value(i['value'])}" for i in ITEM.finditer(m["items"])),
+                   "relax") for m in JOINT.finditer(message)]
     out += [Advice("parts.add", ",".join(re.split(r"\s*(?:,|and|or)\s*", m["value"].strip())), "allow")
             for m in ALLOW.finditer(message)]
     if not out:
@@ -89,6 +95,11 @@ def apply_advice(spec_text: str, advice: Advice, kind_of=None) -> str:
     """The spec text with ``advice.field`` set to ``advice.value`` (nested mappings
     created as needed); ``parts.add`` adds the named families to their kind's list
     (``kind_of(family id)`` -> 'resistors', ...; the shipped catalog's by default)."""
+    if advice.field == "joint":
+        for part in advice.value.split(";"):
+            field, value = part.split("=", 1)
+            spec_text = apply_advice(spec_text, Advice(field, value, advice.how), kind_of)
+        return spec_text
     data = yaml.safe_load(spec_text) or {}
     if advice.field == "parts.add":
         if kind_of is None:

@@ -8,7 +8,8 @@ allowed design reaches with every other requirement met is found by bisection on
 requirement, each step an exact verification of the designs the loosened run found
 (so "relax X to Y" is checked: the design passes the spec with X at Y). When no single
 requirement binds, all four are loosened together and the nearest design says what it
-misses. A spec that restricts part families, or builds from the shelf alone, is also
+misses, and how far the requirements it misses must be relaxed together for it to pass
+(each bisected in turn, the whole checked as stated). A spec that restricts part families, or builds from the shelf alone, is also
 run with every family allowed, or with the catalog behind the shelf, and the parts
 that make the difference are named. The nearest failing designs follow, each with the
 requirements it misses and by how much.
@@ -40,6 +41,7 @@ RELAXABLE = {
     "yield.min": (0.50, "the highest yield any allowed design reaches", ("yield", "cost"), False),
 }
 LADDER = (1.5, 3.0)   # steps (times the spec's value, towards the loose one) a loosened run is tried at
+JOINT_STEPS = (0.25, 0.5)   # shares of the way to the loose values a joint relaxation is tried at
 BISECTIONS = 7        # steps of the bisection on a requirement (its result within about 2 %)
 SAMPLES = 4000        # Monte Carlo builds per verification while searching what would design
 
@@ -120,6 +122,106 @@ def _reach(spec: Spec, field: str, designs, check) -> Relaxation | None:
         return None
     advice = _round_up(best, smaller)
     return Relaxation(field, best, advice)
+
+
+def _loosest(spec: Spec, field: str) -> float:
+    """The value a loosened run gives a relaxable requirement: its loose value, or the
+    spec's own where that is looser already."""
+    loose, _, _, smaller = RELAXABLE[field]
+    return (max if smaller else min)(requirement_value(spec, field), loose)
+
+
+def _joint_advice(spec: Spec, lead, check, run) -> tuple[tuple[str, ...], str]:
+    """When no requirement binds alone: the binding requirements and the message line,
+    from the nearest design of the run with all four loosened (lead, Ranked). The
+    requirements that set the limits it misses are relaxed together as far as it needs
+    (_reach_together), or further, to where a design run designs (_designed_step); the
+    line gives the values. A miss that no relaxable requirement moves, or no design run
+    at any step, leaves the line naming the checks' fields only."""
+    misses = lead.verdict.failed()
+    binding = tuple(dict.fromkeys(c.field for c in misses))
+    governing = tuple(dict.fromkeys(_governed_by(c) for c in misses))
+    together = None if None in governing else _reach_together(spec, governing, lead.bom, check)
+    # stated only where the search designs (the design passes at the values found, but
+    # the search, judging by its surrogate first, need not propose it there)
+    together = _designed_step(spec, together, run) if together else None
+    if together is None:
+        return binding, (f"no single requirement binds alone: {', '.join(binding)} together; with all four loosened "
+                         "the nearest design (1. below) reaches what it shows: relax those requirements to it")
+    advice = " and ".join(f"{r.field} to {_fmt(r.field, r.advice)}" for r in together)
+    return governing, (f"no single requirement binds alone: {', '.join(governing)} together; the search designs with "
+                       f"them relaxed together (from what the nearest design, 1. below, reaches): relax jointly {advice}")
+
+
+def _designed_step(spec: Spec, together: list[Relaxation], run) -> list[Relaxation] | None:
+    """The relaxations, or the first of them moved a share JOINT_STEPS of the way to
+    their loose values (geometrically for a tolerance or limit, linearly for the
+    yield), at which a design run designs; None when none does."""
+    for t in (0.0,) + JOINT_STEPS:
+        step = []
+        for rel in together:
+            loose, smaller = RELAXABLE[rel.field][0], RELAXABLE[rel.field][3]
+            v = rel.advice * (loose / rel.advice) ** t if smaller else rel.advice + (loose - rel.advice) * t
+            step.append(replace(rel, advice=_round_up(v, smaller)))
+        if run(_relaxed_all(spec, step), None):
+            return step
+    return None
+
+
+def _relaxed_all(spec: Spec, relaxations) -> Spec:
+    """The spec with every relaxation's advice applied."""
+    for rel in relaxations:
+        spec = relaxed(spec, rel.field, rel.advice)
+    return spec
+
+
+def _governed_by(c) -> str | None:
+    """The relaxable requirement whose value sets a check's limits (the frequency's,
+    nominal and over temperature, come from frequency.tolerance; the amplitude's from
+    amplitude.tolerance), None for a check no relaxable requirement moves (a slew rate,
+    a supply headroom)."""
+    if c.field in RELAXABLE:
+        return c.field
+    if c.field in ("frequency.target", "temperature") and c.dim == "frequency":
+        return "frequency.tolerance"
+    if c.field == "amplitude.target" and c.dim == "voltage":
+        return "amplitude.tolerance"
+    return None
+
+
+def _reach_together(spec: Spec, fields, bom, check) -> list[Relaxation] | None:
+    """How far ``fields`` (relaxable requirements that no run designs with one of them
+    loosened alone) must be relaxed together for ``bom`` to pass: each in turn, the
+    yield first (what a buyer gives up last), held at the spec's value if the design
+    passes there, else bisected (as _reach) with those before it at the values found
+    and those after it at their loose values; the whole checked once more as stated
+    (the rounding only loosens). The requirements that need relaxing, or None when a
+    field is not relaxable or bom does not pass."""
+    if not fields or any(f not in RELAXABLE for f in fields):
+        return None
+    fields = sorted(fields, key=lambda f: f != "yield.min")
+    loose = {f: _loosest(spec, f) for f in fields}
+    if any(loose[f] == requirement_value(spec, f) for f in fields):
+        return None     # already as loose as a run makes it: nothing to bisect
+    value = dict(loose)
+    found: list[Relaxation] = []
+
+    def at(values) -> Spec:
+        s = spec
+        for g, v in values.items():
+            s = relaxed(s, g, v)
+        return s
+
+    for f in fields:
+        value[f] = requirement_value(spec, f)
+        if check(at(value), bom):
+            continue      # this one need not move
+        rel = _reach(at({g: v for g, v in value.items() if g != f}), f, [bom], check)
+        if rel is None:
+            return None
+        value[f] = rel.advice
+        found.append(rel)
+    return found if found and check(at(value), bom) else None
 
 
 def _fmt(field: str, value: float) -> str:
@@ -211,17 +313,15 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     lead_designs: list = []
     if not found and not leading:
         joint = spec
-        for field, (loose, _, _, smaller) in RELAXABLE.items():
-            now = requirement_value(spec, field)
-            joint = relaxed(joint, field, max(now, loose) if smaller else min(now, loose))
+        for field in RELAXABLE:
+            joint = relaxed(joint, field, _loosest(spec, field))
         boms = run(joint, None)
         # the designs the message points at, judged against the spec as written: first in the list
         lead_designs = sorted((r for r in (evaluate(spec, bom) for bom in boms[:3]) if not r.verdict.passed),
                               key=_distance)
         if lead_designs:
-            binding = tuple(dict.fromkeys(c.field for c in lead_designs[0].verdict.failed()))
-            lines.append(f"no single requirement binds alone: {', '.join(binding)} together; with all four loosened "
-                         "the nearest design (1. below) reaches what it shows: relax those requirements to it")
+            binding, line = _joint_advice(spec, lead_designs[0], check, run)
+            lines.append(line)
         else:
             near = sorted((r for r in failing if r.verdict.nominal.starts and not r.verdict.passed), key=_distance)
             if near:   # designs oscillate, and miss what no loosened requirement touches: name it
