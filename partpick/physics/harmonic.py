@@ -189,13 +189,18 @@ class _Balance:
                 converged = True
                 break
             first = res if first is None else first
-            if abs(vk[0]) < floor:
-                # the fundamental has fallen to nothing (the damping lets it fall to a
-                # fifth per step, so this is six steps of it): on its way to the trivial
-                # root when the residual falls with it, else stuck with the residual
-                # where it was (never seen to climb back); either way, stop here rather
-                # than follow it to 1e-20 V: no oscillation from this start
-                self.collapsed = bool(res < _HEADING_TO_ZERO * first)
+            if abs(vk[0]) < floor and res < _HEADING_TO_ZERO * first:
+                # on its way to the trivial root: the fundamental fallen to nothing (the
+                # damping lets it fall to a fifth per step, so this is six steps of it)
+                # and the residual with it; stop rather than follow it to 1e-20 V. A
+                # fundamental as small with the residual where it was can still climb
+                # back (a warm start from a far corner does): that one goes on
+                self.collapsed = True
+                break
+            if abs(vk[0]) < _GONE * floor:
+                # stuck there, the fundamental still falling ten decades below its start
+                # and the residual not (a row of a Zener's table at 100 kHz does this
+                # for fifty steps): no oscillation from this start
                 break
             step = np.linalg.solve(Jr, -self.rows(r))
             dv, dother = self.unpack(step)
@@ -455,6 +460,9 @@ COLLAPSED = 1e-6
 # oscillation sits near the describing-function amplitude it starts from, within a few
 # times); stopping there spares the thirty steps that reach it at the damped rate
 _HEADING_TO_ZERO = 1e-4
+# below the share above, how much further a fundamental may fall, the residual not
+# falling with it, before the start is given up (none seen to climb back from 1e-5)
+_GONE = 1e-6
 
 
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
