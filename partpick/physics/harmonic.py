@@ -456,9 +456,10 @@ def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 2
 # the fundamental's share of its starting amplitude below which a converged solution is
 # the trivial one
 COLLAPSED = 1e-6
-# the share below which Newton is known to be heading for that root (a settled
-# oscillation sits near the describing-function amplitude it starts from, within a few
-# times); stopping there spares the thirty steps that reach it at the damped rate
+# the share below which Newton, its residual fallen by as much, is known to be heading
+# for that root (a settled oscillation sits near the describing-function amplitude it
+# starts from, within a few times); stopping there spares the thirty steps that reach it
+# at the damped rate
 _HEADING_TO_ZERO = 1e-4
 # below the share above, how much further a fundamental may fall, the residual not
 # falling with it, before the start is given up (none seen to climb back from 1e-5)
