@@ -24,7 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["cache_dir", "shipped_dir", "content_key", "part_content", "load_arrays", "store_arrays"]
+__all__ = ["cache_dir", "shipped_dir", "content_key", "part_content", "load_arrays", "has_arrays", "store_arrays"]
 
 _VERSION = "1"  # bump when a cached table's meaning changes
 
@@ -80,6 +80,12 @@ def load_arrays(kind: str, key: str) -> dict[str, np.ndarray] | None:
         except (OSError, ValueError, EOFError):
             continue
     return None
+
+
+def has_arrays(kind: str, key: str) -> bool:
+    """Whether arrays are stored under (kind, key) with the package or in the cache (a
+    look at the folders, nothing read)."""
+    return any((folder / kind / f"{key}.npz").is_file() for folder in (shipped_dir(), cache_dir()))
 
 
 def store_arrays(kind: str, key: str, arrays: dict[str, np.ndarray], root: Path | None = None) -> None:

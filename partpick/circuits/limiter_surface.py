@@ -36,14 +36,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from partpick.cache import content_key, load_arrays, part_content, store_arrays
+from partpick.cache import content_key, has_arrays, load_arrays, part_content, store_arrays
 from partpick.forked import fork_map
 from partpick.physics.harmonic import harmonic_balance
 from partpick.physics.junction import limiter_table
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import ideal_opamp
 
-__all__ = ["Surface", "surface", "compute", "ship", "df_table", "compute_df", "DF_T", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
+__all__ = ["Surface", "surface", "compute", "prepare", "ship", "df_table", "compute_df", "DF_T", "surface_at", "df_amplitude", "Planner", "R_GRID", "X_GRID", "REF_RG", "REF_T",
            "F_SLICES", "LEVELS", "level_of"]
 
 R_GRID = np.concatenate([[0.0], np.geomspace(0.01, 40.0, 25)])    # rd / Rg
@@ -142,7 +142,8 @@ def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float,
     if x / rg <= br.g0_s / (1.0 + rd * br.g0_s) * 1.001:
         return None  # the branch's own leakage already takes the gain excess: no oscillation
     lin = LinearResult((), True, 1.0, f_hz, 0.0, f_hz, f_hz, x / rg)
-    hb = harmonic_balance(loop, br, lin, cond.rails("dual"), kmax=11, start=start, escalate=1)
+    # (a warm start that fails is started again cold by _row, once)
+    hb = harmonic_balance(loop, br, lin, cond.rails("dual"), kmax=11, start=start, escalate=1, cold_retry=False)
     # a solution that collapsed to (almost) nothing is the trivial one, not an oscillation
     ok = hb is not None and hb.converged and hb.regime == "limiter" and hb.osc_peak_v > 1e-4
     return hb if ok else None
@@ -176,12 +177,46 @@ def compute(topology, lim, control, f_hz: float, rg: float = REF_RG) -> dict[str
     """The surface's arrays (see Surface) at f_hz (Hz) and the level rg (ohm), by
     harmonic balance at every grid point the branch can hold (the rows over the CPUs:
     :func:`partpick.forked.fork_map`)."""
-    # the rows are independent (each starts its own continuation): spread over the CPUs
-    job = (topology, lim, control, f_hz, rg)
-    rows = fork_map(functools.partial(_row, job), range(R_GRID.size))
-    vo, thd, pull = (np.stack([row[i] for row in rows]) for i in range(3))
-    a_df = df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, REF_T)
-    return {"vo": vo, "thd": thd, "pull": pull, "a_df": a_df}
+    return _compute_many([(topology, lim, control, f_hz, rg)])[0]
+
+
+def _job_row(item: tuple) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    return _row(*item)
+
+
+def _compute_many(jobs: list[tuple]) -> list[dict[str, np.ndarray]]:
+    """compute() for each job (topology, lim, control, f_hz, rg), every row of every
+    job in one spread over the CPUs: the rows are independent (each starts its own
+    continuation), and their costs differ so much (a row of large rd is mostly off the
+    table) that a spread per slice leaves a CPU idle at the end of each."""
+    rows = fork_map(_job_row, [(job, a) for job in jobs for a in range(R_GRID.size)])
+    out = []
+    for i, (_, lim, _, _, rg) in enumerate(jobs):
+        mine = rows[i * R_GRID.size:(i + 1) * R_GRID.size]
+        vo, thd, pull = (np.stack([row[j] for row in mine]) for j in range(3))
+        a_df = df_amplitude(lim, R_GRID[:, None] * rg, X_GRID[None, :] / rg, REF_T)
+        out.append({"vo": vo, "thd": thd, "pull": pull, "a_df": a_df})
+    return out
+
+
+def prepare(topology, lim, control, f_hz: float, rgs) -> None:
+    """Compute at once the slices that Planners at f_hz (Hz) on gain networks at the
+    levels rgs (ohm) read and that neither the shipped tables nor the cache hold (a
+    part not shipped: a catalog's own, or an edited one), and cache them; what
+    surface() then loads. Together their rows balance the CPUs (_compute_many)."""
+    need = []
+    for rg in sorted({lv for r in rgs for lv in _level_weights(r)}):
+        for f in (x for x in _slices(f_hz)[:2] if x is not None):
+            key = _key(topology, lim, f, rg)
+            if all(key != k for _, k in need) and not has_arrays("limiter-surface", key):
+                need.append(((topology, lim, control, f, rg), key))
+    if len(need) > 1:
+        for (_, key), arrays in zip(need, _compute_many([job for job, _ in need])):
+            store_arrays("limiter-surface", key, arrays)
+            _FRESH[key] = arrays
+
+
+_FRESH: dict[str, dict[str, np.ndarray]] = {}   # what prepare() computed (served if the cache cannot be written)
 
 
 # what a limiter's surface does not depend on (a new field not named here only costs a
@@ -191,7 +226,7 @@ _NOT_PHYSICS = ("id", "description", "vf_spread_v", "parts", "package", "price_u
 
 
 def _key(topology, lim, f_hz: float, rg: float = REF_RG) -> str:
-    return content_key("limiter-surface-4", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
+    return content_key("limiter-surface-5", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
                        R_GRID.tolist(), X_GRID.tolist())
 
 
@@ -206,7 +241,7 @@ def surface(topology, lim, control, f_hz: float = F_SLICES[0], rg: float = REF_R
     level of LEVELS (ohm) (shipped with the package for the demo parts, else computed
     once and cached on disk)."""
     key = _key(topology, lim, f_hz, rg)
-    arrays = load_arrays("limiter-surface", key)
+    arrays = _FRESH.pop(key, None) or load_arrays("limiter-surface", key)
     if arrays is None or set(arrays) != {"vo", "thd", "pull", "a_df"}:
         arrays = compute(topology, lim, control, f_hz, rg)
         store_arrays("limiter-surface", key, arrays)
@@ -219,16 +254,24 @@ def surface_at(topology, lim, control, f_hz: float, rg: float = REF_RG) -> Surfa
     below it, else the two slices around it blended linearly in frequency (output and
     THD on their log axes, as the lookup interpolates them, so blending the tables is
     blending the lookups)."""
-    if f_hz <= F_SLICES[0]:
-        return surface(topology, lim, control, F_SLICES[0], rg)
-    i = min(int(np.searchsorted(F_SLICES, f_hz)), len(F_SLICES) - 1)
-    lo, hi = F_SLICES[i - 1], F_SLICES[i]
-    t = min((f_hz - lo) / (hi - lo), 1.0)
+    lo, hi, t = _slices(f_hz)
+    if hi is None:
+        return surface(topology, lim, control, lo, rg)
     a, b = surface(topology, lim, control, lo, rg), surface(topology, lim, control, hi, rg)
     with np.errstate(divide="ignore", invalid="ignore"):
         return Surface(np.exp((1 - t) * np.log(a.vo) + t * np.log(b.vo)),
                        np.exp((1 - t) * np.log(a.thd) + t * np.log(b.thd)),
                        (1 - t) * a.pull + t * b.pull, a.a_df)
+
+
+def _slices(f_hz: float) -> tuple[float, float | None, float]:
+    """The slices of F_SLICES surface_at reads at f_hz (Hz): (lowest, None, 0) at or below
+    the lowest, else the two around it and the weight of the upper one."""
+    if f_hz <= F_SLICES[0]:
+        return F_SLICES[0], None, 0.0
+    i = min(int(np.searchsorted(F_SLICES, f_hz)), len(F_SLICES) - 1)
+    lo, hi = F_SLICES[i - 1], F_SLICES[i]
+    return lo, hi, min((f_hz - lo) / (hi - lo), 1.0)
 
 
 @functools.lru_cache(maxsize=256)
@@ -297,6 +340,20 @@ def _df_at(table: np.ndarray, temp_k: float) -> np.ndarray:
     return (1 - t) * table[k] + t * table[k + 1]
 
 
+def _level_weights(rg_ohm: float) -> dict[float, float]:
+    """The levels of LEVELS (ohm) a gain network at rg_ohm reads, with their weights:
+    within AT_LEVEL of a level (a value of the family nearest it) that level's own
+    tables as they are, between two levels both (linear in ln Rg), beyond them the
+    nearest."""
+    level = level_of(rg_ohm)
+    lv = sorted(LEVELS)
+    k = int(np.searchsorted(lv, rg_ohm))
+    if abs(math.log(rg_ohm / level)) <= AT_LEVEL or k in (0, len(lv)):
+        return {level: 1.0}
+    t = math.log(rg_ohm / lv[k - 1]) / math.log(lv[k] / lv[k - 1])
+    return {lv[k - 1]: 1.0 - t, lv[k]: t}
+
+
 class Planner:
     """The diode limiter's side of the search for one limiter part and one family of
     series resistors (Rd): for rows of (needed conductance g, output per port amplitude)
@@ -319,16 +376,8 @@ class Planner:
         self.choices = np.concatenate([[0.0], np.asarray(rd_values, float)])
         self.temps_k = tuple(float(t) for t in temps_k)
         self.rg = rg_ohm
-        lv = sorted(LEVELS)
-        k = int(np.searchsorted(lv, rg_ohm))
-        # within AT_LEVEL of a level (a value of the family nearest it) the level's own
-        # tables serve as they are
         self.scaled = abs(math.log(rg_ohm / self.level)) > AT_LEVEL
-        if not self.scaled or k in (0, len(lv)):
-            weights = {self.level: 1.0}
-        else:
-            t = math.log(rg_ohm / lv[k - 1]) / math.log(lv[k] / lv[k - 1])
-            weights = {lv[k - 1]: 1.0 - t, lv[k]: t}
+        weights = _level_weights(rg_ohm)
         self._tables = []
         with np.errstate(divide="ignore", invalid="ignore"):
             for level, w in weights.items():

@@ -148,10 +148,10 @@ class _Balance:
         the phase reference), al, ga) at vk, w."""
         al, ga, h, al2, ga2 = self.coeffs_and_step(w)
         r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
-        g_t = self.table.conductance(v_t)
+        g_t = self.table.slope(v_t)
         # ga d(re,im I)/d(re,im V); with charge, the charging current j k w Q_k too (the
         # capacitance waveform C(v(theta)) mapped like the conductance, times j k w)
-        c_t = self.table.capacitance(v_t) if self.charged else None
+        c_t = self.table.charge_slope(v_t) if self.charged else None
         J = _product_jacobian(g_t, self.ks, c_t, 1j * self.ks * (w * self.loop.w_ref), ga) + _cmul_block(al)
         dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
         dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h + ga * dik_dw)
@@ -308,7 +308,7 @@ class _SeriesBalance(_Balance):
         r = np.empty(nk, dtype=complex)
         r[self.odd] = al * vk + ga * ik[self.odd]
         r[~self.odd] = zs * ik[~self.odd]
-        g_t, c_t = self.elem.conductance(u_t), self.elem.capacitance(u_t)
+        g_t, c_t = self.elem.slope(u_t), self.elem.charge_slope(u_t)
         # rows: odd k -> ga dI/du + 2 al (u_k = v_k / 2); even k -> zs dI/du
         rowscale = np.ones(nk, dtype=complex)
         rowscale[self.odd], rowscale[~self.odd] = ga, zs
@@ -467,7 +467,8 @@ _GONE = 1e-6
 
 
 def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple[float, float, float], *,
-                     kmax: int = 21, start: BalanceResult | None = None, escalate: int = 2) -> BalanceResult | None:
+                     kmax: int = 21, start: BalanceResult | None = None, escalate: int = 2,
+                     cold_retry: bool = True) -> BalanceResult | None:
     """Settled oscillation of the loop closed through a nonlinear branch; rails (V) are
     (positive rail, negative rail, signal reference) for the op-amps' swing. None when
     the circuit does not start or the branch cannot bring the loop gain down (then the
@@ -475,7 +476,9 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
     the highest harmonics are not yet negligible the harmonics are doubled, at most
     ``escalate`` times; a warm start begins at its own harmonics, doubling them up to
     the same highest count (a continuation of many solutions, each starting from the
-    last, must not climb past it one doubling at a time)."""
+    last, must not climb past it one doubling at a time). A warm start that falls into
+    the trivial root is started again cold unless ``cold_retry`` is False (its caller
+    does that itself: then the collapsed, unconverged result is returned)."""
     top = (kmax, 2 * kmax + 1, 4 * kmax + 3)[escalate]
     if branch.table is None or not lin.starts or not math.isfinite(lin.marginal_g_s):
         return None
@@ -491,7 +494,7 @@ def harmonic_balance(loop: Loop, branch: Branch, lin: LinearResult, rails: tuple
         warm, w0, k0, *even = start.state
         *got, collapsed = _escalated(loop, branch, a_df, w0, min(k0, top), top, np.asarray(warm),
                                      np.asarray(even[0]) if even and even[0] else None)
-        if not collapsed:
+        if not collapsed or not cold_retry:
             return _result(loop, rails, *got)
         # a warm start too far off (a cold corner from the nominal point) can fall into
         # the trivial root: start again from the describing-function amplitude

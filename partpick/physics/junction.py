@@ -30,7 +30,7 @@ breakdown current stores no diffusion charge).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 
 import numpy as np
@@ -209,6 +209,17 @@ class LimiterTable:
     c_f: np.ndarray | None = None
     element: "LimiterTable | None" = None
     split_v: np.ndarray | None = None
+    # the interpolants' segment slopes (current, charge), made once: slope() is in every
+    # Newton step of harmonic balance
+    i_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
+    q_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
+
+    def __post_init__(self) -> None:
+        dv = np.diff(self.v_v)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            object.__setattr__(self, "i_seg", np.diff(self.i_a) / dv)
+            if self.q_c is not None:
+                object.__setattr__(self, "q_seg", np.diff(self.q_c) / dv)
 
     def current(self, v: np.ndarray) -> np.ndarray:
         """Current at voltage v (V), A."""
@@ -217,6 +228,18 @@ class LimiterTable:
     def conductance(self, v: np.ndarray) -> np.ndarray:
         """di/dv at v (V), S."""
         return np.interp(v, self.v_v, self.g_s)
+
+    def slope(self, v: np.ndarray) -> np.ndarray:
+        """d current() / dv at v (V), S: the slope of the interpolant's segment (g_s
+        beyond the ends). A Newton step on current() needs this one: conductance()
+        interpolates the tabulated derivative, which parts from the segment's slope
+        where the grid is coarse against the curve (on a 6 ohm Zener's knee enough
+        that harmonic balance converged linearly, a tenth a step, not quadratically)."""
+        return _segment_slope(v, self.v_v, self.i_seg, self.g_s)
+
+    def charge_slope(self, v: np.ndarray) -> np.ndarray:
+        """d charge() / dv at v (V), F (as slope() for the current)."""
+        return _segment_slope(v, self.v_v, self.q_seg, self.c_f)
 
     @property
     def has_charge(self) -> bool:
@@ -230,6 +253,13 @@ class LimiterTable:
     def capacitance(self, v: np.ndarray) -> np.ndarray:
         """dq/dv at v (V), F."""
         return np.interp(v, self.v_v, self.c_f)
+
+
+def _segment_slope(v, xs, seg, gs):
+    """seg (the slopes of the segments between the points xs) at v; gs's ends beyond them."""
+    v = np.asarray(v, dtype=float)
+    j = np.searchsorted(xs, v, side="right") - 1
+    return np.where(j >= seg.size, gs[-1], np.where(j < 0, gs[0], seg[np.clip(j, 0, seg.size - 1)]))
 
 
 def _interp_linear_ends(v, xs, ys, gs):

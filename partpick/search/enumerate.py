@@ -28,7 +28,7 @@ import math
 import numpy as np
 
 from partpick.circuits import periphery
-from partpick.circuits.limiter_surface import Planner
+from partpick.circuits.limiter_surface import Planner, prepare
 from partpick.circuits.options import nearest, sigma, values_of
 from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
@@ -102,6 +102,9 @@ class Searcher:
 
     def _build_pairs(self) -> list:
         problem, price = self.problem, self.price
+        for lim in problem.limiters:   # (a part's tables not yet cached: all made at once)
+            prepare(problem.topology, lim, problem.control, self.f_t,
+                    [r for gf in problem.r_families for r in self.levels(gf)])
         pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families for r_gnd in self.levels(gf)
                  if (a := self._amp_side(lim, gf, r_gnd)) is not None and a["pull"].size]
         op_pull = [op.pull for op in problem.ops] or [0.0]

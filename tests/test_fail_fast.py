@@ -1,0 +1,141 @@
+"""What keeps the slowest inputs of the fuzz run (benchmarks/bench_fuzz.py) inside their
+time: a limiter part met for the first time, and refusals whose loosened runs could
+verify candidates that have next to no chance.
+
+- Harmonic balance's Newton step uses the slope of the very interpolant the residual
+  evaluates (the segment's slope of a piecewise-linear table), so it converges
+  quadratically, as Newton's method does with an exact Jacobian (Kelley, Iterative
+  Methods for Linear and Nonlinear Equations, SIAM 1995, theorem 5.1.1); with the
+  interpolated tabulated derivative it converged linearly, a tenth a step, on a 6 ohm
+  Zener's knee.
+- A part's missing tables are computed together, every row of every slice in one spread
+  over the CPUs (limiter_surface.prepare), and exactly the slices the search will read.
+- A design run skips candidates whose estimated yield is under a tenth of the limit.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from partpick.circuits import CONTROLS, TOPOLOGIES
+from partpick.circuits import limiter_surface as ls
+from partpick.physics import harmonic
+from partpick.physics.junction import limiter_table
+from partpick.pipeline import _hopeless
+from partpick.spec import Spec
+
+SPECS = Path(__file__).resolve().parents[1] / "specs"
+
+TOPO = TOPOLOGIES["wien-bridge"]
+CTL = CONTROLS["diode-limiter"]
+
+
+def _part(demo_catalog, pid):
+    return next(lim for lim in demo_catalog.limiters if lim.id == pid)
+
+
+@pytest.mark.parametrize("pid", ["z-pair-3v3", "d-si-signal"])
+def test_the_slope_is_the_interpolants_derivative(demo_catalog, pid):
+    # the derivative of numpy.interp's piecewise-linear interpolant, by central
+    # differences inside each segment (exact there, up to rounding), and the end slopes
+    # beyond the table, where current() extends it linearly
+    table = limiter_table(_part(demo_catalog, pid), 0.0, 298.15)
+    t = table.element if table.element is not None else table
+    mid = 0.5 * (t.v_v[1:] + t.v_v[:-1])
+    h = 1e-3 * np.diff(t.v_v)
+    numeric = (t.current(mid + h) - t.current(mid - h)) / (2 * h)
+    assert np.allclose(t.slope(mid), numeric, rtol=1e-6, atol=1e-15)
+    beyond = np.array([t.v_v[0] - 1.0, t.v_v[-1] + 1.0])
+    assert np.array_equal(t.slope(beyond), [t.g_s[0], t.g_s[-1]])
+    if t.q_c is not None:
+        numeric_c = (t.charge(mid + h) - t.charge(mid - h)) / (2 * h)
+        assert np.allclose(t.charge_slope(mid), numeric_c, rtol=1e-6, atol=1e-24)
+
+
+def test_newton_converges_quadratically_on_a_zener_knee(demo_catalog, monkeypatch):
+    # one table row of the Zener pair (the middle node's even harmonics too), each point
+    # warm-started from the last: once the residual is small, each step squares it
+    # (a ratio of successive residuals far below the tenth it was)
+    lim = _part(demo_catalog, "z-pair-3v3")
+    histories: list[list[float]] = []
+    original = harmonic._SeriesBalance.system
+
+    def recorded(self, vk, w):
+        out = original(self, vk, w)
+        histories[-1].append(float(np.max(np.abs(out[0]))))
+        return out
+
+    original_solve = harmonic._Balance.solve
+
+    def solve(self, *args, **kw):
+        histories.append([])
+        return original_solve(self, *args, **kw)
+
+    monkeypatch.setattr(harmonic._SeriesBalance, "system", recorded)
+    monkeypatch.setattr(harmonic._Balance, "solve", solve)
+    prev, fast = None, 0
+    for x in ls.X_GRID[8:16]:
+        prev = ls._reference_balance(TOPO, lim, ls.R_GRID[12] * 1e3, x, CTL, 30e3, prev, 1e3)
+        assert prev is not None and prev.converged
+        res = histories[-1]
+        ratios = [b / a for a, b in zip(res, res[1:]) if a > 0]
+        # the last steps, from a residual under a thousandth of the first
+        late = [r for a, r in zip(res, ratios) if a < 1e-3 * res[0]]
+        fast += bool(late) and min(late) < 1e-3
+    assert fast >= 6, histories[-8:]
+
+
+def test_a_parts_missing_slices_are_computed_together(demo_catalog, monkeypatch):
+    lim = _part(demo_catalog, "d-schottky")
+    asked: list[list[tuple]] = []
+    stored: dict = {}
+
+    def many(jobs):
+        asked.append([(f, rg) for _, _, _, f, rg in jobs])
+        return [{"vo": np.full((ls.R_GRID.size, ls.X_GRID.size), float(i)), "thd": np.ones((1, 1)),
+                 "pull": np.zeros((1, 1)), "a_df": np.ones((1, 1))} for i, _ in enumerate(jobs)]
+
+    monkeypatch.setattr(ls, "_compute_many", many)
+    monkeypatch.setattr(ls, "has_arrays", lambda kind, key: key in stored)
+    monkeypatch.setattr(ls, "store_arrays", lambda kind, key, arrays: stored.__setitem__(key, arrays))
+    # 50 kHz reads the 30 and 100 kHz slices; gain networks at 1 k, 2 k (between the 1 k
+    # and 3.3 k levels: both) and 10 k read all three levels
+    ls.prepare(TOPO, lim, CTL, 50e3, [1e3, 2e3, 10e3])
+    assert sorted(asked[0]) == sorted((f, rg) for f in (30e3, 100e3) for rg in ls.LEVELS)
+    # what is held is not computed again; below the lowest slice only that one is read
+    ls.prepare(TOPO, lim, CTL, 50e3, [1e3])
+    ls.prepare(TOPO, lim, CTL, 120.0, [1e3, 10e3])
+    assert asked[1:] == [[(ls.F_SLICES[0], 1e3), (ls.F_SLICES[0], 1e4)]]
+    # and the surface reads what was computed, without solving anything
+    monkeypatch.setattr(ls, "compute", lambda *a, **k: pytest.fail("computed again"))
+    ls.surface.cache_clear()
+    try:
+        got = ls.surface(TOPO, lim, CTL, 30e3, 3.3e3)
+        assert np.all(got.vo == float(asked[0].index((30e3, 3.3e3))))
+    finally:
+        ls.surface.cache_clear()
+        ls._FRESH.clear()
+
+
+def test_the_level_weights_are_the_planners(demo_catalog):
+    # within AT_LEVEL of a level, that level alone; between two, both, in ln Rg
+    assert ls._level_weights(1e3 * math.exp(0.04)) == {1e3: 1.0}
+    w = ls._level_weights(2e3)
+    assert set(w) == {1e3, 3.3e3} and math.isclose(sum(w.values()), 1.0)
+    assert math.isclose(w[3.3e3], math.log(2) / math.log(3.3))
+    assert ls._level_weights(50e3) == {10e3: 1.0}
+
+
+def test_a_hopeless_estimate_is_a_tenth_of_the_limit_at_most():
+    lvdt_spec = Spec.from_yaml(SPECS / "lvdt-exciter.yaml")
+    # a yield limit of 50 % (a refusal's loosened run) once verified, and first placed by
+    # their Monte Carlo models, 2,000 rows estimated at next to nothing (an amplitude
+    # tolerance of 1 ppm): 9 s. The usual margin still rules near a spec's own limit.
+    assert _hopeless(replace(lvdt_spec, yield_min_frac=0.5)) == pytest.approx(0.05)
+    assert _hopeless(replace(lvdt_spec, yield_min_frac=0.95)) == pytest.approx(0.87)
+    assert _hopeless(replace(lvdt_spec, yield_min_frac=1e-6)) == pytest.approx(1e-7)
