@@ -73,7 +73,7 @@ def part_content(record, ignore=()) -> tuple:
 
 def load_arrays(kind: str, key: str) -> dict[str, np.ndarray] | None:
     """The arrays stored under (kind, key) with the package or in the cache, or None."""
-    for folder in (shipped_dir(), cache_dir()):
+    for folder in _folders():
         try:
             with np.load(folder / kind / f"{key}.npz", allow_pickle=False) as data:
                 return {name: data[name] for name in data.files}
@@ -85,7 +85,12 @@ def load_arrays(kind: str, key: str) -> dict[str, np.ndarray] | None:
 def has_arrays(kind: str, key: str) -> bool:
     """Whether arrays are stored under (kind, key) with the package or in the cache (a
     look at the folders, nothing read)."""
-    return any((folder / kind / f"{key}.npz").is_file() for folder in (shipped_dir(), cache_dir()))
+    return any((folder / kind / f"{key}.npz").is_file() for folder in _folders())
+
+
+def _folders() -> tuple[Path, Path]:
+    """Where stored arrays are looked for, in order: the package's, then the cache."""
+    return shipped_dir(), cache_dir()
 
 
 def store_arrays(kind: str, key: str, arrays: dict[str, np.ndarray], root: Path | None = None) -> None:

@@ -225,6 +225,7 @@ _NOT_PHYSICS = ("id", "description", "vf_spread_v", "parts", "package", "price_u
                 "maker_part")
 
 
+@functools.lru_cache(maxsize=1024)   # (read on every design run, by prepare)
 def _key(topology, lim, f_hz: float, rg: float = REF_RG) -> str:
     return content_key("limiter-surface-5", topology.name, part_content(lim, _NOT_PHYSICS), rg, REF_T, f_hz,
                        R_GRID.tolist(), X_GRID.tolist())
