@@ -9,7 +9,11 @@ verify candidates that have next to no chance.
   interpolated tabulated derivative it converged linearly, a tenth a step, on a 6 ohm
   Zener's knee.
 - A part's missing tables are computed together, every row of every slice in one spread
-  over the CPUs (limiter_surface.prepare), and exactly the slices the search will read.
+  over the CPUs (limiter_surface.prepare), and exactly the slices the search will read:
+  for a part the package does not ship tables of, one slice at the design's frequency,
+  not the two around it.
+- A Newton step reads the table once for its four waveforms (LimiterTable.sample) and
+  adds the loop's own term to the Jacobian in place: the same numbers, to the last bit.
 - A design run skips candidates whose estimated yield is under a tenth of the limit.
 """
 
@@ -55,6 +59,33 @@ def test_the_slope_is_the_interpolants_derivative(demo_catalog, pid):
     if t.q_c is not None:
         numeric_c = (t.charge(mid + h) - t.charge(mid - h)) / (2 * h)
         assert np.allclose(t.charge_slope(mid), numeric_c, rtol=1e-6, atol=1e-24)
+
+
+@pytest.mark.parametrize("pid", ["z-pair-3v3", "led-red"])
+def test_one_lookup_gives_the_four_waveforms_bit_for_bit(demo_catalog, pid):
+    # sample() against current(), slope(), charge() and charge_slope() (numpy.interp and
+    # the segment slopes), inside the grid, on its points, at and beyond its ends
+    table = limiter_table(_part(demo_catalog, pid), 0.0, 298.15)
+    t = table.element if table.element is not None else table
+    rng = np.random.default_rng(5)
+    span = t.v_v[-1] - t.v_v[0]
+    v = np.concatenate([rng.uniform(t.v_v[0] - 0.2 * span, t.v_v[-1] + 0.2 * span, 20_000), t.v_v])
+    for got, want in zip(t.sample(v), (t.current(v), t.slope(v), t.charge(v), t.charge_slope(v))):
+        assert np.array_equal(got, want)
+
+
+def test_the_loops_term_added_in_place_is_the_block_added():
+    from partpick.physics.hb_matrices import add_diagonal as _add_diagonal, cmul_block as _cmul_block
+
+    rng = np.random.default_rng(8)
+    m = rng.normal(size=(12, 12))
+    c = rng.normal(size=3) + 1j * rng.normal(size=3)
+    at = np.array([2, 6, 8])          # the re rows of harmonics 1, 3 and 4 of six
+    full = np.zeros(6, dtype=complex)
+    full[at // 2] = c
+    want = m + _cmul_block(full)
+    _add_diagonal(m, c, at)
+    assert np.array_equal(m, want)
 
 
 def test_newton_converges_quadratically_on_a_zener_knee(demo_catalog, monkeypatch):
@@ -119,6 +150,42 @@ def test_a_parts_missing_slices_are_computed_together(demo_catalog, monkeypatch)
         assert np.all(got.vo == float(asked[0].index((30e3, 3.3e3))))
     finally:
         ls.surface.cache_clear()
+        ls._FRESH.clear()
+
+
+def test_a_part_not_shipped_is_tabulated_at_the_designs_frequency(demo_catalog, monkeypatch):
+    # an edited part (its series resistance changed) has no shipped tables: at 50 kHz it
+    # is solved at 50 kHz, three levels, not at 30 and 100 kHz (six); below the lowest
+    # slice it reads that one, as a shipped part does; the shipped part as it is still
+    # reads the slices around the frequency
+    shipped = _part(demo_catalog, "d-schottky")
+    edited = replace(shipped, rs_ohm=shipped.rs_ohm * 0.5)
+    assert ls._shipped(TOPO, shipped) and not ls._shipped(TOPO, edited)
+    asked: list[list[tuple]] = []
+    stored: dict = {}
+
+    def many(jobs):
+        asked.append([(f, rg) for _, _, _, f, rg in jobs])
+        return [{"vo": np.full((ls.R_GRID.size, ls.X_GRID.size), float(i + 1)), "thd": np.ones((1, 1)),
+                 "pull": np.zeros((1, 1)), "a_df": np.ones((1, 1))} for i, _ in enumerate(jobs)]
+
+    monkeypatch.setattr(ls, "_compute_many", many)
+    monkeypatch.setattr(ls, "has_arrays", lambda kind, key: key in stored)
+    monkeypatch.setattr(ls, "store_arrays", lambda kind, key, arrays: stored.__setitem__(key, arrays))
+    ls.prepare(TOPO, edited, CTL, 50e3, [1e3, 2e3, 10e3])
+    assert sorted(asked[0]) == [(50e3, rg) for rg in ls.LEVELS]
+    ls.prepare(TOPO, edited, CTL, 120.0, [1e3, 10e3])
+    assert asked[1] == [(ls.F_SLICES[0], 1e3), (ls.F_SLICES[0], 1e4)]
+    assert ls._slices(TOPO, shipped, 50e3)[:2] == (30e3, 100e3)
+    monkeypatch.setattr(ls, "compute", lambda *a, **k: pytest.fail("computed again"))
+    ls.surface.cache_clear()
+    ls.surface_at.cache_clear()
+    try:
+        got = ls.surface_at(TOPO, edited, CTL, 50e3, 3.3e3)    # the slice itself, no blend
+        assert np.all(got.vo == float(asked[0].index((50e3, 3.3e3)) + 1))
+    finally:
+        ls.surface.cache_clear()
+        ls.surface_at.cache_clear()
         ls._FRESH.clear()
 
 

@@ -178,7 +178,7 @@ def test_conversion_matrix_is_the_sampled_product(ks):
     # pair's middle node, whose DC row the analysis weighs by half).
     # With a charge (capacitance waveform c, times j k w per row) and complex row
     # factors, against the block products the solver used to form.
-    from partpick.physics.harmonic import _cmul_block, _product_jacobian, _transforms
+    from partpick.physics.hb_matrices import cmul_block as _cmul_block, product_jacobian as _product_jacobian, transforms as _transforms
 
     nt = max(64, 8 * (int(ks[-1]) + 1))
     synth, anal = _transforms(ks, nt)

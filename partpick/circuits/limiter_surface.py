@@ -22,7 +22,9 @@ a gain network between levels reads the two around it, each carried to the netwo
 own rd and g by the same describing-function ratio, and blends them in ln Rg. A slice depends only on
 the part, the topology, its level and its frequency, so it is computed when first
 needed and cached in the user's cache folder (:mod:`partpick.cache`); the demo parts'
-are shipped.
+are shipped. A part the package has no tables of (a catalog's own, an edited one) is
+solved at the design's own frequency instead of at the slices around it: half the
+work of its first use, and no blend in frequency.
 
 Accuracy against direct harmonic balance on the reference is checked in
 tests/test_limiter_surface.py over the range the search uses.
@@ -36,7 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from partpick.cache import content_key, has_arrays, load_arrays, part_content, store_arrays
+from partpick.cache import content_key, has_arrays, load_arrays, part_content, shipped_dir, store_arrays
 from partpick.forked import fork_map
 from partpick.physics.harmonic import harmonic_balance
 from partpick.physics.junction import limiter_table
@@ -206,7 +208,7 @@ def prepare(topology, lim, control, f_hz: float, rgs) -> None:
     surface() then loads. Together their rows balance the CPUs (_compute_many)."""
     need = []
     for rg in sorted({lv for r in rgs for lv in _level_weights(r)}):
-        for f in (x for x in _slices(f_hz)[:2] if x is not None):
+        for f in (x for x in _slices(topology, lim, f_hz)[:2] if x is not None):
             key = _key(topology, lim, f, rg)
             if all(key != k for _, k in need) and not has_arrays("limiter-surface", key):
                 need.append(((topology, lim, control, f, rg), key))
@@ -237,10 +239,20 @@ def _df_key(lim, rg: float = REF_RG) -> str:
 
 
 @functools.lru_cache(maxsize=256)
+def _shipped(topology, lim) -> bool:
+    """Whether the package ships the part's slices on the topology (the demo parts as
+    they are): what decides which slices a design reads (_slices), the same on every
+    machine whatever its cache holds, so that a design's ranking does not depend on
+    what was run before."""
+    return (shipped_dir() / "limiter-surface" / f"{_key(topology, lim, F_SLICES[0])}.npz").is_file()
+
+
+@functools.lru_cache(maxsize=256)
 def surface(topology, lim, control, f_hz: float = F_SLICES[0], rg: float = REF_RG) -> Surface:
-    """The limiter part's surface on the topology at one frequency of F_SLICES and one
-    level of LEVELS (ohm) (shipped with the package for the demo parts, else computed
-    once and cached on disk)."""
+    """The limiter part's surface on the topology at one frequency (Hz: one of F_SLICES,
+    or a design's own for a part not shipped, see _slices) and one level of LEVELS
+    (ohm) (shipped with the package for the demo parts, else computed once and cached
+    on disk)."""
     key = _key(topology, lim, f_hz, rg)
     arrays = _FRESH.pop(key, None) or load_arrays("limiter-surface", key)
     if arrays is None or set(arrays) != {"vo", "thd", "pull", "a_df"}:
@@ -255,7 +267,7 @@ def surface_at(topology, lim, control, f_hz: float, rg: float = REF_RG) -> Surfa
     below it, else the two slices around it blended linearly in frequency (output and
     THD on their log axes, as the lookup interpolates them, so blending the tables is
     blending the lookups)."""
-    lo, hi, t = _slices(f_hz)
+    lo, hi, t = _slices(topology, lim, f_hz)
     if hi is None:
         return surface(topology, lim, control, lo, rg)
     a, b = surface(topology, lim, control, lo, rg), surface(topology, lim, control, hi, rg)
@@ -265,11 +277,16 @@ def surface_at(topology, lim, control, f_hz: float, rg: float = REF_RG) -> Surfa
                        (1 - t) * a.pull + t * b.pull, a.a_df)
 
 
-def _slices(f_hz: float) -> tuple[float, float | None, float]:
-    """The slices of F_SLICES surface_at reads at f_hz (Hz): (lowest, None, 0) at or below
-    the lowest, else the two around it and the weight of the upper one."""
+def _slices(topology, lim, f_hz: float) -> tuple[float, float | None, float]:
+    """The slices surface_at reads at f_hz (Hz): (lowest, None, 0) at or below the lowest
+    of F_SLICES, else the two around it and the weight of the upper one; for a part the
+    package does not ship tables of (a catalog's own, or an edited one), f_hz's own
+    slice between the lowest and the highest: it is computed anyway, and one slice at
+    the design's frequency is half the work of the two around it (and reads no blend)."""
     if f_hz <= F_SLICES[0]:
         return F_SLICES[0], None, 0.0
+    if f_hz < F_SLICES[-1] and not _shipped(topology, lim):
+        return f_hz, None, 0.0
     i = min(int(np.searchsorted(F_SLICES, f_hz)), len(F_SLICES) - 1)
     lo, hi = F_SLICES[i - 1], F_SLICES[i]
     return lo, hi, min((f_hz - lo) / (hi - lo), 1.0)
@@ -467,7 +484,6 @@ def ship(catalog_dir: str) -> int:
     """Write every slice of every limiter in the catalogs under catalog_dir into the
     package's tables (for the maintainers: run after a change to the physics or the
     demo parts); returns how many were written."""
-    from partpick.cache import shipped_dir
     from partpick.catalog import load_catalog
     from partpick.circuits import CONTROLS, TOPOLOGIES
 

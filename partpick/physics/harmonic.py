@@ -33,12 +33,12 @@ caller integrates the full nonlinear circuit instead (:mod:`partpick.physics.tra
 
 from __future__ import annotations
 
-import functools
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from partpick.physics.hb_matrices import add_diagonal, cx, product_jacobian, ri, transforms
 from partpick.physics.linear import LinearResult
 from partpick.physics.loop import Branch, Loop
 from partpick.physics.opamp import loop_figures
@@ -115,7 +115,12 @@ class _Balance:
         self.charged = branch.has_charge
         self.ks = np.arange(1, kmax + 1, 2)
         self.nt = nt
-        self.synth, self.anal = _transforms(self.ks, nt)
+        self.synth, self.anal = transforms(self.ks, nt)
+        # made once, as they serve every Newton step: j k, the (re, im) positions of the
+        # harmonics' diagonal blocks, the Jacobian's columns kept (all but Im V1)
+        self.jk = 1j * self.ks
+        self.diag_re = 2 * np.arange(self.ks.size)
+        self.cols = np.array([0, *range(2, 2 * self.ks.size)])
 
     def coeffs(self, w: float) -> tuple[np.ndarray, np.ndarray]:
         # unknowns are the harmonics of the voltage across the nonlinear element itself
@@ -129,17 +134,29 @@ class _Balance:
         al, ga = self.branch.element_coefficients(self.loop, 1j * np.concatenate([w * self.ks, (w + h) * self.ks]))
         return al[:n], ga[:n], h, al[n:], ga[n:]
 
+    def _wave(self, vk: np.ndarray, w: float, slopes: bool):
+        """(element current harmonics Ie = I_k + j k w Q_k (A), charge harmonics Q_k (C)
+        or None, v(theta), i(theta), and with slopes the conductance and capacitance
+        (or None) along v(theta), S and F) at element harmonics vk and scaled angular
+        frequency w."""
+        v_t = self.synth @ ri(vk)
+        g_t = c_t = qk = None
+        if self.charged:
+            i_t, g_t, q_t, c_t = self.table.sample(v_t)
+            qk = cx(self.anal @ q_t)
+            ik = cx(self.anal @ i_t) + self.jk * (w * self.loop.w_ref) * qk
+        else:
+            i_t = self.table.current(v_t)
+            ik = cx(self.anal @ i_t)
+            if slopes:
+                g_t = self.table.slope(v_t)
+        return ik, qk, v_t, i_t, g_t, c_t
+
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
         """(loop residual per harmonic, element current harmonics Ie = I_k + j k w Q_k
         (A), charge harmonics Q_k (C), v(theta), i(theta)) at element harmonics vk and
         scaled angular frequency w."""
-        v_t = self.synth @ _ri(vk)
-        i_t = self.table.current(v_t)
-        ik = _cx(self.anal @ i_t)
-        qk = None
-        if self.charged:
-            qk = _cx(self.anal @ self.table.charge(v_t))
-            ik = ik + 1j * self.ks * (w * self.loop.w_ref) * qk
+        ik, qk, v_t, i_t, _, _ = self._wave(vk, w, False)
         al, ga = coeffs if coeffs is not None else self.coeffs(w)
         return al * vk + ga * ik, ik, qk, v_t, i_t
 
@@ -147,15 +164,15 @@ class _Balance:
         """(complex residual, real Newton Jacobian over re V1, (re, im) V3.., w (im V1 is
         the phase reference), al, ga) at vk, w."""
         al, ga, h, al2, ga2 = self.coeffs_and_step(w)
-        r, ik, qk, v_t, _ = self.residual(vk, w, (al, ga))
-        g_t = self.table.slope(v_t)
+        ik, qk, _, _, g_t, c_t = self._wave(vk, w, True)
+        r = al * vk + ga * ik
         # ga d(re,im I)/d(re,im V); with charge, the charging current j k w Q_k too (the
         # capacitance waveform C(v(theta)) mapped like the conductance, times j k w)
-        c_t = self.table.charge_slope(v_t) if self.charged else None
-        J = _product_jacobian(g_t, self.ks, c_t, 1j * self.ks * (w * self.loop.w_ref), ga) + _cmul_block(al)
-        dik_dw = 0.0 if qk is None else 1j * self.ks * self.loop.w_ref * qk
-        dw = _ri(((al2 - al) * vk + (ga2 - ga) * ik) / h + ga * dik_dw)
-        return r, np.column_stack([J[:, 0], J[:, 2:], dw]), al, ga
+        J = product_jacobian(g_t, self.ks, c_t, self.jk * (w * self.loop.w_ref), ga, (self.synth, self.anal))
+        add_diagonal(J, al, self.diag_re)
+        dik_dw = 0.0 if qk is None else self.jk * self.loop.w_ref * qk
+        dw = ri(((al2 - al) * vk + (ga2 - ga) * ik) / h + ga * dik_dw)
+        return r, np.column_stack([J[:, self.cols], dw]), al, ga
 
     def unpack(self, step: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """A Newton step's (V harmonics, other unknowns) parts, its frequency step last."""
@@ -166,7 +183,7 @@ class _Balance:
 
     def rows(self, r: np.ndarray) -> np.ndarray:
         """The residual (complex per harmonic) as the Newton system's right-hand side."""
-        return _ri(r)
+        return ri(r)
 
     def solve(self, a0: float, w0: float, iters: int = 60, start: np.ndarray | None = None,
               start_even: np.ndarray | None = None):
@@ -235,7 +252,7 @@ class _Balance:
 
     def rows_odd(self, dr: np.ndarray) -> np.ndarray:
         """A derivative of the odd (loop) rows as a right-hand side."""
-        return _ri(dr)
+        return ri(dr)
 
 
 class _SeriesBalance(_Balance):
@@ -257,12 +274,18 @@ class _SeriesBalance(_Balance):
         self.elem = branch.table.element
         self.split = (branch.table.v_v, branch.table.split_v)
         self.kall = np.arange(0, kmax + 1)
-        self.synth_all, self.anal_all = _transforms(self.kall, nt)
+        self.synth_all, self.anal_all = transforms(self.kall, nt)
         self.odd = self.kall % 2 == 1
         self.ek = np.zeros(int(np.sum(~self.odd)), dtype=complex)
         nk = self.kall.size
-        self.keep_rows = [r for r in range(2 * nk) if r != 1]              # Im of the DC row is 0
-        self.keep_cols = [c for c in range(2 * nk) if c not in (1, 3)]     # Im u0 (none), Im u1 (phase)
+        self.keep_rows = np.array([r for r in range(2 * nk) if r != 1])          # Im of the DC row is 0
+        self.keep_cols = np.array([c for c in range(2 * nk) if c not in (1, 3)])  # Im u0 (none), Im u1 (phase)
+        # made once, as they serve every Newton step: the kept block's index, j k, and
+        # the (re, im) positions of the odd harmonics' diagonal blocks
+        self.kept = np.ix_(self.keep_rows, self.keep_cols)
+        self.jk = 1j * self.kall
+        self.jk_odd, self.jk_even = self.jk[self.odd], self.jk[~self.odd]
+        self.odd_re = 2 * np.nonzero(self.odd)[0]
 
     def _u(self, vk: np.ndarray, ek: np.ndarray) -> np.ndarray:
         uk = np.empty(self.kall.size, dtype=complex)
@@ -270,17 +293,19 @@ class _SeriesBalance(_Balance):
         return uk
 
     def _currents(self, uk: np.ndarray, w: float):
-        """Element current and charge harmonics (all k) at u's harmonics, and u(theta)."""
-        u_t = self.synth_all @ _ri(uk)
-        qk = _cx(self.anal_all @ self.elem.charge(u_t))
-        ik = _cx(self.anal_all @ self.elem.current(u_t)) + 1j * self.kall * (w * self.loop.w_ref) * qk
-        return ik, qk, u_t
+        """Element current and charge harmonics (all k) at u's harmonics, u(theta), and
+        the element's conductance and capacitance along it (S, F)."""
+        u_t = self.synth_all @ ri(uk)
+        i_t, g_t, q_t, c_t = self.elem.sample(u_t)
+        qk = cx(self.anal_all @ q_t)
+        ik = cx(self.anal_all @ i_t) + self.jk * (w * self.loop.w_ref) * qk
+        return ik, qk, u_t, g_t, c_t
 
     def residual(self, vk: np.ndarray, w: float, coeffs=None):
-        ik, qk, _ = self._currents(self._u(vk, self.ek), w)
+        ik, qk, *_ = self._currents(self._u(vk, self.ek), w)
         al, ga = coeffs if coeffs is not None else self.coeffs(w)
-        v_t = self.synth @ _ri(vk)
-        i_t = self.synth @ _ri(ik[self.odd])
+        v_t = self.synth @ ri(vk)
+        i_t = self.synth @ ri(ik[self.odd])
         return al * vk + ga * ik[self.odd], ik[self.odd], qk[self.odd], v_t, i_t
 
     def begin(self, vk: np.ndarray, start_even: np.ndarray | None) -> None:
@@ -290,9 +315,9 @@ class _SeriesBalance(_Balance):
             ek[:n] = start_even[:n]
         else:
             # the split with no charge moving: both elements carry the pair's current
-            v_t = self.synth @ _ri(vk)
+            v_t = self.synth @ ri(vk)
             e_t = np.interp(v_t, *self.split) - v_t / 2
-            ek = _cx(self.anal_all @ e_t)[~self.odd]
+            ek = cx(self.anal_all @ e_t)[~self.odd]
         self.ek = ek
 
     def advance(self, d: np.ndarray) -> None:
@@ -301,138 +326,38 @@ class _SeriesBalance(_Balance):
     def system(self, vk: np.ndarray, w: float):
         """(complex residual over all harmonics (odd: the loop, V; even: the middle node,
         scaled to V), the real Newton Jacobian over the kept unknowns and w, al, ga)."""
-        nk = self.kall.size
+        nk, odd, even = self.kall.size, self.odd, ~self.odd
         al, ga, h, al2, ga2 = self.coeffs_and_step(w)
         zs = abs(ga[0])
-        ik, qk, u_t = self._currents(self._u(vk, self.ek), w)
+        ik, qk, u_t, g_t, c_t = self._currents(self._u(vk, self.ek), w)
         r = np.empty(nk, dtype=complex)
-        r[self.odd] = al * vk + ga * ik[self.odd]
-        r[~self.odd] = zs * ik[~self.odd]
-        g_t, c_t = self.elem.slope(u_t), self.elem.charge_slope(u_t)
+        r[odd] = al * vk + ga * ik[odd]
+        r[even] = zs * ik[even]
         # rows: odd k -> ga dI/du + 2 al (u_k = v_k / 2); even k -> zs dI/du
         rowscale = np.ones(nk, dtype=complex)
-        rowscale[self.odd], rowscale[~self.odd] = ga, zs
-        diag = np.zeros(nk, dtype=complex)
-        diag[self.odd] = 2 * al
-        J = _product_jacobian(g_t, self.kall, c_t, 1j * self.kall * (w * self.loop.w_ref), rowscale) + _cmul_block(diag)
+        rowscale[odd], rowscale[even] = ga, zs
+        J = product_jacobian(g_t, self.kall, c_t, self.jk * (w * self.loop.w_ref), rowscale,
+                              (self.synth_all, self.anal_all))
+        add_diagonal(J, 2 * al, self.odd_re)     # + 2 al on the odd harmonics' blocks
         dr = np.empty(nk, dtype=complex)
-        dr[self.odd] = (((al2 - al) * vk + (ga2 - ga) * ik[self.odd]) / h
-                        + ga * 1j * self.ks * self.loop.w_ref * qk[self.odd])
-        dr[~self.odd] = zs * 1j * self.kall[~self.odd] * self.loop.w_ref * qk[~self.odd]
-        Jr = np.column_stack([J[np.ix_(self.keep_rows, self.keep_cols)], _ri(dr)[self.keep_rows]])
+        dr[odd] = (((al2 - al) * vk + (ga2 - ga) * ik[odd]) / h + ga * self.jk_odd * self.loop.w_ref * qk[odd])
+        dr[even] = zs * self.jk_even * self.loop.w_ref * qk[even]
+        Jr = np.column_stack([J[self.kept], ri(dr)[self.keep_rows]])
         return r, Jr, al, ga
 
     def rows(self, r: np.ndarray) -> np.ndarray:
-        return _ri(r)[self.keep_rows]
+        return ri(r)[self.keep_rows]
 
     def rows_odd(self, dr: np.ndarray) -> np.ndarray:
         full = np.zeros(self.kall.size, dtype=complex)
         full[self.odd] = dr
-        return _ri(full)[self.keep_rows]
+        return ri(full)[self.keep_rows]
 
     def unpack(self, step: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         du = np.zeros(2 * self.kall.size)
         du[self.keep_cols] = step[:-1]
-        duk = _cx(du)
+        duk = cx(du)
         return 2 * duk[self.odd], duk[~self.odd]
-
-
-def _transforms(ks: np.ndarray, nt: int) -> tuple[np.ndarray, np.ndarray]:
-    """The (synthesis, analysis) pair of _transforms_for, for an array of harmonics."""
-    return _transforms_for(tuple(int(k) for k in ks), nt)
-
-
-@functools.lru_cache(maxsize=64)
-def _transforms_for(harmonics: tuple[int, ...], nt: int) -> tuple[np.ndarray, np.ndarray]:
-    """(synthesis, analysis) matrices of harmonics ks on nt samples of a period:
-    columns re_k, im_k for each k, v(theta) = sum Re(V_k e^{j k theta}); the analysis
-    is the inverse on those harmonics (a DC term k = 0 weighs 1/nt, the others 2/nt)."""
-    ks = np.asarray(harmonics)
-    theta = 2 * np.pi * np.arange(nt) / nt
-    kt = np.outer(theta, ks)
-    synth = np.empty((nt, 2 * ks.size))
-    synth[:, 0::2] = np.cos(kt)
-    synth[:, 1::2] = -np.sin(kt)
-    anal = synth.T * (2.0 / nt)
-    anal[0::2][ks == 0] /= 2.0
-    # shared between problems of the same size: read-only
-    synth.flags.writeable = anal.flags.writeable = False
-    return synth, anal
-
-
-def _ri(z: np.ndarray) -> np.ndarray:
-    out = np.empty(2 * z.size)
-    out[0::2], out[1::2] = z.real, z.imag
-    return out
-
-
-def _cx(x: np.ndarray) -> np.ndarray:
-    return x[0::2] + 1j * x[1::2]
-
-
-def _product_jacobian(g_t: np.ndarray, ks: np.ndarray, c_t: np.ndarray | None = None, jw: np.ndarray | None = None,
-                      rows: np.ndarray | None = None) -> np.ndarray:
-    """The real Jacobian d(re, im I_k)/d(re, im V_m) over harmonics ks (rows and columns
-    interleaved as _transforms orders them) of i(theta) = g(theta) v(theta), g sampled
-    at the nt points of a period: what ``anal @ (g_t[:, None] * synth)`` computes, from
-    g's Fourier coefficients G_n = (1/nt) sum g e^(-j n theta) in O(nt log nt + K^2)
-    instead of O(nt K^2). A change dV in V_m changes I_k by dV G_(k-m) + conj(dV) G_(k+m)
-    (the product of two Fourier series; the conversion matrix of harmonic-balance
-    analysis, Kundert, Sangiovanni-Vincentelli and White, Steady-State Methods for
-    Simulating Analog and Microwave Circuits, 1990, chapter 7); the DC row (k = 0) is
-    half of it, as the analysis weighs DC by 1/nt. With c_t (a capacitance waveform)
-    its charge's conversion matrix times jw (per row: j k w) is added, and with rows
-    every row is multiplied by its complex factor: the whole d(rows (I + jw Q))/dV in
-    one pass."""
-    if ks.size < 24:
-        # few harmonics: the plain product is cheaper than the transform's overhead
-        synth, anal = _transforms(ks, g_t.size)
-        out = anal @ (g_t[:, None] * synth)
-        if c_t is not None:
-            out = out + _cmul_rows(jw, anal @ (c_t[:, None] * synth))
-        return out if rows is None else _cmul_rows(rows, out)
-    nt = g_t.size
-    k, m = ks[:, None], ks[None, :]
-    lo, hi = (k - m) % nt, (k + m) % nt
-    big = np.fft.fft(g_t) / nt
-    a, b = big[lo], big[hi]
-    if c_t is not None:
-        cap = np.fft.fft(c_t) / nt
-        a, b = a + jw[:, None] * cap[lo], b + jw[:, None] * cap[hi]
-    if rows is not None:
-        a, b = a * rows[:, None], b * rows[:, None]
-    dc = ks == 0
-    a[dc] /= 2.0
-    b[dc] /= 2.0
-    out = np.empty((2 * ks.size, 2 * ks.size))
-    out[0::2, 0::2] = a.real + b.real
-    out[0::2, 1::2] = b.imag - a.imag
-    out[1::2, 0::2] = a.imag + b.imag
-    out[1::2, 1::2] = a.real - b.real
-    return out
-
-
-def _cmul_rows(c: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """_cmul_block(c) @ m without forming the block-diagonal matrix: each (re, im) row
-    pair of m multiplied by the complex c of its harmonic."""
-    re, im = m[0::2], m[1::2]
-    cr, ci = c.real[:, None], c.imag[:, None]
-    out = np.empty_like(m)
-    out[0::2] = cr * re - ci * im
-    out[1::2] = ci * re + cr * im
-    return out
-
-
-def _cmul_block(c: np.ndarray) -> np.ndarray:
-    """Real 2x2 blocks for multiplication by complex c, as a block-diagonal matrix."""
-    n = c.size
-    m = np.zeros((2 * n, 2 * n))
-    idx = np.arange(n) * 2
-    m[idx, idx] = c.real
-    m[idx, idx + 1] = -c.imag
-    m[idx + 1, idx] = c.imag
-    m[idx + 1, idx + 1] = c.real
-    return m
 
 
 def describing_amplitude(table, g_target: float, lo: float = 1e-4, hi: float = 200.0) -> float | None:
@@ -537,16 +462,16 @@ def _result(loop: Loop, rails, hb: _Balance, vk, w, ok) -> BalanceResult:
     # the element's capacitance as the fundamental sees it (describing-function capacitance)
     cap_eff = br.cap_f + (float(np.real(qk[0] / vk[0])) if qk is not None and abs(vk[0]) > 0 else 0.0)
     vf = vk + br.series_ohm * ik                        # voltage across the whole branch
-    i_t = hb.synth @ _ri(ik)
+    i_t = hb.synth @ ri(ik)
     vo = loop.probe("osc", p, vf, ik)
     vl = loop.probe("load", p, vf, ik)
     kmax = int(hb.ks[-1])
     full = lambda z: _full(z, hb.ks, kmax)  # noqa: E731
-    vo_t = hb.synth @ _ri(vo)
-    vl_t = hb.synth @ _ri(vl)
+    vo_t = hb.synth @ ri(vo)
+    vl_t = hb.synth @ ri(vl)
     regime, (x_min, x_max, slew, io_pk, io_rms) = loop_figures(
-        loop.amps, rails, lambda name: loop.probe(name, p, vf, ik), lambda z: hb.synth @ _ri(z),
-        lambda z: hb.synth @ _ri(1j * hb.ks * w * loop.w_ref * z))
+        loop.amps, rails, lambda name: loop.probe(name, p, vf, ik), lambda z: hb.synth @ ri(z),
+        lambda z: hb.synth @ ri(1j * hb.ks * w * loop.w_ref * z))
     return BalanceResult(
         freq_hz=w * loop.w_ref / (2 * math.pi),
         osc_peak_v=float((vo_t.max() - vo_t.min()) / 2),

@@ -213,13 +213,21 @@ class LimiterTable:
     # Newton step of harmonic balance
     i_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
     q_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
+    # sample()'s lookups by searchsorted's index m (0 below the grid, n above it): the
+    # slopes with the end slopes outside, and the grid point each value is carried from
+    _i_ext: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
+    _q_ext: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
+    _anchor: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
 
     def __post_init__(self) -> None:
         dv = np.diff(self.v_v)
         with np.errstate(divide="ignore", invalid="ignore"):
             object.__setattr__(self, "i_seg", np.diff(self.i_a) / dv)
+            object.__setattr__(self, "_i_ext", np.concatenate([self.g_s[:1], self.i_seg, self.g_s[-1:]]))
+            object.__setattr__(self, "_anchor", np.concatenate([[0], np.arange(self.v_v.size)]))
             if self.q_c is not None:
                 object.__setattr__(self, "q_seg", np.diff(self.q_c) / dv)
+                object.__setattr__(self, "_q_ext", np.concatenate([self.c_f[:1], self.q_seg, self.c_f[-1:]]))
 
     def current(self, v: np.ndarray) -> np.ndarray:
         """Current at voltage v (V), A."""
@@ -240,6 +248,18 @@ class LimiterTable:
     def charge_slope(self, v: np.ndarray) -> np.ndarray:
         """d charge() / dv at v (V), F (as slope() for the current)."""
         return _segment_slope(v, self.v_v, self.q_seg, self.c_f)
+
+    def sample(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """(current(), slope(), charge(), charge_slope()) at v (V) of a table with
+        charge: the four from one search of the grid (a Newton step of harmonic balance
+        takes all four at the same points). The same numbers as the four calls:
+        np.interp's own formula, seg[j] (v - v_j) + y_j, on the segment j holding v;
+        beyond an end, the end's value carried on the end's slope."""
+        m = np.searchsorted(self.v_v, v, side="right")    # the segment's index + 1
+        a = self._anchor[m]
+        d = v - self.v_v[a]
+        g, c = self._i_ext[m], self._q_ext[m]
+        return g * d + self.i_a[a], g, c * d + self.q_c[a], c
 
     @property
     def has_charge(self) -> bool:
