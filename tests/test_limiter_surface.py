@@ -202,3 +202,17 @@ def test_rows_computed_apart_equal_rows_computed_together(demo_catalog, monkeypa
     for name in ("vo", "thd", "pull", "a_df"):
         assert np.array_equal(alone[name], together[name], equal_nan=True), name
     assert np.count_nonzero(np.isfinite(alone["vo"])) > 0.5 * alone["vo"].size
+
+
+def test_the_cell_from_the_even_spacing_is_the_searched_cell():
+    # limiter_surface._cell finds the X_GRID cell from the axis's even spacing in ln x;
+    # against numpy's binary search (searchsorted), at random points, on every grid
+    # point and one ulp either side of it, and beyond both ends
+    from partpick.circuits import limiter_surface as ls
+
+    rng = np.random.default_rng(11)
+    vg = ls._VG
+    v = np.concatenate([rng.uniform(vg[0] - 3, vg[-1] + 3, 200_000), vg, np.nextafter(vg, np.inf),
+                        np.nextafter(vg, -np.inf), [np.inf, -np.inf]])
+    assert np.array_equal(ls._cell(v), np.clip(np.searchsorted(vg, v) - 1, 0, vg.size - 2))
+    assert 0 <= ls._cell(np.array([np.nan]))[0] <= vg.size - 2      # off the table, any cell

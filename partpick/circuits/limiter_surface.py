@@ -95,23 +95,45 @@ class Surface:
                     np.exp(_bilinear(np.log(self.a_df), at)))
 
 
-def _coords(rd_ohm, g_s, rg_ohm: float):
+def _coords(rd_ohm, g_s, rg_ohm: float, r_axis=None):
     """Where (rd_ohm, g_s) fall on the (R_GRID, X_GRID) log axes scaled by rg_ohm: the
     flat index of each point's cell corner, the four corners' bilinear weights, and a
-    mask of points off the table (computed once for every table read at those points)."""
-    u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
+    mask of points off the table (computed once for every table read at those points).
+    r_axis: _r_axis(rd_ohm, rg_ohm) when the caller holds it (a Planner's rows take
+    their rd from a few choices: it gathers theirs)."""
+    i, tu, u = r_axis if r_axis is not None else _r_axis(rd_ohm, rg_ohm)
     with np.errstate(invalid="ignore", divide="ignore"):
         v = np.log(np.asarray(g_s, float) * rg_ohm)
-    i = np.clip(np.searchsorted(_UG, u) - 1, 0, _UG.size - 2)
-    j = np.clip(np.searchsorted(_VG, v) - 1, 0, _VG.size - 2)
-    tu = (u - _UG[i]) / (_UG[i + 1] - _UG[i])
+    j = _cell(v)
     tv = (v - _VG[j]) / (_VG[j + 1] - _VG[j])
     outside = (tu < -1e-9) | (tu > 1 + 1e-9) | (tv < -1e-9) | (tv > 1 + 1e-9) | ~np.isfinite(u * v)
     return i * X_GRID.size + j, (1 - tu) * (1 - tv), tu * (1 - tv), (1 - tu) * tv, tu * tv, outside
 
 
+def _r_axis(rd_ohm, rg_ohm: float):
+    """(cell, weight, ln coordinate) of rd_ohm (ohm) on the R_GRID axis at the level rg_ohm."""
+    u = np.log(np.asarray(rd_ohm, float) / rg_ohm + _R0)
+    i = np.clip(np.searchsorted(_UG, u) - 1, 0, _UG.size - 2)
+    return i, (u - _UG[i]) / (_UG[i + 1] - _UG[i]), u
+
+
 _UG = np.log(R_GRID + _R0)
 _VG = np.log(X_GRID)
+_VG_STEP = (_VG[-1] - _VG[0]) / (_VG.size - 1)
+
+
+def _cell(v: np.ndarray) -> np.ndarray:
+    """np.clip(np.searchsorted(_VG, v) - 1, 0, _VG.size - 2) for every v not NaN, from
+    the axis's even spacing (X_GRID is geometric) instead of a search: the search was
+    a third of the search's table reads. Rounding can put the spacing's cell one off,
+    which the two comparisons after it put right. (NaN lands in the first cell, the
+    search puts it in the last: a point off the table either way.)"""
+    top = _VG.size - 2
+    with np.errstate(invalid="ignore"):
+        j = np.fmin(np.fmax(np.floor((v - _VG[0]) / _VG_STEP), 0.0), top).astype(np.intp)
+        j -= (v <= _VG[j]) & (j > 0)
+        j += (v > _VG[j + 1]) & (j < top)
+    return j
 
 
 def _bilinear(z: np.ndarray, at) -> np.ndarray:
@@ -404,10 +426,19 @@ class Planner:
         table = df_table(lim, self.level)
         ref = _df_at(table, REF_T)
         self._df_shift = [_df_at(table, t) - ref for t in self.temps_k]
+        # each choice's place on the r axis, at the network's level and at the tables'
+        # (the rows gather theirs: the same numbers as placing every row's rd)
+        self._r_axes = {lv: _r_axis(self.choices, lv) for lv in (self.rg, self.level)}
 
-    def _lookup(self, rd, g, vo: bool, thd: bool, pull: bool):
-        """What Surface.lookup gives, only the fields asked for (None for the others)."""
-        at = _coords(rd, g, self.rg)
+    def _at(self, ci, g, rg: float):
+        """_coords of the choices ci (indices into choices) with conductances g (S) at rg."""
+        return _coords(None, g, rg, tuple(x[ci] for x in self._r_axes[rg]))
+
+    def _lookup(self, ci, g, vo: bool, thd: bool, pull: bool):
+        """What Surface.lookup gives at the choices ci (indices into choices) and
+        conductances g (S), only the fields asked for (None for the others)."""
+        rd = self.choices[ci]
+        at = self._at(ci, g, self.rg)
         out_vo = out_thd = out_pull = None
         if vo:
             q = np.asarray(g, float) * np.asarray(rd, float)
@@ -428,9 +459,9 @@ class Planner:
         first screen before the full evaluation; NaN where the choice cannot hold the
         loop."""
         g_s = np.asarray(g_s, float)
-        rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
+        ci = np.broadcast_to(np.arange(self.choices.size)[None, :], (g_s.size, self.choices.size))
         with np.errstate(invalid="ignore", divide="ignore"):
-            thd = self._lookup(rd, np.broadcast_to(g_s[:, None], rd.shape), False, True, False)[1]
+            thd = self._lookup(ci, np.broadcast_to(g_s[:, None], ci.shape), False, True, False)[1]
         return thd * (np.asarray(thd_scale, float)[:, None] if np.ndim(thd_scale) else thd_scale)
 
     def evaluate(self, g_s: np.ndarray, dg_dm: np.ndarray, osc_per_port: np.ndarray, m: np.ndarray,
@@ -451,29 +482,29 @@ class Planner:
         m = np.asarray(m, float)
         g_ref = self.topology.reference_conductance(m, self.rg)     # the reference at the same excess
         if choice is None:
-            rd = np.broadcast_to(self.choices[None, :], (g_s.size, self.choices.size))
-            g = np.broadcast_to(g_s[:, None], rd.shape)
-            g_ref = np.broadcast_to(g_ref[:, None], rd.shape)
+            ci = np.broadcast_to(np.arange(self.choices.size)[None, :], (g_s.size, self.choices.size))
+            g = np.broadcast_to(g_s[:, None], ci.shape)
+            g_ref = np.broadcast_to(g_ref[:, None], ci.shape)
             scale = np.asarray(osc_per_port, float)[:, None] / self.osc_ref   # the surface holds the reference's
-            dg_dm = np.broadcast_to(np.asarray(dg_dm, float)[:, None], rd.shape)
+            dg_dm = np.broadcast_to(np.asarray(dg_dm, float)[:, None], ci.shape)
             t_scale = np.asarray(thd_scale, float)[..., None] if np.ndim(thd_scale) else thd_scale
         else:
-            rd = np.broadcast_to(self.choices[np.asarray(choice)], g_s.shape)
+            ci = np.broadcast_to(np.asarray(choice), g_s.shape)
             g = g_s
             scale = np.asarray(osc_per_port, float) / self.osc_ref
             t_scale = thd_scale
         with np.errstate(invalid="ignore", divide="ignore"):
-            vo, thd, pull_g = self._lookup(rd, g, True, True, True)
-            pull = self._lookup(rd, g_ref, False, False, True)[2]
+            vo, thd, pull_g = self._lookup(ci, g, True, True, True)
+            pull = self._lookup(ci, g_ref, False, False, True)[2]
             pull = np.where(np.isfinite(pull), pull, pull_g)   # the reference's excess off the table
             dm = 0.002
-            vo2, thd2, _ = self._lookup(rd, g + dg_dm * dm, True, True, False)
+            vo2, thd2, _ = self._lookup(ci, g + dg_dm * dm, True, True, False)
             thd, thd2 = thd * t_scale, thd2 * t_scale
             out = {"thd": thd, "pull": pull, "dln_vo": np.log(vo2 / vo) / dm, "dthd": (thd2 - thd) / dm}
             # the output at another temperature: scaled by the ratio of the branch's
             # describing-function amplitudes there and at 25 degC (the table, in the
             # branch's own units: rd and g as they are)
-            at = _coords(rd, g, self.level)
+            at = self._at(ci, g, self.level)
             for i, t in enumerate(self.temps_k):
                 ratio = 1.0 if t == REF_T else np.exp(_bilinear(self._df_shift[i], at))
                 out[f"vo{i}"] = vo * scale * ratio

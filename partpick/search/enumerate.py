@@ -493,14 +493,20 @@ class Searcher:
         w = 2 * math.pi * self.f_t
         z_arm = (vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3])
         y = 1 / z_arm + 1 / (r_fb + r_gnd)
-        kind = np.array(periphery.STAGE_KINDS)[kinds]
+        extra = np.zeros(y.shape, complex)      # (a buffer's stage and load: on the buffer)
+        kinds, ra, rb = (np.broadcast_to(x, y.shape) for x in (kinds, ra, rb))
         with np.errstate(invalid="ignore", divide="ignore"):
             # complex: a capacitive load behind the attenuator's shunt leg can carry most
             # of the current (100 nF at 50 kHz is 32 ohm)
-            extra = np.select([kind == "none", kind == "attenuator", kind == "buffered-attenuator"],
-                              [np.full(y.shape, self.y_load), 1 / (ra + 1 / (1 / rb + self.y_load)),
-                               1 / (ra + rb) + 0j], 0j)
+            extra[kinds == _KIND["none"]] = self.y_load
+            at = kinds == _KIND["attenuator"]
+            extra[at] = 1 / (ra[at] + 1 / (1 / rb[at] + self.y_load))
+            at = kinds == _KIND["buffered-attenuator"]
+            extra[at] = 1 / (ra[at] + rb[at]) + 0j
         return np.abs(y + extra)
+
+
+_KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
 
 
 def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
