@@ -563,6 +563,7 @@ def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = N
     todo = ((i, c) for i, c in enumerate(cases(n, seed)) if kinds is None or c[0] in kinds)
     t_start = time.perf_counter()
     slowest = 0.0
+    times: list[float] = []   # every case's wall time, s
     ran = 0
 
     def finish(pid: int, status: int, usage) -> None:
@@ -571,6 +572,7 @@ def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = N
         i, kind, folder, argv, blamed, started, before = running.pop(pid)
         elapsed = time.perf_counter() - started
         slowest = max(slowest, elapsed)
+        times.append(elapsed)
         err = (folder / ".stderr").read_text(encoding="utf-8", errors="replace")
         code = os.waitstatus_to_exitcode(status)
         classes = _classify(code, err, elapsed, usage.ru_maxrss, blamed)
@@ -620,7 +622,7 @@ def run(n: int, seed: int, use_exec: bool, show: int, kinds: set[str] | None = N
         time.sleep(0.005)
     shutil.rmtree(base, ignore_errors=True)
     return {"counts": counts, "by_kind": by_kind, "examples": examples, "seconds": time.perf_counter() - t_start,
-            "slowest": slowest, "n": ran}
+            "slowest": slowest, "n": ran, "times": times}
 
 
 BAD = ("traceback", "internal error (exit 3)", "hang > 20 s", "over 1 GB", "multi-line message", "killed",
@@ -728,6 +730,9 @@ def main() -> None:
     counts = res["counts"]
     print(f"{res['n']} inputs in {res['seconds']:.0f} s ({res['seconds'] / res['n'] * args.jobs:.2f} s per input "
           f"per job, {args.jobs} at once, empty user cache), slowest {res['slowest']:.1f} s")
+    if res["times"]:
+        over = ", ".join(f"over {t} s {sum(x > t for x in res['times'])}" for t in (5, 10, 15, 20))
+        print(f"  wall time per input: {over}; median {sorted(res['times'])[len(res['times']) // 2]:.2f} s")
     order = ["exit 0", "exit 1", "exit 2", "exit 3", "killed", "not started (harness)", "exit 1 with a result on stdout", "refusal with its analysis", "one-line message",
              "multi-line message", "temporary file left", "refusal wrote files", "wrote outside the named place",
              "traceback",
