@@ -209,12 +209,10 @@ class LimiterTable:
     c_f: np.ndarray | None = None
     element: "LimiterTable | None" = None
     split_v: np.ndarray | None = None
-    # the interpolants' segment slopes (current, charge), made once: slope() is in every
-    # Newton step of harmonic balance
-    i_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
-    q_seg: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
-    # sample()'s lookups by searchsorted's index m (0 below the grid, n above it): the
-    # slopes with the end slopes outside, and the grid point each value is carried from
+    # the interpolants' segment slopes (current, charge), made once (every Newton step
+    # of harmonic balance reads them), indexed by searchsorted's index m (0 below the
+    # grid, n above it: the table's end slopes there), and the grid point each value is
+    # carried from
     _i_ext: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
     _q_ext: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
     _anchor: np.ndarray | None = field(default=None, init=False, compare=False, repr=False)
@@ -222,12 +220,11 @@ class LimiterTable:
     def __post_init__(self) -> None:
         dv = np.diff(self.v_v)
         with np.errstate(divide="ignore", invalid="ignore"):
-            object.__setattr__(self, "i_seg", np.diff(self.i_a) / dv)
-            object.__setattr__(self, "_i_ext", np.concatenate([self.g_s[:1], self.i_seg, self.g_s[-1:]]))
+            object.__setattr__(self, "_i_ext", np.concatenate([self.g_s[:1], np.diff(self.i_a) / dv, self.g_s[-1:]]))
             object.__setattr__(self, "_anchor", np.concatenate([[0], np.arange(self.v_v.size)]))
             if self.q_c is not None:
-                object.__setattr__(self, "q_seg", np.diff(self.q_c) / dv)
-                object.__setattr__(self, "_q_ext", np.concatenate([self.c_f[:1], self.q_seg, self.c_f[-1:]]))
+                object.__setattr__(self, "_q_ext", np.concatenate([self.c_f[:1], np.diff(self.q_c) / dv,
+                                                                  self.c_f[-1:]]))
 
     def current(self, v: np.ndarray) -> np.ndarray:
         """Current at voltage v (V), A."""
@@ -243,11 +240,11 @@ class LimiterTable:
         interpolates the tabulated derivative, which parts from the segment's slope
         where the grid is coarse against the curve (on a 6 ohm Zener's knee enough
         that harmonic balance converged linearly, a tenth a step, not quadratically)."""
-        return _segment_slope(v, self.v_v, self.i_seg, self.g_s)
+        return self._i_ext[np.searchsorted(self.v_v, v, side="right")]
 
     def charge_slope(self, v: np.ndarray) -> np.ndarray:
         """d charge() / dv at v (V), F (as slope() for the current)."""
-        return _segment_slope(v, self.v_v, self.q_seg, self.c_f)
+        return self._q_ext[np.searchsorted(self.v_v, v, side="right")]
 
     def sample(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(current(), slope(), charge(), charge_slope()) at v (V) of a table with
@@ -273,13 +270,6 @@ class LimiterTable:
     def capacitance(self, v: np.ndarray) -> np.ndarray:
         """dq/dv at v (V), F."""
         return np.interp(v, self.v_v, self.c_f)
-
-
-def _segment_slope(v, xs, seg, gs):
-    """seg (the slopes of the segments between the points xs) at v; gs's ends beyond them."""
-    v = np.asarray(v, dtype=float)
-    j = np.searchsorted(xs, v, side="right") - 1
-    return np.where(j >= seg.size, gs[-1], np.where(j < 0, gs[0], seg[np.clip(j, 0, seg.size - 1)]))
 
 
 def _interp_linear_ends(v, xs, ys, gs):
