@@ -31,7 +31,8 @@ from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.search.pool import Pool
 from partpick.forked import fork_map
-from partpick.refusal import default_notes, explain_refusal, loosened, structural_refusal
+from partpick.refusal import (default_notes, explain_refusal, frequency_hold, held_message, held_tolerance, loosened,
+                              relaxed, structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -146,8 +147,12 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
     searcher, fixed = _searcher(spec, catalog, stock, problem)
-    early = structural_refusal(spec, catalog, problem, searcher.pairs, _reach(problem), _hold_text(spec, searcher))
-    if early is not None:
+    early = structural_refusal(spec, catalog, problem, searcher.pairs, _reach(problem),
+                               frequency_hold(spec, problem, searcher.best_hold, catalog)[0])
+    # a frequency tolerance no allowed family pair holds is refused at once by the runs
+    # that explain a refusal; the design the user asked for goes on to the why-not, which
+    # finds the tolerance a design holds (and the families that would hold this one)
+    if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
         raise InfeasibleError(*early)
     t1 = time.perf_counter()
     timings["setup"] = t1 - t0
@@ -236,6 +241,8 @@ def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Sea
             return bom_cost(candidate_bom(c, spec, problem, fixed), catalog, stock)[0]
         return [b for ctl in problem.designed if (b := designed_batch(searcher, ctl, cost)) is not None]
 
+    if not searcher.pairs:
+        return []   # (no arm family pair holds the frequency: the refusal says what does)
     if problem.designed and not (problem.fallback and bare):
         return [surface, hooked]
     return [surface]   # (the runs that explain a refusal leave a fallback out: its designs take seconds each)
@@ -330,17 +337,32 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
             done[(s, keys)] = fresh((s, keys))
         return done[(s, keys)]
 
+    # a frequency tolerance no allowed family pair holds even centred: the analysis works on
+    # the spec with it relaxed to what the best pair holds (with a margin for arms off
+    # centre), and says so as it goes. Where the whole design (every control, the design's
+    # own builds) designs there, that is the answer; else what binds next is found with it
+    hold, t_hold = frequency_hold(spec, problem, searcher.best_hold, catalog)
+    given = ()
+    if hold and not searcher.pairs:
+        rel = held_tolerance(spec, t_hold)
+        try:
+            design(relaxed(spec, rel.field, rel.advice), catalog, stock=stock, results=1, samples=samples, seed=seed,
+                   nearest=0, work=work)
+            return held_message(spec, hold, rel)
+        except InfeasibleError:
+            given = ((rel, hold),)
     # the runs that do not depend on one another's results (each requirement loosened
     # alone, each restricted kind of part opened up, the shelf made a preference), made
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
     # spec (no transient run is allowed in any), so the answer is the same either way.
+    loose = relaxed(spec, given[0][0].field, given[0][0].advice) if given else spec
     opened = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
               for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
     prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None
     # (the runs with more parts allowed search the most: started first, so that the
     # cheap ones fill the other CPUs meanwhile)
     first = [(s, None) for _, s in opened] + [(prefer, None)] * (prefer is not None)
-    first += [(s, keys) for _, s, keys in loosened(spec)]
+    first += [(s, keys) for _, s, keys in loosened(loose)]
     done.update(zip(first, fork_map(fresh, first)))
 
     def evaluate(s: Spec, bom: Bom) -> Ranked:
@@ -358,22 +380,9 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
         boms = run(prefer)
         if boms:
             lead.append(("stock quantities", _shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
-    hold = _hold_text(spec, searcher)
-    if hold:
+    if hold and not given:
         more.append(("the frequency tolerance", hold))
-    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead)
-
-
-def _hold_text(spec: Spec, searcher: Searcher) -> str:
-    """When even the best allowed family pair, centred on the target, misses the
-    frequency yield: what it holds, and what to do."""
-    if searcher.best_hold is None or searcher.best_hold[2] >= spec.yield_min_frac:
-        return ""
-    rfa, cfa, hold = searcher.best_hold
-    return (f"even centred on the target, the best allowed families ({rfa.id} resistors "
-            f"{rfa.tolerance_frac * 100:.3g} %, {cfa.id} capacitors {cfa.tolerance_frac * 100:.3g} %) hold "
-            f"+/-{spec.frequency.tolerance_frac * 100:.3g} % in about {hold * 100:.0f} % of builds; allow a tighter "
-            f"family or plan a trim")
+    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given)
 
 
 def _shelf_shortfall(bom: Bom, shelf, builds: int, catalog: Catalog) -> str:

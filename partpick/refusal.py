@@ -23,11 +23,14 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
+import numpy as np
+
 from partpick import units
+from partpick.search.estimate import frequency_share, frequency_tolerance
 from partpick.spec import Spec
 
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
-           "structural_refusal"]
+           "structural_refusal", "frequency_hold", "held_tolerance", "held_message"]
 
 # requirement -> (how loose a run may make it, how it reads, unit dimension, tighter is smaller)
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
@@ -44,6 +47,10 @@ LADDER = (1.5, 3.0)   # steps (times the spec's value, towards the loose one) a 
 JOINT_STEPS = (0.25, 0.5)   # shares of the way to the loose values a joint relaxation is tried at
 BISECTIONS = 7        # steps of the bisection on a requirement (its result within about 2 %)
 SAMPLES = 4000        # Monte Carlo builds per verification while searching what would design
+# the frequency tolerance a refusal works from when no allowed family pair holds the spec's:
+# this many times what the best pair holds centred on the target (room for arms off centre;
+# common practice, no published source)
+HOLD_MARGIN = 1.25
 
 
 @dataclass(frozen=True, slots=True)
@@ -131,13 +138,14 @@ def _loosest(spec: Spec, field: str) -> float:
     return (max if smaller else min)(requirement_value(spec, field), loose)
 
 
-def _joint_advice(spec: Spec, lead, check, run) -> tuple[tuple[str, ...], str]:
+def _joint_advice(spec: Spec, lead, check, run, before=()) -> tuple[tuple[str, ...], str]:
     """When no requirement binds alone: the binding requirements and the message line,
     from the nearest design of the run with all four loosened (lead, Ranked). The
     requirements that set the limits it misses are relaxed together as far as it needs
     (_reach_together), or further, to where a design run designs (_designed_step); the
     line gives the values. A miss that no relaxable requirement moves, or no design run
-    at any step, leaves the line naming the checks' fields only."""
+    at any step, leaves the line naming the checks' fields only. before: relaxations
+    the spec has had already (stated with the values, unless a field is among them)."""
     misses = lead.verdict.failed()
     binding = tuple(dict.fromkeys(c.field for c in misses))
     governing = tuple(dict.fromkeys(_governed_by(c) for c in misses))
@@ -145,12 +153,21 @@ def _joint_advice(spec: Spec, lead, check, run) -> tuple[tuple[str, ...], str]:
     # stated only where the search designs (the design passes at the values found, but
     # the search, judging by its surrogate first, need not propose it there)
     together = _designed_step(spec, together, run) if together else None
+    at = "".join(f"with {g.field} at {_fmt(g.field, g.advice)}, " for g in before)
     if together is None:
-        return binding, (f"no single requirement binds alone: {', '.join(binding)} together; with all four loosened "
-                         "the nearest design (1. below) reaches what it shows: relax those requirements to it")
-    advice = " and ".join(f"{r.field} to {_fmt(r.field, r.advice)}" for r in together)
-    return governing, (f"no single requirement binds alone: {', '.join(governing)} together; the search designs with "
-                       f"them relaxed together (from what the nearest design, 1. below, reaches): relax jointly {advice}")
+        return binding, (f"{at}no single requirement binds alone: {', '.join(binding)} together; with all four "
+                         "loosened the nearest design (1. below) reaches what it shows: relax those requirements to it")
+    together = [g for g in before if g.field not in {r.field for r in together}] + together
+    return governing, (f"{at}no single requirement binds alone: {', '.join(governing)} together; the search designs "
+                       f"with them relaxed together (from what the nearest design, 1. below, reaches): "
+                       f"{_advice(together, joint=True)}")
+
+
+def _advice(relaxations, joint: bool = False) -> str:
+    """'relax X to V', or 'relax jointly X to V and Y to W' for more than one (or when
+    stated as joint)."""
+    items = " and ".join(f"{r.field} to {_fmt(r.field, r.advice)}" for r in relaxations)
+    return f"relax {'jointly ' if joint or len(relaxations) > 1 else ''}{items}"
 
 
 def _designed_step(spec: Spec, together: list[Relaxation], run) -> list[Relaxation] | None:
@@ -158,14 +175,20 @@ def _designed_step(spec: Spec, together: list[Relaxation], run) -> list[Relaxati
     their loose values (geometrically for a tolerance or limit, linearly for the
     yield), at which a design run designs; None when none does."""
     for t in (0.0,) + JOINT_STEPS:
-        step = []
-        for rel in together:
-            loose, smaller = RELAXABLE[rel.field][0], RELAXABLE[rel.field][3]
-            v = rel.advice * (loose / rel.advice) ** t if smaller else rel.advice + (loose - rel.advice) * t
-            step.append(replace(rel, advice=_round_up(v, smaller)))
+        step = [replace(rel, advice=_round_up(_toward(rel.field, rel.advice, t), RELAXABLE[rel.field][3]))
+                for rel in together]
         if run(_relaxed_all(spec, step), None):
             return step
     return None
+
+
+def _toward(field: str, value: float, t: float) -> float:
+    """value moved a share t of the way to the field's loose value: geometrically for a
+    tolerance or limit, linearly for the yield."""
+    loose, smaller = RELAXABLE[field][0], RELAXABLE[field][3]
+    if (value >= loose) if smaller else (value <= loose):
+        return value   # (as loose already)
+    return value * (loose / value) ** t if smaller else value + (loose - value) * t
 
 
 def _relaxed_all(spec: Spec, relaxations) -> Spec:
@@ -272,19 +295,24 @@ def _nearest_lines(failing, count: int, spec: Spec) -> list[str]:
 
 
 def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_more=None,
-                    leading=()) -> tuple[str, tuple[str, ...]]:
+                    leading=(), given=()) -> tuple[str, tuple[str, ...]]:
     """The refusal message and the binding fields. failing: the verified candidates
     that missed (Ranked); run(spec) -> the BOMs of a design run's passing designs
     (empty on a refusal); evaluate(spec, bom) -> the BOM verified against spec
     (Ranked); allow_more: [(what, advice)] from runs with more parts allowed;
     leading: [(requirement, statement)] that bind before any tolerance does (the
-    shelf's quantities)."""
+    shelf's quantities); given: [(Relaxation, statement)] that no design can do
+    without (a frequency tolerance no allowed family pair holds): the analysis works
+    on the spec with them applied, and every value it advises comes with them."""
 
     def check(s, bom) -> bool:
         return evaluate(s, bom).verdict.passed
 
     tried = []
     lines = ["no design meets the spec"] + [f"  ({n})" for n in default_notes(spec)]
+    lines += [f"{g.field} binds: {text}" for g, text in given]
+    before = [g for g, _ in given]
+    shown, spec = spec, _relaxed_all(spec, before)   # the nearest designs are judged as written
     found: list[Relaxation] = []
     for field, loose_spec, keys in loosened(spec):
         loose, _, _, smaller = RELAXABLE[field]
@@ -304,24 +332,38 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         rel = _reach(spec, field, boms[:3], check) if boms else None
         if rel is not None:
             found.append(rel)
-    binding = tuple(w for w, _ in leading) + tuple(r.field for r in found)
+    # each value stated where a design run designs (the design passes there, but the search,
+    # judging by its surrogate first, need not propose it): or moved towards the loose value
+    found = [(_designed_step(spec, [rel], run) or [rel])[0] for rel in found]
+    binding = tuple(dict.fromkeys([g.field for g in before] + [w for w, _ in leading] + [r.field for r in found]))
     lines += [f"{what} binds: {text}" for what, text in leading]
     for k, rel in enumerate(found, len(leading)):
         what = RELAXABLE[rel.field][1]
-        lines.append(f"{'or ' if k else ''}{rel.field} binds: {what} with every other requirement met is "
-                     f"{_fmt(rel.field, rel.reached)}; relax {rel.field} to {_fmt(rel.field, rel.advice)}")
+        # (a relaxation given before is stated with it; one of its own field replaces it)
+        with_ = [g for g in before if g.field != rel.field]
+        at = "".join(f"with {g.field} at {_fmt(g.field, g.advice)}, " for g in with_)
+        lines.append(f"{'or ' if k else ''}{at}{rel.field} binds: {what} with every other requirement met is "
+                     f"{_fmt(rel.field, rel.reached)}; {_advice(with_ + [rel])}")
     lead_designs: list = []
     if not found and not leading:
-        joint = spec
-        for field in RELAXABLE:
-            joint = relaxed(joint, field, _loosest(spec, field))
-        boms = run(joint, None)
-        # the designs the message points at, judged against the spec as written: first in the list
+        # all four loosened together, a share of the way first, so that the nearest design
+        # the advice is read from is as near the spec as a run finds one
+        for t in JOINT_STEPS + (1.0,):
+            joint = spec
+            for field in RELAXABLE:
+                joint = relaxed(joint, field, _toward(field, requirement_value(spec, field), t))
+            boms = run(joint, None)
+            if boms:
+                break
+        # the designs the message points at: first in the list
         lead_designs = sorted((r for r in (evaluate(spec, bom) for bom in boms[:3]) if not r.verdict.passed),
                               key=_distance)
         if lead_designs:
-            binding, line = _joint_advice(spec, lead_designs[0], check, run)
+            fields, line = _joint_advice(spec, lead_designs[0], check, run, before)
+            binding = tuple(g.field for g in before if g.field not in fields) + fields
             lines.append(line)
+            if before:   # (judged as written, they also show what the given relaxation is for)
+                lead_designs = [evaluate(shown, r.bom) for r in lead_designs]
         else:
             near = sorted((r for r in failing if r.verdict.nominal.starts and not r.verdict.passed), key=_distance)
             if near:   # designs oscillate, and miss what no loosened requirement touches: name it
@@ -336,6 +378,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     for what, advice in (allow_more or ()):
         lines.append(f"also: {what}: {advice}")
     # the designs the loosened runs found, judged against the spec as written
+    spec = shown
     failing = list(failing) + [evaluate(spec, bom) for bom in tried]
     failing = [r for r in failing if not r.verdict.passed]
     if failing or lead_designs:
@@ -415,6 +458,46 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
                 f"{_q(lo, 'frequency')} to {_q(hi, 'frequency')} (textbook f0), not "
                 f"{_q(spec.frequency.target_hz, 'frequency')}; allow other families{notes}", ("frequency.target",))
     return None
+
+
+def frequency_hold(spec: Spec, problem, best_hold, catalog) -> tuple[str, float]:
+    """When even the best allowed family pair (best_hold: resistor family, capacitor
+    family, share of builds within the tolerance), centred on the target, misses the
+    frequency yield: what it holds, what the catalog's best pair would, and what to do;
+    and the tolerance (fraction) the allowed pair holds centred in the spec's yield
+    (frequency_share inverted). ("", nan) when it holds."""
+    if best_hold is None or best_hold[2] >= spec.yield_min_frac:
+        return "", math.nan
+    rfa, cfa, share = best_hold
+    tol, y = spec.frequency.tolerance_frac, spec.yield_min_frac
+    t = frequency_tolerance(problem.freq_sigma(rfa, cfa), problem.freq_drift(rfa, cfa), y)
+    shares = {(r, c): float(frequency_share(np.array([0.0]), problem.freq_sigma(r, c), problem.freq_drift(r, c), tol)[0])
+              for r in catalog.of_kind("resistors") for c in catalog.of_kind("capacitors")}
+    r_best, c_best = max(shares, key=lambda k: (shares[k], k[0].id, k[1].id))
+    if shares[(r_best, c_best)] >= y:
+        other = (f"in the catalog, {r_best.id} resistors with {c_best.id} capacitors would hold it in about "
+                 f"{shares[(r_best, c_best)] * 100:.0f} %; allow tighter families or plan a trim")
+    else:
+        other = (f"no family pair in the catalog holds it either (the best, {r_best.id} resistors with {c_best.id} "
+                 f"capacitors, in about {shares[(r_best, c_best)] * 100:.0f} %): plan a trim or relax it")
+    return (f"even centred on the target, the best allowed families ({rfa.id} resistors "
+            f"{rfa.tolerance_frac * 100:.3g} %, {cfa.id} capacitors {cfa.tolerance_frac * 100:.3g} %) hold "
+            f"{_fmt('frequency.tolerance', tol)} in about {share * 100:.0f} % of builds and "
+            f"{_fmt('frequency.tolerance', t)} in {y * 100:.4g} %; {other}"), t
+
+
+def held_tolerance(spec: Spec, t: float) -> Relaxation:
+    """The frequency tolerance a refusal works from when no allowed pair holds the
+    spec's: HOLD_MARGIN times what the best pair holds centred (t, fraction), rounded up."""
+    return Relaxation("frequency.tolerance", t, _round_up(max(t * HOLD_MARGIN, spec.frequency.tolerance_frac), True))
+
+
+def held_message(spec: Spec, hold: str, rel: Relaxation) -> tuple[str, tuple[str, ...]]:
+    """The refusal when the frequency tolerance relaxed as far as the families need
+    (rel) is all it takes: a design run designs there."""
+    notes = "".join(f"\n  ({n})" for n in default_notes(spec))
+    return (f"no design meets the spec{notes}\nfrequency.tolerance binds: {hold}; the search designs at "
+            f"{_fmt(rel.field, rel.advice)}: {_advice([rel])}"), (rel.field,)
 
 
 def _swing_of(op, spec: Spec) -> tuple[float, str]:

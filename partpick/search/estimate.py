@@ -17,7 +17,7 @@ import math
 
 import numpy as np
 
-__all__ = ["phi", "window_share", "below_share", "frequency_share"]
+__all__ = ["phi", "window_share", "below_share", "frequency_share", "frequency_tolerance"]
 
 _SQRT2 = math.sqrt(2.0)
 
@@ -50,5 +50,23 @@ def frequency_share(err: np.ndarray, sigma_lnf: np.ndarray | float, drift: float
     tolerance spread sigma_lnf, and a temperature drift uniform within +/- ``drift``
     (its variance drift^2/3 added; the temperature is uniform over the range and the
     tempcos over their bounds)."""
-    sd = np.sqrt(np.asarray(sigma_lnf, float) ** 2 + drift ** 2 / 3.0)
-    return window_share(err, sd, math.log1p(tol))
+    return window_share(err, _frequency_sd(sigma_lnf, drift), math.log1p(tol))
+
+
+def _frequency_sd(sigma_lnf, drift: float):
+    return np.sqrt(np.asarray(sigma_lnf, float) ** 2 + drift ** 2 / 3.0)
+
+
+def frequency_tolerance(sigma_lnf: float, drift: float, share: float) -> float:
+    """The frequency tolerance (fraction) that a build centred on the target holds in
+    ``share`` of builds: frequency_share inverted (bisection on the half width, ln, to
+    1e-6 of it; the share rises with it)."""
+    sd = float(_frequency_sd(sigma_lnf, drift))
+    share = min(share, 1.0 - 1e-9)   # (every share below 1 is reached at a finite width)
+    lo, hi = 0.0, max(sd, 1e-9)
+    while window_share(0.0, sd, hi) < share:
+        hi *= 2.0
+    while hi - lo > 1e-6 * hi:
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if window_share(0.0, sd, mid) < share else (lo, mid)
+    return math.expm1(hi)
