@@ -50,6 +50,18 @@ def _design(path):
     return CliRunner().invoke(main, ["design", str(path), "-n", "1", "--catalog", str(CATALOGS)])
 
 
+def _advised(advice: str) -> dict:
+    """{field: value in %} of a "relax jointly X to V and Y to W" advice."""
+    return dict(re.findall(r"([a-z_]+\.[a-z_]+) to (?:\+/-)?([\d.]+) %", advice))
+
+
+def _designs(tmp_path, text: str) -> None:
+    relaxed = tmp_path / "r.yaml"
+    relaxed.write_text(text)
+    got = _design(relaxed)
+    assert got.exit_code == 0, got.output
+
+
 def test_relaxing_to_the_advised_value_designs(tmp_path):
     spec = tmp_path / "s.yaml"
     spec.write_text(SPEC)
@@ -59,10 +71,7 @@ def test_relaxing_to_the_advised_value_designs(tmp_path):
     assert advice, refused.output
     tol = float(advice.group(1))
     assert 2 < tol < 50
-    relaxed = tmp_path / "r.yaml"
-    relaxed.write_text(SPEC.replace("tolerance: 2 %}", f"tolerance: {tol:g} %}}"))
-    got = _design(relaxed)
-    assert got.exit_code == 0, got.output
+    _designs(tmp_path, SPEC.replace("tolerance: 2 %}", f"tolerance: {tol:g} %}}"))
 
 
 JOINT = """\
@@ -89,7 +98,7 @@ def test_relaxing_jointly_to_the_advised_values_designs(tmp_path):
     assert refused.exit_code == 1, refused.output
     line = re.search(r"no single requirement binds alone: .*relax jointly (.*)", refused.output)
     assert line, refused.output
-    values = dict(re.findall(r"([a-z_]+\.[a-z_]+) to (?:\+/-)?([\d.]+) %", line.group(1)))
+    values = _advised(line.group(1))
     assert values and set(values) <= {"amplitude.tolerance", "distortion.max_thd", "yield.min"}, values
     # each loosened, none tightened
     text = JOINT
@@ -102,10 +111,7 @@ def test_relaxing_jointly_to_the_advised_values_designs(tmp_path):
     if "yield.min" in values:
         assert 50 <= float(values["yield.min"]) < 99.9
         text = text.replace("min: 99.9 %", f"min: {values['yield.min']} %")
-    relaxed = tmp_path / "r.yaml"
-    relaxed.write_text(text)
-    got = _design(relaxed)
-    assert got.exit_code == 0, got.output
+    _designs(tmp_path, text)
 
 
 def test_the_benchmark_applies_a_joint_advice_together():
@@ -172,16 +178,13 @@ def test_a_frequency_tolerance_no_family_pair_holds_names_the_value_that_designs
     assert math.expm1(sd * norm.ppf(0.975)) == pytest.approx(t95, rel=0.03)
     line = re.search(r"relax jointly (.*)", refused.output)
     assert line, refused.output
-    values = dict(re.findall(r"([a-z_]+\.[a-z_]+) to (?:\+/-)?([\d.]+) %", line.group(1)))
+    values = _advised(line.group(1))
     assert float(values["frequency.tolerance"]) / 100 >= t95
     text = HOLD.replace("tolerance: 3 %}", f"tolerance: {values['frequency.tolerance']} %}}")
     if "amplitude.tolerance" in values:
         assert float(values["amplitude.tolerance"]) > 2
         text = text.replace("tolerance: 2 %}", f"tolerance: {values['amplitude.tolerance']} %}}")
-    relaxed = tmp_path / "r.yaml"
-    relaxed.write_text(text)
-    got = _design(relaxed)
-    assert got.exit_code == 0, got.output
+    _designs(tmp_path, text)
 
 
 def test_frequency_tolerance_inverts_the_share():
