@@ -9,7 +9,12 @@ requirement, each step an exact verification of the designs the loosened run fou
 (so "relax X to Y" is checked: the design passes the spec with X at Y). When no single
 requirement binds, all four are loosened together and the nearest design says what it
 misses, and how far the requirements it misses must be relaxed together for it to pass
-(each bisected in turn, the whole checked as stated). A spec that restricts part families, or builds from the shelf alone, is also
+(each bisected in turn, the whole checked as stated). A frequency tolerance that no allowed
+family pair holds even centred on the target is relaxed first, to what the best pair holds
+at the spec's yield (the normal spread of the textbook frequency, inverted) with a margin:
+where the whole design designs there that is the advice, else the analysis above runs on
+the spec so relaxed and every value it states comes with it. Every value to relax to is
+stated where a design run designs. A spec that restricts part families, or builds from the shelf alone, is also
 run with every family allowed, or with the catalog behind the shelf, and the parts
 that make the difference are named. The nearest failing designs follow, each with the
 requirements it misses and by how much.
@@ -32,7 +37,6 @@ from partpick.spec import Spec
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
            "structural_refusal", "frequency_hold", "held_tolerance", "held_message"]
 
-# requirement -> (how loose a run may make it, how it reads, unit dimension, tighter is smaller)
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
 RELAXABLE = {
