@@ -38,7 +38,6 @@ import math
 from bisect import bisect_right
 
 import numpy as np
-from scipy.linalg import expm
 
 from partpick.physics.agc import Agc, AgcState, rest_control
 from partpick.physics.envelope import START_V, Settling, band_times, growth_table
@@ -179,6 +178,8 @@ class CycleMap:
         """The exact update x -> Phi x + g over T / _SUB in ``mode`` (as lists: the map
         applies it to two to four states per sub-step)."""
         if mode not in self._phi:
+            from scipy.linalg import expm   # (here: a design that never runs this map loads no scipy)
+
             m, b = self._system(mode)
             n = m.shape[0]
             big = np.zeros((n + 1, n + 1))

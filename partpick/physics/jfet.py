@@ -33,8 +33,8 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import constants
 
+from partpick.physics.junction import thermal_voltage
 from partpick.physics.rational import Rational, const
 
 __all__ = ["T0_K", "JfetParams", "jfet_at", "channel", "gate_junction", "channel_conductance", "VcrBranch",
@@ -68,7 +68,7 @@ def jfet_at(part, temp_k: float) -> JfetParams:
     dt = temp_k - T0_K
     return JfetParams(part.vto_v + part.vto_tempco_v_per_k * dt,
                       part.beta_a_per_v2 * 1.01 ** (100 * part.beta_tce_per_k * dt),
-                      part.lambda_per_v, part.is_a, part.cgs_f, part.cgd_f, constants.k * temp_k / constants.e)
+                      part.lambda_per_v, part.is_a, part.cgs_f, part.cgd_f, thermal_voltage(temp_k))
 
 
 def channel(p: JfetParams, vds, vgs):
