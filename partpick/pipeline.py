@@ -233,8 +233,16 @@ def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Sea
     configurations, then the designs of the controls with a design hook (each phase a
     function, so that a phase not needed costs nothing)."""
     def surface():
-        return [b for lim in problem.limiters for gf in problem.r_families for r_gnd in searcher.levels(gf)
-                if (b := searcher.configurations(lim, gf, r_gnd)) is not None]
+        # each limiter, gain family and level's configurations are independent of the
+        # others': spread over the CPUs (fork_map), a batch sent back without the searcher
+        # it indexes (which holds every table) and joined to this one's here
+        def detached(combo):
+            b = searcher.configurations(*combo)
+            return None if b is None else replace(b, searcher=None)
+
+        combos = [(lim, gf, r_gnd) for lim in problem.limiters for gf in problem.r_families
+                  for r_gnd in searcher.levels(gf)]
+        return [replace(b, searcher=searcher) for b in fork_map(detached, combos) if b is not None]
 
     def hooked():
         def cost(c: Candidate) -> float:

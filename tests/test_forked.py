@@ -61,3 +61,29 @@ def test_more_items_than_a_pipe_holds(monkeypatch):
     workers read it, so nothing waits for ever."""
     monkeypatch.setenv("PARTPICK_WORKERS", "2")
     assert forked.fork_map(_double, range(20_000)) == [2 * x for x in range(20_000)]
+
+
+def test_a_design_is_the_same_searched_over_two_processes_or_one(monkeypatch):
+    # the search's configurations (one batch per limiter, gain family and level) are
+    # made over the CPUs; the ranked designs and every figure must be those of the search
+    # in one process
+    from partpick.catalog import load_catalog
+    from partpick.pipeline import design
+    from partpick.spec import Spec
+    from tests.conftest import CATALOGS, ROOT
+
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    if forked.workers() < 2:
+        pytest.skip("one CPU: everything runs here")
+    spec = Spec.from_text((ROOT / "specs" / "carrier-50khz.yaml").read_text(encoding="utf-8"), "carrier-50khz.yaml")
+    catalog = load_catalog(CATALOGS)
+
+    def ranked():
+        d = design(spec, catalog, results=5)
+        return [(r.bom, r.cost, r.verdict.passed, r.yield_frac) for r in d.ranked], d.searched
+
+    two = ranked()
+    monkeypatch.setenv("PARTPICK_WORKERS", "1")
+    one = ranked()
+    assert two == one
+    assert len(two[0]) == 5
