@@ -35,7 +35,7 @@ from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.prices import PriceBook
 from partpick.search.problem import REF_T, Problem
-from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo
+from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
 from partpick.verify import package_limit
 
 __all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits", "SIMPSON"]
@@ -105,8 +105,9 @@ class Searcher:
         for lim in problem.limiters:   # (a part's tables not yet cached: all made at once)
             prepare(problem.topology, lim, problem.control, self.f_t,
                     [r for gf in problem.r_families for r in self.levels(gf)])
-        pulls = [a["pull"] for lim in problem.limiters for gf in problem.r_families for r_gnd in self.levels(gf)
-                 if (a := self._amp_side(lim, gf, r_gnd)) is not None and a["pull"].size]
+        combos = [(lim, gf, r_gnd) for lim in problem.limiters for gf in problem.r_families for r_gnd in self.levels(gf)]
+        memo_all(self._amp_job(*c) for c in combos)   # (made over the CPUs)
+        pulls = [a["pull"] for c in combos if (a := self._amp_side(*c)) is not None and a["pull"].size]
         op_pull = [op.pull for op in problem.ops] or [0.0]
         row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
         row_hi = max((float(np.nanmax(x)) for x in pulls), default=0.0)
@@ -115,7 +116,7 @@ class Searcher:
         self.window_capped = half < problem.tol_f
         ln_lo = problem.ln_f - max(op_pull) - row_hi - half - WINDOW_MARGIN
         ln_hi = problem.ln_f - min(op_pull) - row_lo + half + WINDOW_MARGIN
-        pairs = []
+        kept = []
         for rfa in problem.r_families:
             for cfa in problem.c_families:
                 drift = problem.freq_drift(rfa, cfa)
@@ -129,10 +130,13 @@ class Searcher:
                     table = problem.topology.network_table(rfa, cfa, ln_lo, ln_hi, shelf=problem.shelf)
                     return table, (ArmIndex(table, price, rfa, cfa) if len(table) else None)
 
-                table, index = memo(("arms", problem.topology.name, rfa, cfa, ln_lo, ln_hi, problem.shelf,
-                                      price.pricer.stock), make)
-                if len(table) == 0:
-                    continue
+                key = ("arms", problem.topology.name, rfa, cfa, ln_lo, ln_hi, problem.shelf, price.pricer.stock)
+                kept.append((rfa, cfa, drift, best, key, make))
+        memo_all((key, make) for *_, key, make in kept)   # (made over the CPUs)
+        pairs = []
+        for rfa, cfa, drift, best, key, make in kept:
+            table, index = memo(key, make)
+            if len(table):
                 pairs.append((rfa, cfa, table, index, drift, best))
         return pairs
 
@@ -151,10 +155,14 @@ class Searcher:
         loop starting, sorted by bin; shared by every op-amp."""
         key = (lim.id, gf.id, r_gnd)
         if key not in self._amp:
-            p = self.problem
-            self._amp[key] = memo(("amp", p.topology.name, self.all_outputs, lim, gf, r_gnd, p.shelf, self.f_t,
-                                   p.temps_k, p.thd_aim, self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf, r_gnd))
+            self._amp[key] = memo(*self._amp_job(lim, gf, r_gnd))
         return self._amp[key]
+
+    def _amp_job(self, lim, gf, r_gnd: float):
+        """(memo key, maker) of _amp_side's rows."""
+        p = self.problem
+        return (("amp", p.topology.name, self.all_outputs, lim, gf, r_gnd, p.shelf, self.f_t, p.temps_k, p.thd_aim,
+                 self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf, r_gnd))
 
     def _amp_rows(self, lim, gf, r_gnd: float):
         p = self.problem

@@ -11,7 +11,7 @@ import numpy as np
 
 from partpick.circuits.options import values_of
 
-__all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable", "stage_table", "memo"]
+__all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable", "stage_table", "memo", "memo_all"]
 
 K_BIN = 0.004            # ln K bin width
 K_GRID = np.arange(round(math.log(2.4) / K_BIN), round(math.log(3.9) / K_BIN) + 1)   # bin numbers of the arms' K
@@ -33,6 +33,20 @@ def memo(key, make):
             _MEMO.clear()
         _MEMO[key] = make()
     return _MEMO[key]
+
+
+def memo_all(jobs) -> None:
+    """The tables of jobs ([(key, make)]) not made yet, made over the CPUs (each a pure
+    function of its key: :func:`partpick.forked.fork_map`) and kept as :func:`memo`
+    keeps them. For tables that cost more to make than to send back (a table of tens of
+    megabytes pickles in tens of milliseconds)."""
+    from partpick.forked import fork_map
+
+    todo = [(k, make) for k, make in dict(jobs).items() if k not in _MEMO]
+    if len(_MEMO) + len(todo) > 512:
+        _MEMO.clear()
+    for (k, _), table in zip(todo, fork_map(lambda job: job[1](), todo)):
+        _MEMO[k] = table
 
 
 class RangeMin:
