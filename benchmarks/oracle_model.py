@@ -104,6 +104,12 @@ class Problem:
         half = self.spec.supply.span_min_v / 2
         return half - max(op.headroom_high_v, op.headroom_low_v)
 
+    def i_max(self, op) -> float:
+        """The output current a design may draw from the op-amp, A: the share of its rating
+        the spec's derating rule output_current allows (a house rule of the spec, which
+        `partpick check` judges)."""
+        return self.spec.derating.output_current * op.output_current_a
+
     def physical_opamps(self) -> tuple[list, dict[str, str]]:
         """The allowed op-amps that could possibly work, and why each other one cannot."""
         sp = self.spec
@@ -116,7 +122,7 @@ class Problem:
                 dropped[op.id] = "swing"
             elif 2 * math.pi * self.f_hz * a_lo > op.slew_v_per_s:
                 dropped[op.id] = "slew rate"
-            elif a_lo * abs(self.load_y) > op.output_current_a:
+            elif a_lo * abs(self.load_y) > self.i_max(op):
                 dropped[op.id] = "output current"
             elif op.gbw_hz < 3 * self.f_hz:
                 dropped[op.id] = "gain-bandwidth"

@@ -113,17 +113,17 @@ def with_stage(p: Problem, d: Design, bias: tuple, stage) -> Design | None:
         i_osc += d.get("vo_max") / (ra + (rb if y == 0 else abs(1 / (1 / rb + p.load_y))))
     elif kind == "buffered-attenuator":
         i_osc += d.get("vo_max") / (ra + rb)
-    if i_osc > op.output_current_a:
+    if i_osc > p.i_max(op):
         return None
     i_buf = 0.0
     if kind in ("follower", "gain", "buffered-attenuator"):
         i_buf = a_max * (y + (1 / (ra + rb) if kind == "gain" else 0.0))
-        if i_buf > op.output_current_a or a_max > SWING_SHARE * p.swing_v(op):
+        if i_buf > p.i_max(op) or a_max > SWING_SHARE * p.swing_v(op):
             return None
     # the op-amp's current and slew headroom against textbook practice
     buffered = kind in ("follower", "gain", "buffered-attenuator")
     i_total = max(i_osc, i_buf if buffered else 0.0)
-    m_i = 1 - i_total / (CURRENT_TEXTBOOK * op.output_current_a)
+    m_i = 1 - i_total / (CURRENT_TEXTBOOK * p.i_max(op))
     slew = 2 * math.pi * p.f_hz * max(d.get("vo_max"), a_max if buffered else 0.0)
     m_sl = 1 - slew / (SLEW_TEXTBOOK * op.slew_v_per_s)
     est = dict(d.est, m_a=m_a, m_i=min(m_i, m_sl), stage_ratio=kk, coupling=coup)

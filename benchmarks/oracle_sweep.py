@@ -248,7 +248,7 @@ def _block(p: Problem, op, arms: Arms, rho: float, m_f_arms: float, gfam, lim, r
     else:
         v = sp.supply.min_v
         cm_ok = (v - op.input_cm_high_v - vin >= 0) & (v - vin - op.input_cm_low_v >= 0)
-    phys = (vo_max <= SWING_SHARE * p.swing_v(op)) & (w * vo_max <= op.slew_v_per_s) & (i_osc <= op.output_current_a)
+    phys = (vo_max <= SWING_SHARE * p.swing_v(op)) & (w * vo_max <= op.slew_v_per_s) & (i_osc <= p.i_max(op))
     # where Rd and the pair's capacitance have a time constant near the period, the
     # capacitance carries the branch current and the describing function of the
     # memoryless pair says nothing: such a limiter does not limit as a textbook one

@@ -7,8 +7,9 @@ inline or names a YAML file of house rules shared by many specs::
     derating: {resistor_power: 50 %, thd_share: 70 %}
     derating: ../house-rules.yaml        # a file holding 'derating: {...}'
 
-``verify`` judges the resistor and package rules; the search aims with the THD and
-output-current shares. The op-amp package limit itself comes from the catalog's
+``verify`` judges the resistor, package and output-current rules; the search aims with
+the THD share, and plans with the output-current share what verify then judges (a
+design that draws more than it, even one a brute-force search finds, fails check). The op-amp package limit itself comes from the catalog's
 ``packages`` section (junction-to-ambient thermal resistance and maximum junction
 temperature, see :mod:`partpick.catalog`); ``package_power`` is the share of it a design
 may use, and ``unknown_package`` the limit for a package the catalog does not describe.
@@ -50,7 +51,7 @@ RULES = (
          "Carlo yield judges the spread)",
          "partpick's choice, no published source"),
     Rule("output_current", 0.6, "fraction",
-         "share of the op-amp's output current the search plans for (the rest is peaks and spread)",
+         "share of the op-amp's rated output current a design may draw (the rest is peaks and spread)",
          "common practice, no published source"),
 )
 _BY_KEY = {r.key: r for r in RULES}

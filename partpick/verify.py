@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from partpick import units
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
                                margin_fn, periphery, rest_conductance)
 from partpick.physics.envelope import START_V
@@ -30,10 +31,9 @@ __all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "veri
            "CAP_UNCERTAINTY", "settling_of", "cycles_to_settle"]
 
 # How far a catalog's junction charge may be off, as a fraction of the capacitance the
-# control's element presents at its working amplitude: datasheets give typical
-# capacitance curves at best (no limits), the SPICE law is a fit, and plausible
-# parameter sets for one class of part differ by about this much (our assumption:
-# common practice, no published source).
+# control's element presents at its working amplitude: datasheets give typical capacitance
+# curves at best (no limits), the SPICE law is a fit, and plausible parameter sets for one
+# class of part differ by about this much (our assumption: common practice, no published source).
 CAP_UNCERTAINTY = 0.5
 
 
@@ -393,8 +393,7 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     checks.append(make_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
                          "worst of the temperature ends with the parts' tempcos"))
     row, caution = _capacitance_check(spec, nom)
-    checks += [row] if row is not None else []
-    cautions += [caution] if caution is not None else []
+    checks, cautions = checks + [row] * (row is not None), cautions + [caution] * (caution is not None)
 
     # Amplitude at the load over supply and temperature.
     lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)
@@ -428,12 +427,14 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     ipk = max(p.iout_peak_a for p in pts.values())
     y_load = spec.load.admittance_s(nom.freq_hz)   # the part of the load that takes most of the current binds
     load_field = "load.capacitance" if y_load.imag > y_load.real else "load.resistance"
-    checks.append(make_check("op-amp output current", load_field, ipk, None, c.opamp.output_current_a, "current",
-                         f"load, {c.topology.network_name} and gain network"))
+    share, rated = spec.derating.output_current, c.opamp.output_current_a   # (derating rule output_current)
+    i_max, i_how = share * rated, f"{share:.0%} of {units.format_quantity(rated, 'current')}"
+    checks.append(make_check("op-amp output current", load_field, ipk, None, i_max, "current", f"load, "
+                             f"{c.topology.network_name} and gain network; limit {i_how}"))
     if periphery.has_buffer(c):   # the output stage's own channel drives the load: its current and swing
         i_buf = max(p.load_peak_v for p in pts.values()) * abs(periphery.stage_load_admittance(c, y_load))
-        checks.append(make_check("output stage current", load_field, i_buf, None, c.opamp.output_current_a, "current",
-                                 "the buffer channel into the load"))
+        checks.append(make_check("output stage current", load_field, i_buf, None, i_max, "current",
+                                 f"the buffer channel into the load; limit {i_how}"))
         buf_head = min(low_pt.swing_high_v, -low_pt.swing_low_v) - low_pt.load_peak_v
         checks.append(make_check("output stage swing headroom", "supply.min", buf_head, 0.0, None, "voltage",
                              "the buffer channel at the minimum supply"))

@@ -174,3 +174,22 @@ def test_class_b_loss_with_a_reactive_load(phase_deg):
     v, i = v_pk * np.sin(t), i_pk * np.sin(t + phi)
     loss = v_rail * np.mean(np.abs(i)) - np.mean(v * i)
     assert float(class_b_loss(v_rail, v_pk, i_pk, math.cos(phi))) == pytest.approx(loss, rel=1e-6)
+
+
+def test_check_judges_the_output_current_share(demo_catalog, tmp_path):
+    """The output current a design may draw is the rule's share of the op-amp's rating,
+    in check as in the search (which plans for it): the transducer draft's buffer draws
+    24.66 mA of the op-amp's 35 mA, over the default 60 % (21 mA), within 80 %."""
+    base = (SPECS / "lvdt-exciter.yaml").read_text(encoding="utf-8")
+    bom = load_bom(SPECS / "boms" / "lvdt-exciter-draft.yaml", demo_catalog)
+    rated = demo_catalog.find("opamps", next(ln.family for ln in bom.lines if ln.role == "opamp")).output_current_a
+    got = {}
+    for tail, share in (("", 0.6), ("derating: {output_current: 80 %}\n", 0.8)):
+        r = evaluate_bom(bom, _spec(base + tail, tmp_path), demo_catalog, samples=200)
+        for name in ("op-amp output current", "output stage current"):
+            check = next(c for c in r.verdict.checks if c.name == name)
+            assert check.high == pytest.approx(share * rated)
+            assert f"{share:.0%} of" in check.note
+        got[share] = next(c for c in r.verdict.checks if c.name == "output stage current")
+    assert got[0.6].value == pytest.approx(got[0.8].value)          # the same current, judged against two limits
+    assert not got[0.6].passed and got[0.8].passed
