@@ -349,16 +349,25 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     # the spec with it relaxed to what the best pair holds (with a margin for arms off
     # centre), and says so as it goes. Where the whole design (every control, the design's
     # own builds) designs there, that is the answer; else what binds next is found with it
+    whole: dict = {}
+
+    def designs(s: Spec) -> bool:
+        """Whether the whole design (every control, the design's own builds) designs s."""
+        if s not in whole:
+            try:
+                whole[s] = bool(design(s, catalog, stock=stock, results=1, samples=samples, seed=seed, nearest=0,
+                                       work=work).ranked)
+            except InfeasibleError:
+                whole[s] = False
+        return whole[s]
+
     hold, t_hold = frequency_hold(spec, problem, searcher.best_hold, catalog)
     given = ()
     if hold and not searcher.pairs:
         rel = held_tolerance(spec, t_hold)
-        try:
-            design(relaxed(spec, rel.field, rel.advice), catalog, stock=stock, results=1, samples=samples, seed=seed,
-                   nearest=0, work=work)
+        if designs(relaxed(spec, rel.field, rel.advice)):
             return held_message(spec, hold, rel)
-        except InfeasibleError:
-            given = ((rel, hold),)
+        given = ((rel, hold),)
     # the runs that do not depend on one another's results (each requirement loosened
     # alone, each restricted kind of part opened up, the shelf made a preference), made
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
@@ -390,7 +399,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
             lead.append(("stock quantities", _shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
     if hold and not given:
         more.append(("the frequency tolerance", hold))
-    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given)
+    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
 
 
 def _shelf_shortfall(bom: Bom, shelf, builds: int, catalog: Catalog) -> str:

@@ -14,7 +14,8 @@ family pair holds even centred on the target is relaxed first, to what the best 
 at the spec's yield (the normal spread of the textbook frequency, inverted) with a margin:
 where the whole design designs there that is the advice, else the analysis above runs on
 the spec so relaxed and every value it states comes with it. Every value to relax to is
-stated where a design run designs. A spec that restricts part families, or builds from the shelf alone, is also
+stated where the spec relaxed to it designs (a run of the search, else the whole design).
+A spec that restricts part families, or builds from the shelf alone, is also
 run with every family allowed, or with the catalog behind the shelf, and the parts
 that make the difference are named. The nearest failing designs follow, each with the
 requirements it misses and by how much.
@@ -142,7 +143,7 @@ def _loosest(spec: Spec, field: str) -> float:
     return (max if smaller else min)(requirement_value(spec, field), loose)
 
 
-def _joint_advice(spec: Spec, lead, check, run, before=()) -> tuple[tuple[str, ...], str]:
+def _joint_advice(spec: Spec, lead, check, designs, before=()) -> tuple[tuple[str, ...], str]:
     """When no requirement binds alone: the binding requirements and the message line,
     from the nearest design of the run with all four loosened (lead, Ranked). The
     requirements that set the limits it misses are relaxed together as far as it needs
@@ -156,7 +157,7 @@ def _joint_advice(spec: Spec, lead, check, run, before=()) -> tuple[tuple[str, .
     together = None if None in governing else _reach_together(spec, governing, lead.bom, check)
     # stated only where the search designs (the design passes at the values found, but
     # the search, judging by its surrogate first, need not propose it there)
-    together = _designed_step(spec, together, run) if together else None
+    together = _designed_step(spec, together, designs) if together else None
     at = "".join(f"with {g.field} at {_fmt(g.field, g.advice)}, " for g in before)
     if together is None:
         return binding, (f"{at}no single requirement binds alone: {', '.join(binding)} together; with all four "
@@ -174,14 +175,14 @@ def _advice(relaxations, joint: bool = False) -> str:
     return f"relax {'jointly ' if joint or len(relaxations) > 1 else ''}{items}"
 
 
-def _designed_step(spec: Spec, together: list[Relaxation], run) -> list[Relaxation] | None:
+def _designed_step(spec: Spec, together: list[Relaxation], designs) -> list[Relaxation] | None:
     """The relaxations, or the first of them moved a share JOINT_STEPS of the way to
     their loose values (geometrically for a tolerance or limit, linearly for the
     yield), at which a design run designs; None when none does."""
     for t in (0.0,) + JOINT_STEPS:
         step = [replace(rel, advice=_round_up(_toward(rel.field, rel.advice, t), RELAXABLE[rel.field][3]))
                 for rel in together]
-        if run(_relaxed_all(spec, step), None):
+        if designs(_relaxed_all(spec, step)):
             return step
     return None
 
@@ -299,7 +300,7 @@ def _nearest_lines(failing, count: int, spec: Spec) -> list[str]:
 
 
 def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_more=None,
-                    leading=(), given=()) -> tuple[str, tuple[str, ...]]:
+                    leading=(), given=(), designs=None) -> tuple[str, tuple[str, ...]]:
     """The refusal message and the binding fields. failing: the verified candidates
     that missed (Ranked); run(spec) -> the BOMs of a design run's passing designs
     (empty on a refusal); evaluate(spec, bom) -> the BOM verified against spec
@@ -307,10 +308,15 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     leading: [(requirement, statement)] that bind before any tolerance does (the
     shelf's quantities); given: [(Relaxation, statement)] that no design can do
     without (a frequency tolerance no allowed family pair holds): the analysis works
-    on the spec with them applied, and every value it advises comes with them."""
+    on the spec with them applied, and every value it advises comes with them;
+    designs(spec) -> whether the whole design (every control, the design's own builds)
+    designs it, asked where a run of the search alone does not."""
 
     def check(s, bom) -> bool:
         return evaluate(s, bom).verdict.passed
+
+    def confirmed(s) -> bool:   # a value is stated where the spec relaxed to it designs
+        return bool(run(s, None)) or (designs is not None and designs(s))
 
     tried = []
     lines = ["no design meets the spec"] + [f"  ({n})" for n in default_notes(spec)]
@@ -336,9 +342,10 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         rel = _reach(spec, field, boms[:3], check) if boms else None
         if rel is not None:
             found.append(rel)
-    # each value stated where a design run designs (the design passes there, but the search,
-    # judging by its surrogate first, need not propose it): or moved towards the loose value
-    found = [(_designed_step(spec, [rel], run) or [rel])[0] for rel in found]
+    # each value stated where the spec relaxed to it designs (the design the bisection ends on
+    # passes there, but the search, judging by its surrogate first, need not propose that
+    # very design), else moved a quarter or half of the way to the loose value
+    found = [(_designed_step(spec, [rel], confirmed) or [rel])[0] for rel in found]
     binding = tuple(dict.fromkeys([g.field for g in before] + [w for w, _ in leading] + [r.field for r in found]))
     lines += [f"{what} binds: {text}" for what, text in leading]
     for k, rel in enumerate(found, len(leading)):
@@ -363,7 +370,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         lead_designs = sorted((r for r in (evaluate(spec, bom) for bom in boms[:3]) if not r.verdict.passed),
                               key=_distance)
         if lead_designs:
-            fields, line = _joint_advice(spec, lead_designs[0], check, run, before)
+            fields, line = _joint_advice(spec, lead_designs[0], check, confirmed, before)
             binding = tuple(g.field for g in before if g.field not in fields) + fields
             lines.append(line)
             if before:   # (judged as written, they also show what the given relaxation is for)
