@@ -32,7 +32,7 @@ from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceB
 from partpick.search.pool import Pool
 from partpick.forked import fork_map
 from partpick.refusal import (default_notes, explain_refusal, frequency_hold, held_message, held_tolerance, loosened,
-                              relaxed, structural_refusal)
+                              relaxed, relaxed_all, structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -372,7 +372,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     # alone, each restricted kind of part opened up, the shelf made a preference), made
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
     # spec (no transient run is allowed in any), so the answer is the same either way.
-    loose = relaxed(spec, given[0][0].field, given[0][0].advice) if given else spec
+    loose = relaxed_all(spec, [g for g, _ in given])   # (the spec explain_refusal works on: the same runs)
     opened = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
               for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
     prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None

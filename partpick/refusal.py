@@ -36,7 +36,7 @@ from partpick.search.estimate import frequency_share, frequency_tolerance
 from partpick.spec import Spec
 
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
-           "structural_refusal", "frequency_hold", "held_tolerance", "held_message"]
+           "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all"]
 
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
@@ -158,7 +158,7 @@ def _joint_advice(spec: Spec, lead, check, designs, before=()) -> tuple[tuple[st
     # stated only where the search designs (the design passes at the values found, but
     # the search, judging by its surrogate first, need not propose it there)
     together = _designed_step(spec, together, designs) if together else None
-    at = "".join(f"with {g.field} at {_fmt(g.field, g.advice)}, " for g in before)
+    at = _with(before)
     if together is None:
         return binding, (f"{at}no single requirement binds alone: {', '.join(binding)} together; with all four "
                          "loosened the nearest design (1. below) reaches what it shows: relax those requirements to it")
@@ -166,6 +166,11 @@ def _joint_advice(spec: Spec, lead, check, designs, before=()) -> tuple[tuple[st
     return governing, (f"{at}no single requirement binds alone: {', '.join(governing)} together; the search designs "
                        f"with them relaxed together (from what the nearest design, 1. below, reaches): "
                        f"{_advice(together, joint=True)}")
+
+
+def _with(relaxations) -> str:
+    """'with X at V, ' for each relaxation the spec has had already."""
+    return "".join(f"with {r.field} at {_fmt(r.field, r.advice)}, " for r in relaxations)
 
 
 def _advice(relaxations, joint: bool = False) -> str:
@@ -182,7 +187,7 @@ def _designed_step(spec: Spec, together: list[Relaxation], designs) -> list[Rela
     for t in (0.0,) + JOINT_STEPS:
         step = [replace(rel, advice=_round_up(_toward(rel.field, rel.advice, t), RELAXABLE[rel.field][3]))
                 for rel in together]
-        if designs(_relaxed_all(spec, step)):
+        if designs(relaxed_all(spec, step)):
             return step
     return None
 
@@ -196,7 +201,7 @@ def _toward(field: str, value: float, t: float) -> float:
     return value * (loose / value) ** t if smaller else value + (loose - value) * t
 
 
-def _relaxed_all(spec: Spec, relaxations) -> Spec:
+def relaxed_all(spec: Spec, relaxations) -> Spec:
     """The spec with every relaxation's advice applied."""
     for rel in relaxations:
         spec = relaxed(spec, rel.field, rel.advice)
@@ -322,7 +327,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
     lines = ["no design meets the spec"] + [f"  ({n})" for n in default_notes(spec)]
     lines += [f"{g.field} binds: {text}" for g, text in given]
     before = [g for g, _ in given]
-    shown, spec = spec, _relaxed_all(spec, before)   # the nearest designs are judged as written
+    shown, spec = spec, relaxed_all(spec, before)   # the nearest designs are judged as written
     found: list[Relaxation] = []
     for field, loose_spec, keys in loosened(spec):
         loose, _, _, smaller = RELAXABLE[field]
@@ -352,8 +357,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         what = RELAXABLE[rel.field][1]
         # (a relaxation given before is stated with it; one of its own field replaces it)
         with_ = [g for g in before if g.field != rel.field]
-        at = "".join(f"with {g.field} at {_fmt(g.field, g.advice)}, " for g in with_)
-        lines.append(f"{'or ' if k else ''}{at}{rel.field} binds: {what} with every other requirement met is "
+        lines.append(f"{'or ' if k else ''}{_with(with_)}{rel.field} binds: {what} with every other requirement met is "
                      f"{_fmt(rel.field, rel.reached)}; {_advice(with_ + [rel])}")
     lead_designs: list = []
     if not found and not leading:
