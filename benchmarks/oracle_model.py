@@ -110,6 +110,13 @@ class Problem:
         `partpick check` judges)."""
         return self.spec.derating.output_current * op.output_current_a
 
+    def r_max(self, op) -> float:
+        """The largest frequency-setting resistor a design may use with op-amp ``op``, ohm:
+        where its input bias current drops the spec's derating rule bias_drop, at most
+        1 Mohm (a house rule of the spec, which `partpick check` judges)."""
+        ib = op.input_bias_a
+        return min(1e6, self.spec.derating.bias_drop / ib) if ib > 0 else 1e6
+
     def physical_opamps(self) -> tuple[list, dict[str, str]]:
         """The allowed op-amps that could possibly work, and why each other one cannot."""
         sp = self.spec

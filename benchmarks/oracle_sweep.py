@@ -102,6 +102,10 @@ def arms_for(p: Problem, op, rho: float, f_need: float | None = None, n: int = A
             if sets is None:
                 continue
             rs, cs, rp, cp = sets
+            ok = np.maximum(rs, rp) <= p.r_max(op)    # the bias-drop rule check judges
+            if not ok.any():
+                continue
+            rs, cs, rp, cp = rs[ok], cs[ok], rp[ok], cp[ok]
             err = f0_hz(rs, cs, rp, cp) * rho / p.f_hz - 1
             m = _frequency_margin(p, rfam, cfam, err, rho_spread)
             caps, prices = values_of(cfam), prices_of(cfam)

@@ -7,9 +7,10 @@ inline or names a YAML file of house rules shared by many specs::
     derating: {resistor_power: 50 %, thd_share: 70 %}
     derating: ../house-rules.yaml        # a file holding 'derating: {...}'
 
-``verify`` judges the resistor, package and output-current rules; the search aims with
-the THD share, and plans with the output-current share what verify then judges (a
-design that draws more than it, even one a brute-force search finds, fails check). The op-amp package limit itself comes from the catalog's
+``verify`` judges the resistor, package, output-current and bias-drop rules; the search
+aims with the THD share, and plans with the output-current share and the bias drop what
+verify then judges (a design that breaks either, even one a brute-force search finds,
+fails check). The op-amp package limit itself comes from the catalog's
 ``packages`` section (junction-to-ambient thermal resistance and maximum junction
 temperature, see :mod:`partpick.catalog`); ``package_power`` is the share of it a design
 may use, and ``unknown_package`` the limit for a package the catalog does not describe.
@@ -23,7 +24,7 @@ from pathlib import Path
 from partpick.errors import SpecError
 from partpick.yamlsrc import Fields, Mapping, read_yaml
 
-__all__ = ["Rule", "RULES", "Derating", "read_derating"]
+__all__ = ["Rule", "RULES", "Derating", "read_derating", "package_limit", "bias_r_max"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -53,6 +54,10 @@ RULES = (
     Rule("output_current", 0.6, "fraction",
          "share of the op-amp's rated output current a design may draw (the rest is peaks and spread)",
          "common practice, no published source"),
+    Rule("bias_drop", 5e-3, "voltage",
+         "DC drop the op-amp's input bias current may make across a frequency-setting resistor (the oscillator's "
+         "output carries it times the loop gain, about 3x for a Wien bridge, as an offset that eats headroom)",
+         "common practice, no published source"),
 )
 _BY_KEY = {r.key: r for r in RULES}
 
@@ -67,6 +72,7 @@ class Derating:
     unknown_package: float = 0.5
     thd_share: float = 1.0
     output_current: float = 0.6
+    bias_drop: float = 5e-3
     origin: tuple[tuple[str, str], ...] = ()
 
     def value(self, key: str) -> float:
@@ -79,7 +85,7 @@ class Derating:
 def read_derating(root: Fields, key: str, base: Path) -> Derating:
     """The ``derating`` field of a spec: a mapping of rule keys, or the path (relative to
     ``base``) of a YAML file holding one under ``derating:``. Shares must lie in
-    (0, 100 %]; the unknown-package limit must be > 0 W."""
+    (0, 100 %]; the unknown-package limit must be > 0 W, the bias drop > 0 V."""
     if not root.has(key):
         return Derating()
     node = root.node.items[key][1]
@@ -99,3 +105,23 @@ def read_derating(root: Fields, key: str, base: Path) -> Derating:
         values[rule.key] = v
         where.append((rule.key, origin))
     return Derating(**values, origin=tuple(where))
+
+
+def package_limit(op, spec) -> tuple[float, str]:
+    """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
+    ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
+    catalog's package data, or the derating.unknown_package limit without it."""
+    d, t_amb, th = spec.derating, spec.temperature.max_k, op.thermal
+    if th is None:
+        return d.unknown_package, f"{d.unknown_package:.3g} W (no thermal data for package '{op.package}')"
+    limit = d.package_power * th.limit_w(t_amb)
+    return limit, (f"{op.package}: {d.package_power:.0%} x ({th.tj_max_k - 273.15:.4g} - {t_amb - 273.15:.4g} degC) / "
+                   f"{th.theta_ja_k_per_w:.4g} K/W = {limit:.3g} W")
+
+
+def bias_r_max(op, derating: Derating) -> float:
+    """The largest frequency-setting resistor, ohm, op-amp ``op``'s input bias current
+    (A) may flow through: the rule bias_drop (V) over the bias current, at most 1 Mohm
+    (above it board leakage and the input capacitance start to count: common practice,
+    no published source)."""
+    return min(1e6, derating.bias_drop / op.input_bias_a) if op.input_bias_a > 0 else 1e6

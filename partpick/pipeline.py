@@ -113,6 +113,9 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
     fixed = ()
     if spec.supply.kind == "single":
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
+        # the search plans the amplitude before the coupling capacitor: the load's over its loss
+        g = periphery.coupling_gain(spec, dict((r, v) for r, _, v in fixed)["coupling_c"])
+        problem = replace(problem, amp_v=problem.amp_v / g)
     price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
     offered = problem.topology.stages   # a topology may offer fewer

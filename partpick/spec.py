@@ -270,7 +270,8 @@ class Spec:
             ("output_stage", self.output_stage, ""),
             ("catalogs", ", ".join(map(str, self.catalogs)) or "default", ""),
         ]
-        rows += [(f"derating.{r.key}", self.derating.value(r.key), "W" if r.dim == "power" else "1") for r in RULES]
+        rows += [(f"derating.{r.key}", self.derating.value(r.key), {"power": "W", "voltage": "V"}.get(r.dim, "1"))
+                 for r in RULES]
         return rows
 
 

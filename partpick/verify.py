@@ -19,6 +19,7 @@ import numpy as np
 from partpick import units
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
                                margin_fn, periphery, rest_conductance)
+from partpick.derating import bias_r_max, package_limit
 from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
 from partpick.physics.linear import LinearResult
@@ -444,6 +445,14 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     sup_margin = min(span_lo - op.supply_min_v, op.supply_max_v - span_hi)
     checks.append(make_check("op-amp supply range", "supply", sup_margin, 0.0, None, "voltage",
                          f"needs {span_lo:g}..{span_hi:g} V, part takes {op.supply_min_v:g}..{op.supply_max_v:g} V"))
+    # The bias current through the largest frequency-setting resistor (derating rule bias_drop).
+    arm_r = max((c.value(s.role) for s in c.topology.slots if s.role in c.topology.network_roles
+                 and s.dim == "resistance"), default=0.0)
+    r_max = bias_r_max(op, spec.derating)
+    checks.append(make_check("input bias drop", "frequency.target", op.input_bias_a * arm_r, None,
+                             op.input_bias_a * r_max, "voltage", f"{units.format_quantity(op.input_bias_a, 'current')}"
+                             f" through {units.format_quantity(arm_r, 'resistance')}; limit "
+                             f"{units.format_quantity(float(f'{r_max:.4g}'), 'resistance')} (derating rule bias_drop)"))
     # Inputs swing around the reference by the output over the network's required gain.
     vcc, vee, ref = low_pt.cond.rails(c.supply_kind)
     vin = c.topology.input_swing_v(c, nom.osc_peak_v)
@@ -527,18 +536,6 @@ def _settling_check(c: Circuit, nom: OperatingPoint, spec: Spec) -> Check:
     note = (f"start-up {st.startup_s * 1e3:.3g} ms, overshoot {st.overshoot * 100:.3g} %, damping {st.damping:.2g}"
             if math.isfinite(st.startup_s) else "the amplitude never reaches its band")
     return make_check("settling time", "settling.max", st.settle_s, None, spec.settling_max_s, "time", note)
-
-
-def package_limit(op, spec: Spec) -> tuple[float, str]:
-    """(W, how it was found) the op-amp's package may dissipate at the spec's maximum
-    ambient: derating.package_power x (max junction - max ambient) / theta_ja from the
-    catalog's package data, or the derating.unknown_package limit without it."""
-    d, t_amb, th = spec.derating, spec.temperature.max_k, op.thermal
-    if th is None:
-        return d.unknown_package, f"{d.unknown_package:.3g} W (no thermal data for package '{op.package}')"
-    limit = d.package_power * th.limit_w(t_amb)
-    return limit, (f"{op.package}: {d.package_power:.0%} x ({th.tj_max_k - 273.15:.4g} - {t_amb - 273.15:.4g} degC) / "
-                   f"{th.theta_ja_k_per_w:.4g} K/W = {limit:.3g} W")
 
 
 def _package_dissipation(c: Circuit, spec: Spec, nom: OperatingPoint) -> tuple[float, str]:

@@ -219,3 +219,50 @@ def test_diode_only_never_proposes_a_jfet(demo_catalog):
     # control ruled out, 0.05 % must be refused, not designed with a JFET
     with pytest.raises(InfeasibleError):
         design(spec, demo_catalog, nearest=None)
+
+
+HEAVY_LOW = """name: heavy-load-single-supply
+description: demo scenario, an 18 ohm load at 2.9 kHz from one 24 V rail
+frequency: {target: 2.9 kHz, tolerance: 3 %}
+amplitude: {target: 48 mVrms, tolerance: 20 %}
+supply: {kind: single, min: 21.6 V, max: 26.4 V}
+load: {resistance: 18 ohm}
+temperature: {min: 0 degC, max: 50 degC}
+distortion: {max_thd: 3 %}
+yield: {min: 95 %}
+parts:
+  opamps: [oa-jfet-4m]
+  limiters: [d-schottky, d-si-lowleak]
+"""
+
+
+def test_a_coupling_capacitor_below_the_tenth_of_f_rule_is_planned_for(demo_catalog):
+    """18 ohm at 2.9 kHz wants 30.5 uF for a coupling corner at f/10; no allowed
+    capacitor reaches it, so the largest allowed one couples the load and the search
+    plans the amplitude before it (this spec was refused before). Its loss is the
+    first-order RC high-pass, |H| = w R C / sqrt(1 + (w R C)^2) (any circuits text, e.g.
+    Horowitz and Hill, The Art of Electronics, 3rd ed., section 1.7; from memory), and the
+    design's amplitude at the load, which check judges with the capacitor in the loop's
+    load, lies within the tolerance."""
+    import math
+
+    from partpick.circuits import periphery
+    from partpick.pricing import Pricer
+    from partpick.search.problem import build_problem
+
+    spec = Spec.from_text(HEAVY_LOW)
+    problem = build_problem(spec, demo_catalog, None)
+    fixed = {r: (fam, v) for r, fam, v in periphery.fixed_parts(spec, demo_catalog, problem.r_families,
+                                                                 Pricer(demo_catalog, None).unit)}
+    largest = max(v for c in demo_catalog.capacitors if c.voltage_v >= 26.4 for v in c.values())
+    fam, c_f = fixed["coupling_c"]
+    assert c_f == largest < 10 / (2 * math.pi * 2.9e3 * 18)
+    wrc = 2 * math.pi * 2.9e3 * 18 * c_f
+    assert periphery.coupling_gain(spec, c_f) == pytest.approx(wrc / math.sqrt(1 + wrc ** 2), rel=1e-12)
+    assert 1 - periphery.coupling_gain(spec, c_f) <= periphery.COUPLING_LOSS_SHARE * 0.2
+    d = design(spec, demo_catalog, results=2, samples=4000)
+    assert d.ranked and d.ranked[0].verdict.passed
+    top = d.ranked[0]
+    assert top.circuit.value("coupling_c") == c_f
+    load = next(c for c in top.verdict.checks if c.name == "amplitude at load (nominal)")
+    assert 0.8 * 48e-3 * math.sqrt(2) <= load.value <= 1.2 * 48e-3 * math.sqrt(2)

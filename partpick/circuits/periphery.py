@@ -211,9 +211,27 @@ def stage_load_admittance(c: Circuit, load_y: complex) -> complex:
 
 # -- search hooks ---------------------------------------------------------------------------------
 
+def coupling_gain(spec, c_f: float) -> float:
+    """|V_load / V_drive| of the output coupling capacitor c_f (F) into the spec's load at
+    its target frequency (an open load: the 10 Mohm bleed a single supply keeps), the
+    high-pass divider Z_load / (Z_load + 1/(j w C))."""
+    w = 2 * math.pi * spec.frequency.target_hz
+    r_load = spec.load.resistance_ohm if not math.isinf(spec.load.resistance_ohm) else 1e7
+    zl = 1 / (1 / r_load + 1j * w * spec.load.capacitance_f)
+    return abs(zl / (zl + 1 / (1j * w * c_f)))
+
+
+COUPLING_LOSS_SHARE = 0.5   # of amplitude.tolerance a coupling capacitor below the tenth-of-f rule may lose
+
+
 def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str, float], ...]:
     """Single supply: the mid-rail divider, its decoupling and the output coupling
-    capacitor (the same for every candidate), as (role, family, value)."""
+    capacitor (the same for every candidate), as (role, family, value). The coupling
+    capacitor is the cheapest allowed one whose corner lies at a tenth of the frequency
+    or below (under 0.5 % loss); when none reaches that (a heavy load at a low
+    frequency), the largest allowed value, if its loss (:func:`coupling_gain`, which the
+    search then plans the amplitude with and check judges at the load) takes at most
+    COUPLING_LOSS_SHARE of the amplitude tolerance."""
     if spec.supply.kind != "single":
         return ()
     fam = min(rfams, key=lambda r: r.price_unit)
@@ -230,8 +248,13 @@ def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str
     need_c = 10 / (2 * math.pi * f * r_load)        # coupling corner a tenth of f: under 0.5 % loss
     out = [("bias_top", fam.id, rb), ("bias_bottom", fam.id, rb)]
     for role, need in (("bias_c", need_b), ("coupling_c", need_c)):
-        options = [(price(c.id, v), c.id, v) for c in caps for v in c.values() if v >= need
-                   and c.voltage_v >= spec.supply.max_v and (shelf is None or shelf.quantity(c.id, v) >= spec.builds)]
+        fit = [(price(c.id, v), c.id, v) for c in caps for v in c.values()
+               if c.voltage_v >= spec.supply.max_v and (shelf is None or shelf.quantity(c.id, v) >= spec.builds)]
+        options = [o for o in fit if o[2] >= need]
+        if not options and role == "coupling_c" and fit:
+            top = max(o[2] for o in fit)
+            if 1 - coupling_gain(spec, top) <= COUPLING_LOSS_SHARE * spec.amplitude.tolerance_frac:
+                options = [o for o in fit if o[2] == top]
         if not options:
             raise InfeasibleError(f"no allowed capacitor reaches {need * 1e6:.3g} uF for the single-supply bias "
                                   f"and coupling at {f:g} Hz", ("parts",))

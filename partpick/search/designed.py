@@ -141,7 +141,7 @@ def _placed(searcher, op, gf, d, kinds, k_ref: float) -> list[Candidate]:
     p = searcher.problem
     target = p.ln_f - op.pull - d.pull
     ref_bin = int(round(k_ref / K_BIN))
-    r_lo, r_hi = r_limits(op.opamp)
+    r_lo, r_hi = r_limits(op.opamp, p.spec.derating)
     span = max(0, int(0.25 * max(d.margin - d.start_loss, 0.0) / K_BIN))
     bins = np.arange(ref_bin - span, ref_bin + span + 1)
     out = []

@@ -30,13 +30,13 @@ import numpy as np
 from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner, prepare
 from partpick.circuits.options import nearest, sigma, values_of
+from partpick.derating import bias_r_max, package_limit
 from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.prices import PriceBook
 from partpick.search.problem import REF_T, Problem
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
-from partpick.verify import package_limit
 
 __all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits", "SIMPSON"]
 
@@ -78,7 +78,9 @@ class Searcher:
                                               lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
                              for k in kinds if k in STAGE_RATIO for f in problem.r_families}
         limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
-        self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id]}
+        self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id],
+                           "r_min": lambda o: r_limits(o.opamp, spec.derating)[0],
+                           "r_max": lambda o: r_limits(o.opamp, spec.derating)[1]}
         # the bins of K with the op-amp's loss that an arm set (within the topology's arm
         # ratio) and an op-amp reach
         shifts = np.unique([int(round(op.loss / K_BIN)) for op in problem.ops] or [0])
@@ -531,20 +533,19 @@ def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread)
     return np.sqrt(s_g ** 2 + np.asarray(sigma_lnk) ** 2 + s_op ** 2 + s_t ** 2)
 
 
-def r_limits(op) -> tuple[float, float]:
-    """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance,
-    and below the value at which its bias current drops 5 mV."""
-    r_max = min(1e6, 5e-3 / op.input_bias_a) if op.input_bias_a > 0 else 1e6
-    return max(20 * op.output_resistance_ohm, 1.0), r_max
+def r_limits(op, derating) -> tuple[float, float]:
+    """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance
+    (a planning rule of the search: the loop analysis judges the loading), and up to
+    the value at which its bias current drops the derating rule bias_drop, which check
+    judges (:func:`partpick.derating.bias_r_max`)."""
+    return max(20 * op.output_resistance_ohm, 1.0), bias_r_max(op, derating)
 
 
 # per-row op-amp figures for the vectorised scoring
 _OP_FIELDS = {
     "pull": lambda o: o.pull, "loss": lambda o: o.loss, "swing": lambda o: o.swing_v,
     "current": lambda o: o.opamp.output_current_a, "gbw_spread": lambda o: o.opamp.gbw_spread_frac,
-    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, "r_min": lambda o: r_limits(o.opamp)[0],
-    "r_max": lambda o: r_limits(o.opamp)[1],
-}
+    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, }
 
 
 def _best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
