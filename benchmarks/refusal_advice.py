@@ -5,7 +5,7 @@ value it gives must make the spec design.
 The parser is deliberately tolerant, and the one place to adapt when the wording of
 refusals changes. It looks, in order, for:
 
-1. ``relax <field> to <value>`` (any number of them, e.g. "... binds: ... is +/-0.84 %;
+1. ``relax <field> to <value>`` or ``raise <field> to <value>`` (any number of them, e.g. "... binds: ... is +/-0.84 %;
    relax frequency.tolerance to +/-1 %", or "or distortion.max_thd binds: ...; relax
    distortion.max_thd to 2 %"), each applied alone, and ``relax jointly <field> to
    <value> and <field> to <value>``, applied together (field ``joint``);
@@ -35,7 +35,7 @@ __all__ = ["Advice", "parse_refusal", "apply_advice", "spec_value"]
 FIELD = r"(?P<field>[a-z_]+(?:\.[a-z_]+)+)"
 VALUE = r"(?P<value>[^;,(\n]+?)"
 END = r"(?=\s*(?:[;,(\n]|$|\.\s|\.$|\bor\b))"
-RELAX = re.compile(rf"relax\s+{FIELD}\s+to\s+{VALUE}{END}")
+RELAX = re.compile(rf"(?:relax|raise)\s+{FIELD}\s+to\s+{VALUE}{END}")
 JOINT = re.compile(r"relax\s+jointly\s+(?P<items>[^\n]+)")
 ITEM = re.compile(rf"{FIELD}\s+to\s+(?P<value>.+?)(?=\s+and\s+[a-z_]+\.|\s*$)")
 NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"

@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass, field, replace
+from functools import partial
 
 import numpy as np
 
@@ -32,7 +33,7 @@ from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceB
 from partpick.search.pool import Pool
 from partpick.forked import fork_map
 from partpick.refusal import (default_notes, explain_refusal, frequency_hold, held_message, held_tolerance, loosened,
-                              relaxed, relaxed_all, structural_refusal)
+                              load_relaxation, relaxed, relaxed_all, shelf_shortfall, structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -125,7 +126,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
            rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
-           nearest: int | None = 3, work: _Work | None = None) -> Design:
+           nearest: int | None = 3, work: _Work | None = None, given=()) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
@@ -134,7 +135,9 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     it design, with the ``nearest`` failing designs (:mod:`partpick.refusal`; None:
     a bare refusal on a small verification budget, as the runs that work this out use;
     0: a bare refusal after the full search, for a caller that has its own answer to a
-    refusal, as the trade-off's family runs). ``progress(done, total)`` is
+    refusal, as the trade-off's family runs); ``given``: (Relaxation, statement) the
+    spec has had already, which the why-not states and keeps (a load resistance a
+    refusal named). ``progress(done, total)`` is
     called as candidates are verified (physics and Monte Carlo). ``topology: auto``
     designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
@@ -145,16 +148,29 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if spec.topology == AUTO_TOPOLOGY:
         return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
                             progress=progress, nearest=nearest,
-                            work=work if work is not None else _Work(MAX_TRANSIENT))   # one budget for all
+                            work=work if work is not None else _Work(MAX_TRANSIENT), given=given)   # one budget
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
     searcher, fixed = _searcher(spec, catalog, stock, problem)
-    early = structural_refusal(spec, catalog, problem, searcher.pairs, _reach(problem),
-                               frequency_hold(spec, problem, searcher.best_hold, catalog)[0])
+    refusal_of = partial(structural_refusal, spec, catalog, problem, searcher.pairs, _reach(problem),
+                         frequency_hold(spec, problem, searcher.best_hold, catalog)[0])
+    early = refusal_of()
     # a frequency tolerance no allowed family pair holds is refused at once by the runs
     # that explain a refusal; the design the user asked for goes on to the why-not, which
     # finds the tolerance a design holds (and the families that would hold this one)
+    if early is not None and nearest and early[1] == ("load.resistance",) and (rel := load_relaxation(spec, problem)):
+        # the load the message names is stated where the spec with it designs; else the
+        # why-not of that spec, which keeps it, says what binds next
+        try:
+            design(relaxed(spec, rel.field, rel.advice), catalog, stock=stock, results=1, samples=samples, seed=seed,
+                   nearest=nearest, work=work, given=((rel, refusal_of(bound=True)[0].split("binds: ", 1)[1]),))
+        except InfeasibleError as exc:
+            first = exc.message.startswith("no design")
+            at = units.format_quantity(rel.advice, "resistance")
+            raise InfeasibleError(exc.message if first else f"{refusal_of(bound=True)[0]}\nwith load.resistance at "
+                                  f"{at}, {exc.message}",
+                                  tuple(dict.fromkeys(early[1] + exc.binding))) from None
     if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
         raise InfeasibleError(*early)
     t1 = time.perf_counter()
@@ -221,7 +237,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if not any(r.verdict.passed for r in ranked):
         if not nearest:
             raise InfeasibleError("no design meets the spec")
-        raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed, samples))
+        raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed, samples,
+                                        given))
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
@@ -323,7 +340,7 @@ def _cost_first(rank_by) -> bool:
 
 
 def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, failing, nearest: int,
-             seed: int, samples: int) -> tuple[str, tuple[str, ...]]:
+             seed: int, samples: int, given=()) -> tuple[str, tuple[str, ...]]:
     """The why-not of a refused spec (:func:`partpick.refusal.explain_refusal`), with
     what the parts allowed cannot do named first. The re-searches verify with SAMPLES
     builds (they only propose); every verdict the message states (the value to relax
@@ -365,12 +382,12 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
         return whole[s]
 
     hold, t_hold = frequency_hold(spec, problem, searcher.best_hold, catalog)
-    given = ()
-    if hold and not searcher.pairs:
+    held = hold and not searcher.pairs
+    if held:
         rel = held_tolerance(spec, t_hold)
-        if designs(relaxed(spec, rel.field, rel.advice)):
+        if designs(relaxed(spec, rel.field, rel.advice)) and not given:
             return held_message(spec, hold, rel)
-        given = ((rel, hold),)
+        given = tuple(given) + ((rel, hold),)
     # the runs that do not depend on one another's results (each requirement loosened
     # alone, each restricted kind of part opened up, the shelf made a preference), made
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
@@ -399,29 +416,10 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     if prefer is not None:
         boms = run(prefer)
         if boms:
-            lead.append(("stock quantities", _shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
-    if hold and not given:
+            lead.append(("stock quantities", shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
+    if hold and not held:
         more.append(("the frequency tolerance", hold))
     return explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
-
-
-def _shelf_shortfall(bom: Bom, shelf, builds: int, catalog: Catalog) -> str:
-    """What the shelf lacks for ``bom`` (the best design with the catalog behind the
-    shelf): each value it runs out of, with the designators that need it."""
-    need: dict = {}
-    for ln in bom.lines:
-        need.setdefault((ln.family, ln.value), []).append(ln.ref)
-    resistors = {r.id for r in catalog.resistors}
-    short = []
-    for (fam, value), refs in need.items():
-        have = shelf.quantity(fam, value)
-        if have < len(refs) * builds:
-            what = (units.format_quantity(value, "resistance" if fam in resistors else "capacitance") + " "
-                    if value else "")
-            short.append(f"{what}{fam} for {', '.join(refs)} (needs {len(refs) * builds} for {builds} board(s), the "
-                         f"shelf has {have})")
-    return ("the shelf runs out of " + "; ".join(short) + ": with those added (or stock mode 'prefer') the best "
-            "design uses them")
 
 
 def _hopeless(spec: Spec) -> float:

@@ -36,7 +36,8 @@ from partpick.search.estimate import frequency_share, frequency_tolerance
 from partpick.spec import Spec
 
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
-           "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all"]
+           "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all", "load_relaxation",
+           "shelf_shortfall"]
 
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
@@ -75,13 +76,16 @@ def requirement_value(spec: Spec, field: str) -> float:
 
 
 def relaxed(spec: Spec, field: str, value: float) -> Spec:
-    """The spec with one relaxable requirement set to value (fraction)."""
+    """The spec with one relaxable requirement set to value (fraction; the load
+    resistance in ohm)."""
     if field == "frequency.tolerance":
         return replace(spec, frequency=replace(spec.frequency, tolerance_frac=value))
     if field == "amplitude.tolerance":
         return replace(spec, amplitude=replace(spec.amplitude, tolerance_frac=value))
     if field == "distortion.max_thd":
         return replace(spec, max_thd_frac=value)
+    if field == "load.resistance":   # (ohm: a structural refusal's, given to the why-not)
+        return replace(spec, load=replace(spec.load, resistance_ohm=value))
     return replace(spec, yield_min_frac=value)
 
 
@@ -258,6 +262,8 @@ def _reach_together(spec: Spec, fields, bom, check) -> list[Relaxation] | None:
 
 
 def _fmt(field: str, value: float) -> str:
+    if field == "load.resistance":
+        return units.format_quantity(float(f"{value:.3g}"), "resistance")
     sign = "+/-" if field.endswith("tolerance") else ""
     return sign + units.format_quantity(float(f"{value:.3g}"), "fraction")
 
@@ -414,13 +420,33 @@ def _unique(items):
     return out
 
 
-def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str = "") -> tuple[str, tuple[str, ...]] | None:
+def load_relaxation(spec: Spec, problem) -> Relaxation | None:
+    """The load resistance (ohm) a load.resistance refusal names: the lowest at which
+    the amplitude's low end takes no more current, with the load's capacitance, than the
+    strongest allowed op-amp plans for (derating rule output_current), rounded up to
+    two figures. None when the resistance does not bind (the load drives within that
+    current, or its capacitance alone takes more)."""
+    low = spec.amplitude.peak_v * (1 - spec.amplitude.tolerance_frac)
+    y = spec.load.admittance_s(spec.frequency.target_hz)
+    if not problem.ops:
+        return None
+    y_max = max(op.opamp.output_current_a for op in problem.ops) * problem.current_share / low   # S
+    if abs(y) <= y_max or y.imag > y.real or y_max <= y.imag:
+        return None
+    r_need = 1 / math.sqrt(y_max ** 2 - y.imag ** 2)
+    return Relaxation("load.resistance", r_need, _round_up(r_need, True))
+
+
+def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str = "",
+                       bound: bool = False) -> tuple[str, tuple[str, ...]] | None:
     """A refusal that needs no search: no op-amp, limiter or family allowed; no
     op-amp that takes the supply, swings the amplitude or drives the load; no arm set
     of the allowed families near the target frequency. None when the search must
     answer. reach_hz: (lowest, highest) textbook frequency the allowed families'
     arms reach, Hz; hold: what the best family pair holds when no pair can hold the
-    frequency tolerance (empty when one can)."""
+    frequency tolerance (empty when one can); bound: the load resistance it names is
+    stated as a bound (below it nothing designs), not as the value to raise it to (that
+    is stated where the spec with it designs)."""
     notes = "".join(f" ({n})" for n in default_notes(spec))
     for kind, word in (("opamps", "op-amp"), ("limiters", "limiter"), ("resistors", "resistor family"),
                        ("capacitors", "capacitor family")):
@@ -461,10 +487,13 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
                     f"at {_q(f, 'frequency')} (reactance {_q(1 / b, 'resistance')}) with "
                     f"{_q(ld.resistance_ohm, 'resistance')} takes {_q(i_load, 'current')}; {plans}, so {fix}: lower "
                     f"it or add an external driver{notes}", ("load.capacitance",))
-        r_need = 1 / math.sqrt(y_max ** 2 - b * b) if y_max > b else math.inf
+        rel = load_relaxation(spec, problem)
+        fix = (f"raise load.resistance to {_fmt(rel.field, rel.advice)} or add an external driver" if rel else
+               "lower the load's capacitance or add an external driver")
+        if rel and bound:
+            fix = f"a load.resistance under {_fmt(rel.field, rel.advice)} cannot design (or add an external driver)"
         return (f"load.resistance binds: {_q(low, 'voltage')} peak into {_q(ld.resistance_ohm, 'resistance')} "
-                f"takes {_q(i_load, 'current')}; {plans}: raise load.resistance to {_q(r_need, 'resistance')} or add "
-                f"an external driver{notes}", ("load.resistance",))
+                f"takes {_q(i_load, 'current')}; {plans}: {fix}{notes}", ("load.resistance",))
     if not pairs and hold:
         return f"frequency.tolerance binds: {hold}{notes}", ("frequency.tolerance",)
     if not pairs:
@@ -521,3 +550,22 @@ def _swing_of(op, spec: Spec) -> tuple[float, str]:
 
     lo, hi = swing_limits(op, Conditions(spec.supply.min_v, 298.15, math.inf).rails(spec.supply.kind))
     return min(-lo, hi), op.id
+
+
+def shelf_shortfall(bom, shelf, builds: int, catalog) -> str:
+    """What the shelf lacks for ``bom`` (the best design with the catalog behind the
+    shelf): each value it runs out of, with the designators that need it."""
+    need: dict = {}
+    for ln in bom.lines:
+        need.setdefault((ln.family, ln.value), []).append(ln.ref)
+    resistors = {r.id for r in catalog.resistors}
+    short = []
+    for (fam, value), refs in need.items():
+        have = shelf.quantity(fam, value)
+        if have < len(refs) * builds:
+            what = (units.format_quantity(value, "resistance" if fam in resistors else "capacitance") + " "
+                    if value else "")
+            short.append(f"{what}{fam} for {', '.join(refs)} (needs {len(refs) * builds} for {builds} board(s), the "
+                         f"shelf has {have})")
+    return ("the shelf runs out of " + "; ".join(short) + ": with those added (or stock mode 'prefer') the best "
+            "design uses them")
