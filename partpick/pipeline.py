@@ -24,6 +24,7 @@ from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
 from partpick.circuits import balance, build_loop, check_spec, fitting_topologies, linear, periphery, slots_for
+from partpick.circuits.options import sigma
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
 from partpick.rank import Ranked, rank
@@ -114,9 +115,13 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
     fixed = ()
     if spec.supply.kind == "single":
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
-        # the search plans the amplitude before the coupling capacitor: the load's over its loss
-        g = periphery.coupling_gain(spec, dict((r, v) for r, _, v in fixed)["coupling_c"])
-        problem = replace(problem, amp_v=problem.amp_v / g)
+        # the search plans the amplitude before the coupling capacitor: the load's over its
+        # loss, with its spread
+        _, cfam, c_f = next(f for f in fixed if f[0] == "coupling_c")
+        s_c = periphery.coupling_spread(spec, c_f, sigma(catalog.find("capacitors", cfam)))
+        g = periphery.coupling_gain(spec, c_f)
+        problem = replace(problem, amp_v=problem.amp_v / g, amp_sigma=s_c, load_gain=g,
+                          drive_y=periphery.coupled_admittance(spec, c_f))
     price = PriceBook(Pricer(catalog, stock), catalog, fixed, problem.topology.channels)
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
     offered = problem.topology.stages   # a topology may offer fewer

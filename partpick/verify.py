@@ -478,6 +478,9 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     if ipk > 0.7 * op.output_current_a:
         cautions.append("the op-amp runs near its output current limit: the load is heavy for it; use a buffer "
                         "or a higher-current part")
+    if c.supply_kind == "single" and periphery.coupling_gain(spec, c.value("coupling_c")) < 0.9:
+        cautions.append("the output coupling capacitor loses over 10 % of the amplitude: the load's amplitude follows "
+                        "its value, tolerance and temperature; a larger one (or a dual supply) is steadier")
     if span_hi > 0.9 * op.supply_max_v:
         cautions.append("the maximum supply is within 10 % of the op-amp's absolute supply rating")
     cautions.append("low-voltage signal circuit: for anything mains-connected or safety-related follow local "

@@ -259,10 +259,45 @@ def test_a_coupling_capacitor_below_the_tenth_of_f_rule_is_planned_for(demo_cata
     assert c_f == largest < 10 / (2 * math.pi * 2.9e3 * 18)
     wrc = 2 * math.pi * 2.9e3 * 18 * c_f
     assert periphery.coupling_gain(spec, c_f) == pytest.approx(wrc / math.sqrt(1 + wrc ** 2), rel=1e-12)
-    assert 1 - periphery.coupling_gain(spec, c_f) <= periphery.COUPLING_LOSS_SHARE * 0.2
+    assert periphery.coupling_spread(spec, c_f, 0.1) == pytest.approx(0.1 / (1 + wrc ** 2), rel=1e-12)
     d = design(spec, demo_catalog, results=2, samples=4000)
     assert d.ranked and d.ranked[0].verdict.passed
     top = d.ranked[0]
     assert top.circuit.value("coupling_c") == c_f
     load = next(c for c in top.verdict.checks if c.name == "amplitude at load (nominal)")
     assert 0.8 * 48e-3 * math.sqrt(2) <= load.value <= 1.2 * 48e-3 * math.sqrt(2)
+
+
+HEAVY_200HZ = """name: heavy-load-200hz
+description: demo scenario, an 18 ohm load at 200 Hz from one 24 V rail
+frequency: {target: 200 Hz, tolerance: 1 %}
+amplitude: {target: 62 mVpp, tolerance: 10 %}
+supply: {kind: single, min: 21.6 V, max: 26.4 V}
+load: {resistance: 18 ohm}
+temperature: {min: 0 degC, max: 50 degC}
+distortion: {max_thd: 5 %}
+yield: {min: 90 %}
+"""
+
+
+@pytest.mark.ngspice
+@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+def test_a_coupling_capacitor_that_loses_most_of_the_amplitude_is_planned_for(demo_catalog):
+    """Coverage requirement 12: 18 ohm at 200 Hz from one 24 V rail. The largest allowed
+    coupling capacitor (10 uF, 80 ohm at 200 Hz) passes only about a fifth of the stage's
+    output (w R C = 0.23), so the output stage must see the capacitor in series with the
+    load and the amplitude be planned before it (this spec was refused; an attenuator
+    sized for 18 ohm across its lower leg gave 4.4 times the amplitude). The #1 design,
+    built in ngspice at its nominal point, lands within the amplitude tolerance at the load."""
+    spec = Spec.from_text(HEAVY_200HZ)
+    assert spec.load.resistance_ohm == 18 and spec.frequency.target_hz == 200
+    d = design(spec, demo_catalog, results=1)
+    best = d.ranked[0]
+    assert best.verdict.passed and best.circuit.value("coupling_c") == pytest.approx(10e-6)
+    cond = operating_conditions(spec)["nominal"]
+    point = best.verdict.nominal
+    t, v = run_ngspice(build_netlist(best.circuit, cond), cycles=cycles_to_settle(best.circuit, point, point.osc_peak_v))
+    st = analyse(t, v["load"])
+    assert st is not None and st.settled
+    assert st.peak_v == pytest.approx(spec.amplitude.peak_v, rel=spec.amplitude.tolerance_frac)
+    assert st.freq_hz == pytest.approx(spec.frequency.target_hz, rel=spec.frequency.tolerance_frac)

@@ -211,17 +211,35 @@ def stage_load_admittance(c: Circuit, load_y: complex) -> complex:
 
 # -- search hooks ---------------------------------------------------------------------------------
 
-def coupling_gain(spec, c_f: float) -> float:
-    """|V_load / V_drive| of the output coupling capacitor c_f (F) into the spec's load at
-    its target frequency (an open load: the 10 Mohm bleed a single supply keeps), the
-    high-pass divider Z_load / (Z_load + 1/(j w C))."""
+def _coupled(spec, c_f: float) -> tuple[complex, complex]:
+    """(Z_load, Z_C) at the spec's target frequency, ohm (an open load: the 10 Mohm
+    bleed a single supply keeps)."""
     w = 2 * math.pi * spec.frequency.target_hz
     r_load = spec.load.resistance_ohm if not math.isinf(spec.load.resistance_ohm) else 1e7
-    zl = 1 / (1 / r_load + 1j * w * spec.load.capacitance_f)
-    return abs(zl / (zl + 1 / (1j * w * c_f)))
+    return 1 / (1 / r_load + 1j * w * spec.load.capacitance_f), 1 / (1j * w * c_f)
 
 
-COUPLING_LOSS_SHARE = 0.5   # of amplitude.tolerance a coupling capacitor below the tenth-of-f rule may lose
+def coupling_gain(spec, c_f: float) -> float:
+    """|V_load / V_drive| of the output coupling capacitor c_f (F) into the spec's load at
+    its target frequency, the high-pass divider Z_load / (Z_load + 1/(j w C))."""
+    zl, zc = _coupled(spec, c_f)
+    return abs(zl / (zl + zc))
+
+
+def coupled_admittance(spec, c_f: float) -> complex:
+    """What the output stage drives through the coupling capacitor c_f (F) at the spec's
+    target frequency, S: 1 / (Z_C + Z_load)."""
+    zl, zc = _coupled(spec, c_f)
+    return 1 / (zl + zc)
+
+
+def coupling_spread(spec, c_f: float, c_sigma: float) -> float:
+    """Standard deviation of ln |V_load| from the coupling capacitor's value spread
+    c_sigma (relative): its log sensitivity d ln|H| / d ln C = 1 / (1 + (w R C)^2) for a
+    resistive load (first-order high-pass), times c_sigma; next to nothing above the
+    tenth-of-f rule, the capacitor's own tolerance where its corner lies far above f."""
+    g = coupling_gain(spec, c_f)
+    return (1 - g * g) * c_sigma    # 1/(1 + x^2) = 1 - |H|^2
 
 
 def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str, float], ...]:
@@ -229,9 +247,9 @@ def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str
     capacitor (the same for every candidate), as (role, family, value). The coupling
     capacitor is the cheapest allowed one whose corner lies at a tenth of the frequency
     or below (under 0.5 % loss); when none reaches that (a heavy load at a low
-    frequency), the largest allowed value, if its loss (:func:`coupling_gain`, which the
-    search then plans the amplitude with and check judges at the load) takes at most
-    COUPLING_LOSS_SHARE of the amplitude tolerance."""
+    frequency), the cheapest of the largest allowed value: its loss
+    (:func:`coupling_gain`) and its spread (:func:`coupling_spread`) the search plans
+    the amplitude with, and check judges at the load, the capacitor in the circuit."""
     if spec.supply.kind != "single":
         return ()
     fam = min(rfams, key=lambda r: r.price_unit)
@@ -253,8 +271,7 @@ def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str
         options = [o for o in fit if o[2] >= need]
         if not options and role == "coupling_c" and fit:
             top = max(o[2] for o in fit)
-            if 1 - coupling_gain(spec, top) <= COUPLING_LOSS_SHARE * spec.amplitude.tolerance_frac:
-                options = [o for o in fit if o[2] == top]
+            options = [o for o in fit if o[2] == top]
         if not options:
             raise InfeasibleError(f"no allowed capacitor reaches {need * 1e6:.3g} uF for the single-supply bias "
                                   f"and coupling at {f:g} Hz", ("parts",))

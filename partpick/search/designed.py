@@ -167,7 +167,7 @@ def _placed(searcher, op, gf, d, kinds, k_ref: float) -> list[Candidate]:
         s_m = float(m_sigma(p, gf, np.asarray(math.exp(k_ref)), float(table.sigma_lnk[arm]), op.loss,
                             op.opamp.gbw_spread_frac))
         margin = d.margin - (ln_k - k_ref) - d.start_loss
-        s_a = math.hypot(d.amp_per_excess * s_m, d.amp_spread / 3)
+        s_a = math.hypot(d.amp_per_excess * s_m, d.amp_spread / 3, p.amp_sigma)
         # the amplitude check's band is (1 -/+ tol) times the target: asymmetric in ln
         lo, hi = math.log1p(-min(p.tol_a, 0.999)), math.log1p(p.tol_a)
         amp_share = sum(w * float(phi((hi - math.log(a / p.amp_v)) / s_a) - phi((lo - math.log(a / p.amp_v)) / s_a))

@@ -66,7 +66,7 @@ class Searcher:
         self.f_t = spec.frequency.target_hz
         # the load's admittance at the target: its magnitude sets the current, its phase the
         # power the load takes (as verification reads it)
-        y_load = self.y_load = spec.load.admittance_s(self.f_t)
+        y_load = self.y_load = spec.load.admittance_s(self.f_t) if problem.drive_y is None else problem.drive_y
         self._amp: dict = {}
         # THD counts at every output the topology has only when the spec loads them all (a
         # second output without a load_cosine is not used)
@@ -251,7 +251,7 @@ class Searcher:
         osc_max = min(op.swing_v, linear_peak_v(op.opamp, self.f_t))
         s_m = m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
         with np.errstate(invalid="ignore", divide="ignore"):
-            s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2)
+            s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + self.problem.amp_sigma ** 2)
             # margins in standard deviations: the search's proxy for each share of the yield
             z_core = np.minimum(m / s_m, (p.thd_max - thd) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
             z_core = np.where(vo.max(axis=0) <= osc_max, z_core, -np.inf)
@@ -342,7 +342,7 @@ class Searcher:
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
         with np.errstate(invalid="ignore", divide="ignore"):
-            s_a = np.sqrt((ev["dln_vo"] * s_m) ** 2 + (vf_rel / 3) ** 2)
+            s_a = np.sqrt((ev["dln_vo"] * s_m) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
             y = (frequency_share(err, sig_f, drift, p.tol_f) * phi(m / s_m)
                  * below_share(ev["thd"], np.abs(ev["dthd"]) * s_m, p.thd_max)
                  * sum(w * window_share(np.log(load[i] / p.amp_v), s_a, math.log1p(p.tol_a))
@@ -416,8 +416,8 @@ class Searcher:
         m_ideal = float(topo.gain(values) / topo.required_gain(values)) - 1
         m_lin = math.expm1(math.log1p(m_ideal) - op.loss)
         temps = p.temps_k
-        ln_load = math.log(max(c.load_v[1], 1e-12))
-        dln = tuple(math.log(max(v, 1e-12)) - ln_load for v in c.load_v)
+        dln = tuple(math.log(max(v, 1e-12) / max(c.load_v[1], 1e-12)) for v in c.load_v)
+        ln_load = math.log(max(c.load_v[1] * p.load_gain, 1e-12))   # (at the load: the search's is before coupling)
         second = None
         if topo.outputs:
             # a second output: its amplitude and match from the topology's ideal ratio and what the
@@ -426,7 +426,7 @@ class Searcher:
             ratio = float(topo.output_ratio(values)) * factor
             second = (ratio, ratio, phase, c.thd, c.s_thd, ratio / factor)
         model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
-                      c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1], 1e-12),
+                      c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1] * p.load_gain, 1e-12),
                       (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
                       p.control.amplitude_spread_of(self._limiter(c), temps[1]), second=second)
         y = monte_carlo(model, p.spec, samples=samples, seed=1).yield_frac
@@ -478,7 +478,8 @@ class Searcher:
         now = table.gains[np.flatnonzero((table.ra == ra) & (table.rb == rb))]
         if now.size == 0:
             return None
-        j = int(table.pick(np.array([math.log(now[0] * self.problem.amp_v / load_peak_v)]))[0])
+        # (amp_v is the target before any coupling capacitor: the measured load's over its loss)
+        j = int(table.pick(np.array([math.log(now[0] * self.problem.amp_v * self.problem.load_gain / load_peak_v)]))[0])
         if (table.ra[j], table.rb[j]) == (ra, rb):
             return None
         return float(table.ra[j]), float(table.rb[j])

@@ -77,6 +77,11 @@ class Problem:
     notes: tuple[str, ...] = field(default=())
     designed: tuple = ()                   # controls with a design hook to search (search/designed.py)
     fallback: bool = False                 # ... only when the limiter's designs are not enough ('auto')
+    amp_sigma: float = 0.0                 # spread (ln) of the load amplitude from parts after the
+                                           # oscillator's output (a small coupling capacitor)
+    load_gain: float = 1.0                 # |V_load / V| of those parts (amp_v is the target before them)
+    drive_y: complex | None = None         # what the output stage drives at the target frequency, S
+                                           # (None: the load itself)
 
     @property
     def rails_min(self) -> tuple[float, float, float]:
