@@ -15,7 +15,9 @@ __all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable
 
 K_BIN = 0.004            # ln K bin width
 K_GRID = np.arange(round(math.log(2.4) / K_BIN), round(math.log(3.9) / K_BIN) + 1)   # bin numbers of the arms' K
-STAGE_RATIO = {"gain": (1.05, 10.0), "attenuator": (0.02, 0.95), "buffered-attenuator": (0.02, 0.95)}
+# the ratios an output stage is offered at: an attenuator down to 1/500 (20 mV at the load from
+# 10 V at the oscillator), a gain stage up to 20 (the verifier judges its bandwidth and swing)
+STAGE_RATIO = {"gain": (1.05, 20.0), "attenuator": (0.002, 0.95), "buffered-attenuator": (0.002, 0.95)}
 STAGE_RES = 0.003        # ln gain: stage pairs this close to the wanted gain are equal for the amplitude
 STAGE_LEVEL = 20e3       # ohm: among those, the pair whose Ra + Rb is nearest this (common practice, no
                          # published source: low enough against stray capacitance and bias current,
