@@ -56,6 +56,21 @@ DEARER: dict[str, str] = {
 }
 
 
+# Stored oracle BOMs that check no longer passes since the single-supply model carries the
+# mid-rail node's ripple to the load (periphery.reference_ripple, which brought check's
+# load amplitude onto ngspice's where an ideal mid-rail was 1.85x off): each was within its
+# amplitude tolerance by under 3 %. ngspice, running the full circuit, agrees with the new
+# verdicts where it can tell: ord-037's nominal load is 289.5 mVrms against a 286 mVrms
+# limit (check: 286.0); ord-028 fails at 0 degC (441 mVrms against 432), which a nominal
+# ngspice run does not show (419.8 mVrms there); ord-057's yield falls to 93 % of 99 %.
+# Strict: an entry fails once check passes the BOM again.
+NO_LONGER_PASS: dict[str, str] = {
+    "ord-028": "amplitude 441 mVrms at 0 degC over 432 with the mid-rail ripple counted",
+    "ord-037": "nominal amplitude 286.0 mVrms at its 286 limit with the ripple (ngspice: 289.5)",
+    "ord-057": "yield 93.2 % against 99 % with the ripple counted",
+}
+
+
 def _bom_path(spec_path: Path) -> Path:
     return spec_path.with_suffix(".bom.yaml")
 
@@ -65,7 +80,9 @@ def test_the_subset_is_there():
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("spec_path", WITH_BOM, ids=lambda p: p.stem)
+@pytest.mark.parametrize("spec_path", [
+    pytest.param(p, id=p.stem, marks=[pytest.mark.xfail(strict=True, reason=NO_LONGER_PASS[p.stem])]
+                 if p.stem in NO_LONGER_PASS else []) for p in WITH_BOM])
 def test_stored_oracle_bom_passes_check(spec_path):
     result = CliRunner().invoke(main, ["check", str(spec_path), str(_bom_path(spec_path)), "--format", "json"])
     assert result.exit_code == 0, f"partpick check no longer passes the stored oracle BOM: {result.output[-600:]}"

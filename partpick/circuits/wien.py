@@ -120,7 +120,7 @@ class WienBridge:
         d1 = (one + yx.scale(ro)).scale(rg) + k
         cv_i = yx * g1 + yf                          # output current per Vf
         ci_i = yx.scale(rg) + one                    # ... per I
-        tl = periphery.to_load(c, cond, w)
+        tl = self._to_load(c, cond, w)
         probes = (
             ("osc", g1, const(rg)),
             ("load", tl * g1, tl.scale(rg)),
@@ -158,7 +158,7 @@ class WienBridge:
         # a current J drawn from the output adds Ro J to X = Vo + Ro Iout: eta = Ro
         cv_i = yx.scale(g1) + const(yg)              # output current per Vn
         ci_i = yx.scale(rf) + one                    # ... per I
-        tl = periphery.to_load(c, cond, w)
+        tl = self._to_load(c, cond, w)
         probes = (
             ("osc", const(g1), const(rf)),
             ("load", tl.scale(g1), tl.scale(rf)),
@@ -172,6 +172,14 @@ class WienBridge:
         zs = const(c.value("rs")) + periphery.impedance_c(c.value("cs"), w)
         zp = parallel(const(c.value("rp")), periphery.impedance_c(c.value("cp"), w))
         return zp / (zs + zp), (zs + zp).inv()
+
+    def _to_load(self, c: Circuit, cond: Conditions, w: float):
+        """Transfer from the output to the load, V/V: the output stage's and what the
+        reference carries there (periphery.reference_ripple), from the network's current
+        into it (1 / (Zs + Zp)) and the gain network's (Vn / Rg, with Vn = beta Vo)."""
+        beta, y_in = self._network(c, w)
+        y_net = y_in + beta.scale(1.0 / c.value("rg"))
+        return periphery.to_load(c, cond, w) + periphery.reference_ripple(c, cond, w, y_net)
 
     def beta(self, c: Circuit, w_ref: float):
         """The Wien network's transfer Zp / (Zs + Zp) as a rational function of p = s / w_ref."""
