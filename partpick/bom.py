@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -233,7 +234,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
         if col not in header:
             raise BomError(f"missing column '{col}'", source=source, line=rows[0][0])
     idx = {h: i for i, h in enumerate(header)}
-    lines, channels = [], 1
+    lines, channels, described = [], 1, None   # described: the output stage the op-amp's line names
     for (lineno, _), cells in zip(rows[1:], reader[1:]):
         get = lambda name: cells[idx[name]].strip() if idx[name] < len(cells) else ""  # noqa: E731
 
@@ -251,6 +252,8 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
         kind, dim = ROLES[roles[0]]
         if kind == "opamps":
             channels = max(len(refs), 1)  # the op-amp's designators are the channels the circuit uses
+            said = re.search(r"output stage: ([a-z-]+)", get("description")) if "description" in idx else None
+            described = said.group(1) if said and said.group(1) in STAGES else described
         _check_family(catalog, kind, get("family"), lambda m: fail(m, "family"))
         value = 0.0
         if dim:
@@ -273,7 +276,7 @@ def _parse_csv(text: str, source: str, catalog: Catalog) -> Bom:
                                 meta["topology"])
     supply, stage = _shape_of(lines, meta["topology"], channels, meta["control"] or None)
     meta["supply"] = meta["supply"] if "supply" in meta_lines else supply
-    meta["stage"] = meta["stage"] if "stage" in meta_lines else stage
+    meta["stage"] = meta["stage"] if "stage" in meta_lines else (described or stage)
     bom = _complete(_shaped(tuple(lines), meta["supply"], meta["stage"], meta["topology"], meta["control"] or None),
                     lambda m: BomError(m, source=source, line=rows[0][0]))
     return _located(bom, source, {key: meta_lines.get(key, 1) for key in ("topology", "supply", "stage")}

@@ -187,3 +187,17 @@ def test_maker_fields_are_carried_when_the_catalog_has_them(tops, demo_catalog):
 
 def test_every_column_has_a_legend():
     assert set(PURCHASE_COLUMNS) - {"description"} <= set(COLUMN_LEGEND)
+
+
+@pytest.mark.parametrize("name,stage", [(n, s) for n in DEMOS for s in _offered(n)])
+def test_the_purchasing_csv_reads_back_as_the_same_circuit(tops, demo_catalog, name, stage):
+    # a gain stage and a buffered divider use the same parts (a second channel, Ra and Rb):
+    # the op-amp's line names the stage, so `check` on the purchasing CSV judges the circuit
+    # designed, not a gain stage in place of a divider (4.29 Vrms for a 1 Vrms tone)
+    from partpick.bom import parse_bom
+
+    bom = with_stage(tops[name][1].bom, stage)
+    back = parse_bom(bom_to_purchase_csv(bom, demo_catalog), f"{name}.csv", demo_catalog)
+    assert (back.stage, back.supply_kind, back.topology) == (bom.stage, bom.supply_kind, bom.topology)
+    assert sorted((ln.role, ln.family, ln.value) for ln in back.lines) == sorted(
+        (ln.role, ln.family, ln.value) for ln in bom.lines)

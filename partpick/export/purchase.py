@@ -61,10 +61,14 @@ def _ratings(kind: str, fam) -> tuple[str, str, str]:
     return "", "", ""
 
 
-def _description(kind: str, fam, line: PurchaseLine, channels: int) -> str:
+def _description(kind: str, fam, line: PurchaseLine, channels: int, stage: str) -> str:
     text = fam.description or fam.id
     if kind != "opamps":
         return text
+    # a second channel with two stage resistors is a gain stage or a buffered divider: the
+    # parts alone do not tell which, so the op-amp's line says (and the BOM reader reads it)
+    if stage in ("gain", "buffered-attenuator"):
+        text += f"; output stage: {stage}"
     if fam.channels == 1 and channels > 1:
         return f"{text}; single channel: {line.quantity} packages"
     spare = line.quantity * fam.channels - channels      # every package bought, less the channels used
@@ -80,7 +84,7 @@ def purchase_rows(bom: Bom, catalog: Catalog, *, stock=None, builds: int = 1) ->
         tol, tc, rating = _ratings(kind, fam)
         value = value_text(bom.line(line.roles[0])) if dim else ""
         rows.append([",".join(line.refs), ",".join(line.roles), str(line.quantity), value,
-                     _description(kind, fam, line, bom.channels), line.maker, line.maker_part, line.family, tol, tc,
+                     _description(kind, fam, line, bom.channels, bom.stage), line.maker, line.maker_part, line.family, tol, tc,
                      rating, fam.package, f"{line.unit_price:.4f}", f"{line.fee:.4f}", f"{line.order:.4f}",
                      f"{line.cost:.4f}", stock_flag(line, builds, kind)])
     return rows
