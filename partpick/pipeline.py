@@ -161,21 +161,21 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     refusal_of = partial(structural_refusal, spec, catalog, problem, searcher.pairs, _reach(problem),
                          frequency_hold(spec, problem, searcher.best_hold, catalog)[0])
     early = refusal_of()
+    if early is not None and nearest and early[1] == ("load.resistance",) and (rel := load_relaxation(spec, problem)):
+        # the load the message names is stated where the spec with it designs; else the
+        # why-not of that spec, which keeps it (stated as a bound), says what binds next
+        bound = refusal_of(bound=True)[0]
+        try:
+            design(relaxed(spec, rel.field, rel.advice), catalog, stock=stock, results=1, samples=samples, seed=seed,
+                   nearest=nearest, work=work, given=((rel, bound.split("binds: ", 1)[1]),))
+        except InfeasibleError as exc:
+            why_not = exc.message.startswith("no design")   # (else a structural refusal of its own)
+            at = units.format_quantity(rel.advice, "resistance")
+            raise InfeasibleError(exc.message if why_not else f"{bound}\nwith load.resistance at {at}, {exc.message}",
+                                  tuple(dict.fromkeys(early[1] + exc.binding))) from None
     # a frequency tolerance no allowed family pair holds is refused at once by the runs
     # that explain a refusal; the design the user asked for goes on to the why-not, which
     # finds the tolerance a design holds (and the families that would hold this one)
-    if early is not None and nearest and early[1] == ("load.resistance",) and (rel := load_relaxation(spec, problem)):
-        # the load the message names is stated where the spec with it designs; else the
-        # why-not of that spec, which keeps it, says what binds next
-        try:
-            design(relaxed(spec, rel.field, rel.advice), catalog, stock=stock, results=1, samples=samples, seed=seed,
-                   nearest=nearest, work=work, given=((rel, refusal_of(bound=True)[0].split("binds: ", 1)[1]),))
-        except InfeasibleError as exc:
-            first = exc.message.startswith("no design")
-            at = units.format_quantity(rel.advice, "resistance")
-            raise InfeasibleError(exc.message if first else f"{refusal_of(bound=True)[0]}\nwith load.resistance at "
-                                  f"{at}, {exc.message}",
-                                  tuple(dict.fromkeys(early[1] + exc.binding))) from None
     if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
         raise InfeasibleError(*early)
     t1 = time.perf_counter()

@@ -277,10 +277,10 @@ def fixed_parts(spec, catalog, rfams, price, shelf=None) -> tuple[tuple[str, str
     """Single supply: the mid-rail divider, its decoupling and the output coupling
     capacitor (the same for every candidate), as (role, family, value). The
     decoupling's corner lies at a thousandth of the frequency (the largest allowed value
-    where none reaches it). The coupling
-    capacitor is the cheapest allowed one whose corner lies at a tenth of the frequency
-    or below (under 0.5 % loss); when none reaches that (a heavy load at a low
-    frequency), the cheapest of the largest allowed value: its loss
+    where none reaches it). The coupling capacitor is the cheapest allowed one whose
+    corner lies at a tenth of the frequency or below (under 0.5 % loss); when none
+    reaches that (a heavy load at a low frequency), the cheapest of the largest allowed
+    value: its loss
     (:func:`coupling_gain`) and its spread (:func:`coupling_spread`) the search plans
     the amplitude with, and check judges at the load, the capacitor in the circuit."""
     if spec.supply.kind != "single":
