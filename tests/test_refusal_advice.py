@@ -55,6 +55,20 @@ def _advised(advice: str) -> dict:
     return dict(re.findall(r"([a-z_]+\.[a-z_]+) to (?:\+/-)?([\d.]+) %", advice))
 
 
+def _advice_reader():
+    """benchmarks/refusal_advice.py, which bench_coverage --relax reads refusals with."""
+    import importlib
+    import sys
+
+    from tests.conftest import ROOT
+
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    try:
+        return importlib.import_module("refusal_advice")
+    finally:
+        sys.path.remove(str(ROOT / "benchmarks"))
+
+
 def _designs(tmp_path, text: str) -> None:
     relaxed = tmp_path / "r.yaml"
     relaxed.write_text(text)
@@ -118,18 +132,9 @@ def test_the_benchmark_applies_a_joint_advice_together():
     # benchmarks/refusal_advice.py, which bench_coverage --relax reads refusals with:
     # "relax jointly" is one piece of advice, applied whole (each part alone would not
     # design, by what the message says)
-    import importlib
-    import sys
-
     import yaml
 
-    from tests.conftest import ROOT
-
-    sys.path.insert(0, str(ROOT / "benchmarks"))
-    try:
-        ra = importlib.import_module("refusal_advice")
-    finally:
-        sys.path.remove(str(ROOT / "benchmarks"))
+    ra = _advice_reader()
     msg = ("no single requirement binds alone: amplitude.tolerance, yield.min together; the search designs with "
            "them relaxed together (...): relax jointly amplitude.tolerance to +/-17 % and distortion.max_thd to 5.7 %\n"
            "nearest designs (--why-not N shows N):\n  1. tk-1 ...")
@@ -225,11 +230,7 @@ def test_a_load_refusal_states_the_resistance_with_what_binds_next(tmp_path):
     # up to two figures; it was advised as "raise load.resistance to 319.9 ohm", and the spec
     # so relaxed was refused again (the amplitude tolerance binds there). The refusal now
     # states the load as a bound and gives what designs with it, applied together.
-    import importlib
-    import sys
-
     from partpick.catalog import load_catalog
-    from tests.conftest import ROOT
 
     cat = load_catalog(CATALOGS)
     # of the allowed op-amps, those whose supply range takes the 21.6..26.4 V span
@@ -244,11 +245,7 @@ def test_a_load_refusal_states_the_resistance_with_what_binds_next(tmp_path):
     assert refused.exit_code == 1, refused.output
     assert f"a load.resistance under {r_advised:g} Ω cannot design" in refused.output, refused.output
     assert "raise load.resistance" not in refused.output   # the bound alone does not design
-    sys.path.insert(0, str(ROOT / "benchmarks"))
-    try:
-        ra = importlib.import_module("refusal_advice")
-    finally:
-        sys.path.remove(str(ROOT / "benchmarks"))
+    ra = _advice_reader()
     joint = [a for a in ra.parse_refusal(refused.output) if a.field == "joint"]
     assert joint and f"load.resistance={r_advised:g} Ω" in joint[0].value, refused.output
     for advice in ra.parse_refusal(refused.output):
