@@ -546,7 +546,8 @@ def r_limits(op, derating) -> tuple[float, float]:
 _OP_FIELDS = {
     "pull": lambda o: o.pull, "loss": lambda o: o.loss, "swing": lambda o: o.swing_v,
     "current": lambda o: o.opamp.output_current_a, "gbw_spread": lambda o: o.opamp.gbw_spread_frac,
-    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels, }
+    "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels,
+}
 
 
 def _best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
