@@ -17,9 +17,6 @@ import time
 from dataclasses import dataclass, field, replace
 from functools import partial
 
-import numpy as np
-
-
 from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
@@ -33,6 +30,7 @@ from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
 from partpick.search.pool import Pool
 from partpick.forked import fork_map
+from partpick.lookahead import Ahead
 from partpick.refusal import (default_notes, explain_refusal, frequency_hold, held_message, held_tolerance, loosened,
                               load_relaxation, relaxed, relaxed_all, shelf_shortfall, structural_refusal)
 from partpick.search.problem import Problem, build_problem
@@ -59,7 +57,6 @@ REFUSAL_TRANSIENT = 0
 # verification budget: its harmonic balance was solved and failed, which for a JFET
 # control's slow loop costs about as much as verifying several limiter candidates
 SKIP_WEIGHT = 5
-OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 
 
 @dataclass
@@ -187,49 +184,63 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     held: set = set()   # the configurations verified to pass: one design each is shown
     tried: set = set()  # (signature, values) of every candidate verified
     capped = False      # the last phase stopped on its budget
-    for i, phase in enumerate(_phases(spec, catalog, stock, problem, searcher, fixed, nearest is None)):
-        passed = sum(r.verdict.passed for r in verified)
-        if problem.fallback and i and (passed >= n or (passed and capped) or not _control_may_help(verified, spec)):
-            break   # 'auto': the limiter gave the designs asked (or more than its budget shows), or
-            # failed where no control helps
-        t_s = time.perf_counter()
-        batches = phase()
-        t_search += time.perf_counter() - t_s
-        start = len(verified)   # each phase has its own budget (a fallback must get its turn)
-        # a cost-first order that spends its budget on cheap candidates none of which passes
-        # is followed by the yield order, with a budget of its own (the spec designs, if
-        # not at the cheapest)
-        for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
-            pool = Pool(batches, cost_first, _hopeless(spec))
-            searched += pool.size if cost_first == _cost_first(rank_by) else 0   # (the same rows, reordered)
-            attempts = 0   # candidates verified, or skipped for want of transient runs
-            while attempts < budget:
-                c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
-                if c is None or _certified(verified, c, pool, n, rank_by):
+
+    def job(c: Candidate, transient):
+        return _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem, samples,
+                       seed + 1, fixed, transient=transient)
+
+    ahead = Ahead(job, _key)   # (the candidates that follow the one verified, verified on the other CPUs)
+    try:
+        for i, phase in enumerate(_phases(spec, catalog, stock, problem, searcher, fixed, nearest is None)):
+            passed = sum(r.verdict.passed for r in verified)
+            if problem.fallback and i and (passed >= n or (passed and capped) or not _control_may_help(verified, spec)):
+                break   # 'auto': the limiter gave the designs asked (or more than its budget shows), or
+                # failed where no control helps
+            t_s = time.perf_counter()
+            batches = phase()
+            t_search += time.perf_counter() - t_s
+            start = len(verified)   # each phase has its own budget (a fallback must get its turn)
+            # a cost-first order that spends its budget on cheap candidates none of which passes
+            # is followed by the yield order, with a budget of its own (the spec designs, if
+            # not at the cheapest)
+            for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
+                pool = Pool(batches, cost_first, _hopeless(spec))
+                searched += pool.size if cost_first == _cost_first(rank_by) else 0   # (the same rows, reordered)
+                attempts = 0   # candidates verified, or skipped for want of transient runs
+                while attempts < budget:
+                    c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
+                    if c is None or pool.certified(verified, c, n, rank_by):
+                        break
+                    if c.yield_est < _hopeless(spec):
+                        if pool.cost_first:
+                            continue   # (a cheaper candidate with a good yield may still follow)
+                        break   # (the pool comes in yield order: what follows cannot pass either)
+                    if c.signature in held or _key(c) in tried:
+                        continue   # its configuration passes (at another level), or the cost order verified it
+                    tried.add(_key(c))
+                    attempts += 1
+
+                    def next_taken(d: Candidate, c: Candidate = c) -> bool:
+                        """Whether this loop verifies d after c if c changes nothing (whether c
+                        passes or not)."""
+                        return (d.signature not in held and d.signature != c.signature and _key(d) not in tried
+                                and d.yield_est >= _hopeless(spec))
+
+                    r = ahead.verify(c, pool, searcher.simulate, next_taken, work.take)
+                    if r is None:
+                        work.skipped += 1
+                        attempts += SKIP_WEIGHT - 1
+                        continue
+                    verified.append(r)
+                    if r.verdict.passed:
+                        held.add(c.signature)
+                    if progress is not None:
+                        progress(len(verified), max(n, len(verified)))
+                capped = attempts >= budget
+                if any(r.verdict.passed for r in verified[start:]) or not capped:
                     break
-                if c.yield_est < _hopeless(spec):
-                    if pool.cost_first:
-                        continue   # (a cheaper candidate with a good yield may still follow)
-                    break   # (the pool comes in yield order: what follows cannot pass either)
-                key = (c.signature, tuple(sorted(c.values.items())))
-                if c.signature in held or key in tried:
-                    continue   # its configuration passes (at another level), or the cost order verified it
-                tried.add(key)
-                attempts += 1
-                r = _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem,
-                            samples, seed + 1, fixed, transient=work.take)
-                if r is None:
-                    work.skipped += 1
-                    attempts += SKIP_WEIGHT - 1
-                    continue
-                verified.append(r)
-                if r.verdict.passed:
-                    held.add(c.signature)
-                if progress is not None:
-                    progress(len(verified), max(n, len(verified)))
-            capped = attempts >= budget
-            if any(r.verdict.passed for r in verified[start:]) or not capped:
-                break
+    finally:
+        ahead.close()
     t2 = time.perf_counter()
     timings["search"] = t_search
     timings["verify"] = t2 - t1 - t_search
@@ -251,6 +262,11 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                   f"range: swing, slew or current limited) after the {MAX_TRANSIENT} such runs a design "
                   "allows",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
+
+
+def _key(c: Candidate) -> tuple:
+    """What tells candidates apart for verification: the configuration and the values."""
+    return c.signature, tuple(sorted(c.values.items()))
 
 
 def _phases(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, fixed, bare: bool) -> list:
@@ -436,44 +452,6 @@ def _hopeless(spec: Spec) -> float:
     them, 9 s, for an amplitude tolerance of 1 ppm)."""
     y = spec.yield_min_frac
     return max(y - max(0.08, 1.5 * (1 - y)), y / 10)
-
-
-def _certified(verified: list[Ranked], c: Candidate, pool: Pool, n: int, rank_by) -> bool:
-    """Whether the verification may stop before candidate ``c``: n candidates pass, and
-    neither ``c`` nor any candidate left in the pool could beat the n-th of them even if
-    its yield turned out OPTIMISM better than estimated, its frequency landed exactly and
-    its THD a fifth lower. Every candidate left is judged, not only the next: the pool's
-    order (estimated yield, then cost) is not the ranking's, so a cheaper candidate of a
-    slightly lower estimated yield may still tie on yield and win on cost."""
-    passing = rank([r for r in verified if r.verdict.passed], rank_by)
-    if len(passing) < n:
-        return False
-    y, cost, thd = pool.rest()
-    y, cost, thd = np.append(y, c.yield_est), np.append(cost, c.cost), np.append(thd, c.thd)
-    return not _could_beat(y, cost, thd, passing[n - 1], rank_by).any()
-
-
-def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, rank_by) -> np.ndarray:
-    """Which unverified candidates (estimated yield, cost, THD) could rank above ``nth``
-    by the keys rank_by (see _certified for the optimism allowed)."""
-    beat = np.zeros(y.shape, bool)
-    open_ = np.ones(y.shape, bool)      # tied so far: the next key decides
-    for key in tuple(rank_by) + ("cost",):
-        if key == "yield":
-            ours = np.minimum(1.0, y + OPTIMISM)
-            above, below = ours > nth.yield_frac + 0.002, ours < nth.yield_frac - 0.002
-            beat |= open_ & above
-            open_ &= ~above & ~below
-        elif key == "cost":
-            beat |= open_ & (cost < nth.cost)
-            break
-        elif key == "thd":
-            better = 0.8 * thd < nth.thd * 0.95
-            beat |= open_ & better
-            open_ &= ~better
-        # frequency error, amplitude error, margin, parts: refinement makes these
-        # equal to within resolution for any candidate; the next key decides
-    return beat
 
 
 def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed):

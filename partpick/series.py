@@ -18,6 +18,7 @@ which unit, only that it is the plain SI unit without a prefix.
 from __future__ import annotations
 
 import difflib
+import functools
 import math
 
 from partpick.errors import InputError
@@ -171,6 +172,7 @@ def nominal_tolerance(name: str) -> float | None:
     return _TOLERANCES[check_series_name(name)]
 
 
+@functools.lru_cache(maxsize=256)   # (a pure function; the search asks for each family's values often)
 def values_in_range(name: str, lo: float, hi: float) -> tuple[float, ...]:
     """Every series value v with lo <= v <= hi, ascending, in the unit of lo and hi.
 

@@ -80,10 +80,52 @@ def test_a_design_is_the_same_searched_over_two_processes_or_one(monkeypatch):
 
     def ranked():
         d = design(spec, catalog, results=5)
-        return [(r.bom, r.cost, r.verdict.passed, r.yield_frac) for r in d.ranked], d.searched
+        # (verified: the candidates verified ahead on the other CPU change nothing the
+        # loop decides, not even how many it verifies)
+        return [(r.bom, r.cost, r.verdict.passed, r.yield_frac) for r in d.ranked], d.searched, d.verified
 
     two = ranked()
     monkeypatch.setenv("PARTPICK_WORKERS", "1")
     one = ranked()
     assert two == one
     assert len(two[0]) == 5
+
+
+def _square_or_fail(x: int) -> int:
+    if x == 3:
+        raise ValueError("three")
+    time.sleep(0.01 * (x % 3))
+    return x * x
+
+
+def test_helpers_compute_each_item_once_sent_and_report_failures(monkeypatch):
+    """forked.Helpers: workers forked once take items as they are sent; each result is
+    func(item) (here: x squared), an item that raised comes back as _FAILED, and the
+    workers leave on close."""
+    if not hasattr(os, "fork"):
+        pytest.skip("no fork here")
+    h = forked.Helpers(_square_or_fail, 2)
+    try:
+        pending = list(range(8))
+        while pending:
+            if h.submit(("k", pending[0]), pending[0]):
+                pending.pop(0)
+            else:
+                h.wait()
+        got = {x: h.result(("k", x)) for x in range(8)}
+    finally:
+        h.close()
+    assert got[3] is forked._FAILED
+    assert {x: v for x, v in got.items() if x != 3} == {x: x * x for x in range(8) if x != 3}
+    assert h.result(("k", 99)) is forked._FAILED       # never sent
+    assert all(w is None for w in h.workers)
+
+
+def test_helpers_close_does_not_wait_for_a_busy_worker():
+    if not hasattr(os, "fork"):
+        pytest.skip("no fork here")
+    h = forked.Helpers(time.sleep, 1)
+    assert h.submit("long", 30.0)
+    t = time.perf_counter()
+    h.close()
+    assert time.perf_counter() - t < 5.0

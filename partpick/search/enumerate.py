@@ -74,7 +74,10 @@ class Searcher:
         self._ch: dict = {}
         self._stages: dict = {}
         self._sk = None
-        self.stage_tables = {(k, f.id): memo(("stage", k, f, y_load, problem.shelf),
+        # one table per value list (families of one series share it), and the load read only
+        # by the kind whose gain it changes
+        self.stage_tables = {(k, f.id): memo(("stage", k, values_of(f, problem.shelf),
+                                              y_load if k == "attenuator" else None),
                                               lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
                              for k in kinds if k in STAGE_RATIO for f in problem.r_families}
         limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
@@ -163,8 +166,9 @@ class Searcher:
     def _amp_job(self, lim, gf, r_gnd: float):
         """(memo key, maker) of _amp_side's rows."""
         p = self.problem
-        return (("amp", p.topology.name, self.all_outputs, lim, gf, r_gnd, p.shelf, self.f_t, p.temps_k, p.thd_aim,
-                 self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf, r_gnd))
+        # (keyed by the family's values, all the rows read of it: families of one series share them)
+        return (("amp", p.topology.name, self.all_outputs, lim, values_of(gf, p.shelf), r_gnd, self.f_t, p.temps_k,
+                 p.thd_aim, self.ke_bins.tobytes()), lambda: self._amp_rows(lim, gf, r_gnd))
 
     def _amp_rows(self, lim, gf, r_gnd: float):
         p = self.problem
@@ -257,18 +261,19 @@ class Searcher:
             z_core = np.where(vo.max(axis=0) <= osc_max, z_core, -np.inf)
         shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
         cheapest = min(p.r_families, key=lambda f: f.price_unit)
-        for kind in self.kinds:
-            for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values())):
-                res = self._stage_of(lim, gf, r_gnd, kind, sf)
-                if res is None:
-                    continue
-                ratio, ra, rb = (np.broadcast_to(x, m.shape) for x in res[:3])
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    z_amp = res[3] / s_a
-                    score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
-                rows = _best_rows(amp["bin"], score)
+        stages = [(kind, sf, res) for kind in self.kinds
+                  for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values()))
+                  if (res := self._stage_of(lim, gf, r_gnd, kind, sf)) is not None]
+        if stages:
+            with np.errstate(invalid="ignore", divide="ignore"):
+                z_amp = np.stack([np.broadcast_to(res[3], m.shape) for *_, res in stages]) / s_a
+                score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
+            chosen = _best_rows(amp["bin"], score)       # (every stage kind and family at once)
+            for (kind, sf, res), pick in zip(stages, chosen):
+                rows = np.flatnonzero(pick)
                 if rows.size:
-                    out.append((kind, sf, rows, amp["bin"][rows] - shift, ratio[rows], ra[rows], rb[rows]))
+                    ratio, ra, rb = (np.broadcast_to(x, m.shape)[rows] for x in res[:3])
+                    out.append((kind, sf, rows, amp["bin"][rows] - shift, ratio, ra, rb))
         self._ch[key] = (amp, out)
         return amp, out
 
@@ -317,10 +322,10 @@ class Searcher:
         ops = [g[0] for g in groups]
         kinds = np.array([periphery.STAGE_KINDS.index(g[1]) for g in groups])[g_row]
         return self._score(lim, gf, amp, groups, g_row, kinds, arow[row], ratio[row], ra[row], rb[row],
-                           pair_i, vals, ln_k, ln_f0, sig_k, sig_f, drift, arm_cost,
+                           pair_i, arm, vals, ln_k, ln_f0, sig_k, sig_f, drift, arm_cost,
                            {name: np.array([f(o) for o in ops])[g_row] for name, f in self._op_fields.items()})
 
-    def _score(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, vals, ln_k, ln_f0, sig_k,
+    def _score(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, arm, vals, ln_k, ln_f0, sig_k,
                sig_f, drift, arm_cost, op) -> "Batch | None":
         """Estimated figures of every matched row, and the best row of each
         configuration (group x arm family pair) with its exact cost."""
@@ -331,8 +336,15 @@ class Searcher:
         k = np.exp(ln_k + op["loss"])
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
-        ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb, k), topo.port_conductance_slope(r_gnd, r_fb, k),
-                              topo.osc_per_port_k(k), m, ird, thd_scale=topo.thd_transfer(k, vals, all_outputs=self.all_outputs))
+        # the limiter's figures once per distinct (amplitude row, arm set, op-amp loss): the
+        # stage kinds and families of one op-amp mostly pick the same rows
+        loss_i = np.unique(op["loss"], return_inverse=True)[1]
+        key = ((arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm) * (int(loss_i.max()) + 1) + loss_i
+        _, u, back = np.unique(key, return_index=True, return_inverse=True)
+        ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(r_gnd, r_fb[u], k[u]),
+                              topo.osc_per_port_k(k[u]), m[u], ird[u],
+                              thd_scale=topo.thd_transfer(k[u], vals[u], all_outputs=self.all_outputs))
+        ev = {name: x[back] for name, x in ev.items()}
         vo = np.stack([ev[f"vo{i}"] for i in range(3)])
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
@@ -368,7 +380,7 @@ class Searcher:
         cfg_of = np.array([same.setdefault((g[0].id, g[1]), len(same)) for g in groups])
         config = cfg_of[g_row[idx]] * len(self.pairs) + pair_i[idx]
         tier = np.floor((1.0 - y[idx]) / YIELD_STEP)
-        order = idx[np.lexsort((np.abs(err[idx]), arm_cost[idx], tier, config))]
+        keys = (tier, arm_cost[idx], np.abs(err[idx]))
 
         def slots(rows):
             """(columns, op-amp per row, packages per row) of the passive slots (see
@@ -385,14 +397,18 @@ class Searcher:
             chans = np.array([groups[g][0].opamp.channels for g in g_row[rows]])
             return columns, ops, -(-(topo.channels + buffered[rows].astype(int)) // chans)
 
-        if p.shelf is not None and order.size:
+        if p.shelf is None:
+            i = idx[_first_of_groups(config, keys)]      # the best row of each configuration
+        else:
             # building from the shelf alone: a row must find every part in the quantity
-            # its boards need (a value in three slots needs three a board)
+            # its boards need (a value in three slots needs three a board): the rows in
+            # order, the first that fits of each configuration
+            order = idx[np.lexsort(keys[::-1] + (config,))]
             order = order[self.price.fits(*slots(order), lim.id, p.shelf, p.spec.builds)]
             if order.size == 0:
                 return None
-        cfg = cfg_of[g_row[order]] * len(self.pairs) + pair_i[order]
-        i = order[np.r_[True, cfg[1:] != cfg[:-1]]]      # the best row of each configuration
+            cfg = cfg_of[g_row[order]] * len(self.pairs) + pair_i[order]
+            i = order[np.r_[True, cfg[1:] != cfg[:-1]]]
         cost = self.price.row_costs(*slots(i), lim.id)
         return Batch(self, lim, gf, r_gnd, groups, g_row[i], pair_i[i], vals[i], r_fb[i], ird[i], ra[i], rb[i], err[i],
                      load[:, i], vo[1, i], ev["thd"][i], m[i], y[i], ev["dln_vo"][i], ev["dthd"][i], ev["pull"][i],
@@ -550,24 +566,43 @@ _OP_FIELDS = {
 }
 
 
+def _first_of_groups(groups: np.ndarray, keys: tuple[np.ndarray, ...]) -> np.ndarray:
+    """Position of the smallest row of each group by the keys compared in turn (the
+    first key first; NaN as +inf; equal rows: the first), groups ascending: what the
+    first row of each group of ``np.lexsort(keys[::-1] + (groups,))`` is, in linear time
+    (the stable sort of every row costs more than the search's scoring)."""
+    sel = np.arange(groups.size)
+    if groups.size == 0:
+        return sel
+    for key in keys:      # (groups: small non-negative integers, the index of a table of minima)
+        k = np.where(np.isnan(key[sel]), np.inf, key[sel])
+        best = np.full(int(groups.max()) + 1, np.inf)
+        np.minimum.at(best, groups[sel], k)
+        sel = sel[k == best[groups[sel]]]
+    _, first = np.unique(groups[sel], return_index=True)
+    return sel[first]
+
+
 def _best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
     """The amplitude-side rows worth matching with arm sets: per K bin (rows sorted by
-    bin), the best ``keep`` by score (the smallest margin in standard deviations), in
-    row order."""
-    idx = np.flatnonzero(np.isfinite(score))
-    if idx.size == 0:
-        return idx
-    b = bins[idx]
-    starts = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
-    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, b.size]))
-    work = score[idx].copy()
-    chosen = []
+    bin), the best ``keep`` by score (the smallest margin in standard deviations; of
+    equal ones, the first), for each line of score (groups x rows): a mask of the rows
+    chosen per group. Non-finite scores are never chosen."""
+    work = np.where(np.isfinite(score), score, -np.inf)
+    chosen = np.zeros(work.shape, bool)
+    if bins.size == 0:
+        return chosen
+    starts = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
+    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, bins.size]))
     for _ in range(keep):
-        top = np.maximum.reduceat(work, starts)
-        hit = np.flatnonzero((work == top[seg]) & np.isfinite(work))
-        if hit.size == 0:
+        top = np.maximum.reduceat(work, starts, axis=-1)
+        hit = (work == top[..., seg]) & np.isfinite(work)
+        # the first hit of each bin: the hits counted from the bin's start
+        count = np.cumsum(hit, axis=-1)
+        before = np.concatenate([np.zeros(count.shape[:-1] + (1,), count.dtype), count[..., starts[1:] - 1]], axis=-1)
+        first = hit & (count - before[..., seg] == 1)
+        if not first.any():
             break
-        first = hit[np.r_[True, seg[hit][1:] != seg[hit][:-1]]]
-        chosen.append(idx[first])
+        chosen |= first
         work[first] = -np.inf
-    return np.sort(np.concatenate(chosen)) if chosen else idx[:0]
+    return chosen

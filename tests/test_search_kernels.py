@@ -1,0 +1,103 @@
+"""The search's array kernels and its candidate pool against plain references.
+
+- ``_first_of_groups`` (the best row of each configuration in linear time) against
+  numpy's ``lexsort`` (a stable sort by the same keys, the first row of each group);
+- ``_best_rows`` (the best two amplitude-side rows of each K bin, every stage kind at
+  once) against a plain loop over each group and bin;
+- ``Pool.peek`` (the verification's look-ahead) against the pool without it: the
+  candidates next() gives and the figures rest() reports are the same with or without
+  looks in between.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+from hypothesis import given
+from hypothesis import strategies as st
+
+from partpick.search.candidates import YIELD_STEP, Candidate
+from partpick.search.enumerate import _best_rows, _first_of_groups
+from partpick.search.pool import Pool
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 400), st.integers(1, 40))
+def test_first_of_groups_is_the_first_row_of_each_group_of_a_stable_lexsort(seed, n, groups):
+    rng = np.random.default_rng(seed)
+    g = rng.integers(0, groups, n) * 3          # (sparse group numbers, as configurations are)
+    # few distinct values, so that ties on the first keys are common; NaN as the largest
+    k1 = rng.integers(0, 3, n).astype(float)
+    k2 = rng.choice([0.5, 1.25, 2.0], n)
+    k3 = rng.choice([0.0, 0.1, np.nan, 0.3], n)
+    order = np.lexsort((np.where(np.isnan(k3), np.inf, k3), k2, k1, g))
+    want = order[np.r_[True, g[order][1:] != g[order][:-1]]]
+    assert _first_of_groups(g, (k1, k2, k3)).tolist() == want.tolist()
+
+
+def _best_rows_loop(bins, score, keep=2):
+    out = []
+    for line in score:
+        chosen = []
+        for b in np.unique(bins):
+            rows = [i for i in np.flatnonzero(bins == b) if np.isfinite(line[i])]
+            rows.sort(key=lambda i: (-line[i], i))        # best first; of equal ones, the first
+            chosen += rows[:keep]
+        out.append(sorted(chosen))
+    return out
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(0, 120), st.integers(1, 5))
+def test_best_rows_of_every_group_at_once_equal_a_loop_per_group_and_bin(seed, n, groups):
+    rng = np.random.default_rng(seed)
+    bins = np.sort(rng.integers(0, 12, n))
+    score = rng.choice([-np.inf, np.inf, np.nan, 0.5, 1.0, 1.5, 2.0], (groups, n))
+    got = _best_rows(bins, score)
+    assert [np.flatnonzero(m).tolist() for m in got] == _best_rows_loop(bins, score)
+
+
+@dataclass
+class _Batch:
+    """Rows with the figures Pool reads (a stand-in for search.candidates.Batch)."""
+
+    y: np.ndarray
+    cost: np.ndarray
+    err: np.ndarray
+    thd: np.ndarray
+
+    def __len__(self):
+        return self.y.size
+
+    def keys(self):
+        return np.floor((1.0 - self.y) / YIELD_STEP), self.cost, np.abs(self.err)
+
+    def candidate(self, i):
+        return Candidate(("row", id(self), i), {"r": float(i)}, {}, {}, yield_est=float(self.y[i]),
+                         cost=float(self.cost[i]), err=float(self.err[i]), thd=float(self.thd[i]))
+
+
+def _simulate(c):
+    # a deterministic re-placement: some candidates come out better, some worse
+    shift = ((hash(c.signature) % 7) - 3) * 0.004
+    return replace(c, yield_est=min(1.0, max(0.0, c.yield_est + shift)), simulated=True)
+
+
+@given(st.integers(0, 2**31 - 1), st.booleans())
+def test_a_look_ahead_leaves_the_pool_as_it_was(seed, cost_first):
+    rng = np.random.default_rng(seed)
+    batches = [_Batch(rng.uniform(0.9, 1.0, n), rng.choice([1.0, 1.5, 2.0, 3.0], n), rng.normal(0, 0.01, n),
+                      rng.uniform(0, 0.02, n)) for n in rng.integers(1, 30, 3)]
+
+    def walk(peeks: bool):
+        pool = Pool(batches, cost_first)
+        seen = []
+        while True:
+            if peeks:
+                pool.peek(_simulate, int(rng.integers(1, 4)), lambda c: c.signature[2] % 2 == 0, 8)
+            rest = [x.tolist() for x in pool.rest()]
+            c = pool.next(_simulate)
+            if c is None:
+                return seen
+            seen.append((c.signature, c.yield_est, sorted(map(sorted, rest))))
+
+    assert walk(True) == walk(False)
