@@ -16,7 +16,7 @@ import select
 import signal
 import struct
 
-__all__ = ["workers", "spread", "fork_map", "Helpers"]
+__all__ = ["workers", "spread", "fork_map", "Helpers", "FAILED"]
 
 _IN_WORKER = False   # set in a forked worker: its own work stays in it
 
@@ -98,7 +98,7 @@ def fork_map(func, items) -> list:
     return [results[i] if i in results else func(items[i]) for i in range(len(items))]
 
 
-_FAILED = object()   # a helper's item that raised, or whose result did not pickle
+FAILED = object()   # a helper's item that raised, or whose result did not pickle
 
 
 class Helpers:
@@ -114,7 +114,7 @@ class Helpers:
         self.func = func
         self.workers: list[tuple[int, object, object]] = []   # (pid, task writer, result reader)
         self.busy: dict[int, object] = {}                     # worker index -> key of its item
-        self.done: dict = {}                                  # key -> result (or _FAILED)
+        self.done: dict = {}                                  # key -> result (or FAILED)
         for _ in range(count):
             task_r, task_w = os.pipe()
             res_r, res_w = os.pipe()
@@ -188,11 +188,11 @@ class Helpers:
                 self._receive(i)
 
     def result(self, key):
-        """The result of the item sent under key, waited for; _FAILED when it raised (or
+        """The result of the item sent under key, waited for; FAILED when it raised (or
         its worker was lost)."""
         while key not in self.done:
             if key not in self.busy.values():
-                return _FAILED
+                return FAILED
             self.wait()
         return self.done.pop(key)
 
@@ -205,12 +205,12 @@ class Helpers:
         except Exception:
             self._lost(i)
             return
-        self.done[key] = value if ok else _FAILED
+        self.done[key] = value if ok else FAILED
         del self.busy[i]
 
     def _lost(self, i: int) -> None:
         if i in self.busy:
-            self.done[self.busy.pop(i)] = _FAILED
+            self.done[self.busy.pop(i)] = FAILED
         self._stop(i)
 
     def _stop(self, i: int) -> None:

@@ -13,7 +13,7 @@ look-ahead the loop does not take is only work lost on another CPU)."""
 
 from __future__ import annotations
 
-from partpick.forked import _FAILED, Helpers, spread
+from partpick.forked import FAILED, Helpers, spread
 
 __all__ = ["LOOK", "Ahead"]
 
@@ -60,4 +60,4 @@ class Ahead:
         for d in more:
             h.submit(self.key_of(d), d)
         r = h.result(key)
-        return r if r is not None and r is not _FAILED else self.job(c, transient)
+        return r if r is not None and r is not FAILED else self.job(c, transient)

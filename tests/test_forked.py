@@ -100,7 +100,7 @@ def _square_or_fail(x: int) -> int:
 
 def test_helpers_compute_each_item_once_sent_and_report_failures(monkeypatch):
     """forked.Helpers: workers forked once take items as they are sent; each result is
-    func(item) (here: x squared), an item that raised comes back as _FAILED, and the
+    func(item) (here: x squared), an item that raised comes back as FAILED, and the
     workers leave on close."""
     if not hasattr(os, "fork"):
         pytest.skip("no fork here")
@@ -115,9 +115,9 @@ def test_helpers_compute_each_item_once_sent_and_report_failures(monkeypatch):
         got = {x: h.result(("k", x)) for x in range(8)}
     finally:
         h.close()
-    assert got[3] is forked._FAILED
+    assert got[3] is forked.FAILED
     assert {x: v for x, v in got.items() if x != 3} == {x: x * x for x in range(8) if x != 3}
-    assert h.result(("k", 99)) is forked._FAILED       # never sent
+    assert h.result(("k", 99)) is forked.FAILED       # never sent
     assert all(w is None for w in h.workers)
 
 

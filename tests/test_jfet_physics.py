@@ -263,3 +263,56 @@ def test_averaged_hold_level_is_the_root_of_the_net_current(demo_catalog, positi
 
     ref = brentq(net, offset - amp - 1.0, offset + amp + 1.0, xtol=1e-13)
     assert _level(det, amp, offset) == pytest.approx(ref, abs=1e-9)
+
+
+@pytest.mark.parametrize("r_ser,r_la,r_lb,z_ctl", [
+    (0.0, math.inf, 0.0, None),                 # the gate on an ideal control voltage
+    (2.2e3, 100e3, 0.0, None),                  # a series resistor, linearising feedback
+    (1e3, 220e3, 47e3, None),                   # the gate fed through a resistor
+    (1e3, 220e3, 47e3, "rc"),                   # ... from a control node with an RC impedance
+])
+def test_branch_response_is_the_nodal_solution_of_its_circuit(part, r_ser, r_la, r_lb, z_ctl):
+    """branch_at (the control loop's branch in complex arithmetic) against Kirchhoff's
+    current law at the drain and gate nodes solved as a linear system (numpy.linalg), and
+    against the rational functions of branch_network at the same points. Nodes: port V
+    -- r_ser -- drain; channel gds Vd + gm Vg + J to the source (0 V); Y1 drain-gate
+    (Cgd, ggd, 1/r_la); Y2 gate-source (Cgs, ggs); Y3 gate to the control voltage E
+    through r_lb and the control node's impedance."""
+    from partpick.physics.jfet import SmallSignal, VcrBranch, branch_at, branch_network
+    from partpick.physics.rational import Rational
+
+    w_ref = 2 * math.pi * 1e3
+    zc = Rational(np.array([10e3]), np.array([1.0, 10e3 * 1e-6 * w_ref])) if z_ctl else None  # 10 k || 1 uF
+    b = VcrBranch(jfet_at(part, 298.15), r_ser, r_la, r_lb, zc)
+    ss = SmallSignal(gds=2.0e-3, gm=1.5e-3, ggs=1e-9, ggd=2e-9, vd_v=0.0, vg_v=-1.0)
+    p = np.array([0.0, 1j, 2j, 3j, 5j])
+    got = branch_at(b, w_ref, ss, p)
+    net = branch_network(b, w_ref, ss)
+    for value, rational in zip(got, (net.y, net.t_j, net.t_e, net.k_g, net.e_g)):
+        np.testing.assert_allclose(value, rational(p), rtol=1e-11, atol=1e-18)
+    q = b.jfet
+    for k, pk in enumerate(p):
+        s = w_ref * pk
+        y1 = s * q.cgd_f + ss.ggd + (1 / r_la if math.isfinite(r_la) else 0.0)
+        y2 = s * q.cgs_f + ss.ggs
+        z3 = r_lb + (zc(pk) if zc else 0.0)
+        y3 = 0.0 if (r_lb == 0 and zc is None) else 1 / z3
+        for drive, want in (((1, 0, 0), got[0][k]), ((0, 1, 0), got[1][k]), ((0, 0, 1), got[2][k])):
+            v, j, e = drive
+            if r_lb == 0 and zc is None:      # the gate is the control node: Vg = E
+                # unknowns Vd, I: I = (V - Vd)/r_ser (or Vd = V), KCL at the drain
+                vg = e
+                if r_ser == 0:
+                    vd = v
+                    i = ss.gds * vd + ss.gm * vg + j + y1 * (vd - vg)
+                else:
+                    vd = (v / r_ser - ss.gm * vg - j + y1 * vg) / (1 / r_ser + ss.gds + y1)
+                    i = (v - vd) / r_ser
+            else:
+                # unknowns Vd, Vg, I
+                a = np.array([[1 / r_ser + ss.gds + y1, ss.gm - y1, 0],
+                              [-y1, y1 + y2 + y3, 0],
+                              [1 / r_ser, 0, 1]], dtype=complex)
+                rhs = np.array([v / r_ser - j, y3 * e, v / r_ser], dtype=complex)
+                vd, vg, i = np.linalg.solve(a, rhs)
+            assert abs(i - want) <= 1e-9 * max(abs(want), 1e-12), (drive, pk, i, want)

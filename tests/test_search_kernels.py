@@ -1,8 +1,8 @@
 """The search's array kernels and its candidate pool against plain references.
 
-- ``_first_of_groups`` (the best row of each configuration in linear time) against
+- ``first_of_groups`` (the best row of each configuration in linear time) against
   numpy's ``lexsort`` (a stable sort by the same keys, the first row of each group);
-- ``_best_rows`` (the best two amplitude-side rows of each K bin, every stage kind at
+- ``best_rows`` (the best two amplitude-side rows of each K bin, every stage kind at
   once) against a plain loop over each group and bin;
 - ``Pool.peek`` (the verification's look-ahead) against the pool without it: the
   candidates next() gives and the figures rest() reports are the same with or without
@@ -18,12 +18,12 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from partpick.search.candidates import YIELD_STEP, Candidate
-from partpick.search.enumerate import _best_rows, _first_of_groups
+from partpick.search.kernels import best_rows, first_of_groups
 from partpick.search.pool import Pool
 
 
 @given(st.integers(0, 2**31 - 1), st.integers(1, 400), st.integers(1, 40))
-def test_first_of_groups_is_the_first_row_of_each_group_of_a_stable_lexsort(seed, n, groups):
+def testfirst_of_groups_is_the_first_row_of_each_group_of_a_stable_lexsort(seed, n, groups):
     rng = np.random.default_rng(seed)
     g = rng.integers(0, groups, n) * 3          # (sparse group numbers, as configurations are)
     # few distinct values, so that ties on the first keys are common; NaN as the largest
@@ -32,7 +32,7 @@ def test_first_of_groups_is_the_first_row_of_each_group_of_a_stable_lexsort(seed
     k3 = rng.choice([0.0, 0.1, np.nan, 0.3], n)
     order = np.lexsort((np.where(np.isnan(k3), np.inf, k3), k2, k1, g))
     want = order[np.r_[True, g[order][1:] != g[order][:-1]]]
-    assert _first_of_groups(g, (k1, k2, k3)).tolist() == want.tolist()
+    assert first_of_groups(g, (k1, k2, k3)).tolist() == want.tolist()
 
 
 def _best_rows_loop(bins, score, keep=2):
@@ -52,7 +52,7 @@ def test_best_rows_of_every_group_at_once_equal_a_loop_per_group_and_bin(seed, n
     rng = np.random.default_rng(seed)
     bins = np.sort(rng.integers(0, 12, n))
     score = rng.choice([-np.inf, np.inf, np.nan, 0.5, 1.0, 1.5, 2.0], (groups, n))
-    got = _best_rows(bins, score)
+    got = best_rows(bins, score)
     assert [np.flatnonzero(m).tolist() for m in got] == _best_rows_loop(bins, score)
 
 

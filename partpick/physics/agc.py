@@ -42,7 +42,7 @@ import numpy as np
 from partpick.catalog import OpAmp
 from partpick.physics.detector import Detector, HoldState, hold_waveform
 from partpick.physics.harmonic import BalanceResult
-from partpick.physics.jfet import JfetBranch, VcrBranch, branch_network, channel, dc_point, small_signal
+from partpick.physics.jfet import JfetBranch, VcrBranch, branch_at, channel, dc_point, small_signal
 from partpick.physics.junction import Junction
 from partpick.physics.loop import Loop
 from partpick.physics.opamp import loop_figures, open_loop_gain, output_resistance
@@ -237,8 +237,7 @@ class _Problem:
         pk = 1j * self.ks
         j = np.zeros(self.ks.size, dtype=complex)
         for _ in range(40):
-            net = branch_network(vcr, w, ss)
-            y, tj, te, kg, eg = (r(pk) for r in (net.y, net.t_j, net.t_e, net.k_g, net.e_g))
+            y, tj, te, kg, eg = branch_at(vcr, w, ss, pk)
             src = tj * j + te * e
             v = np.zeros(self.ks.size, dtype=complex)
             v[0] = (amp - ci * src[0]) / (cv + ci * y[0])
@@ -258,12 +257,11 @@ class _Problem:
         # DC: the branch's current with the port at 0 V (its operating point, and the
         # mean the nonlinear channel adds) through the network to the output
         i_op = -vd0 / vcr.r_ser_ohm if vcr.r_ser_ohm > 0 else float(channel(vcr.jfet, vd0, vg0)[0])
-        net0 = branch_network(vcr, w, ss)
+        y0, tj0 = (complex(x[0]) for x in branch_at(vcr, w, ss, np.zeros(1))[:2])
         extra = float(np.mean(ich)) - float(channel(vcr.jfet, vd0, vg0)[0])
-        s0 = i_op + float(np.real(net0.t_j(0.0))) * extra
+        s0 = i_op + tj0.real * extra
         p0 = np.zeros(1, dtype=complex)
         al0, ga0 = (complex(x[0]) for x in self.loop.coefficients(p0))
-        y0 = complex(net0.y(0.0))
         v0 = -ga0 * s0 / (al0 + ga0 * y0)
         dc = float(np.real(self.loop.probe("osc", p0, np.array([v0]), np.array([y0 * v0 + s0]))[0]))
         return {"v": v, "i": i_port, "y": y, "src": src, "vds": vds, "vgs_dc": vg0, "ich": ich, "dc": dc}

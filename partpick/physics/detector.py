@@ -59,9 +59,11 @@ class Detector:
     def into_hold(self, v_out, v_hold):
         """Diode current into the hold node (A) and its derivative in the hold voltage
         (S), for output and hold voltages (V, arrays)."""
+        from scipy.special import wrightomega   # (the detector's solvers load scipy: compiled, 3-10x faster)
+
         j = self.junction
         vf = v_out - v_hold if self.positive else v_hold - v_out
-        i = j.current(vf)
+        i = j.current(vf, wrightomega)
         gd = (i + j.is_a) / (j.n * j.vt)
         g = gd / (1.0 + gd * j.rs_ohm)
         return (i, -g) if self.positive else (-i, -g)
@@ -82,19 +84,21 @@ class HoldState:
 
 
 def _cyclic(d: np.ndarray, c: float, rhs: np.ndarray) -> np.ndarray:
-    """Solve d_i x_i - c x_{i-1} = rhs_i with x_{-1} = x_{M-1}: the forward recurrence
-    x_i = a_i + b_i x_{M-1}, then periodicity fixes x_{M-1}."""
-    a = np.empty(d.size)
-    b = np.empty(d.size)
-    ap, bp = 0.0, 1.0
-    dl, rl = d.tolist(), rhs.tolist()
-    for i in range(d.size):
-        ap = (rl[i] + c * ap) / dl[i]
-        bp = c * bp / dl[i]
-        a[i] = ap
-        b[i] = bp
-    last = a[-1] / (1.0 - b[-1])
-    return a + b * last
+    """Solve d_i x_i - c x_{i-1} = rhs_i with x_{-1} = x_{M-1}: x_i = a_i + b_i x_{M-1}
+    with a and b the solutions of the lower bidiagonal system for rhs and for x_{-1} = 1
+    (LAPACK's tridiagonal solver dgtsv, both at once: the forward recurrence in compiled
+    code), then periodicity fixes x_{M-1}."""
+    from scipy.linalg import lapack   # (here: only a design with a detector loads scipy)
+
+    n = d.size
+    both = np.zeros((n, 2))
+    both[:, 0] = rhs
+    both[0, 1] = c
+    *_, x, info = lapack.dgtsv(np.full(n - 1, -c), np.array(d, float), np.zeros(n - 1), both)
+    if info != 0:
+        raise FloatingPointError(f"singular hold system (dgtsv info {info})")
+    a, b = x[:, 0], x[:, 1]
+    return a + b * (a[-1] / (1.0 - b[-1]))
 
 
 _GL_X, _GL_W = np.polynomial.legendre.leggauss(48)

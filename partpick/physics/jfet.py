@@ -38,7 +38,7 @@ from partpick.physics.junction import thermal_voltage
 from partpick.physics.rational import Rational, const
 
 __all__ = ["T0_K", "JfetParams", "jfet_at", "channel", "gate_junction", "channel_conductance", "VcrBranch",
-           "SmallSignal", "dc_point", "small_signal", "branch_network", "JfetBranch"]
+           "SmallSignal", "dc_point", "small_signal", "branch_network", "branch_at", "JfetBranch"]
 
 T0_K = 298.15
 _E = math.e
@@ -240,6 +240,30 @@ def branch_network(b: VcrBranch, w_ref: float, ss: SmallSignal) -> _Network:
     tc = (const(ss.gm) - y1) * e_g
     den = (one + yd.scale(b.r_ser_ohm)).inv()
     return _Network(yd * den, den, tc * den, k_g, e_g, b.r_ser_ohm)
+
+
+def branch_at(b: VcrBranch, w_ref: float, ss: SmallSignal, p) -> tuple[np.ndarray, ...]:
+    """The branch's linear response at the points ``p`` (= s / w_ref; complex array):
+    (y, t_j, t_e, k_g, e_g) of :func:`branch_network` evaluated there, by the same nodal
+    equations in complex arithmetic (no rationals built: the harmonic balance of the
+    control loop asks for these at a few harmonics tens of thousands of times)."""
+    q = b.jfet
+    p = np.asarray(p, dtype=complex)
+    s = w_ref * p
+    y1 = s * q.cgd_f + (ss.ggd + (1.0 / b.r_la_ohm if b.linearised else 0.0))
+    y2 = s * q.cgs_f + ss.ggs
+    if b.r_lb_ohm == 0 and b.z_ctl is None:
+        k_g, e_g = np.zeros_like(p), np.ones_like(p)           # the gate is the control voltage
+    else:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z3 = b.r_lb_ohm + (0.0 if b.z_ctl is None else b.z_ctl(p))
+            y3 = np.where(np.isinf(z3), 0.0, 1.0 / z3)          # (a control node open at DC)
+        tot = y1 + y2 + y3
+        k_g, e_g = y1 / tot, y3 / tot
+    yd = ss.gds + ss.gm * k_g + y1 * (1.0 - k_g)
+    tc = (ss.gm - y1) * e_g
+    den = 1.0 / (1.0 + b.r_ser_ohm * yd)
+    return yd * den, den, tc * den, k_g, e_g
 
 
 class JfetBranch:

@@ -126,8 +126,10 @@ class Junction:
         qd, cd = self.depletion(v - i * self.rs_ohm)
         return qd + self.tt_s * i, cd * (1.0 - self.rs_ohm * g) + self.tt_s * g
 
-    def current(self, v: np.ndarray) -> np.ndarray:
-        """Current through the junction plus its series resistance at terminal voltage v (V), A."""
+    def current(self, v: np.ndarray, omega=wright_omega) -> np.ndarray:
+        """Current through the junction plus its series resistance at terminal voltage v (V), A.
+        ``omega``: the Wright omega function used (scipy.special.wrightomega where scipy
+        is loaded anyway: the same function, compiled)."""
         v = np.asarray(v, dtype=float)
         nvt = self.n * self.vt
         if self.rs_ohm < RS_NEGLIGIBLE:
@@ -135,7 +137,7 @@ class Junction:
             # drop is nothing anyway: the plain Shockley equation
             return self.is_a * np.expm1(np.minimum(v / nvt, 700.0))
         z = math.log(self.is_a * self.rs_ohm / nvt) + (v + self.is_a * self.rs_ohm) / nvt
-        return nvt / self.rs_ohm * wright_omega(z) - self.is_a
+        return nvt / self.rs_ohm * omega(z) - self.is_a
 
     def voltage(self, i: np.ndarray) -> np.ndarray:
         """Terminal voltage at current i (A, > -Is), V: n Vt ln(1 + i/Is) + i Rs."""

@@ -34,6 +34,7 @@ from partpick.derating import bias_r_max, package_limit
 from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
+from partpick.search.kernels import best_rows, first_of_groups
 from partpick.search.prices import PriceBook
 from partpick.search.problem import REF_T, Problem
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
@@ -268,7 +269,7 @@ class Searcher:
             with np.errstate(invalid="ignore", divide="ignore"):
                 z_amp = np.stack([np.broadcast_to(res[3], m.shape) for *_, res in stages]) / s_a
                 score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
-            chosen = _best_rows(amp["bin"], score)       # (every stage kind and family at once)
+            chosen = best_rows(amp["bin"], score)       # (every stage kind and family at once)
             for (kind, sf, res), pick in zip(stages, chosen):
                 rows = np.flatnonzero(pick)
                 if rows.size:
@@ -398,7 +399,7 @@ class Searcher:
             return columns, ops, -(-(topo.channels + buffered[rows].astype(int)) // chans)
 
         if p.shelf is None:
-            i = idx[_first_of_groups(config, keys)]      # the best row of each configuration
+            i = idx[first_of_groups(config, keys)]      # the best row of each configuration
         else:
             # building from the shelf alone: a row must find every part in the quantity
             # its boards need (a value in three slots needs three a board): the rows in
@@ -564,45 +565,3 @@ _OP_FIELDS = {
     "current": lambda o: o.opamp.output_current_a, "gbw_spread": lambda o: o.opamp.gbw_spread_frac,
     "iq": lambda o: o.opamp.quiescent_current_a, "channels": lambda o: o.opamp.channels,
 }
-
-
-def _first_of_groups(groups: np.ndarray, keys: tuple[np.ndarray, ...]) -> np.ndarray:
-    """Position of the smallest row of each group by the keys compared in turn (the
-    first key first; NaN as +inf; equal rows: the first), groups ascending: what the
-    first row of each group of ``np.lexsort(keys[::-1] + (groups,))`` is, in linear time
-    (the stable sort of every row costs more than the search's scoring)."""
-    sel = np.arange(groups.size)
-    if groups.size == 0:
-        return sel
-    for key in keys:      # (groups: small non-negative integers, the index of a table of minima)
-        k = np.where(np.isnan(key[sel]), np.inf, key[sel])
-        best = np.full(int(groups.max()) + 1, np.inf)
-        np.minimum.at(best, groups[sel], k)
-        sel = sel[k == best[groups[sel]]]
-    _, first = np.unique(groups[sel], return_index=True)
-    return sel[first]
-
-
-def _best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
-    """The amplitude-side rows worth matching with arm sets: per K bin (rows sorted by
-    bin), the best ``keep`` by score (the smallest margin in standard deviations; of
-    equal ones, the first), for each line of score (groups x rows): a mask of the rows
-    chosen per group. Non-finite scores are never chosen."""
-    work = np.where(np.isfinite(score), score, -np.inf)
-    chosen = np.zeros(work.shape, bool)
-    if bins.size == 0:
-        return chosen
-    starts = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
-    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, bins.size]))
-    for _ in range(keep):
-        top = np.maximum.reduceat(work, starts, axis=-1)
-        hit = (work == top[..., seg]) & np.isfinite(work)
-        # the first hit of each bin: the hits counted from the bin's start
-        count = np.cumsum(hit, axis=-1)
-        before = np.concatenate([np.zeros(count.shape[:-1] + (1,), count.dtype), count[..., starts[1:] - 1]], axis=-1)
-        first = hit & (count - before[..., seg] == 1)
-        if not first.any():
-            break
-        chosen |= first
-        work[first] = -np.inf
-    return chosen

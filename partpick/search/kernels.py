@@ -1,0 +1,51 @@
+"""Array kernels of the search's enumeration (:mod:`partpick.search.enumerate`): the
+best row of each configuration, and the amplitude-side rows worth matching with arm
+sets, each in linear time over numpy arrays."""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["first_of_groups", "best_rows"]
+
+
+def first_of_groups(groups: np.ndarray, keys: tuple[np.ndarray, ...]) -> np.ndarray:
+    """Position of the smallest row of each group by the keys compared in turn (the
+    first key first; NaN as +inf; equal rows: the first), groups ascending: what the
+    first row of each group of ``np.lexsort(keys[::-1] + (groups,))`` is, in linear time
+    (the stable sort of every row costs more than the search's scoring)."""
+    sel = np.arange(groups.size)
+    if groups.size == 0:
+        return sel
+    for key in keys:      # (groups: small non-negative integers, the index of a table of minima)
+        k = np.where(np.isnan(key[sel]), np.inf, key[sel])
+        best = np.full(int(groups.max()) + 1, np.inf)
+        np.minimum.at(best, groups[sel], k)
+        sel = sel[k == best[groups[sel]]]
+    _, first = np.unique(groups[sel], return_index=True)
+    return sel[first]
+
+
+def best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
+    """The amplitude-side rows worth matching with arm sets: per K bin (rows sorted by
+    bin), the best ``keep`` by score (the smallest margin in standard deviations; of
+    equal ones, the first), for each line of score (groups x rows): a mask of the rows
+    chosen per group. Non-finite scores are never chosen."""
+    work = np.where(np.isfinite(score), score, -np.inf)
+    chosen = np.zeros(work.shape, bool)
+    if bins.size == 0:
+        return chosen
+    starts = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
+    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, bins.size]))
+    for _ in range(keep):
+        top = np.maximum.reduceat(work, starts, axis=-1)
+        hit = (work == top[..., seg]) & np.isfinite(work)
+        # the first hit of each bin: the hits counted from the bin's start
+        count = np.cumsum(hit, axis=-1)
+        before = np.concatenate([np.zeros(count.shape[:-1] + (1,), count.dtype), count[..., starts[1:] - 1]], axis=-1)
+        first = hit & (count - before[..., seg] == 1)
+        if not first.any():
+            break
+        chosen |= first
+        work[first] = -np.inf
+    return chosen
