@@ -356,6 +356,11 @@ def report(rows: list[Row], bare: float, imp: float, out: Path) -> dict:
     if any(r.relaxed for r in rows):
         right = sum(bool(r.relaxed) and all(rc == 0 for _, rc in r.relaxed) for r in rows if r.refused)
         print(f"\nrefusal advice verified by relaxation: {right} of {sum(r.refused for r in rows)} refusals")
+        for r in rows:
+            if r.refused and not (r.relaxed and all(rc == 0 for _, rc in r.relaxed)):
+                print(f"  {r.req.name}: " + ("no value to relax to in the message" if not r.relaxed else "; ".join(
+                    f"{adv} -> {'designs' if rc == 0 else rc if isinstance(rc, str) else f'exit {rc}'}"
+                    for adv, rc in r.relaxed)))
     print(f"\nbaselines (same run): python -c pass {bare * 1e3:.0f} ms; import partpick.cli {imp * 1e3:.0f} ms")
     print(_times("partpick design -n 10, every requirement", [r.design.seconds for r in rows], bare, imp))
     print(_times("  feasible requirements", [r.design.seconds for r in feasible], bare, imp))
@@ -368,7 +373,9 @@ def report(rows: list[Row], bare: float, imp: float, out: Path) -> dict:
                       "oracle": r.oracle.get("label"), "oracle_s": r.oracle.get("seconds"),
                       "check_passed": r.check_passed if r.check else None, "spice": r.spice,
                       "cost_first": r.cost("first"), "cost_cheapest": r.cost("cheap"),
-                      "cost_oracle": r.oracle_cost, "message": r.design.message} for r in rows]}
+                      "cost_oracle": r.oracle_cost, "message": r.design.message,
+                      # each piece of refusal advice applied: the design's exit code, or why it could not be applied
+                      "relaxed": [{"advice": str(adv), "outcome": rc} for adv, rc in r.relaxed]} for r in rows]}
 
 
 def store(rows: list[Row], folder: Path, count: int, force: bool, command: str) -> None:

@@ -217,10 +217,12 @@ class Searcher:
         """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter, gain
         family and level, with the row's amplitude margin to its tolerance at the worst
         temperature (ln; None without a stage of this kind and family), cached for this
-        spec's load and amplitude."""
-        key = (lim.id, gf.id, r_gnd, kind, sf.id)
+        spec's load and amplitude (once per distinct rows and stage table: families of one
+        series share both, and this searcher holds them, so their ids stay theirs)."""
+        amp = self._amp_side(lim, gf, r_gnd)
+        key = (id(amp), kind, id(self.stage_tables.get((kind, sf.id))))
         if key not in self._stages:
-            vo = self._amp_side(lim, gf, r_gnd)["vo"]
+            vo = amp["vo"]
             res = self._stage(kind, sf, vo)
             if res is not None:
                 # the amplitude's margin to its tolerance at the worst temperature (ln), the
