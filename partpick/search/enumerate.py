@@ -352,16 +352,11 @@ class Searcher:
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
         buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
-        i_osc = vo.max(axis=0) * self._osc_admittance(vals, r_fb, r_gnd, kinds, ra, rb)
+        i_osc = vo.max(axis=0) * self._osc_admittance(self._net_admittance(vals[u], r_fb[u], r_gnd)[back], kinds, ra, rb)
         i_load = np.where(buffered, load.max(axis=0) * abs(self.y_load), 0.0)
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
         with np.errstate(invalid="ignore", divide="ignore"):
-            s_a = np.sqrt((ev["dln_vo"] * s_m) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
-            y = (frequency_share(err, sig_f, drift, p.tol_f) * phi(m / s_m)
-                 * below_share(ev["thd"], np.abs(ev["dthd"]) * s_m, p.thd_max)
-                 * sum(w * window_share(np.log(load[i] / p.amp_v), s_a, math.log1p(p.tol_a))
-                       for i, w in enumerate(SIMPSON)))
             # the hottest package, as verification counts it: every channel's quiescent
             # power, and the output stages of the channels in use (one per package when a
             # buffer needs a second channel the package lacks)
@@ -371,9 +366,18 @@ class Searcher:
             watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
                                                                  np.maximum(osc_w, buf_w))
             rr = vals[:, [0, 2]]
-            ok = (np.isfinite(y) & (y > 0) & (m > 0) & (ev["thd"] <= p.thd_aim) & (i_osc <= ilim) & (i_load <= ilim)
+            ok = ((m > 0) & (ev["thd"] <= p.thd_aim) & (i_osc <= ilim) & (i_load <= ilim)
                   & (rr.max(axis=1) <= op["r_max"]) & (rr.min(axis=1) >= op["r_min"])
                   & (vo.max(axis=0) <= op["swing"]) & (watts <= op["limit_w"]))
+            # the yield estimate of the rows within those limits (the others are not kept)
+            s = np.flatnonzero(ok)
+            s_a = np.sqrt((ev["dln_vo"][s] * s_m[s]) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
+            y = np.zeros(m.shape)
+            y[s] = (frequency_share(err[s], sig_f[s], drift[s], p.tol_f) * phi(m[s] / s_m[s])
+                    * below_share(ev["thd"][s], np.abs(ev["dthd"][s]) * s_m[s], p.thd_max)
+                    * sum(w * window_share(np.log(load[i, s] / p.amp_v), s_a, math.log1p(p.tol_a))
+                          for i, w in enumerate(SIMPSON)))
+            ok &= np.isfinite(y) & (y > 0)
         idx = np.flatnonzero(ok)
         if idx.size == 0:
             return None
@@ -516,13 +520,17 @@ class Searcher:
             pick = table.pick(np.log(self.problem.amp_v / np.sqrt(vo[0] * vo[2])))
         return table.gains[pick], table.ra[pick], table.rb[pick]
 
-    def _osc_admittance(self, vals, r_fb, r_gnd, kinds, ra, rb) -> np.ndarray:
-        """Magnitude of what the oscillator op-amp drives at the target frequency, S:
-        the arms, the gain network and, without a buffer, the stage and the load (kinds:
-        index of each row's stage kind in periphery.STAGE_KINDS)."""
+    def _net_admittance(self, vals, r_fb, r_gnd) -> np.ndarray:
+        """What the oscillator op-amp drives of the frequency network and the gain network
+        at the target frequency (complex, S) for rows of arm values and Rf (ohm)."""
         w = 2 * math.pi * self.f_t
         z_arm = (vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3])
-        y = 1 / z_arm + 1 / (r_fb + r_gnd)
+        return 1 / z_arm + 1 / (r_fb + r_gnd)
+
+    def _osc_admittance(self, y, kinds, ra, rb) -> np.ndarray:
+        """Magnitude of what the oscillator op-amp drives at the target frequency, S: the
+        networks (y, :meth:`_net_admittance`) and, without a buffer, the stage and the
+        load (kinds: index of each row's stage kind in periphery.STAGE_KINDS)."""
         extra = np.zeros(y.shape, complex)      # (a buffer's stage and load: on the buffer)
         kinds, ra, rb = (np.broadcast_to(x, y.shape) for x in (kinds, ra, rb))
         with np.errstate(invalid="ignore", divide="ignore"):
