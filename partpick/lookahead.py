@@ -21,8 +21,11 @@ LOOK = 4   # candidates looked at per helper to find ones worth verifying ahead 
 
 
 def _never() -> bool:
-    """A transient-run budget that allows none: a helper leaves the command's budget to
-    the loop (a candidate that needs a run is verified again here, in its turn)."""
+    """A helper's transient-run budget: none. A candidate that needs a run is verified
+    again here in its turn, with the command's budget and this process's predictions
+    (which spare a circuit predicted before its runs): what verifying one at a time
+    spends. (A helper that ran it would spend runs a one-at-a-time loop may not: the
+    predictions it would have cached are in another process.)"""
     return False
 
 
