@@ -101,3 +101,20 @@ def test_a_look_ahead_leaves_the_pool_as_it_was(seed, cost_first):
             seen.append((c.signature, c.yield_est, sorted(map(sorted, rest))))
 
     assert walk(True) == walk(False)
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(0, 3000), st.booleans())
+def test_factorize_equals_numpys_unique_with_inverse(seed, n, with_zero):
+    """prices.factorize (the price lookup of every arm set's parts) against
+    numpy.unique(..., return_inverse=True), on E96-like values, and with a 0 (an empty
+    slot) that takes np.unique's own path."""
+    from partpick.search.prices import factorize
+
+    rng = np.random.default_rng(seed)
+    values = rng.choice(np.round(np.geomspace(10.0, 1e6, 481), 3), n)
+    if with_zero and n:
+        values[0] = 0.0
+    want_u, want_inv = np.unique(values, return_inverse=True)
+    got_u, got_inv = factorize(values)
+    assert got_u.tolist() == want_u.tolist()
+    assert got_inv.tolist() == want_inv.tolist()

@@ -342,17 +342,18 @@ class Searcher:
         # the limiter's figures once per distinct (amplitude row, arm set, op-amp loss): the
         # stage kinds and families of one op-amp mostly pick the same rows
         loss_i = np.unique(op["loss"], return_inverse=True)[1]
-        key = ((arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm) * (int(loss_i.max()) + 1) + loss_i
-        _, u, back = np.unique(key, return_index=True, return_inverse=True)
-        ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(r_gnd, r_fb[u], k[u]),
-                              topo.osc_per_port_k(k[u]), m[u], ird[u],
-                              thd_scale=topo.thd_transfer(k[u], vals[u], all_outputs=self.all_outputs))
+        key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
+        _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
+        ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]),
+                              topo.port_conductance_slope(r_gnd, r_fb[u], k[u]), topo.osc_per_port_k(k[u]), m[u],
+                              ird[u], thd_scale=topo.thd_transfer(k[u], vals[u], all_outputs=self.all_outputs))
         ev = {name: x[back] for name, x in ev.items()}
         vo = np.stack([ev[f"vo{i}"] for i in range(3)])
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
         buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
-        i_osc = vo.max(axis=0) * self._osc_admittance(self._net_admittance(vals[u], r_fb[u], r_gnd)[back], kinds, ra, rb)
+        y_net = self._net_admittance(vals[u], r_fb[u], r_gnd)[back]
+        i_osc = vo.max(axis=0) * self._osc_admittance(y_net, kinds, ra, rb)
         i_load = np.where(buffered, load.max(axis=0) * abs(self.y_load), 0.0)
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])

@@ -73,7 +73,8 @@ class Pool:
                 return None
             c = self._simulated.get(self.at)
             if c is None:
-                c = self._simulated[self.at] = simulate(self.batches[self.src[self.at]].candidate(int(self.row[self.at])))
+                row = self.batches[self.src[self.at]].candidate(int(self.row[self.at]))
+                c = self._simulated[self.at] = simulate(row)
             heapq.heappush(self.placed, (self._key(c), self.at, c))
             self.at += 1
 

@@ -7,7 +7,21 @@ from __future__ import annotations
 import numpy as np
 
 
-__all__ = ["PriceBook"]
+__all__ = ["PriceBook", "factorize"]
+
+
+def factorize(values) -> tuple[np.ndarray, np.ndarray]:
+    """(the distinct values ascending, each value's index in them): np.unique's
+    (values, inverse), for arrays of a few hundred distinct part values over up to
+    millions of rows, in a hash pass over their bits and a search of the few distinct
+    ones (not a sort of every row). Values that are not all finite positive floats go
+    through np.unique."""
+    values = np.asarray(values, float)
+    if values.size == 0 or not (np.all(np.isfinite(values)) and values.min() > 0):
+        return np.unique(values, return_inverse=True)
+    # positive finite floats order as their bit patterns do
+    uniq = np.sort(np.unique(values.view(np.int64))).view(np.float64)
+    return uniq, np.searchsorted(uniq, values)
 
 
 class PriceBook:
@@ -30,7 +44,7 @@ class PriceBook:
 
     def _prices(self, table: dict, fn, family: str, values) -> np.ndarray:
         values = np.asarray(values, float)
-        uniq, inv = np.unique(values, return_inverse=True)
+        uniq, inv = factorize(values.ravel())
         out = np.empty(uniq.size)
         for i, v in enumerate(uniq):
             key = (family, float(v))

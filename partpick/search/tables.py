@@ -10,6 +10,7 @@ import math
 import numpy as np
 
 from partpick.circuits.options import values_of
+from partpick.search.prices import factorize
 
 __all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable", "stage_table", "memo", "memo_all"]
 
@@ -127,12 +128,17 @@ class ArmIndex:
         self.sbins = self.bins[order]
         self.sf = table.ln_f0[order]
         vals = table.values[order]
+        # each column's unit and line prices, looked up once per distinct value
+        unit, line = [], []
+        for i, fam in enumerate(table.families):
+            uniq, inv = factorize(vals[:, i])
+            unit.append(price.units(fam, uniq)[inv])
+            line.append(price.lines(fam, uniq)[inv])
         # one line per distinct value (a value used twice shares its line); a stocked
         # value's line costs nothing
-        lr = price.lines(rfa.id, vals[:, 0]) + np.where(vals[:, 0] == vals[:, 2], 0.0, price.lines(rfa.id, vals[:, 2]))
-        lc = price.lines(cfa.id, vals[:, 1]) + np.where(vals[:, 1] == vals[:, 3], 0.0, price.lines(cfa.id, vals[:, 3]))
-        units = sum(price.units(fam, vals[:, i]) for i, fam in enumerate(table.families))
-        self.cost = units + lr + lc
+        lr = line[0] + np.where(vals[:, 0] == vals[:, 2], 0.0, line[2])
+        lc = line[1] + np.where(vals[:, 1] == vals[:, 3], 0.0, line[3])
+        self.cost = sum(unit) + lr + lc
         # one sortable key: bin, then frequency within the bin
         self.key = (self.sbins - K_GRID[0]) * _KEY_SPAN + (self.sf - self.sf.min() if n else self.sf)
         self.f_min = float(self.sf.min()) if n else 0.0
