@@ -118,7 +118,13 @@ class Helpers:
         for _ in range(count):
             task_r, task_w = os.pipe()
             res_r, res_w = os.pipe()
-            pid = os.fork()
+            try:
+                pid = os.fork()
+            except OSError:
+                for fd in (task_r, task_w, res_r, res_w):
+                    os.close(fd)
+                self.close()   # (the workers forked so far leave; the caller works alone)
+                raise
             if pid == 0:
                 try:
                     os.close(task_w)

@@ -37,6 +37,7 @@ class Ahead:
     def __init__(self, job, key_of) -> None:
         self.job, self.key_of = job, key_of
         self.helpers: Helpers | None = None
+        self.alone = spread() <= 1     # one CPU, a worker, no fork, or forking failed: all here
 
     def close(self) -> None:
         """The helpers leave."""
@@ -48,11 +49,14 @@ class Ahead:
         the next candidates of ``pool`` (peeked: :meth:`partpick.search.pool.Pool.peek`)
         that ``wanted`` accepts. ``transient``: the command's budget of transient runs,
         spent only here."""
+        if self.alone:
+            return self.job(c, transient)
         if self.helpers is None:
-            if spread() <= 1:
+            try:   # forked at the first verification: after the search, with its tables
+                self.helpers = Helpers(lambda x: self.job(x, _never), spread())
+            except OSError:   # (no process to be had: verified here, one at a time)
+                self.alone = True
                 return self.job(c, transient)
-            # forked at the first verification: after the search, with its tables
-            self.helpers = Helpers(lambda x: self.job(x, _never), spread())
         h, key = self.helpers, self.key_of(c)
         if not h.has(key):
             while not h.submit(key, c):

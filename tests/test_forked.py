@@ -129,3 +129,43 @@ def test_helpers_close_does_not_wait_for_a_busy_worker():
     t = time.perf_counter()
     h.close()
     assert time.perf_counter() - t < 5.0
+
+
+class _Queue:
+    """A stand-in for search.pool.Pool: peek gives the next items not yet taken."""
+
+    def __init__(self, items):
+        self.items = list(items)
+
+    def peek(self, simulate, count, wanted, look):
+        return [x for x in self.items[:look] if wanted(x)][:count]
+
+
+def _job(x, transient):
+    return x * x if x % 5 else None      # (every fifth wants a transient run it is refused)
+
+
+@pytest.mark.parametrize("fork_fails", [False, True])
+def test_verification_ahead_gives_the_loops_results_in_its_order(monkeypatch, fork_fails):
+    """lookahead.Ahead: each item's result is job(item) whether a helper computed it
+    ahead or not; with no process to be had (fork fails) everything is computed here."""
+    from partpick.lookahead import Ahead
+
+    monkeypatch.setenv("PARTPICK_WORKERS", "2")
+    if forked.workers() < 2:
+        pytest.skip("one CPU: everything runs here")
+    if fork_fails:
+        def no_fork():
+            raise OSError("no process")
+        monkeypatch.setattr(forked.os, "fork", no_fork)
+    queue = _Queue(range(1, 21))
+    ahead = Ahead(_job, lambda x: x)
+    got = []
+    try:
+        while queue.items:
+            x = queue.items.pop(0)
+            got.append(ahead.verify(x, queue, None, lambda d: True, lambda: False))
+    finally:
+        ahead.close()
+    assert got == [_job(x, None) for x in range(1, 21)]
+    assert (ahead.helpers is None) == fork_fails
