@@ -118,3 +118,20 @@ def test_factorize_equals_numpys_unique_with_inverse(seed, n, with_zero):
     got_u, got_inv = factorize(values)
     assert got_u.tolist() == want_u.tolist()
     assert got_inv.tolist() == want_inv.tolist()
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 3000))
+def test_range_minimum_is_the_first_smallest_of_each_range(seed, n):
+    """tables.RangeMin (a sparse table whose levels are made as queries need them)
+    against a scan of each range: the position of the first smallest cost, -1 for an
+    empty range; queries of short ranges first, then long ones (the levels grow)."""
+    from partpick.search.tables import RangeMin
+
+    rng = np.random.default_rng(seed)
+    cost = rng.integers(0, 20, n).astype(float)      # (ties are common)
+    rm = RangeMin(cost)
+    for span in (4, n):
+        a = rng.integers(0, n, 100)
+        z = np.minimum(a + rng.integers(0, span + 1, 100), n)
+        want = [a_ + int(np.argmin(cost[a_:z_])) if z_ > a_ else -1 for a_, z_ in zip(a, z)]
+        assert rm.argmin(a, z).tolist() == want

@@ -59,18 +59,20 @@ class RangeMin:
 
     def __init__(self, cost: np.ndarray) -> None:
         self.cost = cost
-        n = cost.size
         # int32 positions: the table's levels are its memory (log2 n arrays of n), and no
-        # table comes near 2**31 rows
-        levels = [np.arange(n, dtype=np.int32)]
-        j = 1
-        while (1 << j) <= n:
-            prev = levels[-1]
-            half = 1 << (j - 1)
-            a, b = prev[: n - (1 << j) + 1], prev[half: half + n - (1 << j) + 1]
+        # table comes near 2**31 rows; a level is made when a query first needs it (the
+        # search's ranges are short: most tables never need their upper levels)
+        self.levels = [np.arange(cost.size, dtype=np.int32)]
+
+    def _level(self, j: int) -> np.ndarray:
+        """Level j: the position of the smallest cost in [i, i + 2**j) for each i."""
+        n, cost, levels = self.cost.size, self.cost, self.levels
+        while len(levels) <= j:
+            k = len(levels)
+            prev, half = levels[-1], 1 << (k - 1)
+            a, b = prev[: n - (1 << k) + 1], prev[half: half + n - (1 << k) + 1]
             levels.append(np.where(cost[a] <= cost[b], a, b))
-            j += 1
-        self.levels = levels
+        return levels[j]
 
     def argmin(self, a: np.ndarray, z: np.ndarray) -> np.ndarray:
         """Position of the cheapest entry of each range [a, z); -1 where it is empty."""
@@ -83,8 +85,9 @@ class RangeMin:
         x, y = np.empty_like(a), np.empty_like(a)
         for jj in np.unique(j):
             sel = j == jj
-            x[sel] = self.levels[jj][a[sel]]
-            y[sel] = self.levels[jj][z[sel] - (1 << int(jj))]
+            level = self._level(int(jj))
+            x[sel] = level[a[sel]]
+            y[sel] = level[z[sel] - (1 << int(jj))]
         out[ok] = np.where(self.cost[x] <= self.cost[y], x, y)
         return out
 
