@@ -76,11 +76,12 @@ class Searcher:
         self._stages: dict = {}
         self._sk = None
         # one table per value list (families of one series share it), and the load read only
-        # by the kind whose gain it changes
-        self.stage_tables = {(k, f.id): memo(("stage", k, values_of(f, problem.shelf),
-                                              y_load if k == "attenuator" else None),
-                                              lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
-                             for k in kinds if k in STAGE_RATIO for f in problem.r_families}
+        # by the kind whose gain it changes; made over the CPUs
+        jobs = {(k, f.id): (("stage", k, values_of(f, problem.shelf), y_load if k == "attenuator" else None),
+                            lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
+                for k in kinds if k in STAGE_RATIO for f in problem.r_families}
+        memo_all(jobs.values())
+        self.stage_tables = {name: memo(*job) for name, job in jobs.items()}
         limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
         self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id],
                            "r_min": lambda o: r_limits(o.opamp, spec.derating)[0],
