@@ -135,7 +135,7 @@ class Searcher:
 
                 def make(rfa=rfa, cfa=cfa):
                     table = problem.topology.network_table(rfa, cfa, ln_lo, ln_hi, shelf=problem.shelf)
-                    return table, (ArmIndex(table, price, rfa, cfa) if len(table) else None)
+                    return table, (ArmIndex(table, price) if len(table) else None)
 
                 key = ("arms", problem.topology.name, rfa, cfa, ln_lo, ln_hi, problem.shelf, price.pricer.stock)
                 kept.append((rfa, cfa, drift, best, key, make))

@@ -120,7 +120,7 @@ class ArmIndex:
     """The arm sets of one family pair, grouped by K bin and sorted by frequency within
     each bin, with the cheapest set in any frequency range of a bin (RangeMin)."""
 
-    def __init__(self, table, price, rfa, cfa) -> None:
+    def __init__(self, table, price) -> None:
         self.table = table
         n = len(table)
         self.bins = np.round(table.ln_k / K_BIN).astype(np.int32)
@@ -131,12 +131,14 @@ class ArmIndex:
         self.sbins = self.bins[order]
         self.sf = table.ln_f0[order]
         vals = table.values[order]
-        # each column's unit and line prices, looked up once per distinct value
+        # each column's unit price, and the two arms' line prices (columns 0-3), looked up
+        # once per distinct value
         unit, line = [], []
         for i, fam in enumerate(table.families):
             uniq, inv = factorize(vals[:, i])
             unit.append(price.units(fam, uniq)[inv])
-            line.append(price.lines(fam, uniq)[inv])
+            if i < 4:
+                line.append(price.lines(fam, uniq)[inv])
         # one line per distinct value (a value used twice shares its line); a stocked
         # value's line costs nothing
         lr = line[0] + np.where(vals[:, 0] == vals[:, 2], 0.0, line[2])
