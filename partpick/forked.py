@@ -108,7 +108,7 @@ class Helpers:
     computing it here). Forked once, not per item: a fork of a process holding the
     search's tables costs milliseconds, and the copy-on-write pages a worker touches are
     copied once. Items and results go through a pipe per worker, each a length and a
-    pickle. A context manager: the workers leave on exit."""
+    pickle. close() makes the workers leave."""
 
     def __init__(self, func, count: int) -> None:
         self.func = func
@@ -150,12 +150,6 @@ class Helpers:
                 data = pickle.dumps((key, False, None), protocol=pickle.HIGHEST_PROTOCOL)
             results.write(struct.pack("<I", len(data)) + data)
             results.flush()
-
-    def __enter__(self) -> "Helpers":
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.close()
 
     @property
     def size(self) -> int:
