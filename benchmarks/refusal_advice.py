@@ -9,7 +9,8 @@ refusals changes. It looks, in order, for:
    relax frequency.tolerance to +/-1 %", or "or distortion.max_thd binds: ...; relax
    distortion.max_thd to 2 %"), each applied alone, and ``relax jointly <field> to
    <value> and <field> to <value>``, applied together (field ``joint``);
-2. ``allow family <id>[, <id>]`` (added to the spec's list of that kind);
+2. ``allow family <id>[, <id>]`` or ``allow <kind> <id>[, <id>]`` (added to the spec's list of that kind); advice that
+   follows ``with families <id>, <id> allowed`` is applied together with adding them;
 3. failing both, ``<field> binds: ... (is|reaches|of) <number unit>`` (the older wording:
    "amplitude.target binds: the nearest amplitude at the load is 2.48 V peak
    (wanted 1.33..1.5 V)").
@@ -40,7 +41,8 @@ JOINT = re.compile(r"relax\s+jointly\s+(?P<items>[^\n]+)")
 ITEM = re.compile(rf"{FIELD}\s+to\s+(?P<value>.+?)(?=\s+and\s+[a-z_]+\.|\s*$)")
 NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"
 BINDS = re.compile(rf"{FIELD}\s+binds:[^;]*?\b(?:is|reaches|of)\s+{NUMBER}")
-ALLOW = re.compile(r"allow\s+(?:the\s+)?famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
+ALLOW = re.compile(r"allow\s+(?:the\s+)?(?:famil(?:y|ies)|resistors|capacitors|opamps|limiters)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
+OPENED = re.compile(r"with\s+famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*,\s*[A-Za-z0-9_.\-]+)*)\s+allowed")
 # numbers with a unit the spec reads; "V peak" is how older refusals print a peak voltage
 _UNIT_WORDS = ((re.compile(r"\bV\s*peak\b"), "Vpk"), (re.compile(r"\bV\s*rms\b"), "Vrms"),
                (re.compile(r"\bV\s*pp\b"), "Vpp"))
@@ -67,8 +69,17 @@ def spec_value(text: str) -> str:
 
 def parse_refusal(message: str) -> list[Advice]:
     """Every piece of advice in a refusal message (empty when it gives none). A message
-    printed on one line with its line breaks escaped ('\\n') reads as its lines."""
+    printed on one line with its line breaks escaped ('\\n') reads as its lines. The
+    advice after "with families <ids> allowed" holds with them: each piece is applied
+    together with adding them (field ``joint``)."""
     message = message.replace("\\n", "\n")
+    opened = OPENED.search(message)
+    if opened is not None:
+        add = "parts.add=" + ",".join(re.split(r"\s*,\s*", opened["value"].strip()))
+        inner = parse_refusal(message[opened.end():])
+        return _unique(parse_refusal(message[:opened.start()])
+                       + [Advice("joint", ";".join([add, a.value if a.field == "joint" else f"{a.field}={a.value}"]),
+                                 a.how) for a in inner])
     out = [Advice(m["field"], spec_value(m["value"]), "relax") for m in RELAX.finditer(message)]
     # a joint relaxation: its parts as field=value;field=value, applied together
     out += [Advice("joint", ";".join(f"{i['field']}={spec_value(i['value'])}" for i in ITEM.finditer(m["items"])),
@@ -77,8 +88,12 @@ def parse_refusal(message: str) -> list[Advice]:
             for m in ALLOW.finditer(message)]
     if not out:
         out = [Advice(m["field"], spec_value(m["value"]), "binds") for m in BINDS.finditer(message)]
+    return _unique(out)
+
+
+def _unique(advice: list[Advice]) -> list[Advice]:
     seen, unique = set(), []
-    for a in out:
+    for a in advice:
         if (a.field, a.value) not in seen:
             seen.add((a.field, a.value))
             unique.append(a)

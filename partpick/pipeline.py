@@ -28,11 +28,13 @@ from partpick.rank import Ranked, rank
 from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
-from partpick.search.pool import Pool
+from partpick.search.pool import Pool, cost_first
 from partpick.forked import fork_map
 from partpick.lookahead import Ahead
-from partpick.refusal import (default_notes, explain_refusal, frequency_hold, held_message, held_tolerance, loosened,
-                              load_relaxation, relaxed, relaxed_all, shelf_shortfall, structural_refusal)
+from partpick.opening import allowing, new_families, opening_kinds, restricted, widened
+from partpick.refusal import (NO_OSCILLATION, SAMPLES, default_notes, explain_refusal, frequency_hold, held_message,
+                              held_tolerance, loosened, load_relaxation, relaxed, relaxed_all, shelf_shortfall,
+                              structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -128,7 +130,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
            rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
-           nearest: int | None = 3, work: _Work | None = None, given=()) -> Design:
+           nearest: int | None = 3, work: _Work | None = None, given=(), opened=()) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
@@ -139,7 +141,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     0: a bare refusal after the full search, for a caller that has its own answer to a
     refusal, as the trade-off's family runs); ``given``: (Relaxation, statement) the
     spec has had already, which the why-not states and keeps (a load resistance a
-    refusal named). ``progress(done, total)`` is
+    refusal named); ``opened``: the families a refusal added to the spec's lists (its
+    why-not then opens no more: :mod:`partpick.opening`). ``progress(done, total)`` is
     called as candidates are verified (physics and Monte Carlo). ``topology: auto``
     designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
@@ -150,7 +153,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if spec.topology == AUTO_TOPOLOGY:
         return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
                             progress=progress, nearest=nearest,
-                            work=work if work is not None else _Work(MAX_TRANSIENT), given=given)   # one budget
+                            work=work if work is not None else _Work(MAX_TRANSIENT), given=given,   # one budget
+                            opened=opened)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
@@ -173,6 +177,14 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     # a frequency tolerance no allowed family pair holds is refused at once by the runs
     # that explain a refusal; the design the user asked for goes on to the why-not, which
     # finds the tolerance a design holds (and the families that would hold this one)
+    if early is not None and nearest and not opened and (kinds := opening_kinds(spec, early[1])):
+        # the parts allowed cannot make the oscillator at all: the families that would, and
+        # the why-not of the spec with them allowed
+        wide = widened(spec, catalog, kinds, partial(_bare, catalog=catalog, stock=stock, seed=seed,
+                                                     work=_Work(REFUSAL_TRANSIENT)),
+                       partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest))
+        if wide is not None:
+            raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
     if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
         raise InfeasibleError(*early)
     t1 = time.perf_counter()
@@ -203,9 +215,9 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             # a cost-first order that spends its budget on cheap candidates none of which passes
             # is followed by the yield order, with a budget of its own (the spec designs, if
             # not at the cheapest)
-            for cost_first in ((True, False) if _cost_first(rank_by) else (False,)):
-                pool = Pool(batches, cost_first, _hopeless(spec))
-                searched += pool.size if cost_first == _cost_first(rank_by) else 0   # (the same rows, reordered)
+            for by_cost in ((True, False) if cost_first(rank_by) else (False,)):
+                pool = Pool(batches, by_cost, _hopeless(spec))
+                searched += pool.size if by_cost == cost_first(rank_by) else 0   # (the same rows, reordered)
                 attempts = 0   # candidates verified, or skipped for want of transient runs
                 while attempts < budget:
                     c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
@@ -254,7 +266,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         if not nearest:
             raise InfeasibleError("no design meets the spec")
         raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed, samples,
-                                        given))
+                                        given, opened))
     if len(verified) >= MAX_VERIFY:
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
@@ -354,32 +366,37 @@ def _control_may_help(verified: list[Ranked], spec: Spec) -> bool:
     return False
 
 
-def _cost_first(rank_by) -> bool:
-    """Whether the ranking puts cost before yield (the pool then comes in cost order)."""
-    keys = [k for k in rank_by if k in ("yield", "cost")]
-    return bool(keys) and keys[0] == "cost"
+def _bare(s: Spec, keys=None, *, catalog: Catalog, stock, seed: int, work: _Work) -> list[Bom]:
+    """The passing BOMs of a design run that only proposes (SAMPLES builds, a small
+    verification budget, a bare refusal): what a refusal's analysis reads."""
+    try:
+        return [r.bom for r in design(s, catalog, stock=stock, results=3, rank_by=keys, samples=SAMPLES, seed=seed,
+                                      nearest=None, work=work).passing]
+    except InfeasibleError:
+        return []
+
+
+def _whole(s: Spec, families, *, catalog: Catalog, stock, seed: int, samples: int, nearest: int) -> None:
+    """Design s as the user's command would (its own builds and transient runs; a
+    refusal raises), with families opened by a refusal (its why-not opens no more)."""
+    design(s, catalog, stock=stock, results=1, samples=samples, seed=seed, nearest=nearest, work=_Work(MAX_TRANSIENT),
+           opened=families)
 
 
 def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, failing, nearest: int,
-             seed: int, samples: int, given=()) -> tuple[str, tuple[str, ...]]:
+             seed: int, samples: int, given=(), opened=()) -> tuple[str, tuple[str, ...]]:
     """The why-not of a refused spec (:func:`partpick.refusal.explain_refusal`), with
     what the parts allowed cannot do named first. The re-searches verify with SAMPLES
     builds (they only propose); every verdict the message states (the value to relax
     to, the nearest designs' figures) is judged with the design's own ``samples`` and
     seed, so that the relaxed spec's verification of the same BOM agrees with it (a
-    yield just at its limit at 4,000 builds can miss it at 20,000)."""
-    from partpick.refusal import SAMPLES
-
+    yield just at its limit at 4,000 builds can miss it at 20,000). Where no allowed
+    design oscillates, the families that would (:mod:`partpick.opening`)."""
     work = _Work(REFUSAL_TRANSIENT)   # shared by every run of the analysis
     done: dict = {}   # the runs made, by (spec, ranking)
 
     def fresh(job) -> list[Bom]:
-        s, keys = job
-        try:
-            return [r.bom for r in design(s, catalog, stock=stock, results=3, rank_by=keys, samples=SAMPLES,
-                                          seed=seed, nearest=None, work=work).passing]
-        except InfeasibleError:
-            return []
+        return _bare(*job, catalog=catalog, stock=stock, seed=seed, work=work)
 
     def run(s: Spec, keys=None) -> list[Bom]:
         if (s, keys) not in done:
@@ -414,12 +431,12 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
     # spec (no transient run is allowed in any), so the answer is the same either way.
     loose = relaxed_all(spec, [g for g, _ in given])   # (the spec explain_refusal works on: the same runs)
-    opened = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
+    one_open = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
               for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
     prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None
     # (the runs with more parts allowed search the most: started first, so that the
     # cheap ones fill the other CPUs meanwhile)
-    first = [(s, None) for _, s in opened] + [(prefer, None)] * (prefer is not None)
+    first = [(s, None) for _, s in one_open] + [(prefer, None)] * (prefer is not None)
     first += [(s, keys) for _, s, keys in loosened(loose)]
     done.update(zip(first, fork_map(fresh, first)))
 
@@ -427,11 +444,9 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
         return evaluate_bom(bom, s, catalog, stock, samples=samples, seed=seed + 1)
 
     more = []
-    for kind, s in opened:
-        boms = run(s)
-        new = sorted({ln.family for b in boms[:1] for ln in b.lines} - set(spec.parts.of_kind(kind)))
-        new = [f for f in new if any(f == x.id for x in catalog.of_kind(kind))]
-        if new:
+    for kind, s in one_open:   # (stated where the spec with them designs, as the user's design would)
+        new = new_families(spec, catalog, boms[0], (kind,)) if (boms := run(s)) else ()
+        if new and designs(allowing(spec, catalog, new)):
             more.append((f"allow {kind} {', '.join(new)}", "the search designs with it"))
     lead = []
     if prefer is not None:
@@ -440,7 +455,14 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
             lead.append(("stock quantities", shelf_shortfall(boms[0], problem.shelf, spec.builds, catalog)))
     if hold and not held:
         more.append(("the frequency tolerance", hold))
-    return explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
+    message, binding = explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
+    if NO_OSCILLATION in message.splitlines() and not opened and (wide := widened(
+            spec, catalog, restricted(spec), run, partial(_whole, catalog=catalog, stock=stock, seed=seed,
+                                                          samples=samples, nearest=nearest))) is not None:
+        at = (lines := message.splitlines()).index(NO_OSCILLATION) + 1   # (after the line it answers)
+        message = "\n".join(lines[:at] + wide[0] + lines[at:])
+        binding = tuple(dict.fromkeys(binding + wide[1]))
+    return message, binding
 
 
 def _hopeless(spec: Spec) -> float:

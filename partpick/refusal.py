@@ -37,7 +37,7 @@ from partpick.spec import Spec
 
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
            "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all", "load_relaxation",
-           "shelf_shortfall"]
+           "shelf_shortfall", "loosened_together", "NO_OSCILLATION"]
 
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
@@ -49,6 +49,9 @@ RELAXABLE = {
     "distortion.max_thd": (0.10, "the lowest THD any allowed design reaches", ("thd", "yield", "cost"), True),
     "yield.min": (0.50, "the highest yield any allowed design reaches", ("yield", "cost"), False),
 }
+# the why-not's line when nothing allowed starts within the supply, load and temperature
+NO_OSCILLATION = ("no allowed design oscillates within the supply, load and temperature given, even with the "
+                  "tolerances, the THD limit and the yield loosened")
 LADDER = (1.5, 3.0)   # steps (times the spec's value, towards the loose one) a loosened run is tried at
 JOINT_STEPS = (0.25, 0.5)   # shares of the way to the loose values a joint relaxation is tried at
 BISECTIONS = 7        # steps of the bisection on a requirement (its result within about 2 %)
@@ -205,6 +208,14 @@ def _toward(field: str, value: float, t: float) -> float:
     if (value >= loose) if smaller else (value <= loose):
         return value   # (as loose already)
     return value * (loose / value) ** t if smaller else value + (loose - value) * t
+
+
+def loosened_together(spec: Spec, t: float = 1.0) -> Spec:
+    """The spec with every relaxable requirement moved a share t of the way to its loose
+    value (_toward)."""
+    for field in RELAXABLE:
+        spec = relaxed(spec, field, _toward(field, requirement_value(spec, field), t))
+    return spec
 
 
 def relaxed_all(spec: Spec, relaxations) -> Spec:
@@ -375,10 +386,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
         # all four loosened together, a share of the way first, so that the nearest design
         # the advice is read from is as near the spec as a run finds one
         for t in JOINT_STEPS + (1.0,):
-            joint = spec
-            for field in RELAXABLE:
-                joint = relaxed(joint, field, _toward(field, requirement_value(spec, field), t))
-            boms = run(joint, None)
+            boms = run(loosened_together(spec, t), None)
             if boms:
                 break
         # the designs the message points at: first in the list
@@ -399,8 +407,7 @@ def explain_refusal(spec: Spec, failing, run, evaluate, nearest: int = 3, allow_
                              "tolerances, the THD limit and the yield loosened, no design meets the spec; the nearest "
                              f"misses {'; '.join(miss_text(c, spec) for c in misses)}")
             else:
-                lines.append("no allowed design oscillates within the supply, load and temperature given, even with "
-                             "the tolerances, the THD limit and the yield loosened")
+                lines.append(NO_OSCILLATION)
     for what, advice in (allow_more or ()):
         lines.append(f"also: {what}: {advice}")
     # the designs the loosened runs found, judged against the spec as written

@@ -10,9 +10,15 @@ import numpy as np
 from partpick.rank import Ranked, rank
 from partpick.search.candidates import Candidate
 
-__all__ = ["Pool", "OPTIMISM"]
+__all__ = ["Pool", "OPTIMISM", "cost_first"]
 
 OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
+
+
+def cost_first(rank_by) -> bool:
+    """Whether the ranking puts cost before yield (the pool then comes in cost order)."""
+    keys = [k for k in rank_by if k in ("yield", "cost")]
+    return bool(keys) and keys[0] == "cost"
 
 
 class Pool:
