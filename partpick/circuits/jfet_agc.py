@@ -47,7 +47,7 @@ import numpy as np
 from partpick.circuits import periphery
 from partpick.circuits.base import Circuit, Conditions, Slot
 from partpick.physics.agc import Agc, Integrator, rest_branch, settled
-from partpick.physics.agc_dynamics import agc_settling
+from partpick.physics.agc_dynamics import agc_damping, agc_settling
 from partpick.physics.detector import Detector
 from partpick.physics.envelope import START_V
 from partpick.physics.jfet import VcrBranch, jfet_at
@@ -186,6 +186,13 @@ class JfetAgc:
             return None
         return agc_settling(loop, model(c, cond), st, hb.osc_peak_v, hb.freq_hz, band, start_v=start_v,
                             clip_v=clip_v)
+
+    def damping(self, c: Circuit, cond: Conditions, clip_v: float = math.inf) -> float | None:
+        """The damping ratio of the control's loop at its settled point
+        (:func:`partpick.physics.agc_dynamics.agc_damping`: the linearised cycle map, no
+        run from power-on); None when it does not start."""
+        loop, lin, hb, st = solved(c, cond)
+        return None if st is None else agc_damping(loop, model(c, cond), st, hb.osc_peak_v, hb.freq_hz, clip_v)[0]
 
     def netlist(self, c: Circuit, a: str, b: str, nodes: dict | None = None) -> list:
         """The branch from port node a (R10, the JFET's drain) to b (its source), the

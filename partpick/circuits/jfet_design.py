@@ -40,6 +40,7 @@ import numpy as np
 
 from partpick.circuits.base import Conditions
 from partpick.circuits.options import nearest
+from partpick.physics.envelope import Settling
 from partpick.physics.jfet import jfet_at
 from partpick.physics.opamp import swing_limits
 
@@ -49,6 +50,7 @@ MARGIN_FLOOR = 0.004         # gain excess beyond the worst tolerance corner (as
 GATE_R = 220e3               # gate network, ohm: far above the channel and R10
 HOLD_CURRENT = 10e-6         # detector bleed current, A
 ZETA = 0.9                   # the integrator loop's damping
+MIN_DAMPING = 0.3            # the least damping ratio a design keeps (at the settled point)
 POLE_RATIO = 6.0             # C7's pole over the loop's crossover
 # the rule designs for this share of the THD a design may take, so that the builds'
 # spread (the search assumes 30 %, designed.THD_SPREAD) stays under the limit
@@ -397,12 +399,20 @@ def _tune(b: _Build, rs: float, r_op: float, linearise: bool, diode, reference) 
             # not change that, and the envelope map would only run to its cycle limit
             return tried(math.inf, math.nan, math.nan, f"best tried: the op-amps leave their linear range "
                                                         f"({hb.regime}): the control does not hold the amplitude")
-        stl = CONTROL.settling(c, b.cond, loop, lin, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
-                               clip_v=min(hi_sw, -lo_sw))
+        clip = min(hi_sw, -lo_sw)
+        if tgt.settle_max_s is None and (zeta := CONTROL.damping(c, b.cond, clip_v=clip)) is not None \
+                and zeta < MIN_DAMPING:
+            # no settling time asked, and a loop this lightly damped fails on its damping
+            # whatever its envelope does: the run from power-on (up to 100,000 cycles of
+            # the map, a minute at 67 kHz) is not made
+            stl = Settling(math.nan, math.nan, math.nan, zeta, np.zeros(0), np.zeros(0))
+        else:
+            stl = CONTROL.settling(c, b.cond, loop, lin, hb, (0.98 * hb.osc_peak_v, 1.02 * hb.osc_peak_v),
+                                   clip_v=clip)
         slow = tgt.settle_max_s is not None and not stl.settle_s <= tgt.settle_max_s
-        ok = hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= 0.3
-        why = "" if ok else (f"best tried: THD {hb.osc_thd * 100:.3g} %, settling {stl.settle_s * 1e3:.3g} ms, "
-                             f"damping {stl.damping:.2g}")
+        ok = hb.osc_thd <= tgt.thd_max and not slow and stl.damping >= MIN_DAMPING
+        settling = f"settling {stl.settle_s * 1e3:.3g} ms, " if not math.isnan(stl.settle_s) else ""
+        why = "" if ok else f"best tried: THD {hb.osc_thd * 100:.3g} %, {settling}damping {stl.damping:.2g}"
         got = tried(stl.settle_s, stl.overshoot, stl.damping, why)
         if ok:
             return got

@@ -47,7 +47,7 @@ from partpick.forked import fork_map
 __all__ = ["search_designs", "default_opamp", "amplitude_share_bound", "CACHE_KIND", "STAGE_ALLOWANCE"]
 
 CACHE_KIND = "jfet-design"
-_VERSION = "jfet-design-2"      # bump when the design rule or the figures change meaning
+_VERSION = "jfet-design-3"      # bump when the design rule or the figures change meaning
 _FIGURES = ("amp_min", "amp_nom", "amp_max", "thd", "pull", "amp_per_excess", "amp_spread", "settle_s", "channels",
             "margin", "start_loss")
 _NUDGE = 0.005                  # Rf raised by this share for d ln(amplitude) / d(gain excess)

@@ -44,7 +44,7 @@ from partpick.physics.envelope import START_V, Settling, band_times, growth_tabl
 from partpick.physics.jfet import JfetBranch, dc_point, small_signal
 from partpick.physics.loop import Loop
 
-__all__ = ["agc_settling", "CycleMap"]
+__all__ = ["agc_settling", "agc_damping", "CycleMap"]
 
 _SUB = 32          # sub-steps per cycle
 _GL_X, _GL_W = np.polynomial.legendre.leggauss(6)
@@ -273,6 +273,14 @@ class CycleMap:
         zeta = min((-z.real / abs(z) for z in osc), default=1.0)
         decay = min((-z.real for z in lam), default=0.0)
         return float(zeta), float(decay)
+
+
+def agc_damping(loop: Loop, agc: Agc, state: AgcState, amp_v: float, freq_hz: float,
+                clip_v: float = math.inf) -> tuple[float, float]:
+    """(damping ratio, slowest decay rate in 1/s) of the control's loop at its settled
+    point (:meth:`CycleMap.damping`), without the run from power-on (arguments as
+    :func:`agc_settling`)."""
+    return CycleMap(loop, agc, state, amp_v, freq_hz, clip_v).damping()
 
 
 def agc_settling(loop: Loop, agc: Agc, state: AgcState, amp_v: float, freq_hz: float, band: tuple[float, float], *,
