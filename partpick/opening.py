@@ -74,12 +74,14 @@ def allow_line(families) -> str:
            f"{'it' if len(families) == 1 else 'them'}"
 
 
-def allowed_block(families, message: str) -> list[str]:
+def allowed_block(families, message: str, said: str = "") -> list[str]:
     """The why-not of the spec with families allowed (its message), as lines that state
-    them first: what binds next and the values to relax to hold with them."""
+    them first: what binds next and the values to relax to hold with them. Its lines the
+    refusal has said already (said) are left out, and its head and notes (ours)."""
     inner = message.splitlines()
     if inner and inner[0] == "no design meets the spec":
-        inner = [ln for ln in inner[1:] if not ln.startswith("  (")]   # (its head and notes are ours)
+        inner = [ln for ln in inner[1:] if not ln.startswith("  (")]
+    inner = [ln for ln in inner if ln not in said.splitlines()]
     return [f"with famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)} allowed, the spec still does "
             "not design:"] + [f"  {ln}" for ln in inner]
 
@@ -92,17 +94,17 @@ def opening_kinds(spec: Spec, binding) -> tuple[str, ...]:
     return tuple(k for k in want if k in restricted(spec))
 
 
-def widened(spec: Spec, catalog, kinds, run, design) -> tuple[list[str], tuple[str, ...]] | None:
+def widened(spec: Spec, catalog, kinds, run, design, said: str = "") -> tuple[list[str], tuple[str, ...]] | None:
     """(message lines, binding) naming the families of kinds to allow, followed by the
-    why-not of the spec with them allowed where it still does not design; None when
-    opening kinds designs nothing either. run(spec) -> a design run's passing BOMs;
-    design(spec, families) designs the spec as the user's command would, raising
-    InfeasibleError with its why-not."""
+    why-not of the spec with them allowed where it still does not design (but for what
+    the refusal said already, said); None when opening kinds designs nothing either.
+    run(spec) -> a design run's passing BOMs; design(spec, families) designs the spec as
+    the user's command would, raising InfeasibleError with its why-not."""
     fams = families_to_allow(spec, catalog, kinds, run)
     if not fams:
         return None
     try:
         design(allowing(spec, catalog, fams), fams)
     except InfeasibleError as exc:
-        return allowed_block(fams, exc.message), exc.binding
+        return allowed_block(fams, exc.message, said), exc.binding
     return [allow_line(fams)], ()

@@ -182,7 +182,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         # the why-not of the spec with them allowed
         wide = widened(spec, catalog, kinds, partial(_bare, catalog=catalog, stock=stock, seed=seed,
                                                      work=_Work(REFUSAL_TRANSIENT)),
-                       partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest))
+                       partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest),
+                       early[0])
         if wide is not None:
             raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
     if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
@@ -458,7 +459,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     message, binding = explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
     if NO_OSCILLATION in message.splitlines() and not opened and (wide := widened(
             spec, catalog, restricted(spec), run, partial(_whole, catalog=catalog, stock=stock, seed=seed,
-                                                          samples=samples, nearest=nearest))) is not None:
+                                                          samples=samples, nearest=nearest), message)) is not None:
         at = (lines := message.splitlines()).index(NO_OSCILLATION) + 1   # (after the line it answers)
         message = "\n".join(lines[:at] + wide[0] + lines[at:])
         binding = tuple(dict.fromkeys(binding + wide[1]))
