@@ -527,8 +527,15 @@ def frequency_hold(spec: Spec, problem, best_hold, catalog) -> tuple[str, float]
     rfa, cfa, share = best_hold
     tol, y = spec.frequency.tolerance_frac, spec.yield_min_frac
     t = frequency_tolerance(problem.freq_sigma(rfa, cfa), problem.freq_drift(rfa, cfa), y)
+    f = spec.frequency.target_hz
+
+    def reaches(r, c) -> bool:   # (equal arms of the pair make the target: a pair that cannot is no answer)
+        lo, hi = problem.topology.reach_hz(r, c)
+        return lo <= f <= hi
+
     shares = {(r, c): float(frequency_share(np.array([0.0]), problem.freq_sigma(r, c), problem.freq_drift(r, c), tol)[0])
-              for r in catalog.of_kind("resistors") for c in catalog.of_kind("capacitors")}
+              for r in catalog.of_kind("resistors") for c in catalog.of_kind("capacitors") if reaches(r, c)}
+    shares = shares or {(rfa, cfa): share}
     r_best, c_best = max(shares, key=lambda k: (shares[k], k[0].id, k[1].id))
     if shares[(r_best, c_best)] >= y:
         other = (f"in the catalog, {r_best.id} resistors with {c_best.id} capacitors would hold it in about "

@@ -123,28 +123,37 @@ class Searcher:
         self.window_capped = half < problem.tol_f
         ln_lo = problem.ln_f - max(op_pull) - row_hi - half - WINDOW_MARGIN
         ln_hi = problem.ln_f - min(op_pull) - row_lo + half + WINDOW_MARGIN
-        kept = []
+        kept, hopeless = [], []
         for rfa in problem.r_families:
             for cfa in problem.c_families:
                 drift = problem.freq_drift(rfa, cfa)
                 best = frequency_share(np.array([0.0]), problem.freq_sigma(rfa, cfa), drift, problem.tol_f)[0]
-                if self.best_hold is None or best > self.best_hold[2]:
-                    self.best_hold = (rfa, cfa, best)
-                if best < problem.y_min - HOPELESS_PAIR:
-                    continue  # even centred on the target, the pair's tolerances break the frequency yield
 
                 def make(rfa=rfa, cfa=cfa):
                     table = problem.topology.network_table(rfa, cfa, ln_lo, ln_hi, shelf=problem.shelf)
                     return table, (ArmIndex(table, price) if len(table) else None)
 
                 key = ("arms", problem.topology.name, rfa, cfa, ln_lo, ln_hi, problem.shelf, price.pricer.stock)
-                kept.append((rfa, cfa, drift, best, key, make))
-        memo_all((key, make) for *_, key, make in kept)   # (made over the CPUs)
+                # (a pair whose tolerances break the frequency yield even centred on the target is
+                # not searched)
+                (hopeless if best < problem.y_min - HOPELESS_PAIR else kept).append(
+                    (rfa, cfa, drift, best, key, make, len(kept) + len(hopeless)))
+        memo_all((key, make) for *_, key, make, _ in kept)   # (made over the CPUs)
         pairs = []
-        for rfa, cfa, drift, best, key, make in kept:
+        for rfa, cfa, drift, best, key, make, _ in kept:
             table, index = memo(key, make)
             if len(table):
                 pairs.append((rfa, cfa, table, index, drift, best))
+        # the best pair at holding the frequency, for a refusal: of the pairs with arm sets near
+        # the target (a pair that holds it but cannot reach it is no answer), else of all; the
+        # first of equals in the families' order
+        order = {(x[0].id, x[1].id): x[6] for x in kept + hopeless}
+        holds = [(x[0], x[1], x[5]) for x in pairs]
+        every = [(x[0], x[1], x[3]) for x in kept + hopeless]
+        if max((h[2] for h in every), default=0.0) > max((h[2] for h in holds), default=-1.0):
+            memo_all((key, make) for *_, key, make, _ in hopeless)   # (only where the best is not searched)
+            holds += [(x[0], x[1], x[3]) for x in hopeless if len(memo(x[4], x[5])[0])]
+        self.best_hold = max(holds or every, key=lambda h: (h[2], -order[h[0].id, h[1].id]), default=None)
         return pairs
 
     def levels(self, gf) -> list[float]:
