@@ -10,7 +10,8 @@ refusals changes. It looks, in order, for:
    distortion.max_thd to 2 %"), each applied alone, and ``relax jointly <field> to
    <value> and <field> to <value>``, applied together (field ``joint``);
 2. ``allow family <id>[, <id>]`` or ``allow <kind> <id>[, <id>]`` (added to the spec's list of that kind); advice that
-   follows ``with families <id>, <id> allowed`` is applied together with adding them;
+   follows ``with families <id>, <id> allowed, the spec still does not design`` (or ``with <field> at
+   <value>, ...``) is applied together with adding them (setting it);
 3. failing both, ``<field> binds: ... (is|reaches|of) <number unit>`` (the older wording:
    "amplitude.target binds: the nearest amplitude at the load is 2.48 V peak
    (wanted 1.33..1.5 V)").
@@ -36,13 +37,14 @@ __all__ = ["Advice", "parse_refusal", "apply_advice", "spec_value"]
 FIELD = r"(?P<field>[a-z_]+(?:\.[a-z_]+)+)"
 VALUE = r"(?P<value>[^;,(\n]+?)"
 END = r"(?=\s*(?:[;,(\n]|$|\.\s|\.$|\bor\b))"
-RELAX = re.compile(rf"(?:relax|raise)\s+{FIELD}\s+to\s+{VALUE}{END}")
+RELAX = re.compile(rf"(?:relax|raise|lower)\s+{FIELD}\s+to\s+{VALUE}{END}")
 JOINT = re.compile(r"relax\s+jointly\s+(?P<items>[^\n]+)")
 ITEM = re.compile(rf"{FIELD}\s+to\s+(?P<value>.+?)(?=\s+and\s+[a-z_]+\.|\s*$)")
 NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"
 BINDS = re.compile(rf"{FIELD}\s+binds:[^;]*?\b(?:is|reaches|of)\s+{NUMBER}")
 ALLOW = re.compile(r"allow\s+(?:the\s+)?(?:famil(?:y|ies)|resistors|capacitors|opamps|limiters)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
-OPENED = re.compile(r"with\s+famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*,\s*[A-Za-z0-9_.\-]+)*)\s+allowed")
+OPENED = re.compile(r"with\s+(?:famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*,\s*[A-Za-z0-9_.\-]+)*)\s+allowed"
+                    rf"|{FIELD}\s+at\s+(?P<at>[^,\n]+)),\s+the spec still does not design")
 # numbers with a unit the spec reads; "V peak" is how older refusals print a peak voltage
 _UNIT_WORDS = ((re.compile(r"\bV\s*peak\b"), "Vpk"), (re.compile(r"\bV\s*rms\b"), "Vrms"),
                (re.compile(r"\bV\s*pp\b"), "Vpp"))
@@ -75,7 +77,8 @@ def parse_refusal(message: str) -> list[Advice]:
     message = message.replace("\\n", "\n")
     opened = OPENED.search(message)
     if opened is not None:
-        add = "parts.add=" + ",".join(re.split(r"\s*,\s*", opened["value"].strip()))
+        add = ("parts.add=" + ",".join(re.split(r"\s*,\s*", opened["value"].strip())) if opened["value"] else
+               f"{opened['field']}={spec_value(opened['at'])}")
         inner = parse_refusal(message[opened.end():])
         return _unique(parse_refusal(message[:opened.start()])
                        + [Advice("joint", ";".join([add, a.value if a.field == "joint" else f"{a.field}={a.value}"]),

@@ -14,17 +14,25 @@ every value it gives holds with them.
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
-from partpick.circuits.periphery import BIAS_ROLES
+from partpick import units
 from partpick.errors import InfeasibleError
-from partpick.refusal import loosened_together
+from partpick.refusal import NO_OSCILLATION, loosened_together
 from partpick.spec import Spec
 
 __all__ = ["KINDS", "restricted", "opened", "allowing", "families_to_allow", "new_families", "opening_kinds",
-           "widened"]
+           "widened", "eased"]
 
 KINDS = ("resistors", "capacitors", "opamps", "limiters")   # the kinds a refusal may open
+# a target nothing oscillates at is moved toward an easy value: these shares of the way
+# (geometrically) first, then bisected this many times between the last that does not
+# design and the first that does
+EASE_STEPS = (0.25, 0.5, 1.0)
+EASE_BISECTIONS = 3
+EASY_LOAD_OHM = 100e3     # a load the weakest op-amp drives (common practice, no published source)
+STILL = "the spec still does not design:"
 
 
 def restricted(spec: Spec) -> tuple[str, ...]:
@@ -61,11 +69,10 @@ def families_to_allow(spec: Spec, catalog, kinds, run) -> tuple[str, ...]:
 
 def new_families(spec: Spec, catalog, bom, kinds) -> tuple[str, ...]:
     """The families (sorted ids) of kinds in bom that the spec's lists leave out (the
-    single supply's bias and coupling parts not counted: they are drawn from what the
-    spec allows)."""
-    return tuple(sorted({ln.family for ln in bom.lines if ln.role not in BIAS_ROLES
-                         and (kind := catalog.kind_of(ln.family)) in kinds
-                         and ln.family not in spec.parts.of_kind(kind)}))
+    single supply's bias and coupling parts too: a 2.2 uF mid-rail capacitor the
+    allowed families cannot make is as much a reason as an arm)."""
+    return tuple(sorted({ln.family for ln in bom.lines
+                         if (kind := catalog.kind_of(ln.family)) in kinds and ln.family not in spec.parts.of_kind(kind)}))
 
 
 def allow_line(families) -> str:
@@ -76,14 +83,18 @@ def allow_line(families) -> str:
 
 def allowed_block(families, message: str, said: str = "") -> list[str]:
     """The why-not of the spec with families allowed (its message), as lines that state
-    them first: what binds next and the values to relax to hold with them. Its lines the
-    refusal has said already (said) are left out, and its head and notes (ours)."""
+    them first: what binds next and the values to relax to hold with them."""
+    return _block(f"with famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)} allowed", message, said)
+
+
+def _block(given: str, message: str, said: str) -> list[str]:
+    """A why-not (message) stated under what it is given ('with ...'), its lines the
+    refusal has said already (said) left out, and its head and notes (ours)."""
     inner = message.splitlines()
     if inner and inner[0] == "no design meets the spec":
         inner = [ln for ln in inner[1:] if not ln.startswith("  (")]
     inner = [ln for ln in inner if ln not in said.splitlines()]
-    return [f"with famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)} allowed, the spec still does "
-            "not design:"] + [f"  {ln}" for ln in inner]
+    return [f"{given}, {STILL}"] + [f"  {ln}" for ln in inner]
 
 
 def opening_kinds(spec: Spec, binding) -> tuple[str, ...]:
@@ -100,11 +111,77 @@ def widened(spec: Spec, catalog, kinds, run, design, said: str = "") -> tuple[li
     the refusal said already, said); None when opening kinds designs nothing either.
     run(spec) -> a design run's passing BOMs; design(spec, families) designs the spec as
     the user's command would, raising InfeasibleError with its why-not."""
-    fams = families_to_allow(spec, catalog, kinds, run)
+    fams = families_to_allow(spec, catalog, kinds, run) if kinds else ()
     if not fams:
         return None
     try:
         design(allowing(spec, catalog, fams), fams)
     except InfeasibleError as exc:
+        if NO_OSCILLATION in exc.message.splitlines():
+            return None     # (they do not make it oscillate either)
         return allowed_block(fams, exc.message, said), exc.binding
     return [allow_line(fams)], ()
+
+
+def _targeted(spec: Spec, field: str, value: float) -> Spec:
+    """The spec with its amplitude target (V peak, kept in the kind it was written in)
+    or its load resistance (ohm) at value."""
+    if field == "amplitude.target":
+        kind = spec.amplitude.target.kind
+        return replace(spec, amplitude=replace(spec.amplitude, target=units.Amplitude(value, "pk").as_kind(kind)))
+    return replace(spec, load=replace(spec.load, resistance_ohm=value))
+
+
+def _shown(spec: Spec, field: str, value: float) -> str:
+    if field == "amplitude.target":
+        return units.format_amplitude(units.Amplitude(value, "pk").as_kind(spec.amplitude.target.kind), 3)
+    return units.format_quantity(value, "resistance")
+
+
+def _round_toward(x: float, toward: float) -> float:
+    """x to two significant digits, rounded toward ``toward`` (the easy side)."""
+    step = 10 ** (math.floor(math.log10(x)) - 1)
+    return (math.ceil if toward > x else math.floor)(x / step * (1 - 1e-12 if toward > x else 1 + 1e-12)) * step
+
+
+def eased(spec: Spec, run, design, said: str = "") -> tuple[list[str], tuple[str, ...]] | None:
+    """Where nothing allowed oscillates even with every relaxable requirement loosened
+    and every kind of part opened: the amplitude target or the load that binds, moved
+    toward an easy value (an amplitude of an eighth of the smaller supply span, a load
+    of EASY_LOAD_OHM) until a run with the tolerances loosened designs, then bisected
+    (run(spec) -> a design run's passing BOMs); the nearer of the two, rounded to two
+    figures toward the easy side. (message lines, binding): the value to move it to
+    where the spec with it designs as the user's command would (design(spec, opened)
+    raises InfeasibleError with its why-not), else that spec's why-not stated with it;
+    None when neither moves anything into oscillation."""
+    targets = [("amplitude.target", spec.amplitude.peak_v, spec.supply.span_min_v / 8),
+               ("load.resistance", spec.load.resistance_ohm, EASY_LOAD_OHM)]
+    best = None
+    for field, now, easy in targets:
+        if not (math.isfinite(now) and now > 0) or abs(math.log(easy / now)) < 0.1 or (
+                field == "load.resistance" and now >= easy):
+            continue
+
+        def moves(t: float, field=field, now=now, easy=easy) -> bool:
+            return bool(run(loosened_together(_targeted(spec, field, now * (easy / now) ** t))))
+
+        hi = next((t for t in EASE_STEPS if moves(t)), None)
+        if hi is None:
+            continue
+        lo = ([0.0] + list(EASE_STEPS))[EASE_STEPS.index(hi)]
+        for _ in range(EASE_BISECTIONS):
+            lo, hi = (lo, (lo + hi) / 2) if moves((lo + hi) / 2) else ((lo + hi) / 2, hi)
+        if best is None or hi < best[1]:
+            best = (field, hi, now, _round_toward(now * (easy / now) ** hi, easy))
+    if best is None:
+        return None
+    field, _, now, value = best
+    head = (f"{field} binds: nothing allowed oscillates at {_shown(spec, field, now)} even with the tolerances, the THD "
+            f"limit and the yield loosened; at {_shown(spec, field, value)} it does")
+    try:
+        design(_targeted(spec, field, value), (field,))
+    except InfeasibleError as exc:
+        return [head] + _block(f"with {field} at {_shown(spec, field, value)}", exc.message, said), \
+            (field,) + tuple(exc.binding)
+    verb = "raise" if value > now else "lower"
+    return [f"{head}, and the spec designs there: {verb} {field} to {_shown(spec, field, value)}"], (field,)

@@ -31,9 +31,9 @@ from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceB
 from partpick.search.pool import Pool, cost_first
 from partpick.forked import fork_map
 from partpick.lookahead import Ahead
-from partpick.opening import allowing, new_families, opening_kinds, restricted, widened
+from partpick.opening import allowing, eased, new_families, opening_kinds, restricted, widened
 from partpick.refusal import (NO_OSCILLATION, SAMPLES, default_notes, explain_refusal, frequency_hold, held_message,
-                              held_tolerance, loosened, load_relaxation, relaxed, relaxed_all, shelf_shortfall,
+                              held_tolerance, loosened, loosened_together, load_relaxation, relaxed, relaxed_all, shelf_shortfall,
                               structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
@@ -141,8 +141,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     0: a bare refusal after the full search, for a caller that has its own answer to a
     refusal, as the trade-off's family runs); ``given``: (Relaxation, statement) the
     spec has had already, which the why-not states and keeps (a load resistance a
-    refusal named); ``opened``: the families a refusal added to the spec's lists (its
-    why-not then opens no more: :mod:`partpick.opening`). ``progress(done, total)`` is
+    refusal named); ``opened``: the families a refusal added to the spec's lists, or the
+    target it moved (its why-not then opens and moves no more: :mod:`partpick.opening`). ``progress(done, total)`` is
     called as candidates are verified (physics and Monte Carlo). ``topology: auto``
     designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
@@ -369,19 +369,22 @@ def _control_may_help(verified: list[Ranked], spec: Spec) -> bool:
 
 def _bare(s: Spec, keys=None, *, catalog: Catalog, stock, seed: int, work: _Work) -> list[Bom]:
     """The passing BOMs of a design run that only proposes (SAMPLES builds, a small
-    verification budget, a bare refusal): what a refusal's analysis reads."""
+    verification budget, a bare refusal): what a refusal's analysis reads. A spec with
+    every relaxable requirement at its loose value gets the design's whole budget: a
+    refusal there says that nothing allowed oscillates at all."""
+    loosest = s == loosened_together(s)
     try:
         return [r.bom for r in design(s, catalog, stock=stock, results=3, rank_by=keys, samples=SAMPLES, seed=seed,
-                                      nearest=None, work=work).passing]
+                                      nearest=0 if loosest else None, work=work).passing]
     except InfeasibleError:
         return []
 
 
-def _whole(s: Spec, families, *, catalog: Catalog, stock, seed: int, samples: int, nearest: int) -> None:
+def _whole(s: Spec, opened, *, catalog: Catalog, stock, seed: int, samples: int, nearest: int) -> None:
     """Design s as the user's command would (its own builds and transient runs; a
-    refusal raises), with families opened by a refusal (its why-not opens no more)."""
+    refusal raises), with what a refusal opened or moved (its why-not does no more)."""
     design(s, catalog, stock=stock, results=1, samples=samples, seed=seed, nearest=nearest, work=_Work(MAX_TRANSIENT),
-           opened=families)
+           opened=opened)
 
 
 def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Searcher, failing, nearest: int,
@@ -457,9 +460,10 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     if hold and not held:
         more.append(("the frequency tolerance", hold))
     message, binding = explain_refusal(spec, failing, run, evaluate, nearest, more, lead, given, designs)
-    if NO_OSCILLATION in message.splitlines() and not opened and (wide := widened(
-            spec, catalog, restricted(spec), run, partial(_whole, catalog=catalog, stock=stock, seed=seed,
-                                                          samples=samples, nearest=nearest), message)) is not None:
+    as_user = partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest)
+    if NO_OSCILLATION in message.splitlines() and not opened and (
+            (wide := widened(spec, catalog, restricted(spec), run, as_user, message)) is not None
+            or (wide := eased(spec, run, as_user, message)) is not None):
         at = (lines := message.splitlines()).index(NO_OSCILLATION) + 1   # (after the line it answers)
         message = "\n".join(lines[:at] + wide[0] + lines[at:])
         binding = tuple(dict.fromkeys(binding + wide[1]))
