@@ -400,3 +400,48 @@ def test_a_pair_that_cannot_reach_the_frequency_is_not_offered_as_holding_it(tmp
     assert advice, refused.output
     for a in advice:
         _designs(tmp_path, ra.apply_advice(REACH, a))
+
+
+def test_a_target_nothing_oscillates_at_is_moved_to_where_a_run_designs():
+    # partpick.opening.eased on a stand-in for the design runs: a run designs where the
+    # amplitude target is at least 0.1 V peak (and the load anything). The bisection
+    # (three halvings of the last step of the ladder) must end within its resolution
+    # above that threshold, the value rounded to two figures toward the easy side, and
+    # the refusal's line must give it in the spec's own kind (Vpp here); where the spec
+    # there designs as written, the advice is to raise the target to it.
+    from partpick.errors import InfeasibleError
+    from partpick.opening import eased
+    from partpick.spec import Spec
+
+    spec = Spec.from_text(SHUT.replace("530 mVpp", "40 mVpp"))
+    easy = spec.supply.span_min_v / 8                  # the easy amplitude, V peak
+
+    def run(s):
+        return ["bom"] if s.amplitude.peak_v >= 0.1 else []
+
+    asked = []
+
+    def design(s, opened):
+        asked.append((s.amplitude.peak_v, opened))
+
+    lines, binding = eased(spec, run, design)
+    assert binding == ("amplitude.target",)
+    (peak, opened), = asked
+    assert opened == ("amplitude.target",)
+    # at or above 0.1 V, within the bisection's resolution: the ladder's widest bracket (half
+    # the way, geometrically) halved three times, then up to one step of the second figure
+    now = spec.amplitude.peak_v
+    t_star = math.log(0.1 / now) / math.log(easy / now)
+    assert 0.1 <= peak <= now * (easy / now) ** (t_star + 0.5 / 8) * 1.1
+    assert peak == float(f"{peak:.2g}")   # two figures
+    assert re.search(r"raise amplitude\.target to [\d.]+ mVpp$", lines[0]), lines
+    # where the spec there still does not design, its why-not follows, stated with the value
+    def refusing(s, opened):
+        raise InfeasibleError("no design meets the spec\nyield.min binds: ...; relax yield.min to 90 %")
+
+    lines, binding = eased(spec, run, refusing)
+    assert lines[1].startswith("with amplitude.target at ") and lines[1].endswith("the spec still does not design:")
+    assert lines[2] == "  yield.min binds: ...; relax yield.min to 90 %" and binding == ("amplitude.target", )
+    ra = _advice_reader()
+    (advice,) = ra.parse_refusal("\n".join(lines))
+    assert advice.field == "joint" and advice.value.startswith("amplitude.target=") and "yield.min=90 %" in advice.value
