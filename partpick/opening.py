@@ -71,8 +71,8 @@ def new_families(spec: Spec, catalog, bom, kinds) -> tuple[str, ...]:
     """The families (sorted ids) of kinds in bom that the spec's lists leave out (the
     single supply's bias and coupling parts too: a 2.2 uF mid-rail capacitor the
     allowed families cannot make is as much a reason as an arm)."""
-    return tuple(sorted({ln.family for ln in bom.lines
-                         if (kind := catalog.kind_of(ln.family)) in kinds and ln.family not in spec.parts.of_kind(kind)}))
+    return tuple(sorted({ln.family for ln in bom.lines if (kind := catalog.kind_of(ln.family)) in kinds
+                         and ln.family not in spec.parts.of_kind(kind)}))
 
 
 def allow_line(families) -> str:
@@ -176,8 +176,8 @@ def eased(spec: Spec, run, design, said: str = "") -> tuple[list[str], tuple[str
     if best is None:
         return None
     field, _, now, value = best
-    head = (f"{field} binds: nothing allowed oscillates at {_shown(spec, field, now)} even with the tolerances, the THD "
-            f"limit and the yield loosened; at {_shown(spec, field, value)} it does")
+    head = (f"{field} binds: nothing allowed oscillates at {_shown(spec, field, now)} even with the tolerances, "
+            f"the THD limit and the yield loosened; at {_shown(spec, field, value)} it does")
     try:
         design(_targeted(spec, field, value), (field,))
     except InfeasibleError as exc:

@@ -33,8 +33,8 @@ from partpick.forked import fork_map
 from partpick.lookahead import Ahead
 from partpick.opening import allowing, eased, new_families, opening_kinds, restricted, widened
 from partpick.refusal import (NO_OSCILLATION, SAMPLES, default_notes, explain_refusal, frequency_hold, held_message,
-                              held_tolerance, loosened, loosened_together, load_relaxation, relaxed, relaxed_all, shelf_shortfall,
-                              structural_refusal)
+                              held_tolerance, loosened, loosened_together, load_relaxation, relaxed, relaxed_all,
+                              shelf_shortfall, structural_refusal)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -142,8 +142,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     refusal, as the trade-off's family runs); ``given``: (Relaxation, statement) the
     spec has had already, which the why-not states and keeps (a load resistance a
     refusal named); ``opened``: the families a refusal added to the spec's lists, or the
-    target it moved (its why-not then opens and moves no more: :mod:`partpick.opening`). ``progress(done, total)`` is
-    called as candidates are verified (physics and Monte Carlo). ``topology: auto``
+    target it moved (its why-not then opens and moves no more: :mod:`partpick.opening`).
+    ``progress(done, total)`` is called as candidates are verified (physics and Monte Carlo). ``topology: auto``
     designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
     """
     timings: dict[str, float] = {}
@@ -174,9 +174,6 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             at = units.format_quantity(rel.advice, "resistance")
             raise InfeasibleError(exc.message if why_not else f"{bound}\nwith load.resistance at {at}, {exc.message}",
                                   tuple(dict.fromkeys(early[1] + exc.binding))) from None
-    # a frequency tolerance no allowed family pair holds is refused at once by the runs
-    # that explain a refusal; the design the user asked for goes on to the why-not, which
-    # finds the tolerance a design holds (and the families that would hold this one)
     if early is not None and nearest and not opened and (kinds := opening_kinds(spec, early[1])):
         # the parts allowed cannot make the oscillator at all: the families that would, and
         # the why-not of the spec with them allowed
@@ -186,6 +183,9 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                        early[0])
         if wide is not None:
             raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
+    # a frequency tolerance no allowed family pair holds is refused at once by the runs
+    # that explain a refusal; the design the user asked for goes on to the why-not, which
+    # finds the tolerance a design holds (and the families that would hold this one)
     if early is not None and not (nearest and early[1] == ("frequency.tolerance",)):
         raise InfeasibleError(*early)
     t1 = time.perf_counter()

@@ -389,7 +389,8 @@ def test_a_pair_that_cannot_reach_the_frequency_is_not_offered_as_holding_it(tmp
     refused = _design(spec)
     assert refused.exit_code == 1, refused.output
     assert "out of reach" not in refused.output
-    named = re.search(r"best allowed families \(([a-z0-9.-]+) resistors [^,]+, ([a-z0-9.-]+) capacitors", refused.output)
+    named = re.search(r"best allowed families \(([a-z0-9.-]+) resistors [^,]+, ([a-z0-9.-]+) capacitors",
+                      refused.output)
     assert named, refused.output
     r_fam, c_fam = cat.find("resistors", named[1]), cat.find("capacitors", named[2])
     # the named pair's largest arm (equal arms) reaches down to 3.1 Hz
