@@ -19,10 +19,10 @@ from dataclasses import replace
 
 from partpick import units
 from partpick.errors import InfeasibleError
-from partpick.refusal import NO_OSCILLATION, loosened_together
+from partpick.refusal import NO_OSCILLATION, loosened_together, relaxed, round_loose
 from partpick.spec import Spec
 
-__all__ = ["KINDS", "restricted", "opened", "allowing", "families_to_allow", "new_families", "opening_kinds",
+__all__ = ["KINDS", "restricted", "kinds_opened", "allowing", "families_to_allow", "new_families", "opening_kinds",
            "widened", "eased"]
 
 KINDS = ("resistors", "capacitors", "opamps", "limiters")   # the kinds a refusal may open
@@ -40,7 +40,7 @@ def restricted(spec: Spec) -> tuple[str, ...]:
     return tuple(k for k in KINDS if spec.parts.of_kind(k) is not None)
 
 
-def opened(spec: Spec, kinds) -> Spec:
+def kinds_opened(spec: Spec, kinds) -> Spec:
     """The spec with every family of the catalog allowed for each kind of kinds."""
     return replace(spec, parts=replace(spec.parts, **{k: None for k in kinds}))
 
@@ -59,7 +59,7 @@ def families_to_allow(spec: Spec, catalog, kinds, run) -> tuple[str, ...]:
     of a run uses with those kinds opened: as written, else with every relaxable
     requirement at its loose value (run(spec) -> the passing BOMs of a design run). Empty
     when neither run designs, or its design needs nothing the spec does not allow."""
-    wide = opened(spec, kinds)
+    wide = kinds_opened(spec, kinds)
     for s in (wide, loosened_together(wide)):
         boms = run(s)
         if boms:
@@ -75,16 +75,20 @@ def new_families(spec: Spec, catalog, bom, kinds) -> tuple[str, ...]:
                          and ln.family not in spec.parts.of_kind(kind)}))
 
 
+def _named(families) -> str:
+    """'family X' or 'families X, Y'."""
+    return f"famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)}"
+
+
 def allow_line(families) -> str:
     """The advice to allow families, when the spec with them designs as written."""
-    return f"allow famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)}: the search designs with " \
-           f"{'it' if len(families) == 1 else 'them'}"
+    return f"allow {_named(families)}: the search designs with {'it' if len(families) == 1 else 'them'}"
 
 
 def allowed_block(families, message: str, said: str = "") -> list[str]:
     """The why-not of the spec with families allowed (its message), as lines that state
     them first: what binds next and the values to relax to hold with them."""
-    return _block(f"with famil{'y' if len(families) == 1 else 'ies'} {', '.join(families)} allowed", message, said)
+    return _block(f"with {_named(families)} allowed", message, said)
 
 
 def _block(given: str, message: str, said: str) -> list[str]:
@@ -129,19 +133,13 @@ def _targeted(spec: Spec, field: str, value: float) -> Spec:
     if field == "amplitude.target":
         kind = spec.amplitude.target.kind
         return replace(spec, amplitude=replace(spec.amplitude, target=units.Amplitude(value, "pk").as_kind(kind)))
-    return replace(spec, load=replace(spec.load, resistance_ohm=value))
+    return relaxed(spec, field, value)
 
 
 def _shown(spec: Spec, field: str, value: float) -> str:
     if field == "amplitude.target":
         return units.format_amplitude(units.Amplitude(value, "pk").as_kind(spec.amplitude.target.kind), 3)
     return units.format_quantity(value, "resistance")
-
-
-def _round_toward(x: float, toward: float) -> float:
-    """x to two significant digits, rounded toward ``toward`` (the easy side)."""
-    step = 10 ** (math.floor(math.log10(x)) - 1)
-    return (math.ceil if toward > x else math.floor)(x / step * (1 - 1e-12 if toward > x else 1 + 1e-12)) * step
 
 
 def eased(spec: Spec, run, design, said: str = "") -> tuple[list[str], tuple[str, ...]] | None:
@@ -172,7 +170,7 @@ def eased(spec: Spec, run, design, said: str = "") -> tuple[list[str], tuple[str
         for _ in range(EASE_BISECTIONS):
             lo, hi = (lo, (lo + hi) / 2) if moves((lo + hi) / 2) else ((lo + hi) / 2, hi)
         if best is None or hi < best[1]:
-            best = (field, hi, now, _round_toward(now * (easy / now) ** hi, easy))
+            best = (field, hi, now, round_loose(now * (easy / now) ** hi, easy > now))   # (toward the easy side)
     if best is None:
         return None
     field, _, now, value = best

@@ -31,7 +31,7 @@ from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceB
 from partpick.search.pool import Pool, cost_first
 from partpick.forked import fork_map
 from partpick.lookahead import Ahead
-from partpick.opening import allowing, eased, new_families, opening_kinds, restricted, widened
+from partpick.opening import allowing, eased, kinds_opened, new_families, opening_kinds, restricted, widened
 from partpick.refusal import (NO_OSCILLATION, SAMPLES, default_notes, explain_refusal, frequency_hold, held_message,
                               held_tolerance, loosened, loosened_together, load_relaxation, relaxed, relaxed_all,
                               shelf_shortfall, structural_refusal)
@@ -435,8 +435,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     # at once over the CPUs; what follows only reads them. A run is a pure function of its
     # spec (no transient run is allowed in any), so the answer is the same either way.
     loose = relaxed_all(spec, [g for g, _ in given])   # (the spec explain_refusal works on: the same runs)
-    one_open = [(kind, replace(spec, parts=replace(spec.parts, **{kind: None})))
-              for kind in ("resistors", "capacitors", "opamps", "limiters") if spec.parts.of_kind(kind) is not None]
+    one_open = [(kind, kinds_opened(spec, (kind,))) for kind in restricted(spec)]
     prefer = replace(spec, stock=replace(spec.stock, mode="prefer")) if problem.shelf is not None else None
     # (the runs with more parts allowed search the most: started first, so that the
     # cheap ones fill the other CPUs meanwhile)

@@ -37,7 +37,7 @@ from partpick.spec import Spec
 
 __all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
            "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all", "load_relaxation",
-           "shelf_shortfall", "loosened_together", "NO_OSCILLATION"]
+           "shelf_shortfall", "loosened_together", "NO_OSCILLATION", "round_loose"]
 
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
@@ -111,7 +111,7 @@ def default_notes(spec: Spec) -> tuple[str, ...]:
     return ()
 
 
-def _round_up(x: float, tighter_smaller: bool) -> float:
+def round_loose(x: float, tighter_smaller: bool) -> float:
     """A round value (two significant digits) on the loose side of x."""
     if x <= 0:
         return x
@@ -139,7 +139,7 @@ def _reach(spec: Spec, field: str, designs, check) -> Relaxation | None:
             best = hi
     if best is None:
         return None
-    advice = _round_up(best, smaller)
+    advice = round_loose(best, smaller)
     return Relaxation(field, best, advice)
 
 
@@ -194,7 +194,7 @@ def _designed_step(spec: Spec, together: list[Relaxation], designs) -> list[Rela
     does. (Near a yield of 99.9 % the Monte Carlo's noise can hold a design a step or
     two past the value its nearest design reaches.)"""
     for t in (0.0,) + JOINT_STEPS + (1.0,):
-        step = [replace(rel, advice=_round_up(_toward(rel.field, rel.advice, t), RELAXABLE[rel.field][3]))
+        step = [replace(rel, advice=round_loose(_toward(rel.field, rel.advice, t), RELAXABLE[rel.field][3]))
                 for rel in together]
         if designs(relaxed_all(spec, step)):
             return step
@@ -446,7 +446,7 @@ def load_relaxation(spec: Spec, problem) -> Relaxation | None:
     if abs(y) <= y_max or y.imag > y.real or y_max <= y.imag:
         return None
     r_need = 1 / math.sqrt(y_max ** 2 - y.imag ** 2)
-    return Relaxation("load.resistance", r_need, _round_up(r_need, True))
+    return Relaxation("load.resistance", r_need, round_loose(r_need, True))
 
 
 def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str = "",
@@ -552,7 +552,7 @@ def frequency_hold(spec: Spec, problem, best_hold, catalog) -> tuple[str, float]
 def held_tolerance(spec: Spec, t: float) -> Relaxation:
     """The frequency tolerance a refusal works from when no allowed pair holds the
     spec's: HOLD_MARGIN times what the best pair holds centred (t, fraction), rounded up."""
-    return Relaxation("frequency.tolerance", t, _round_up(max(t * HOLD_MARGIN, spec.frequency.tolerance_frac), True))
+    return Relaxation("frequency.tolerance", t, round_loose(max(t * HOLD_MARGIN, spec.frequency.tolerance_frac), True))
 
 
 def held_message(spec: Spec, hold: str, rel: Relaxation) -> tuple[str, tuple[str, ...]]:
