@@ -176,10 +176,20 @@ def eased(spec: Spec, run, design, said: str = "") -> tuple[list[str], tuple[str
     field, _, now, value = best
     head = (f"{field} binds: nothing allowed oscillates at {_shown(spec, field, now)} even with the tolerances, "
             f"the THD limit and the yield loosened; at {_shown(spec, field, value)} it does")
+    still = moved(spec, field, value, design, said)
+    if still is not None:
+        return [head] + still[0], (field,) + still[1]
+    verb = "raise" if value > now else "lower"
+    return [f"{head}, and the spec designs there: {verb} {field} to {_shown(spec, field, value)}"], (field,)
+
+
+def moved(spec: Spec, field: str, value: float, design, said: str = "") -> tuple[list[str], tuple[str, ...]] | None:
+    """The spec with its amplitude target (V peak) or load (ohm) at the value a refusal
+    names, designed as the user's command would (design(spec, opened) raises
+    InfeasibleError with its why-not): None where it designs, else (that why-not's lines
+    stated with the value, but for what the refusal said already, said; its binding)."""
     try:
         design(_targeted(spec, field, value), (field,))
     except InfeasibleError as exc:
-        return [head] + _block(f"with {field} at {_shown(spec, field, value)}", exc.message, said), \
-            (field,) + tuple(exc.binding)
-    verb = "raise" if value > now else "lower"
-    return [f"{head}, and the spec designs there: {verb} {field} to {_shown(spec, field, value)}"], (field,)
+        return _block(f"with {field} at {_shown(spec, field, value)}", exc.message, said), tuple(exc.binding)
+    return None

@@ -28,13 +28,14 @@ from partpick.rank import Ranked, rank
 from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
-from partpick.search.pool import Pool, cost_first
+from partpick.search.pool import Pool, cost_first, hopeless
 from partpick.forked import fork_map
 from partpick.lookahead import Ahead
-from partpick.opening import allowing, eased, kinds_opened, new_families, opening_kinds, restricted, widened
+from partpick.opening import (allowing, eased, kinds_opened, moved, new_families, opening_kinds, restricted,
+                              widened)
 from partpick.refusal import (NO_OSCILLATION, SAMPLES, default_notes, explain_refusal, frequency_hold, held_message,
                               held_tolerance, loosened, loosened_together, load_relaxation, relaxed, relaxed_all,
-                              shelf_shortfall, structural_refusal)
+                              shelf_shortfall, structural_refusal, swing_target)
 from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
@@ -143,8 +144,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     spec has had already, which the why-not states and keeps (a load resistance a
     refusal named); ``opened``: the families a refusal added to the spec's lists, or the
     target it moved (its why-not then opens and moves no more: :mod:`partpick.opening`).
-    ``progress(done, total)`` is called as candidates are verified (physics and Monte Carlo). ``topology: auto``
-    designs every topology that fits the spec and ranks them together (:func:`_design_auto`).
+    ``progress(done, total)``: called as candidates are verified. ``topology: auto``: every topology
+    that fits the spec, ranked together (:func:`_design_auto`).
     """
     timings: dict[str, float] = {}
     t0 = time.perf_counter()
@@ -183,6 +184,14 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                        early[0])
         if wide is not None:
             raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
+    top = swing_target(spec, catalog, problem)[0] if early is not None and not problem.ops else 0.0
+    if top and nearest and not opened:
+        # the amplitude the best op-amp swings: the why-not of the spec there, where it does not design
+        still = moved(spec, "amplitude.target", top, partial(_whole, catalog=catalog, stock=stock, seed=seed,
+                                                             samples=samples, nearest=nearest), early[0])
+        if still is not None:
+            raise InfeasibleError("\n".join([refusal_of(bound=True)[0], *still[0]]),
+                                  tuple(dict.fromkeys(early[1] + still[1])))
     # a frequency tolerance no allowed family pair holds is refused at once by the runs
     # that explain a refusal; the design the user asked for goes on to the why-not, which
     # finds the tolerance a design holds (and the families that would hold this one)
@@ -197,6 +206,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     held: set = set()   # the configurations verified to pass: one design each is shown
     tried: set = set()  # (signature, values) of every candidate verified
     capped = False      # the last phase stopped on its budget
+    failures: dict = {}  # failed verifications per kind of candidate (Pool.failed)
 
     def job(c: Candidate, transient):
         return _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem, samples,
@@ -217,17 +227,19 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             # is followed by the yield order, with a budget of its own (the spec designs, if
             # not at the cheapest)
             for by_cost in ((True, False) if cost_first(rank_by) else (False,)):
-                pool = Pool(batches, by_cost, _hopeless(spec))
+                pool = Pool(batches, by_cost, hopeless(spec.yield_min_frac), failures)
                 searched += pool.size if by_cost == cost_first(rank_by) else 0   # (the same rows, reordered)
                 attempts = 0   # candidates verified, or skipped for want of transient runs
                 while attempts < budget:
                     c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it
                     if c is None or pool.certified(verified, c, n, rank_by):
                         break
-                    if c.yield_est < _hopeless(spec):
-                        if pool.cost_first:
-                            continue   # (a cheaper candidate with a good yield may still follow)
-                        break   # (the pool comes in yield order: what follows cannot pass either)
+                    if not pool.may_enter(verified, c, n, rank_by):
+                        continue   # (it cannot enter the top n; one of a later round may)
+                    if c.yield_est < hopeless(spec.yield_min_frac):
+                        if not pool.cost_first:
+                            pool.drop_round(c)   # (in yield order: what follows in its round cannot pass either)
+                        continue   # (a cheaper candidate, or one of a later round, may still pass)
                     if c.signature in held or _key(c) in tried:
                         continue   # its configuration passes (at another level), or the cost order verified it
                     tried.add(_key(c))
@@ -237,7 +249,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         """Whether this loop verifies d after c if c changes nothing (whether c
                         passes or not)."""
                         return (d.signature not in held and d.signature != c.signature and _key(d) not in tried
-                                and d.yield_est >= _hopeless(spec))
+                                and d.yield_est >= hopeless(spec.yield_min_frac))
 
                     r = ahead.verify(c, pool, searcher.simulate, next_taken, work.take)
                     if r is None:
@@ -245,8 +257,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         attempts += SKIP_WEIGHT - 1
                         continue
                     verified.append(r)
-                    if r.verdict.passed:
-                        held.add(c.signature)
+                    # a pass: its configuration is shown once; a failure: its kind counts it
+                    held.add(c.signature) if r.verdict.passed else pool.failed(c, spec.yield_min_frac)
                     if progress is not None:
                         progress(len(verified), max(n, len(verified)))
                 capped = attempts >= budget
@@ -467,17 +479,6 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
         message = "\n".join(lines[:at] + wide[0] + lines[at:])
         binding = tuple(dict.fromkeys(binding + wide[1]))
     return message, binding
-
-
-def _hopeless(spec: Spec) -> float:
-    """The estimated yield below which no candidate is verified: the estimates have
-    come out up to about 8 % pessimistic (lower than the Monte Carlo of verification),
-    more where the spec's own failure budget is large; and never ten times: a yield
-    limit of 50 % (a refusal's loosened run) would otherwise verify, and first place
-    by their Monte Carlo models, rows whose estimate is next to nothing (2,000 of
-    them, 9 s, for an amplitude tolerance of 1 ppm)."""
-    y = spec.yield_min_frac
-    return max(y - max(0.08, 1.5 * (1 - y)), y / 10)
 
 
 def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed):

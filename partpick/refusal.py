@@ -35,9 +35,9 @@ from partpick import units
 from partpick.search.estimate import frequency_share, frequency_tolerance
 from partpick.spec import Spec
 
-__all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes", "miss_text",
-           "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all", "load_relaxation",
-           "shelf_shortfall", "loosened_together", "NO_OSCILLATION", "round_loose"]
+__all__ = ["RELAXABLE", "Relaxation", "relaxed", "loosened", "requirement_value", "explain_refusal", "default_notes",
+           "miss_text", "structural_refusal", "frequency_hold", "held_tolerance", "held_message", "relaxed_all",
+           "load_relaxation", "shelf_shortfall", "loosened_together", "NO_OSCILLATION", "round_loose", "swing_target"]
 
 # requirement -> (how loose a run may make it, how it reads, the ranking that puts the
 # designs best at it first, tighter is smaller)
@@ -456,9 +456,9 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
     of the allowed families near the target frequency. None when the search must
     answer. reach_hz: (lowest, highest) textbook frequency the allowed families'
     arms reach, Hz; hold: what the best family pair holds when no pair can hold the
-    frequency tolerance (empty when one can); bound: the load resistance it names is
-    stated as a bound (below it nothing designs), not as the value to raise it to (that
-    is stated where the spec with it designs)."""
+    frequency tolerance (empty when one can); bound: the load resistance or amplitude it
+    names is stated as a bound (beyond it nothing designs), not as the value to move it
+    to (that is stated where the spec with it designs)."""
     notes = "".join(f" ({n})" for n in default_notes(spec))
     for kind, word in (("opamps", "op-amp"), ("limiters", "limiter"), ("resistors", "resistor family"),
                        ("capacitors", "capacitor family")):
@@ -471,12 +471,12 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
         reasons = "; ".join(f"{i}: {w}" for i, w in problem.dropped)
         swings = [why for _, why in problem.dropped if why.startswith("swings")]
         if swings:
-            best = max((_swing_of(op, spec) for op in catalog.opamps
-                        if spec.parts.opamps is None or op.id in spec.parts.opamps), default=(0.0, ""))
+            top, best = swing_target(spec, catalog, problem)
             return (f"amplitude.target binds: {_q(a.peak_v, 'voltage')} peak at the load (at least "
                     f"{_q(low, 'voltage')} peak within its tolerance) is more than any allowed op-amp swings: the "
-                    f"best ({best[1]}) swings {_q(best[0], 'voltage')} peak at the minimum supply; relax "
-                    f"amplitude.target to {_q(best[0] / (1 - a.tolerance_frac), 'voltage')} peak or raise the supply. "
+                    f"best ({best}) swings {_q(top * (1 - a.tolerance_frac), 'voltage')} peak at the minimum supply; "
+                    + (f"an amplitude.target over {_q(top, 'voltage')} peak cannot design (or raise the supply). "
+                       if bound else f"relax amplitude.target to {_q(top, 'voltage')} peak or raise the supply. ") +
                     f"Left out: {reasons}{notes}", ("amplitude.target",))
         return f"supply binds: no allowed op-amp can serve: {reasons}{notes}", ("supply",)
     # the least current the load takes at the target frequency: the sine's peak times the
@@ -533,7 +533,8 @@ def frequency_hold(spec: Spec, problem, best_hold, catalog) -> tuple[str, float]
         lo, hi = problem.topology.reach_hz(r, c)
         return lo <= f <= hi
 
-    shares = {(r, c): float(frequency_share(np.array([0.0]), problem.freq_sigma(r, c), problem.freq_drift(r, c), tol)[0])
+    shares = {(r, c): float(frequency_share(np.array([0.0]), problem.freq_sigma(r, c), problem.freq_drift(r, c),
+                                            tol)[0])
               for r in catalog.of_kind("resistors") for c in catalog.of_kind("capacitors") if reaches(r, c)}
     shares = shares or {(rfa, cfa): share}
     r_best, c_best = max(shares, key=lambda k: (shares[k], k[0].id, k[1].id))
@@ -561,6 +562,15 @@ def held_message(spec: Spec, hold: str, rel: Relaxation) -> tuple[str, tuple[str
     notes = "".join(f"\n  ({n})" for n in default_notes(spec))
     return (f"no design meets the spec{notes}\nfrequency.tolerance binds: {hold}; the search designs at "
             f"{_fmt(rel.field, rel.advice)}: {_advice([rel])}"), (rel.field,)
+
+
+def swing_target(spec: Spec, catalog, problem) -> tuple[float, str]:
+    """(the amplitude target, V peak, whose tolerance's bottom the best allowed op-amp
+    left out for its swing alone swings at the minimum supply; its id): (0, '') if none
+    (one that cannot take the supply would swing more in vain)."""
+    swung = {i for i, why in problem.dropped if why.startswith("swings")}
+    best = max((_swing_of(op, spec) for op in catalog.opamps if op.id in swung), default=(0.0, ""))
+    return best[0] / (1 - spec.amplitude.tolerance_frac), best[1]
 
 
 def _swing_of(op, spec: Spec) -> tuple[float, str]:

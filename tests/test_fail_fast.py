@@ -30,8 +30,7 @@ from partpick.circuits import CONTROLS, TOPOLOGIES
 from partpick.circuits import limiter_surface as ls
 from partpick.physics import harmonic
 from partpick.physics.junction import limiter_table
-from partpick.pipeline import _hopeless
-from partpick.spec import Spec
+from partpick.search.pool import hopeless
 
 SPECS = Path(__file__).resolve().parents[1] / "specs"
 
@@ -199,10 +198,9 @@ def test_the_level_weights_are_the_planners(demo_catalog):
 
 
 def test_a_hopeless_estimate_is_a_tenth_of_the_limit_at_most():
-    lvdt_spec = Spec.from_yaml(SPECS / "lvdt-exciter.yaml")
     # a yield limit of 50 % (a refusal's loosened run) once verified, and first placed by
     # their Monte Carlo models, 2,000 rows estimated at next to nothing (an amplitude
     # tolerance of 1 ppm): 9 s. The usual margin still rules near a spec's own limit.
-    assert _hopeless(replace(lvdt_spec, yield_min_frac=0.5)) == pytest.approx(0.05)
-    assert _hopeless(replace(lvdt_spec, yield_min_frac=0.95)) == pytest.approx(0.87)
-    assert _hopeless(replace(lvdt_spec, yield_min_frac=1e-6)) == pytest.approx(1e-7)
+    assert hopeless(0.5) == pytest.approx(0.05)
+    assert hopeless(0.95) == pytest.approx(0.87)
+    assert hopeless(1e-6) == pytest.approx(1e-7)

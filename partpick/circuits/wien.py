@@ -230,7 +230,9 @@ class WienBridge:
         return c.with_values(rf=c.value("rf") * (1 + rel))
 
     # -- search hooks ----------------------------------------------------------------------------
-    arm_r = (1e3, 470e3)        # arm resistances, ohm: above op-amp loading, below bias/stray trouble
+    # arm resistances, ohm: above op-amp loading; up to the 1 Mohm at which each op-amp's own
+    # bias-current limit (derating rule bias_drop, which check judges) is capped
+    arm_r = (1e3, 1e6)
     arm_c_min = 100e-12         # arm capacitors, F: well above stray capacitance
     arm_ratio = 1.25            # Rs/Rp and Cp/Cs within 1/1.25..1.25: required gain near 3
     required_gain_range = (1 + 2 / 1.25, 1 + 2 * 1.25)   # what those arms need, V/V

@@ -47,6 +47,12 @@ class Candidate:
         """The search's own order: estimated yield to YIELD_STEP, then cost."""
         return (math.floor((1.0 - self.yield_est) / YIELD_STEP), self.cost, abs(self.err))
 
+    def kind(self) -> tuple:
+        """What the search's estimates err alike on: the op-amp, the amplitude control
+        and its part, and the output stage (:class:`partpick.search.pool.Pool` demotes a
+        kind its verifications keep failing)."""
+        return self.stage, self.control, tuple(sorted(self.parts.items()))
+
 
 @dataclass(frozen=True, eq=False)
 class Batch:
@@ -82,6 +88,11 @@ class Batch:
     def keys(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """The search's order (Candidate.key) of every row: yield tier, cost, |error|."""
         return np.floor((1.0 - self.y) / YIELD_STEP), self.cost, np.abs(self.err)
+
+    def kinds(self) -> list[tuple]:
+        """Candidate.kind of every row, without making the candidates."""
+        of_group = [(g[1], "", (("limiter", self.lim.id), ("opamp", g[0].id))) for g in self.groups]
+        return [of_group[g] for g in self.group]
 
     def candidate(self, i: int) -> Candidate:
         s = self.searcher

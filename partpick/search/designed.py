@@ -61,6 +61,9 @@ class DesignedBatch:
     def candidate(self, i: int) -> Candidate:
         return self.cands[i]
 
+    def kinds(self) -> list[tuple]:
+        return [c.kind() for c in self.cands]
+
     @property
     def y(self) -> np.ndarray:
         return np.array([c.yield_est for c in self.cands])

@@ -31,7 +31,7 @@ from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner, prepare
 from partpick.circuits.options import nearest, sigma, values_of
 from partpick.derating import bias_r_max, package_limit
-from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
+from partpick.physics.opamp import class_b_loss, linear_peak_v
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.kernels import best_rows, first_of_groups
@@ -364,7 +364,11 @@ class Searcher:
         buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
         y_net = self._net_admittance(vals[u], r_fb[u], r_gnd)[back]
         i_osc = vo.max(axis=0) * self._osc_admittance(y_net, kinds, ra, rb)
-        i_load = np.where(buffered, load.max(axis=0) * abs(self.y_load), 0.0)
+        # what the buffer channel drives: the load and a gain stage's own feedback divider,
+        # as verification counts it (periphery.stage_load_admittance)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            y_stage = self.y_load + np.where(kinds == _KIND["gain"], 1 / (ra + rb), 0.0)
+        i_load = np.where(buffered, load.max(axis=0) * np.abs(y_stage), 0.0)
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -373,7 +377,7 @@ class Searcher:
             # buffer needs a second channel the package lacks)
             span = p.spec.supply.span_max_v
             osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
-            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, power_factor(self.y_load)), 0.0)
+            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, _power_factors(y_stage)), 0.0)
             watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
                                                                  np.maximum(osc_w, buf_w))
             rr = vals[:, [0, 2]]
@@ -556,6 +560,13 @@ class Searcher:
 
 
 _KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
+
+
+def _power_factors(y: np.ndarray) -> np.ndarray:
+    """cos(phi) of loads of admittances y (S), row by row (physics.opamp.power_factor)."""
+    mag = np.abs(y)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(mag > 0, y.real / mag, 1.0)
 
 
 def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:

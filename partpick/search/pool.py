@@ -10,9 +10,25 @@ import numpy as np
 from partpick.rank import Ranked, rank
 from partpick.search.candidates import Candidate
 
-__all__ = ["Pool", "OPTIMISM", "cost_first"]
+__all__ = ["Pool", "OPTIMISM", "DEMOTE_AFTER", "cost_first", "hopeless"]
 
 OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
+# failed verifications of one kind of candidate (Candidate.kind: op-amp, control, stage)
+# after which the rest of that kind wait behind every kind that has failed fewer times:
+# the estimates of one kind err alike (a THD or an output current the closed form puts
+# just inside a limit), so the candidates that follow a kind's failures mostly fail the
+# same way, and a verification budget spent on them leaves a kind that passes untried
+DEMOTE_AFTER = 2
+
+
+def hopeless(y: float) -> float:
+    """The estimated yield below which no candidate is verified, for a yield limit y
+    (fraction): the estimates have come out up to about 8 % pessimistic (lower than the
+    Monte Carlo of verification), more where the spec's own failure budget is large; and
+    never ten times: a yield limit of 50 % (a refusal's loosened run) would otherwise
+    verify, and first place by their Monte Carlo models, rows whose estimate is next to
+    nothing (2,000 of them, 9 s, for an amplitude tolerance of 1 ppm)."""
+    return max(y - max(0.08, 1.5 * (1 - y)), y / 10)
 
 
 def cost_first(rank_by) -> bool:
@@ -28,12 +44,18 @@ class Pool:
     row from the batches, made into a Candidate only when it comes up, then re-placed by
     the Monte Carlo model of its yield before it is taken."""
 
-    def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0) -> None:
+    def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0, failures: dict | None = None) -> None:
         self.batches = batches
         self.cost_first = cost_first
         keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else [np.zeros(0)] * 3
         src = np.concatenate([np.full(len(b), i) for i, b in enumerate(batches)]) if batches else np.zeros(0, int)
         row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
+        # each row's kind (an index into self.kinds) and the failed verifications of each
+        # kind (shared by the pools of one design run: ``failures``, kind -> count)
+        index: dict = {}
+        kind = np.array([index.setdefault(k, len(index)) for b in batches for k in b.kinds()], int)
+        self.kinds: list[tuple] = list(index)
+        self.failures = failures if failures is not None else {}
         # each row's estimated yield, cost and THD, for the certification (certified)
         figures = [np.concatenate([np.asarray(getattr(b, f), float) for b in batches]) if batches else np.zeros(0)
                    for f in ("y", "cost", "thd")]
@@ -44,23 +66,61 @@ class Pool:
         keys, src, row, figures = ([k[keep] for k in keys], src[keep], row[keep], [f[keep] for f in figures])
         if cost_first:
             keys = [keys[1], keys[0], keys[2]]
-        order = np.lexsort(tuple(reversed(keys)))
-        self.src, self.row = src[order], row[order]
-        self.figures = [f[order] for f in figures]
-        self.keys = [k[order] for k in keys]
-        self.size = int(order.size)
+        self.src, self.row, self.kind, self.figures, self.keys = src, row, kind[keep], figures, keys
+        self.size = int(src.size)
         self.at = 0
         self.placed: list = []      # heap of (key, seq, simulated candidate)
-        self._simulated: dict = {}  # position in this order -> its candidate simulated (by peek, or in turn)
+        self._simulated: dict = {}  # (batch, row) -> its candidate simulated (by peek, or in turn)
+        self._ranked: tuple = (None, None)   # (what was ranked, the n-th passing): see _nth
+        self._sort()
+
+    def _round(self, kind: tuple) -> int:
+        """How far back a kind's candidates wait: one round per DEMOTE_AFTER failures."""
+        return self.failures.get(kind, 0) // DEMOTE_AFTER
+
+    def _sort(self) -> None:
+        """The rows not yet taken in the order (round of their kind, then the search's key)."""
+        at = self.at
+        rounds = np.array([self._round(k) for k in self.kinds] or [0], int)[self.kind[at:]]
+        order = at + np.lexsort(tuple(reversed([rounds, *(k[at:] for k in self.keys)])))
+        for name in ("src", "row", "kind"):
+            getattr(self, name)[at:] = getattr(self, name)[order]
+        for arrays in (self.figures, self.keys):
+            for a in arrays:
+                a[at:] = a[order]
+        self.placed = [(self._key(e[2]), e[1], e[2]) for e in self.placed]
+        heapq.heapify(self.placed)
+
+    def failed(self, c: Candidate, promised: float) -> None:
+        """Candidate c failed verification: where its estimated yield promised a pass
+        (at least ``promised``, the spec's limit), its kind counts one more failure (and
+        waits behind the others once it has DEMOTE_AFTER more). A candidate verified on
+        the chance that it comes out better than estimated and failing is no news."""
+        if c.yield_est < promised:
+            return
+        kind = c.kind()
+        self.failures[kind] = self.failures.get(kind, 0) + 1
+        if self.failures[kind] % DEMOTE_AFTER == 0:
+            self._sort()
+
+    def drop_round(self, c: Candidate) -> None:
+        """Leave out the rest of candidate c's round: in the yield order, c's estimated
+        yield cannot pass, and neither can what follows it in its round (the candidates
+        of kinds that failed more often, in later rounds, still come)."""
+        r = self._round(c.kind())
+        self.placed = [e for e in self.placed if e[0][0] != r]
+        heapq.heapify(self.placed)
+        while self.at < self.size and self._round(self.kinds[self.kind[self.at]]) == r:
+            self.at += 1
 
     def _key(self, c: Candidate) -> tuple:
         k = c.key()
-        return (k[1], k[0], k[2]) if self.cost_first else k
+        return (self._round(c.kind()),) + ((k[1], k[0], k[2]) if self.cost_first else k)
 
     def _head_key(self) -> tuple | None:
         if self.at >= self.size:
             return None
-        return tuple(float(k[self.at]) for k in self.keys)
+        return (self._round(self.kinds[self.kind[self.at]]),) + tuple(float(k[self.at]) for k in self.keys)
 
     def rest(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(estimated yield, cost, THD) of every candidate not yet taken: those placed by
@@ -77,10 +137,10 @@ class Pool:
                 return heapq.heappop(self.placed)[2]
             if head is None:
                 return None
-            c = self._simulated.get(self.at)
+            at = int(self.src[self.at]), int(self.row[self.at])
+            c = self._simulated.get(at)
             if c is None:
-                row = self.batches[self.src[self.at]].candidate(int(self.row[self.at]))
-                c = self._simulated[self.at] = simulate(row)
+                c = self._simulated[at] = simulate(self.batches[at[0]].candidate(at[1]))
             heapq.heappush(self.placed, (self._key(c), self.at, c))
             self.at += 1
 
@@ -107,17 +167,39 @@ class Pool:
         judged, not only the next: this order (estimated yield, then cost) is not the
         ranking's, so a cheaper candidate of a slightly lower estimated yield may still
         tie on yield and win on cost."""
-        passing = rank([r for r in verified if r.verdict.passed], rank_by)
-        if len(passing) < n:
+        nth = self._nth(verified, n, rank_by)
+        if nth is None:
             return False
         y, cost, thd = self.rest()
         y, cost, thd = np.append(y, c.yield_est), np.append(cost, c.cost), np.append(thd, c.thd)
-        return not _could_beat(y, cost, thd, passing[n - 1], rank_by).any()
+        return not _could_beat(y, cost, thd, nth, rank_by).any()
+
+    def _nth(self, verified: list[Ranked], n: int, rank_by) -> Ranked | None:
+        """The n-th best of the candidates verified that pass (None: fewer pass), ranked
+        again only when more have passed (the list only grows)."""
+        passing = [r for r in verified if r.verdict.passed]
+        if self._ranked[0] != (len(passing), n, tuple(rank_by)):
+            ranked = rank(passing, rank_by)
+            self._ranked = ((len(passing), n, tuple(rank_by)), ranked[n - 1] if len(ranked) >= n else None)
+        return self._ranked[1]
+
+    def may_enter(self, verified: list[Ranked], c: Candidate, n: int, rank_by) -> bool:
+        """Whether candidate c could rank among the top n (with the optimism of
+        certified, and a key the estimates cannot judge counted as a chance): fewer than
+        n of the candidates ``verified`` pass, or it could beat the n-th. (Verification
+        skips c otherwise: a candidate of a kind that waits in a later round may still
+        enter, so the rest is not certified.)"""
+        nth = self._nth(verified, n, rank_by)
+        return nth is None or bool(_could_beat(*(np.array([x]) for x in (c.yield_est, c.cost, c.thd)), nth,
+                                               rank_by, unjudged=True)[0])
 
 
-def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, rank_by) -> np.ndarray:
+def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, rank_by,
+                unjudged: bool = False) -> np.ndarray:
     """Which unverified candidates (estimated yield, cost, THD) could rank above ``nth``
-    by the keys rank_by (see certified for the optimism allowed)."""
+    by the keys rank_by (see certified for the optimism allowed). A key the estimates
+    cannot judge (frequency or amplitude error, margin, parts) is a tie, or with
+    ``unjudged`` a chance to beat: one candidate is skipped only where it surely loses."""
     beat = np.zeros(y.shape, bool)
     open_ = np.ones(y.shape, bool)      # tied so far: the next key decides
     for key in tuple(rank_by) + ("cost",):
@@ -133,6 +215,9 @@ def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, r
             better = 0.8 * thd < nth.thd * 0.95
             beat |= open_ & better
             open_ &= ~better
+        elif unjudged:
+            beat |= open_
+            break
         # frequency error, amplitude error, margin, parts: refinement makes these
         # equal to within resolution for any candidate; the next key decides
     return beat
