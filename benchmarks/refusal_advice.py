@@ -14,7 +14,10 @@ refusals changes. It looks, in order, for:
    <value>, ...``) is applied together with adding them (setting it);
 3. failing both, ``<field> binds: ... (is|reaches|of) <number unit>`` (the older wording:
    "amplitude.target binds: the nearest amplitude at the load is 2.48 V peak
-   (wanted 1.33..1.5 V)").
+   (wanted 1.33..1.5 V)");
+4. a bound, ``a <field> under <value> cannot design`` (or ``over``): beyond it nothing designs,
+   so every other piece of advice is applied together with setting it (alone only where the
+   message gives nothing else).
 
 ``<field>`` is a dotted spec path (``frequency.tolerance``, ``yield.min``,
 ``parts.capacitors``); ``<value>`` is taken up to ``;``, ``,`` or ``(`` and written
@@ -43,6 +46,7 @@ ITEM = re.compile(rf"{FIELD}\s+to\s+(?P<value>.+?)(?=\s+and\s+[a-z_]+\.|\s*$)")
 NUMBER = r"(?P<value>(?:\+/-|±)?\s*-?\d[\d.]*(?:e[+-]?\d+)?\s*(?:[a-zA-Zµ%]+(?:\s*peak)?)?)"
 BINDS = re.compile(rf"{FIELD}\s+binds:[^;]*?\b(?:is|reaches|of)\s+{NUMBER}")
 ALLOW = re.compile(r"allow\s+(?:the\s+)?(?:famil(?:y|ies)|resistors|capacitors|opamps|limiters)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*(?:,|and|or)\s*[A-Za-z0-9_.\-]+)*)")
+BOUND = re.compile(rf"\ban?\s+{FIELD}\s+(?:under|over)\s+(?P<value>[^(;\n]+?)\s+cannot design")
 OPENED = re.compile(r"with\s+(?:famil(?:y|ies)\s+(?P<value>[A-Za-z0-9_.\-]+(?:\s*,\s*[A-Za-z0-9_.\-]+)*)\s+allowed"
                     rf"|{FIELD}\s+at\s+(?P<at>[^,\n]+)),\s+the spec still does not design")
 # numbers with a unit the spec reads; "V peak" is how older refusals print a peak voltage
@@ -73,14 +77,24 @@ def parse_refusal(message: str) -> list[Advice]:
     """Every piece of advice in a refusal message (empty when it gives none). A message
     printed on one line with its line breaks escaped ('\\n') reads as its lines. The
     advice after "with families <ids> allowed" holds with them: each piece is applied
-    together with adding them (field ``joint``)."""
+    together with adding them (field ``joint``); so is every piece with a bound the
+    message states."""
     message = message.replace("\\n", "\n")
+    bounds = [f"{m['field']}={spec_value(m['value'])}" for m in BOUND.finditer(message)]
+    advice = _parse(message)
+    if not bounds or not advice:
+        return advice or [Advice(*b.split("=", 1), "relax") for b in bounds]
+    return _unique([Advice("joint", ";".join(bounds + [a.value if a.field == "joint" else f"{a.field}={a.value}"]),
+                           a.how) for a in advice])
+
+
+def _parse(message: str) -> list[Advice]:
     opened = OPENED.search(message)
     if opened is not None:
         add = ("parts.add=" + ",".join(re.split(r"\s*,\s*", opened["value"].strip())) if opened["value"] else
                f"{opened['field']}={spec_value(opened['at'])}")
-        inner = parse_refusal(message[opened.end():])
-        return _unique(parse_refusal(message[:opened.start()])
+        inner = _parse(message[opened.end():])
+        return _unique(_parse(message[:opened.start()])
                        + [Advice("joint", ";".join([add, a.value if a.field == "joint" else f"{a.field}={a.value}"]),
                                  a.how) for a in inner])
     out = [Advice(m["field"], spec_value(m["value"]), "relax") for m in RELAX.finditer(message)]

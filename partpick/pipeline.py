@@ -28,7 +28,7 @@ from partpick.rank import Ranked, rank
 from partpick.search.candidates import on_shelf
 from partpick.search.designed import designed_batch
 from partpick.search.enumerate import WINDOW_CAP, STAGE_RATIO, Candidate, PriceBook, Searcher
-from partpick.search.pool import Pool, cost_first, hopeless
+from partpick.search.pool import Pool, cost_first, hopeless, orders
 from partpick.forked import fork_map
 from partpick.lookahead import Ahead
 from partpick.opening import (allowing, eased, kinds_opened, moved, new_families, opening_kinds, restricted,
@@ -223,12 +223,12 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             batches = phase()
             t_search += time.perf_counter() - t_s
             start = len(verified)   # each phase has its own budget (a fallback must get its turn)
-            # a cost-first order that spends its budget on cheap candidates none of which passes
-            # is followed by the yield order, with a budget of its own (the spec designs, if
-            # not at the cheapest)
-            for by_cost in ((True, False) if cost_first(rank_by) else (False,)):
-                pool = Pool(batches, by_cost, hopeless(spec.yield_min_frac), failures)
-                searched += pool.size if by_cost == cost_first(rank_by) else 0   # (the same rows, reordered)
+            # an order that spends its budget without a pass is followed by the next, with a
+            # budget of its own: a cost-first order by the yield order, that by the yield order
+            # with the kinds that failed waiting behind the others (Pool's demoted order)
+            for by_cost, demoted in orders(rank_by, nearest is not None):
+                pool = Pool(batches, by_cost, hopeless(spec.yield_min_frac), failures, demoted)
+                searched += pool.size if by_cost == cost_first(rank_by) and not demoted else 0   # (the same rows)
                 attempts = 0   # candidates verified, or skipped for want of transient runs
                 while attempts < budget:
                     c = pool.next(searcher.simulate)   # the closed form ordered it; the Monte Carlo model places it

@@ -93,7 +93,7 @@ def test_a_look_ahead_leaves_the_pool_as_it_was(seed, cost_first):
                       rng.uniform(0, 0.02, n)) for n in rng.integers(1, 30, 3)]
 
     def walk(peeks: bool):
-        pool = Pool(batches, cost_first)
+        pool = Pool(batches, cost_first, demoted=True)
         seen = []
         while True:
             if peeks:
@@ -118,7 +118,7 @@ def test_a_kind_that_keeps_failing_waits_behind_the_others():
     # op0's third
     b = _Batch(np.ones(9), np.arange(9.0), np.zeros(9), np.zeros(9))
     taken = []
-    pool = Pool([b])
+    pool = Pool([b], demoted=True)
     for _ in range(4):
         c = pool.next(lambda c: c)
         taken.append(c.signature[2])
@@ -136,7 +136,7 @@ def test_a_failure_its_estimate_foresaw_is_no_news():
     # estimated at 90 % against a 95 % limit: verified on the chance, its failures do not
     # demote its kind
     b = _Batch(np.full(9, 0.9), np.arange(9.0), np.zeros(9), np.zeros(9))
-    pool = Pool([b])
+    pool = Pool([b], demoted=True)
     taken = []
     while (c := pool.next(lambda c: c)) is not None:
         taken.append(c.signature[2])
@@ -176,3 +176,20 @@ def test_range_minimum_is_the_first_smallest_of_each_range(seed, n):
         z = np.minimum(a + rng.integers(0, span + 1, 100), n)
         want = [a_ + int(np.argmin(cost[a_:z_])) if z_ > a_ else -1 for a_, z_ in zip(a, z)]
         assert rm.argmin(a, z).tolist() == want
+
+
+def test_an_order_that_is_not_demoted_keeps_its_own():
+    # the plain orders count the failures (for a demoted order after them) and keep the
+    # search's order: a kind's third candidate is often the cheapest that passes
+    b = _Batch(np.ones(9), np.arange(9.0), np.zeros(9), np.zeros(9))
+    failures: dict = {}
+    pool = Pool([b], failures=failures)
+    taken = []
+    while (c := pool.next(lambda c: c)) is not None:
+        taken.append(c.signature[2])
+        pool.failed(c, 0.99)
+    assert taken == list(range(9))
+    assert sorted(failures.values()) == [3, 3, 3]
+    # ... and a demoted order made after them starts from those counts: op0 failed more
+    failures[b.candidate(0).kind()] += 2
+    assert Pool([b], failures=failures, demoted=True).next(lambda c: c).signature[2] == 1

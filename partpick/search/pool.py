@@ -10,14 +10,16 @@ import numpy as np
 from partpick.rank import Ranked, rank
 from partpick.search.candidates import Candidate
 
-__all__ = ["Pool", "OPTIMISM", "DEMOTE_AFTER", "cost_first", "hopeless"]
+__all__ = ["Pool", "OPTIMISM", "DEMOTE_AFTER", "cost_first", "hopeless", "orders"]
 
 OPTIMISM = 0.02          # how much better than estimated an unverified candidate's yield may turn out
 # failed verifications of one kind of candidate (Candidate.kind: op-amp, control, stage)
-# after which the rest of that kind wait behind every kind that has failed fewer times:
-# the estimates of one kind err alike (a THD or an output current the closed form puts
-# just inside a limit), so the candidates that follow a kind's failures mostly fail the
-# same way, and a verification budget spent on them leaves a kind that passes untried
+# after which, in a demoted order, the rest of that kind wait behind every kind that has
+# failed fewer times: the estimates of one kind can err alike (a THD or an output current
+# the closed form puts just inside a limit), so the candidates that follow a kind's
+# failures may all fail the same way, and a budget spent on them leaves a kind that passes
+# untried. Only a rescue: an order that found a pass keeps its own (a kind's third
+# candidate is often the cheapest that passes, where its first two just missed startup)
 DEMOTE_AFTER = 2
 
 
@@ -37,6 +39,14 @@ def cost_first(rank_by) -> bool:
     return bool(keys) and keys[0] == "cost"
 
 
+def orders(rank_by, rescue: bool) -> tuple[tuple[bool, bool], ...]:
+    """The orders a phase's candidates are verified in, (cost first, demoted) each, the
+    next taken only where the last spent its budget without a pass: the cost order where
+    the ranking puts cost first, the yield order, and (``rescue``) the yield order again
+    with the kinds that failed waiting behind the others."""
+    return ((True, False),) * cost_first(rank_by) + ((False, False),) + ((False, True),) * rescue
+
+
 class Pool:
     """The search's candidates in its order (Candidate.key: estimated yield to
     YIELD_STEP, then cost; cost first when the ranking puts it first, the candidates
@@ -44,9 +54,11 @@ class Pool:
     row from the batches, made into a Candidate only when it comes up, then re-placed by
     the Monte Carlo model of its yield before it is taken."""
 
-    def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0, failures: dict | None = None) -> None:
+    def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0, failures: dict | None = None,
+                 demoted: bool = False) -> None:
         self.batches = batches
         self.cost_first = cost_first
+        self.demoted = demoted   # (the kinds' failures order the candidates: DEMOTE_AFTER)
         keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else [np.zeros(0)] * 3
         src = np.concatenate([np.full(len(b), i) for i, b in enumerate(batches)]) if batches else np.zeros(0, int)
         row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
@@ -75,8 +87,9 @@ class Pool:
         self._sort()
 
     def _round(self, kind: tuple) -> int:
-        """How far back a kind's candidates wait: one round per DEMOTE_AFTER failures."""
-        return self.failures.get(kind, 0) // DEMOTE_AFTER
+        """How far back a kind's candidates wait: one round per DEMOTE_AFTER failures
+        in a demoted order, else none."""
+        return self.failures.get(kind, 0) // DEMOTE_AFTER if self.demoted else 0
 
     def _sort(self) -> None:
         """The rows not yet taken in the order (round of their kind, then the search's key)."""
@@ -93,14 +106,15 @@ class Pool:
 
     def failed(self, c: Candidate, promised: float) -> None:
         """Candidate c failed verification: where its estimated yield promised a pass
-        (at least ``promised``, the spec's limit), its kind counts one more failure (and
-        waits behind the others once it has DEMOTE_AFTER more). A candidate verified on
-        the chance that it comes out better than estimated and failing is no news."""
+        (at least ``promised``, the spec's limit), its kind counts one more failure (and,
+        in a demoted order, waits behind the others once it has DEMOTE_AFTER more). A
+        candidate verified on the chance that it comes out better than estimated and
+        failing is no news."""
         if c.yield_est < promised:
             return
         kind = c.kind()
         self.failures[kind] = self.failures.get(kind, 0) + 1
-        if self.failures[kind] % DEMOTE_AFTER == 0:
+        if self.demoted and self.failures[kind] % DEMOTE_AFTER == 0:
             self._sort()
 
     def drop_round(self, c: Candidate) -> None:
