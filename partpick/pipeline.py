@@ -235,7 +235,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                     if c is None or pool.certified(verified, c, n, rank_by):
                         break
                     if not pool.may_enter(verified, c, n, rank_by):
-                        continue   # (it cannot enter the top n; one of a later round may)
+                        continue   # (it cannot enter the top n; a later candidate may)
                     if c.yield_est < hopeless(spec.yield_min_frac):
                         if not pool.cost_first:
                             pool.drop_round(c)   # (in yield order: what follows in its round cannot pass either)
