@@ -111,7 +111,7 @@ def candidate_bom(c: Candidate, spec: Spec, problem: Problem, fixed=()) -> Bom:
     return Bom(tuple(lines), spec.supply.kind, c.stage, problem.topology.name, control)
 
 
-def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
+def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem, by_cost: bool = False):
     fixed = ()
     if spec.supply.kind == "single":
         fixed = periphery.fixed_parts(spec, catalog, problem.r_families, Pricer(catalog, stock).unit, problem.shelf)
@@ -126,7 +126,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem):
     kinds = periphery.STAGE_KINDS if spec.output_stage == "auto" else (spec.output_stage,)
     offered = problem.topology.stages   # a topology may offer fewer
     kinds = tuple(k for k in kinds if k in offered)
-    return Searcher(problem, price, kinds), fixed
+    return Searcher(problem, price, kinds, by_cost), fixed
 
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
@@ -159,7 +159,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
-    searcher, fixed = _searcher(spec, catalog, stock, problem)
+    searcher, fixed = _searcher(spec, catalog, stock, problem, cost_first(rank_by))
     refusal_of = partial(structural_refusal, spec, catalog, problem, searcher.pairs, _reach(problem),
                          frequency_hold(spec, problem, searcher.best_hold, catalog)[0])
     early = refusal_of()

@@ -140,10 +140,13 @@ def class_b_loss(v_rail, v_pk, i_pk, power_factor=1.0):
     return np.maximum(2 * v_rail * i_pk / math.pi - v_pk * i_pk * power_factor / 2, 0.0)
 
 
-def power_factor(y: complex) -> float:
-    """cos(phi) of a load of admittance y (S): the share of Vpk I / 2 it takes as power
-    (1 for an open load, which takes nothing either way)."""
-    return y.real / abs(y) if y else 1.0
+def power_factor(y):
+    """cos(phi) of a load of admittance y (S; complex, or an array of them): the share of
+    Vpk I / 2 it takes as power (1 for an open load, which takes nothing either way)."""
+    if np.ndim(y) == 0:
+        return y.real / abs(y) if y else 1.0
+    mag = np.abs(y)
+    return np.where(mag > 0, np.real(y) / np.where(mag > 0, mag, 1.0), 1.0)
 
 
 def loop_figures(amps, rails: tuple[float, float, float], probe, wave, rate) -> tuple[str, tuple]:

@@ -31,7 +31,7 @@ from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner, prepare
 from partpick.circuits.options import nearest, sigma, values_of
 from partpick.derating import bias_r_max, package_limit
-from partpick.physics.opamp import class_b_loss, linear_peak_v
+from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.kernels import best_rows, first_of_groups
@@ -59,10 +59,11 @@ class Searcher:
     group (an op-amp, a limiter, a gain family), each group's best design per
     configuration."""
 
-    def __init__(self, problem: Problem, price: PriceBook, kinds: tuple[str, ...]) -> None:
+    def __init__(self, problem: Problem, price: PriceBook, kinds: tuple[str, ...], cheapest: bool = False) -> None:
         self.problem = problem
         self.price = price
         self.kinds = kinds
+        self.cheapest = cheapest   # (cost first: each configuration's cheapest row estimated to pass, too)
         spec = problem.spec
         self.f_t = spec.frequency.target_hz
         # the load's admittance at the target: its magnitude sets the current, its phase the
@@ -377,7 +378,7 @@ class Searcher:
             # buffer needs a second channel the package lacks)
             span = p.spec.supply.span_max_v
             osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
-            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, _power_factors(y_stage)), 0.0)
+            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, power_factor(y_stage)), 0.0)
             watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
                                                                  np.maximum(osc_w, buf_w))
             rr = vals[:, [0, 2]]
@@ -421,6 +422,10 @@ class Searcher:
 
         if p.shelf is None:
             i = idx[first_of_groups(config, keys)]      # the best row of each configuration
+            # ranked by cost first: beside it, its cheapest row estimated to pass (the best
+            # may be a yield tier up at dearer arms, and a cheaper row of the tier below pass)
+            if self.cheapest and (promising := y[idx] >= p.y_min).any():
+                i = np.union1d(i, idx[promising][first_of_groups(config[promising], keys[1:])])
         else:
             # building from the shelf alone: a row must find every part in the quantity
             # its boards need (a value in three slots needs three a board): the rows in
@@ -560,13 +565,6 @@ class Searcher:
 
 
 _KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
-
-
-def _power_factors(y: np.ndarray) -> np.ndarray:
-    """cos(phi) of loads of admittances y (S), row by row (physics.opamp.power_factor)."""
-    mag = np.abs(y)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(mag > 0, y.real / mag, 1.0)
 
 
 def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
