@@ -226,7 +226,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             # an order that spends its budget without a pass is followed by the next, with a
             # budget of its own: a cost-first order by the yield order, that by the yield order
             # with the kinds that failed waiting behind the others (Pool's demoted order)
-            for by_cost, demoted in orders(rank_by, nearest is not None):
+            for by_cost, demoted in orders(rank_by):
                 pool = Pool(batches, by_cost, hopeless(spec.yield_min_frac), failures, demoted)
                 searched += pool.size if by_cost == cost_first(rank_by) and not demoted else 0   # (the same rows)
                 attempts = 0   # candidates verified, or skipped for want of transient runs
