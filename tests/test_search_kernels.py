@@ -193,3 +193,21 @@ def test_an_order_that_is_not_demoted_keeps_its_own():
     # ... and a demoted order made after them starts from those counts: op0 failed more
     failures[b.candidate(0).kind()] += 2
     assert Pool([b], failures=failures, demoted=True).next(lambda c: c).signature[2] == 1
+
+
+def test_a_batch_names_each_rows_kind_as_its_candidate_does(demo_catalog):
+    # Batch.kinds reads the kinds off the rows' groups without making the candidates; the
+    # pool counts failures by Candidate.kind: the two must agree row by row
+    from partpick.pipeline import _searcher
+    from partpick.search.problem import build_problem
+    from partpick.spec import Spec
+    from tests.conftest import SPECS
+
+    spec = Spec.from_yaml(SPECS / "audio-tone-1k.yaml")
+    problem = build_problem(spec, demo_catalog)
+    searcher, _ = _searcher(spec, demo_catalog, None, problem)
+    lim, gf = problem.limiters[0], problem.r_families[0]
+    b = searcher.configurations(lim, gf, searcher.levels(gf)[0])
+    assert len(b) > 10
+    assert b.kinds() == [b.candidate(i).kind() for i in range(len(b))]
+    assert len(set(b.kinds())) > 1
