@@ -175,20 +175,18 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             at = units.format_quantity(rel.advice, "resistance")
             raise InfeasibleError(exc.message if why_not else f"{bound}\nwith load.resistance at {at}, {exc.message}",
                                   tuple(dict.fromkeys(early[1] + exc.binding))) from None
+    as_user = partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest)
     if early is not None and nearest and not opened and (kinds := opening_kinds(spec, early[1])):
         # the parts allowed cannot make the oscillator at all: the families that would, and
         # the why-not of the spec with them allowed
         wide = widened(spec, catalog, kinds, partial(_bare, catalog=catalog, stock=stock, seed=seed,
-                                                     work=_Work(REFUSAL_TRANSIENT)),
-                       partial(_whole, catalog=catalog, stock=stock, seed=seed, samples=samples, nearest=nearest),
-                       early[0])
+                                                     work=_Work(REFUSAL_TRANSIENT)), as_user, early[0])
         if wide is not None:
             raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
-    top = swing_target(spec, catalog, problem)[0] if early is not None and not problem.ops else 0.0
-    if top and nearest and not opened:
+    swung = early is not None and early[1] == ("amplitude.target",)   # (no allowed op-amp swings it)
+    if swung and nearest and not opened and (top := swing_target(spec, catalog, problem)[0]):
         # the amplitude the best op-amp swings: the why-not of the spec there, where it does not design
-        still = moved(spec, "amplitude.target", top, partial(_whole, catalog=catalog, stock=stock, seed=seed,
-                                                             samples=samples, nearest=nearest), early[0])
+        still = moved(spec, "amplitude.target", top, as_user, early[0])
         if still is not None:
             raise InfeasibleError("\n".join([refusal_of(bound=True)[0], *still[0]]),
                                   tuple(dict.fromkeys(early[1] + still[1])))
@@ -236,7 +234,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         break
                     if not pool.may_enter(verified, c, n, rank_by):
                         continue   # (it cannot enter the top n; a later candidate may)
-                    if c.yield_est < hopeless(spec.yield_min_frac):
+                    if c.yield_est < pool.floor:
                         if not pool.cost_first:
                             pool.drop_round(c)   # (in yield order: what follows in its round cannot pass either)
                         continue   # (a cheaper candidate, or one of a later round, may still pass)
@@ -249,7 +247,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         """Whether this loop verifies d after c if c changes nothing (whether c
                         passes or not)."""
                         return (d.signature not in held and d.signature != c.signature and _key(d) not in tried
-                                and d.yield_est >= hopeless(spec.yield_min_frac))
+                                and d.yield_est >= pool.floor)
 
                     r = ahead.verify(c, pool, searcher.simulate, next_taken, work.take)
                     if r is None:

@@ -469,9 +469,8 @@ def structural_refusal(spec: Spec, catalog, problem, pairs, reach_hz, hold: str 
     low = a.peak_v * (1 - a.tolerance_frac)
     if not problem.ops:
         reasons = "; ".join(f"{i}: {w}" for i, w in problem.dropped)
-        swings = [why for _, why in problem.dropped if why.startswith("swings")]
-        if swings:
-            top, best = swing_target(spec, catalog, problem)
+        top, best = swing_target(spec, catalog, problem)
+        if best:   # (an op-amp was left out for its swing alone)
             return (f"amplitude.target binds: {_q(a.peak_v, 'voltage')} peak at the load (at least "
                     f"{_q(low, 'voltage')} peak within its tolerance) is more than any allowed op-amp swings: the "
                     f"best ({best}) swings {_q(top * (1 - a.tolerance_frac), 'voltage')} peak at the minimum supply; "

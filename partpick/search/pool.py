@@ -60,6 +60,7 @@ class Pool:
         self.batches = batches
         self.cost_first = cost_first
         self.demoted = demoted   # (the kinds' failures order the candidates: DEMOTE_AFTER)
+        self.floor = hopeless    # the estimated yield below which no candidate is verified
         keys = [np.concatenate(k) for k in zip(*(b.keys() for b in batches))] if batches else [np.zeros(0)] * 3
         src = np.concatenate([np.full(len(b), i) for i, b in enumerate(batches)]) if batches else np.zeros(0, int)
         row = np.concatenate([np.arange(len(b)) for b in batches]) if batches else np.zeros(0, int)
