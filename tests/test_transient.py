@@ -239,3 +239,44 @@ def test_single_supply_oscillates_about_mid_rail(demo_catalog):
     assert load.peak_v == pytest.approx(osc.peak_v, rel=0.01)
     assert load.freq_hz == pytest.approx(osc.freq_hz, rel=1e-4)
     assert osc.settled
+
+
+# --- a run that ends once settled ------------------------------------------------------------
+# Reference: the same run to its full length (the early stop is a saving, never a
+# different answer); the ngspice agreement tests judge the transient itself.
+@pytest.mark.slow
+def test_settled_run_ends_early_with_the_full_runs_figures(demo_catalog, diode_osc):
+    circ, full = diode_osc
+    res = simulate(build_netlist(circ, Conditions(12.0, 298.15, 10e3)), cycles=150, settled=1e-4)
+    assert res.meta["settled_early"] and len(res.t_s) < len(full.t_s)
+    # it ends 20 cycles after the envelope has settled, not before
+    ts = settle_time(full.t_s, full.v["osc"], full.stats("osc").peak_v)
+    assert res.t_s[-1] >= ts + 20 / circ.f0_hz
+    a, b = res.stats("osc"), full.stats("osc")
+    assert a.peak_v == pytest.approx(b.peak_v, rel=2e-4)
+    assert a.freq_hz == pytest.approx(b.freq_hz, rel=1e-5)
+    assert a.thd_frac == pytest.approx(b.thd_frac, abs=1e-4)
+    np.testing.assert_array_equal(res.v["osc"], full.v["osc"][:len(res.t_s)])   # the same steps up to the end
+
+
+@pytest.mark.slow
+def test_settled_run_keeps_the_mean_levels(demo_catalog):
+    """A single supply: the oscillator's mean level (mid-rail) and the load's (0 V,
+    behind the coupling capacitor) of a run that ends early are the full run's."""
+    circ = _wien(demo_catalog, 22e3, opamp="oa-lp-rr", supply_kind="single", bias_r_ohm=100e3,
+                 bias_c_f=10e-6, coupling_c_f=10e-6)
+    net = build_netlist(circ, Conditions(5.0, 298.15, 10e3))
+    full, res = simulate(net, cycles=150), simulate(net, cycles=150, settled=1e-4)
+    assert res.meta["settled_early"]
+    for probe in ("osc", "load"):
+        a, b = res.stats(probe), full.stats(probe)
+        assert a.dc_v == pytest.approx(b.dc_v, abs=2e-4 * b.peak_v + 1e-6)
+        assert a.peak_v == pytest.approx(b.peak_v, rel=2e-4)
+
+
+def test_growing_envelope_never_ends_a_run_early(demo_catalog):
+    """Too few cycles for the build-up: the envelope grows every block, so the run goes
+    to its length."""
+    circ = _wien(demo_catalog, 22e3)
+    res = simulate(build_netlist(circ, Conditions(12.0, 298.15, 10e3)), cycles=30, settled=1e-4)
+    assert not res.meta["settled_early"] and len(res.t_s) == 30 * 200 + 1
