@@ -177,29 +177,18 @@ def transient_cycles_for(lin: LinearResult, f_hz: float, final_v: float = 10.0, 
 
 
 POINTS_PER_CYCLE = 200  # transient steps per period
-# a run may end once the envelope's mean over five cycles moves less than this share of
-# the amplitude from the five before (then 20 more cycles to analyse): the cycle count
-# from the small-signal growth rate is a bound, and a limiter or the swing settles the
-# envelope several times sooner (measured on three runs: settled to 1e-4 at cycles 58 to
-# 110 of 218 to 400, within 7e-5 of the final amplitude where this stopped them). Not
-# where the build-up itself grows by less per block (a growth time constant over
-# SETTLE_TAU cycles): such a run goes to its cycle count.
-SETTLED_REL = 1e-4
-SETTLE_TAU = 5000.0
 
 
 def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     from partpick.physics.transient import simulate
-    from partpick.physics.waveform import relative_fundamental
+    from partpick.physics.waveform import ENVELOPE_SETTLED, relative_fundamental
 
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
     currents = tuple(f"iout:{a.name}" for a in loop.amps)
     try:
-        tau_cycles = c.f0_hz / lin.growth_per_s
         res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
-                       record=("osc", "load", *loop.outputs, *currents),
-                       settled=SETTLED_REL if tau_cycles < SETTLE_TAU else None)
+                       record=("osc", "load", *loop.outputs, *currents), settled=ENVELOPE_SETTLED)
     except RuntimeError:   # no DC operating point to start from: not a circuit that runs here
         res = None
     osc, load = (res.stats("osc"), res.stats("load")) if res is not None else (None, None)

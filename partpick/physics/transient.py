@@ -60,7 +60,7 @@ from partpick.physics.jfet import channel, gate_junction, jfet_at
 from partpick.physics.junction import LimiterTable, junctions_at, limiter_table
 from partpick.physics.netlist import Capacitor, DiodeX, JfetX, Kick, LimiterX, Netlist, OpAmpX, Resistor, VSource
 from partpick.physics.opamp import macro_params
-from partpick.physics.waveform import WaveformStats, analyse
+from partpick.physics.waveform import EnvelopeWatch, WaveformStats, analyse
 
 __all__ = ["TransientResult", "simulate", "operating_point", "GMIN_S"]
 
@@ -453,20 +453,13 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     and ``iout:NAME`` for the output current (A, into the output node) of op-amp NAME.
     Steps of h = 1 / (f_hint points_per_cycle); BDF2 with Newton at each step.
 
-    settled: when given (a fraction), the run may end before ``cycles``: once the
-    first probe's mean amplitude and mean level over the last SETTLE_BLOCK cycles
-    agree with those of the block before within ``settled`` times the amplitude
-    (:class:`_Settling`), the run goes on for ``tail_cycles`` more (the cycles an
-    analysis takes) and stops there. An envelope that grows or decays by more than that
-    in a block never stops a run early; the caller judges whether its slowest approach
-    can be slower (see :func:`partpick.verify.transient_cycles_for`).
+    settled: a fraction: the run ends ``tail_cycles`` after the first probe's envelope
+    has settled to it (:class:`partpick.physics.waveform.EnvelopeWatch`); an envelope
+    still growing or decaying never ends it early.
     """
-    if not cycles > 0:
-        raise ValueError("cycles must be > 0")
-    if points_per_cycle < 4:
-        raise ValueError("points_per_cycle must be at least 4")
-    if not netlist.f_hint_hz > 0:
-        raise ValueError("netlist.f_hint_hz must be > 0")
+    if not (cycles > 0 and points_per_cycle >= 4 and netlist.f_hint_hz > 0):
+        raise ValueError(f"transient: cycles > 0, points_per_cycle >= 4 and netlist.f_hint_hz > 0 needed (got "
+                         f"{cycles}, {points_per_cycle}, {netlist.f_hint_hz})")
     sysm = _System(netlist)
     n = sysm.n
     probe_idx: dict[str, int | None] = {}
@@ -581,14 +574,13 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     record_currents(0, zc)
     bps = [b for b in sysm.breakpoints if 0.0 <= b < t[-1]]
     snap = 1e-3 * h
-    watch = _Settling(rec[record[0]], points_per_cycle, settled) if settled and probe_idx.get(record[0]) is not None else None
-    end = steps
+    end, first = steps, probe_idx.get(record[0])   # (the probe the envelope is watched at: a node, not ground)
+    watch = EnvelopeWatch(rec[record[0]], points_per_cycle, settled) if settled and first is not None else None
     for step in range(steps):
         if step == end:
             break
-        if watch is not None and step % points_per_cycle == 0 and step and watch.settled(step):
-            end = min(steps, step + tail_cycles * points_per_cycle)
-            watch = None
+        if watch is not None and step and step % points_per_cycle == 0 and watch.settled(step):
+            end, watch = min(steps, step + tail_cycles * points_per_cycle), None
         t0, t1 = t[step], t[step + 1]
         inner = [b for b in bps if t0 + snap < b < t1 - snap] if bps else []
         for b in inner:              # a source edge inside the step: step to it, restart
@@ -603,49 +595,6 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
             arr[step + 1] = zc[k]
         if cur_items:
             record_currents(step + 1, zc)
-    if end < steps:
-        t = t[:end + 1]
-        rec = {name: arr[:end + 1] for name, arr in rec.items()}
+    t, rec = (t[:end + 1], {name: arr[:end + 1] for name, arr in rec.items()}) if end < steps else (t, rec)
     return TransientResult(t_s=t, v=rec, steps_split=stats["split"], newton_iterations=stats["iters"],
                            meta={"h_s": h, "steps": end, "unknowns": n, "settled_early": end < steps})
-
-
-SETTLE_BLOCK = 5   # cycles per block: a run may end when two blocks' mean envelopes agree
-
-
-class _Settling:
-    """The envelope of a recorded waveform, cycle by cycle: each cycle's largest and
-    smallest sample, refined by a parabola through the extreme sample and its two
-    neighbours, averaged over blocks of SETTLE_BLOCK cycles. A cycle's extreme
-    jitters by about 2e-4 of the amplitude as the period drifts against the sample
-    grid (measured on clipped and limited waveforms, whose peaks are not parabolas);
-    the block mean holds the envelope's drift and averages the jitter out."""
-
-    def __init__(self, wave: np.ndarray, ppc: int, rel: float) -> None:
-        self.wave, self.ppc, self.rel = wave, ppc, rel
-        self.amp: list[float] = []
-        self.mid: list[float] = []
-
-    @staticmethod
-    def _peak(y: np.ndarray, k: int) -> float:
-        if 0 < k < len(y) - 1:
-            a, b, c = y[k - 1], y[k], y[k + 1]
-            den = a - 2 * b + c
-            if den != 0.0:
-                return float(b - 0.125 * (a - c) ** 2 / den)
-        return float(y[k])
-
-    def settled(self, step: int) -> bool:
-        """Whether the mean amplitude and mean level of the last SETTLE_BLOCK cycles up
-        to ``step`` (a cycle boundary: the samples up to it are recorded) agree with
-        those of the block before within ``rel`` of the amplitude."""
-        y = self.wave[step - self.ppc: step + 1]
-        hi, lo = self._peak(y, int(np.argmax(y))), self._peak(y, int(np.argmin(y)))
-        self.amp.append(0.5 * (hi - lo))
-        self.mid.append(0.5 * (hi + lo))
-        b = SETTLE_BLOCK
-        if len(self.amp) < 2 * b:
-            return False
-        amp, mid = self.amp[-2 * b:], self.mid[-2 * b:]
-        tol = self.rel * sum(amp[b:]) / b + 1e-12
-        return abs(sum(amp[b:]) - sum(amp[:b])) / b <= tol and abs(sum(mid[b:]) - sum(mid[:b])) / b <= tol
