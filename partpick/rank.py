@@ -18,7 +18,9 @@ from partpick.bom import Bom
 from partpick.circuits import Circuit
 from partpick.verify import Verdict
 
-__all__ = ["Ranked", "rank"]
+__all__ = ["Ranked", "rank", "resolution", "FREQ_RES_FLOOR"]
+
+FREQ_RES_FLOOR = 1e-4   # the least frequency-error resolution (fraction): 100 ppm
 
 
 @dataclass(frozen=True, slots=True)
@@ -67,7 +69,7 @@ def _figure(r: Ranked, key: str) -> tuple[float, float]:
     if key == "frequency_error":
         f = v.nominal.freq_hz if v.nominal.starts else math.nan
         return (abs(r.freq_error) if math.isfinite(r.freq_error) else math.inf,
-                max(spread("frequency_hz", f), 1e-4) if math.isfinite(f) else 1e-4)
+                max(spread("frequency_hz", f), FREQ_RES_FLOOR) if math.isfinite(f) else FREQ_RES_FLOOR)
     if key == "amplitude_error":
         a = v.nominal.load_peak_v
         return (abs(r.amp_error) if math.isfinite(r.amp_error) else math.inf,
@@ -79,6 +81,12 @@ def _figure(r: Ranked, key: str) -> tuple[float, float]:
     if key == "cost":
         return r.cost, 1e-9
     return float(r.parts), 0.0
+
+
+def resolution(r: Ranked, key: str) -> float:
+    """The difference in ``key`` below which r ties with another (see _figure), in the
+    key's own unit (a fraction for the errors and yield)."""
+    return _figure(r, key)[1]
 
 
 KEYS = ("yield", "frequency_error", "amplitude_error", "thd", "startup_margin", "cost", "parts")

@@ -211,3 +211,29 @@ def test_a_batch_names_each_rows_kind_as_its_candidate_does(demo_catalog):
     assert len(b) > 10
     assert b.kinds() == [b.candidate(i).kind() for i in range(len(b))]
     assert len(set(b.kinds())) > 1
+
+
+def test_a_dearer_candidate_tied_on_frequency_error_is_not_verified(demo_catalog):
+    """Reference: partpick.rank's tiers (a frequency error within the resolution, half the
+    builds' spread, is a tie; cost then decides). A candidate whose best case, landing on
+    the target, still ties the n-th on frequency error and costs more cannot enter the top
+    n: it is skipped; where the n-th is off target by more than any resolution, landing on
+    target would beat it, so it is verified."""
+    from partpick.pipeline import design
+    from partpick.spec import Spec
+    from tests.conftest import ROOT
+
+    keys = ("yield", "frequency_error", "cost")
+    d = design(Spec.from_yaml(ROOT / "specs" / "seismic-cal-20hz.yaml"), demo_catalog, results=5, nearest=0)
+    rows = [r for r in d.ranked if r.verdict.passed]
+    assert len(rows) >= 3
+
+    def enters(freq_error: float, cost: float) -> bool:
+        verified = [replace(r, freq_error=freq_error) for r in rows]
+        nth = sorted(verified, key=lambda r: r.cost)[2]   # (all tie on yield and frequency: cost decides)
+        c = Candidate(("x",), {}, {}, {}, yield_est=1.0, cost=nth.cost + cost, freq_sigma=0.002)
+        return Pool([]).may_enter(verified, c, 3, keys)
+
+    assert not enters(0.0, +0.5)      # on target, all of them: the dearer one ties and loses on cost
+    assert enters(0.05, +0.5)         # 5 % off target: the dearer one on target would rank above
+    assert enters(0.0, -0.5)          # cheaper: it may enter either way

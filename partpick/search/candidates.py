@@ -42,6 +42,7 @@ class Candidate:
     pull: float = 0.0           # the control's own frequency pull (ln)
     simulated: bool = False     # yield_est comes from the Monte Carlo model, not the closed form
     control: str = ""           # the amplitude control's registry name ("": the problem's limiter control)
+    freq_sigma: float = 0.0     # relative spread of the frequency from the arm families (0: not known)
 
     def key(self) -> tuple:
         """The search's own order: estimated yield to YIELD_STEP, then cost."""
@@ -115,7 +116,7 @@ class Batch:
         return Candidate(signature, values, families, parts, kind, float(self.err[i]),
                          tuple(float(x) for x in self.load[:, i]), float(self.osc[i]), float(self.thd[i]),
                          float(self.m[i]), float(self.y[i]), float(self.cost[i]), float(self.s_amp[i]),
-                         float(self.s_thd[i]), float(self.pull[i]))
+                         float(self.s_thd[i]), float(self.pull[i]), freq_sigma=s.problem.freq_sigma(rfa, cfa))
 
 
 def on_shelf(c: Candidate, shelf, builds: int) -> bool:

@@ -183,5 +183,6 @@ def _placed(searcher, op, gf, d, kinds, k_ref: float) -> list[Candidate]:
             sig = (op.id, d.control + ":" + parts.get("jfet", ""), rfa.id, cfa.id, gf.id, kind, "",
                    d.note)
             out.append(Candidate(sig, values, families, parts, kind, err, tuple(d.amp_v), d.amp_v[1], d.thd,
-                                 margin, y, 0.0, d.amp_per_excess, 0.0, d.pull, simulated=True, control=d.control))
+                                 margin, y, 0.0, d.amp_per_excess, 0.0, d.pull, simulated=True, control=d.control,
+                                 freq_sigma=p.freq_sigma(rfa, cfa)))
     return out

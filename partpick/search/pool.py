@@ -7,7 +7,7 @@ import heapq
 
 import numpy as np
 
-from partpick.rank import Ranked, rank
+from partpick.rank import FREQ_RES_FLOOR, Ranked, rank, resolution
 from partpick.search.candidates import Candidate
 
 __all__ = ["Pool", "OPTIMISM", "DEMOTE_AFTER", "cost_first", "hopeless", "orders"]
@@ -86,6 +86,7 @@ class Pool:
         self.placed: list = []      # heap of (key, seq, simulated candidate)
         self._simulated: dict = {}  # (batch, row) -> its candidate simulated (by peek, or in turn)
         self._ranked: tuple = (None, None)   # (what was ranked, the n-th passing): see _nth
+        self._freq_res = 0.0                 # the least frequency-error resolution of those passing
         self._sort()
 
     def _round(self, kind: tuple) -> int:
@@ -197,6 +198,7 @@ class Pool:
         if self._ranked[0] != (len(passing), n, tuple(rank_by)):
             ranked = rank(passing, rank_by)
             self._ranked = ((len(passing), n, tuple(rank_by)), ranked[n - 1] if len(ranked) >= n else None)
+            self._freq_res = min((resolution(r, "frequency_error") for r in passing), default=0.0)
         return self._ranked[1]
 
     def may_enter(self, verified: list[Ranked], c: Candidate, n: int, rank_by) -> bool:
@@ -206,16 +208,24 @@ class Pool:
         skips c otherwise: a candidate of a kind that waits in a later round may still
         enter, so the rest is not certified.)"""
         nth = self._nth(verified, n, rank_by)
+        # the least frequency error c could tie the n-th at: its own resolution (half the
+        # builds' spread, which the arm families' spread bounds from below: measured 0.98 to
+        # 1.4 times it, so 0.8 of it) and no more than any verified one's, which may
+        # anchor the tier that c and the n-th fall in (rank's tiers)
+        res = min(max(FREQ_RES_FLOOR, 0.5 * 0.8 * c.freq_sigma), self._freq_res) if nth is not None else 0.0
         return nth is None or bool(_could_beat(*(np.array([x]) for x in (c.yield_est, c.cost, c.thd)), nth,
-                                               rank_by, unjudged=True)[0])
+                                               rank_by, unjudged=True, freq_res=res)[0])
 
 
 def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, rank_by,
-                unjudged: bool = False) -> np.ndarray:
+                unjudged: bool = False, freq_res: float = 0.0) -> np.ndarray:
     """Which unverified candidates (estimated yield, cost, THD) could rank above ``nth``
     by the keys rank_by (see certified for the optimism allowed). A key the estimates
     cannot judge (frequency or amplitude error, margin, parts) is a tie, or with
-    ``unjudged`` a chance to beat: one candidate is skipped only where it surely loses."""
+    ``unjudged`` a chance to beat: one candidate is skipped only where it surely loses.
+    With ``unjudged``, the frequency error is a tie where the n-th's is within
+    ``freq_res`` (a fraction, a lower bound of the resolution of the tier a candidate
+    would share with it): even landing exactly on the target, a candidate would tie."""
     beat = np.zeros(y.shape, bool)
     open_ = np.ones(y.shape, bool)      # tied so far: the next key decides
     for key in tuple(rank_by) + ("cost",):
@@ -231,6 +241,8 @@ def _could_beat(y: np.ndarray, cost: np.ndarray, thd: np.ndarray, nth: Ranked, r
             better = 0.8 * thd < nth.thd * 0.95
             beat |= open_ & better
             open_ &= ~better
+        elif unjudged and key == "frequency_error" and abs(nth.freq_error) <= freq_res:
+            continue   # (a tie whatever the candidate's error: the next key decides)
         elif unjudged:
             beat |= open_
             break
