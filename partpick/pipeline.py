@@ -226,6 +226,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             # with the kinds that failed waiting behind the others (Pool's demoted order)
             for by_cost, demoted in orders(rank_by):
                 pool = Pool(batches, by_cost, hopeless(spec.yield_min_frac), failures, demoted)
+                pool.skip = lambda d, pool=pool: (d.signature in held or _key(d) in tried or not pool.may_enter(
+                    verified, replace(d, yield_est=1.0), n, rank_by))   # (whatever its yield: see the loop)
                 searched += pool.size if by_cost == cost_first(rank_by) and not demoted else 0   # (the same rows)
                 attempts = 0   # candidates verified, or skipped for want of transient runs
                 while attempts < budget:

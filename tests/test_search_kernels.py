@@ -237,3 +237,30 @@ def test_a_dearer_candidate_tied_on_frequency_error_is_not_verified(demo_catalog
     assert not enters(0.0, +0.5)      # on target, all of them: the dearer one ties and loses on cost
     assert enters(0.05, +0.5)         # 5 % off target: the dearer one on target would rank above
     assert enters(0.0, -0.5)          # cheaper: it may enter either way
+
+
+@given(st.integers(0, 2**31 - 1), st.booleans())
+def test_a_skipped_candidate_is_never_simulated_and_the_rest_keep_their_order(seed, cost_first):
+    """Reference: the same pool without the predicate, its candidates filtered after the
+    fact (what the design loop did before: simulate, then pass over)."""
+    rng = np.random.default_rng(seed)
+    batches = [_Batch(rng.uniform(0.9, 1.0, n), rng.choice([1.0, 1.5, 2.0, 3.0], n), rng.normal(0, 0.01, n),
+                      rng.uniform(0, 0.02, n)) for n in rng.integers(1, 30, 3)]
+    left_out = lambda c: c.signature[2] % 3 == 0   # noqa: E731
+    simulated = []
+
+    def counted(c):
+        simulated.append(c.signature)
+        return _simulate(c)
+
+    def walk(pool, sim):
+        out = []
+        while (c := pool.next(sim)) is not None:
+            out.append(c.signature)
+        return out
+
+    plain = [s for s in walk(Pool(batches, cost_first), _simulate) if not left_out(Candidate(s, {}, {}, {}))]
+    pool = Pool(batches, cost_first)
+    pool.skip = left_out
+    assert walk(pool, counted) == plain
+    assert not any(left_out(Candidate(s, {}, {}, {})) for s in simulated)

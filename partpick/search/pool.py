@@ -87,6 +87,9 @@ class Pool:
         self._simulated: dict = {}  # (batch, row) -> its candidate simulated (by peek, or in turn)
         self._ranked: tuple = (None, None)   # (what was ranked, the n-th passing): see _nth
         self._freq_res = 0.0                 # the least frequency-error resolution of those passing
+        # a candidate the caller leaves out whatever its yield (set by the caller, a
+        # predicate): dropped as it comes up, before its Monte Carlo model is run
+        self.skip = None
         self._sort()
 
     def _round(self, kind: tuple) -> int:
@@ -147,7 +150,8 @@ class Pool:
                      for f, k in zip(self.figures, ("yield_est", "cost", "thd")))
 
     def next(self, simulate) -> Candidate | None:
-        """The best candidate left, with its simulated yield (None when none is left)."""
+        """The best candidate left, with its simulated yield (None when none is left),
+        passing over those ``skip`` leaves out."""
         while True:
             head = self._head_key()
             if self.placed and (head is None or self.placed[0][0] <= head):
@@ -157,7 +161,11 @@ class Pool:
             at = int(self.src[self.at]), int(self.row[self.at])
             c = self._simulated.get(at)
             if c is None:
-                c = self._simulated[at] = simulate(self.batches[at[0]].candidate(at[1]))
+                c = self.batches[at[0]].candidate(at[1])
+                if self.skip is not None and self.skip(c):
+                    self.at += 1
+                    continue
+                c = self._simulated[at] = simulate(c)
             heapq.heappush(self.placed, (self._key(c), self.at, c))
             self.at += 1
 
