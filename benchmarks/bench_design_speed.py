@@ -6,8 +6,9 @@ write (benchmarks/data/*.yaml, all parts allowed) are designed as separate proce
 two baselines measured in the same run: `python -c pass` (the interpreter's start) and
 `python -c "import partpick.cli"` (the start plus partpick's imports). Peak RSS is each
 child's own (os.wait4's resource usage, ru_maxrss). A last line times a spec that
-refuses: the demo audio tone with its THD limit at 0.3 %, which no allowed design reaches
-(the README's refusal example), so the why-not work is in the figure.
+refuses: the demo audio tone with its THD limit at 0.3 % and the diode limiter as its
+amplitude control, which no allowed design reaches (the README's refusal example; with
+the JFET control allowed it designs), so the why-not work is in the figure.
 
 The first run of a spec may fill the user's cache folder (tables keyed by content); the
 median of RUNS shows the warm figure, the `first` column the cold one.
@@ -133,9 +134,10 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         text = (ROOT / "specs" / "audio-tone-1k.yaml").read_text(encoding="utf-8")
         refused = Path(tmp) / "audio-clean.yaml"
-        refused.write_text(text.replace("max_thd: 1 %", "max_thd: 0.3 %"), encoding="utf-8")
+        refused.write_text(text.replace("max_thd: 1 %", "max_thd: 0.3 %") + "amplitude_control: diode\n",
+                           encoding="utf-8")
         m = measure([*_partpick(), "design", str(refused)], args.runs, args.timeout)
-    print(f"refusal (audio-tone-1k with max_thd 0.3 %, exit {','.join(map(str, m['codes']))}): median "
+    print(f"refusal (audio-tone-1k with max_thd 0.3 %, diode limiter, exit {','.join(map(str, m['codes']))}): median "
           f"{m['median']:.3f} s = {m['median'] / t_pass:.1f}x pass, {m['median'] / t_imp:.2f}x import; "
           f"peak RSS {m['rss']:.0f} MiB")
 
