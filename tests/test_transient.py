@@ -275,8 +275,11 @@ def test_settled_run_keeps_the_mean_levels(demo_catalog):
 
 
 def test_growing_envelope_never_ends_a_run_early(demo_catalog):
-    """Too few cycles for the build-up: the envelope grows every block, so the run goes
-    to its length."""
-    circ = _wien(demo_catalog, 22e3)
-    res = simulate(build_netlist(circ, Conditions(12.0, 298.15, 10e3)), cycles=30, settled=1e-4)
-    assert not res.meta["settled_early"] and len(res.t_s) == 30 * 200 + 1
+    """A gain excess of 1 % (Rf 20.3k on Rg 10k) builds up slowly (within 2 % of its final amplitude after
+    about 31 cycles): through 40 cycles the envelope moves by more than 1e-4 from block
+    to block, so even with no tail to run the run goes to its length; with the gain
+    excess of 7 % (Rf 22k) it ends early."""
+    slow, fast = (build_netlist(_wien(demo_catalog, rf), Conditions(12.0, 298.15, 10e3)) for rf in (20.3e3, 22e3))
+    res = simulate(slow, cycles=40, settled=1e-4, tail_cycles=0)
+    assert not res.meta["settled_early"] and len(res.t_s) == 40 * 200 + 1
+    assert simulate(fast, cycles=40, settled=1e-4, tail_cycles=0).meta["settled_early"]
