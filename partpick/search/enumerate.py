@@ -77,11 +77,10 @@ class Searcher:
         self._stages: dict = {}
         self._sk = None
         # one table per value list (families of one series share it), and the load read only
-        # by the kind whose gain it changes; made over the CPUs
+        # by the kind whose gain it changes
         jobs = {(k, f.id): (("stage", k, values_of(f, problem.shelf), y_load if k == "attenuator" else None),
                             lambda k=k, f=f: StageTable(k, f, y_load, problem.shelf))
                 for k in kinds if k in STAGE_RATIO for f in problem.r_families}
-        memo_all(jobs.values())
         self.stage_tables = {name: memo(*job) for name, job in jobs.items()}
         limits = {op.id: package_limit(op.opamp, spec)[0] for op in problem.ops}
         self._op_fields = {**_OP_FIELDS, "limit_w": lambda o: limits[o.id],
@@ -114,7 +113,7 @@ class Searcher:
             prepare(problem.topology, lim, problem.control, self.f_t,
                     [r for gf in problem.r_families for r in self.levels(gf)])
         combos = [(lim, gf, r_gnd) for lim in problem.limiters for gf in problem.r_families for r_gnd in self.levels(gf)]
-        memo_all(self._amp_job(*c) for c in combos)   # (made over the CPUs)
+        memo_all(self._amp_job(*c) for c in combos)
         pulls = [a["pull"] for c in combos if (a := self._amp_side(*c)) is not None and a["pull"].size]
         op_pull = [op.pull for op in problem.ops] or [0.0]
         row_lo = min((float(np.nanmin(x)) for x in pulls), default=0.0)
@@ -139,7 +138,7 @@ class Searcher:
                 # not searched)
                 (hopeless if best < problem.y_min - HOPELESS_PAIR else kept).append(
                     (rfa, cfa, drift, best, key, make, len(kept) + len(hopeless)))
-        memo_all((key, make) for *_, key, make, _ in kept)   # (made over the CPUs)
+        memo_all((key, make) for *_, key, make, _ in kept)
         pairs = []
         for rfa, cfa, drift, best, key, make, _ in kept:
             table, index = memo(key, make)
