@@ -154,25 +154,51 @@ def _joint_advice(spec: Spec, lead, check, designs, before=()) -> tuple[tuple[st
     """When no requirement binds alone: the binding requirements and the message line,
     from the nearest design of the run with all four loosened (lead, Ranked). The
     requirements that set the limits it misses are relaxed together as far as it needs
-    (_reach_together), or further, to where a design run designs (_designed_step); the
-    line gives the values. A miss that no relaxable requirement moves, or no design run
-    at any step, leaves the line naming the checks' fields only. before: relaxations
+    (_reach_together), or further, to where a design run designs (_designed_step); where
+    none does, with every other relaxable requirement moved too (_with_the_rest). The
+    line gives the values; where no design run designs even so, it names the checks'
+    fields only. before: relaxations
     the spec has had already (stated with the values, unless a field is among them)."""
     misses = lead.verdict.failed()
     binding = tuple(dict.fromkeys(c.field for c in misses))
     governing = tuple(dict.fromkeys(_governed_by(c) for c in misses))
-    together = None if None in governing else _reach_together(spec, governing, lead.bom, check)
+    reached = None if None in governing else _reach_together(spec, governing, lead.bom, check)
     # stated only where the search designs (the design passes at the values found, but
     # the search, judging by its surrogate first, need not propose it there)
-    together = _designed_step(spec, together, designs) if together else None
+    together = _designed_step(spec, reached, designs) if reached else None
+    how = "from what the nearest design, 1. below, reaches"
+    if together is None and (together := _with_the_rest(spec, reached or [], designs)) is not None:
+        governing = tuple(r.field for r in together)   # (the lead's misses were not all the story)
+        how = ("what the nearest design, 1. below, misses at what it reaches, " if reached else "") + \
+            "the others a share of the way to their loose values"
     at = _with(before)
     if together is None:
         return binding, (f"{at}no single requirement binds alone: {', '.join(binding)} together; with all four "
                          "loosened the nearest design (1. below) reaches what it shows: relax those requirements to it")
     together = [g for g in before if g.field not in {r.field for r in together}] + together
     return governing, (f"{at}no single requirement binds alone: {', '.join(governing)} together; the search designs "
-                       f"with them relaxed together (from what the nearest design, 1. below, reaches): "
+                       f"with them relaxed together ({how}): "
                        f"{_advice(together, joint=True)}")
+
+
+def _with_the_rest(spec: Spec, base: list[Relaxation], designs) -> list[Relaxation] | None:
+    """The relaxations base (the nearest design's misses at what it reaches; may be
+    empty) with every other relaxable requirement moved a share of the way to its loose
+    value too (JOINT_STEPS, then all the way): the first at which the whole design
+    designs, None when none does. For a spec whose nearest design misses one
+    requirement, but whose search, with that one relaxed, finds no design for want of
+    another (requirement 144 of the coverage set: its nearest design misses only the
+    yield, and with the yield relaxed the amplitude tolerance and the THD limit bind)."""
+    own = {r.field for r in base}
+    for t in JOINT_STEPS + (1.0,):
+        rest = []
+        for field, (_, _, _, smaller) in RELAXABLE.items():
+            now = requirement_value(spec, field)
+            if field not in own and (value := _toward(field, now, t)) != now:
+                rest.append(Relaxation(field, value, round_loose(value, smaller)))
+        if rest and designs(relaxed_all(spec, list(base) + rest)):
+            return list(base) + rest
+    return None
 
 
 def _with(relaxations) -> str:
