@@ -264,3 +264,24 @@ def test_a_skipped_candidate_is_never_simulated_and_the_rest_keep_their_order(se
     pool.skip = left_out
     assert walk(pool, counted) == plain
     assert not any(left_out(Candidate(s, {}, {}, {})) for s in simulated)
+
+
+@given(st.lists(st.lists(st.integers(0, 200), min_size=0, max_size=60), min_size=1, max_size=6),
+       st.sampled_from(["resistors", "capacitors"]))
+def test_price_book_prices_every_value_as_the_pricer_does(demo_catalog, calls, kind):
+    # PriceBook keeps each family's values priced so far and looks a call's values up in
+    # them; each price must be the pricer's own for that part (partpick.pricing, which
+    # bom_cost counts a BOM with), over calls that repeat values, add new ones, or are empty
+    from partpick.pricing import Pricer
+    from partpick.search.prices import PriceBook
+
+    pricer = Pricer(demo_catalog)
+    book = PriceBook(pricer, demo_catalog)
+    fam = demo_catalog.of_kind(kind)[0]
+    series = np.array(fam.values())
+    for picks in calls:
+        values = series[np.array(picks, int) % series.size].reshape(-1, 1) if picks else np.zeros((0, 1))
+        got = book.units(fam.id, values)
+        assert got.shape == values.shape
+        assert got.ravel().tolist() == [pricer.unit(fam.id, float(v)) for v in values.ravel()]
+        assert book.lines(fam.id, values).ravel().tolist() == [pricer.line(fam.id, float(v)) for v in values.ravel()]

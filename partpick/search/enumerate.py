@@ -351,7 +351,9 @@ class Searcher:
         m = np.log(gain / k)
         # the limiter's figures once per distinct (amplitude row, arm set, op-amp loss): the
         # stage kinds and families of one op-amp mostly pick the same rows
-        loss_i = np.unique(op["loss"], return_inverse=True)[1]
+        # (each row's op-amp loss as an index among the groups' few: np.unique over the
+        # groups, not over every row)
+        loss_i = np.unique(np.array([g[0].loss for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
         key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
         _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
         ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]),
@@ -404,20 +406,26 @@ class Searcher:
         tier = np.floor((1.0 - y[idx]) / YIELD_STEP)
         keys = (tier, arm_cost[idx], np.abs(err[idx]))
 
+        # the slots' family codes and op-amp figures per group and per arm family pair,
+        # indexed by row below (not looked up row by row)
+        pair_codes = np.array([[self.price.code(f) for f in pr[2].families] for pr in self.pairs])
+        g_ratio = np.array([g[1] in STAGE_RATIO for g in groups], bool)
+        g_sf = np.array([self.price.code(g[2].id) for g in groups])
+        g_op = np.array([g[0].id for g in groups])
+        g_chans = np.array([g[0].opamp.channels for g in groups])
+
         def slots(rows):
             """(columns, op-amp per row, packages per row) of the passive slots (see
             PriceBook.row_costs) for rows."""
-            ratio_stage = np.array([groups[g][1] in STAGE_RATIO for g in g_row[rows]], bool)
+            gr = g_row[rows]
+            ratio_stage = g_ratio[gr]
             gvals = topo.gain_values(r_gnd, r_fb[rows])
-            fams = [self.pairs[q][2].families for q in pair_i[rows]]
-            columns = [(np.array([self.price.code(f[j]) for f in fams]), vals[rows, j]) for j in range(vals.shape[1])]
+            columns = [(pair_codes[pair_i[rows], j], vals[rows, j]) for j in range(vals.shape[1])]
             columns += [(self.price.code(gf.id), np.broadcast_to(v, rows.shape)) for v in gvals.values()]
             columns.append((self.price.code(gf.id), planner.choices[ird[rows]]))
-            sf_code = np.array([self.price.code(groups[g][2].id) for g in g_row[rows]])
+            sf_code = g_sf[gr]
             columns += [(sf_code, np.where(ratio_stage, ra[rows], 0.0)), (sf_code, np.where(ratio_stage, rb[rows], 0.0))]
-            ops = np.array([groups[g][0].id for g in g_row[rows]])
-            chans = np.array([groups[g][0].opamp.channels for g in g_row[rows]])
-            return columns, ops, -(-(topo.channels + buffered[rows].astype(int)) // chans)
+            return columns, g_op[gr], -(-(topo.channels + buffered[rows].astype(int)) // g_chans[gr])
 
         if p.shelf is None:
             i = idx[first_of_groups(config, keys)]      # the best row of each configuration

@@ -43,15 +43,29 @@ class PriceBook:
         return self.codes.setdefault(family, len(self.codes) + 1)
 
     def _prices(self, table: dict, fn, family: str, values) -> np.ndarray:
+        """fn(family, v) of every value, each distinct value computed once per book:
+        table holds, per family, the values priced so far (ascending) and their prices,
+        so that a call whose values are all known (nearly every call: a search prices
+        the same series values over and over) is one binary search."""
         values = np.asarray(values, float)
-        uniq, inv = factorize(values.ravel())
-        out = np.empty(uniq.size)
-        for i, v in enumerate(uniq):
-            key = (family, float(v))
-            if key not in table:
-                table[key] = fn(family, float(v))
-            out[i] = table[key]
-        return out[inv].reshape(values.shape)
+        flat = values.ravel()
+        for _ in range(2):   # (the second time with the values not known before added)
+            known = table.get(family)
+            if known is not None and known[0].size:
+                j = np.minimum(np.searchsorted(known[0], flat), known[0].size - 1)
+                if np.array_equal(known[0][j], flat):
+                    return known[1][j].reshape(values.shape)
+            uniq = np.unique(flat)
+            if flat.size == 0 or not np.all(np.isfinite(uniq)):
+                break
+            old_v, old_p = known if known is not None else (np.zeros(0), np.zeros(0))
+            new = uniq[~np.isin(uniq, old_v)]
+            all_v = np.concatenate([old_v, new])
+            order = np.argsort(all_v, kind="stable")
+            table[family] = (all_v[order], np.concatenate([old_p, [fn(family, float(v)) for v in new]])[order])
+        # (no table: an empty call, or a value that is not finite, which equals nothing)
+        uniq, inv = factorize(flat)
+        return np.array([fn(family, float(v)) for v in uniq], float)[inv].reshape(values.shape)
 
     def units(self, family: str, values) -> np.ndarray:
         """Unit price of each value (a limiter: its physical parts together)."""
