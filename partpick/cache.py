@@ -93,16 +93,18 @@ def _folders() -> tuple[Path, Path]:
     return shipped_dir(), cache_dir()
 
 
-def store_arrays(kind: str, key: str, arrays: dict[str, np.ndarray], root: Path | None = None) -> None:
+def store_arrays(kind: str, key: str, arrays: dict[str, np.ndarray], root: Path | None = None,
+                 compress: bool = True) -> None:
     """Store arrays under (kind, key) in the cache (or under root), atomically; silently
-    skipped when the folder is not writable."""
+    skipped when the folder is not writable. ``compress``: False for a table read on
+    every run whose decompression would cost about what making it does."""
     folder = (root or cache_dir()) / kind
     try:
         folder.mkdir(parents=True, exist_ok=True)
         fd, tmp = tempfile.mkstemp(prefix=f".{key}.", suffix=".npz", dir=folder)
         try:
             with os.fdopen(fd, "wb") as fh:
-                np.savez_compressed(fh, **arrays)
+                (np.savez_compressed if compress else np.savez)(fh, **arrays)
             os.replace(tmp, folder / f"{key}.npz")
         except BaseException:
             Path(tmp).unlink(missing_ok=True)

@@ -285,3 +285,30 @@ def test_price_book_prices_every_value_as_the_pricer_does(demo_catalog, calls, k
         assert got.shape == values.shape
         assert got.ravel().tolist() == [pricer.unit(fam.id, float(v)) for v in values.ravel()]
         assert book.lines(fam.id, values).ravel().tolist() == [pricer.line(fam.id, float(v)) for v in values.ravel()]
+
+
+def test_stage_tables_from_the_cache_are_the_tables_made(demo_catalog, tmp_path, monkeypatch):
+    # a stage table that does not depend on the load is made once per machine (the user
+    # cache, keyed by the values) and read back as indices: read, it must be the table
+    # made, to the last bit; and every entry the handbook expression of its pair: a
+    # non-inverting stage's gain 1 + Rb/Ra, a divider's Rb/(Ra + Rb); every pair of the
+    # series' values from 1 kohm to 1 Mohm within the stage's ratio range, once each
+    import itertools
+
+    from partpick.search.tables import STAGE_RATIO, stage_table
+
+    monkeypatch.setenv("PARTPICK_CACHE", str(tmp_path))
+    fam = demo_catalog.find("resistors", "tk-5")
+    vals = [v for v in fam.values() if 1e3 <= v <= 1e6]
+    for kind, expr in (("gain", lambda a, b: 1 + b / a), ("buffered-attenuator", lambda a, b: b / (a + b))):
+        made = stage_table(kind, fam, 0j)
+        assert list((tmp_path / "stage-table").glob("*.npz")), "not stored"
+        read = stage_table(kind, fam, 0j)
+        for x, y in zip(made, read):
+            assert x.dtype == y.dtype and x.tobytes() == y.tobytes()
+        gains, ra, rb = read
+        assert np.all(np.diff(gains) >= 0)
+        lo, hi = STAGE_RATIO[kind]
+        want = sorted((a, b) for a, b in itertools.product(vals, vals) if lo <= expr(a, b) <= hi)
+        assert sorted(zip(ra.tolist(), rb.tolist())) == want
+        assert gains.tolist() == [expr(a, b) for a, b in zip(ra.tolist(), rb.tolist())]

@@ -1,7 +1,8 @@
 """Sorted tables the search looks values up in: the arm sets of a family pair by
 required-gain bin and frequency (the cheapest in any frequency range, by range-minimum
-query), and the resistor pairs of an output stage by gain; a per-process memo of
-tables that depend only on their inputs."""
+query), and the resistor pairs of an output stage by gain (those the load does not
+enter made once per machine: the user cache, :mod:`partpick.cache`); a per-process memo
+of tables that depend only on their inputs."""
 
 from __future__ import annotations
 
@@ -9,6 +10,7 @@ import math
 
 import numpy as np
 
+from partpick.cache import content_key, load_arrays, store_arrays
 from partpick.circuits.options import values_of
 from partpick.search.prices import factorize
 
@@ -186,15 +188,32 @@ def stage_table(kind: str, rfam, load_y: complex, shelf=None) -> tuple[np.ndarra
     vals = np.array([v for v in values_of(rfam, shelf) if lo <= v <= 1e6])
     if vals.size == 0:
         return np.zeros(0), np.zeros(0), np.zeros(0)
-    ra, rb = (a.ravel() for a in np.meshgrid(vals, vals, indexing="ij"))
-    if kind == "gain":
-        g = 1 + rb / ra
-    elif kind == "attenuator":
-        shunt = 1 / (1 / rb + load_y)
-        g = np.abs(shunt / (ra + shunt))
-    else:
-        g = rb / (ra + rb)
+    # the pairs' order depends only on the values where the load does not enter (made once
+    # per machine: the cache, keyed by the values; the pairs as indices, the gains
+    # computed again from them by the same expression, so the same to the last bit)
+    cached = (kind != "attenuator" or load_y == 0) and vals.size <= np.iinfo(np.uint16).max
+    key = content_key("stage-table-1", kind, vals.tolist()) if cached else None
+    got = load_arrays("stage-table", key) if key is not None else None
+    if got is not None and set(got) == {"a", "b"}:
+        ra, rb = vals[got["a"]], vals[got["b"]]
+        return _stage_gain(kind, ra, rb, load_y), ra, rb
+    ia, ib = (a.ravel() for a in np.meshgrid(np.arange(vals.size), np.arange(vals.size), indexing="ij"))
+    g = _stage_gain(kind, vals[ia], vals[ib], load_y)
     lo_g, hi_g = STAGE_RATIO[kind]
-    keep = (g >= lo_g) & (g <= hi_g)
-    order = np.argsort(g[keep], kind="stable")
-    return g[keep][order], ra[keep][order], rb[keep][order]
+    keep = np.flatnonzero((g >= lo_g) & (g <= hi_g))
+    keep = keep[np.argsort(g[keep], kind="stable")]
+    if key is not None:
+        store_arrays("stage-table", key, {"a": ia[keep].astype(np.uint16), "b": ib[keep].astype(np.uint16)},
+                     compress=False)
+    return g[keep], vals[ia[keep]], vals[ib[keep]]
+
+
+def _stage_gain(kind: str, ra: np.ndarray, rb: np.ndarray, load_y: complex) -> np.ndarray:
+    """The gain of a stage of kind with resistors Ra, Rb (ohm) and the load admittance
+    load_y (S) across Rb where it is passive."""
+    if kind == "gain":
+        return 1 + rb / ra
+    if kind == "attenuator":
+        shunt = 1 / (1 / rb + load_y)
+        return np.abs(shunt / (ra + shunt))
+    return rb / (ra + rb)
