@@ -309,13 +309,20 @@ class Searcher:
         grp, arow, kbin, ratio, ra, rb = (np.concatenate([x[i] for x in parts]) for i in range(6))
         op_pull = np.array([g[0].pull for g in groups])
         target = p.ln_f - op_pull[grp] - amp["pull"][arow]
+        # the arm set depends only on the op-amp and the amplitude-side row, which the stage
+        # kinds and families of one op-amp mostly share (3.6 rows to a distinct pair on two
+        # requirements): looked up once per distinct pair
+        op_i = np.unique(np.array([id(g[0]) for g in groups]), return_inverse=True)[1].reshape(-1)[grp]
+        _, first, back = np.unique(op_i * amp["m"].size + arow, return_index=True, return_inverse=True)
+        q_bin, q_target = kbin[first], target[first]
         found = []
         for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
             res = max(table.sigma_lnf, 2e-4)
-            arm = index.cheapest(kbin, target - res, target + res)
+            arm = index.cheapest(q_bin, q_target - res, q_target + res)
             miss = arm < 0
             if miss.any():
-                arm[miss] = index.nearest(kbin[miss], target[miss])
+                arm[miss] = index.nearest(q_bin[miss], q_target[miss])
+            arm = arm[back.reshape(-1)]
             sel = np.flatnonzero(arm >= 0)
             found.append((pi, sel, arm[sel]))
         if not found or not sum(x[1].size for x in found):
