@@ -363,6 +363,11 @@ class Searcher:
         loss_i = np.unique(np.array([g[0].loss for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
         key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
         _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
+        # ... and the shares of the yield the stage does not enter (frequency, startup, THD)
+        # once per distinct (amplitude row, arm set, op-amp)
+        op_i = np.unique(np.array([id(g[0]) for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
+        _, u2, back2 = np.unique(key * (int(op_i.max()) + 1) + op_i, return_index=True, return_inverse=True)
+        back2 = back2.reshape(-1)
         ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]),
                               topo.port_conductance_slope(r_gnd, r_fb[u], k[u]), topo.osc_per_port_k(k[u]), m[u],
                               ird[u], thd_scale=topo.thd_transfer(k[u], vals[u], all_outputs=self.all_outputs))
@@ -379,7 +384,7 @@ class Searcher:
             y_stage = self.y_load + np.where(kinds == _KIND["gain"], 1 / (ra + rb), 0.0)
         i_load = np.where(buffered, load.max(axis=0) * np.abs(y_stage), 0.0)
         ilim = p.current_share * op["current"]
-        s_m = m_sigma(p, gf, gain, sig_k, op["loss"], op["gbw_spread"])
+        s_m = m_sigma(p, gf, gain[u2], sig_k[u2], op["loss"][u2], op["gbw_spread"][u2])[back2]
         with np.errstate(invalid="ignore", divide="ignore"):
             # the hottest package, as verification counts it: every channel's quiescent
             # power, and the output stages of the channels in use (one per package when a
@@ -397,10 +402,10 @@ class Searcher:
             s = np.flatnonzero(ok)
             s_a = np.sqrt((ev["dln_vo"][s] * s_m[s]) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
             y = np.zeros(m.shape)
-            y[s] = (frequency_share(err[s], sig_f[s], drift[s], p.tol_f) * phi(m[s] / s_m[s])
-                    * below_share(ev["thd"][s], np.abs(ev["dthd"][s]) * s_m[s], p.thd_max)
-                    * sum(w * window_share(np.log(load[i, s] / p.amp_v), s_a, math.log1p(p.tol_a))
-                          for i, w in enumerate(SIMPSON)))
+            core = (frequency_share(err[u2], sig_f[u2], drift[u2], p.tol_f) * phi(m[u2] / s_m[u2])
+                    * below_share(ev["thd"][u2], np.abs(ev["dthd"][u2]) * s_m[u2], p.thd_max))
+            y[s] = core[back2[s]] * sum(w * window_share(np.log(load[i, s] / p.amp_v), s_a, math.log1p(p.tol_a))
+                                        for i, w in enumerate(SIMPSON))
             ok &= np.isfinite(y) & (y > 0)
         idx = np.flatnonzero(ok)
         if idx.size == 0:
