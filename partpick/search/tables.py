@@ -61,20 +61,28 @@ class RangeMin:
 
     def __init__(self, cost: np.ndarray) -> None:
         self.cost = cost
-        # int32 positions: the table's levels are its memory (log2 n arrays of n), and no
+        # int32 positions: the table's levels are its memory (log2 n rows of n), and no
         # table comes near 2**31 rows; a level is made when a query first needs it (the
-        # search's ranges are short: most tables never need their upper levels)
-        self.levels = [np.arange(cost.size, dtype=np.int32)]
+        # search's ranges are short: most tables never need their upper levels). The
+        # levels are the rows of one array (row k valid in its first n - 2**k + 1
+        # places), so that a batch of queries reads them in one gather, whatever levels
+        # its ranges need
+        self.levels = np.arange(cost.size, dtype=np.int32)[None, :]
 
-    def _level(self, j: int) -> np.ndarray:
-        """Level j: the position of the smallest cost in [i, i + 2**j) for each i."""
-        n, cost, levels = self.cost.size, self.cost, self.levels
-        while len(levels) <= j:
-            k = len(levels)
-            prev, half = levels[-1], 1 << (k - 1)
-            a, b = prev[: n - (1 << k) + 1], prev[half: half + n - (1 << k) + 1]
-            levels.append(np.where(cost[a] <= cost[b], a, b))
-        return levels[j]
+    def _grow(self, j: int) -> None:
+        """Make the levels up to j: level k the position of the smallest cost in
+        [i, i + 2**k) for each i."""
+        have = self.levels.shape[0]
+        if have > j:
+            return
+        n, cost = self.cost.size, self.cost
+        levels = np.zeros((j + 1, n), np.int32)
+        levels[:have] = self.levels
+        for k in range(have, j + 1):
+            prev, half, m = levels[k - 1], 1 << (k - 1), n - (1 << k) + 1
+            a, b = prev[:m], prev[half: half + m]
+            levels[k, :m] = np.where(cost[a] <= cost[b], a, b)
+        self.levels = levels
 
     def argmin(self, a: np.ndarray, z: np.ndarray) -> np.ndarray:
         """Position of the cheapest entry of each range [a, z); -1 where it is empty."""
@@ -83,13 +91,9 @@ class RangeMin:
         if not ok.any():
             return out
         a, z = a[ok], z[ok]
-        j = np.floor(np.log2(z - a)).astype(int)
-        x, y = np.empty_like(a), np.empty_like(a)
-        for jj in np.unique(j):
-            sel = j == jj
-            level = self._level(int(jj))
-            x[sel] = level[a[sel]]
-            y[sel] = level[z[sel] - (1 << int(jj))]
+        j = np.floor(np.log2(z - a)).astype(np.intp)
+        self._grow(int(j.max()))
+        x, y = self.levels[j, a], self.levels[j, z - np.left_shift(1, j)]
         out[ok] = np.where(self.cost[x] <= self.cost[y], x, y)
         return out
 
