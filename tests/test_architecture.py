@@ -24,7 +24,8 @@ LAYERS = [
     ("partpick.physics",),
     ("partpick.circuits",),
     ("partpick.search", "partpick.verify", "partpick.tolerance", "partpick.bom", "partpick.pricing", "partpick.rank"),
-    ("partpick.pipeline", "partpick.refusal", "partpick.opening", "partpick.swap", "partpick.tradeoff", "partpick.inputs"),
+    ("partpick.pipeline", "partpick.refusal", "partpick.relaxation", "partpick.opening", "partpick.swap",
+     "partpick.tradeoff", "partpick.inputs"),
     ("partpick.export",),
     ("partpick.cli", "partpick.__main__"),
 ]

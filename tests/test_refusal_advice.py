@@ -50,6 +50,15 @@ def _design(path):
     return CliRunner().invoke(main, ["design", str(path), "-n", "1", "--catalog", str(CATALOGS)])
 
 
+def _refused(tmp_path, text: str):
+    """The design command's result on the spec text, which must refuse it (exit 1)."""
+    spec = tmp_path / "s.yaml"
+    spec.write_text(text)
+    refused = _design(spec)
+    assert refused.exit_code == 1, refused.output
+    return refused
+
+
 def _advised(advice: str) -> dict:
     """{field: value in %} of a "relax jointly X to V and Y to W" advice."""
     return dict(re.findall(r"([a-z_]+\.[a-z_]+) to (?:\+/-)?([\d.]+) %", advice))
@@ -73,10 +82,7 @@ def _refusal_of(tmp_path, text: str):
     """(the shipped catalog, the result of designing spec text), the refusal (exit 1) asserted."""
     from partpick.catalog import load_catalog
 
-    spec = tmp_path / "s.yaml"
-    spec.write_text(text)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, text)
     return load_catalog(CATALOGS), refused
 
 
@@ -99,10 +105,7 @@ def _designs(tmp_path, text: str) -> None:
 
 
 def test_relaxing_to_the_advised_value_designs(tmp_path):
-    spec = tmp_path / "s.yaml"
-    spec.write_text(SPEC)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, SPEC)
     advice = re.search(r"relax amplitude\.tolerance to \+/-([\d.]+) %", refused.output)
     assert advice, refused.output
     tol = float(advice.group(1))
@@ -147,10 +150,7 @@ parts:
 
 
 def test_joint_advice_moves_the_other_requirements_where_the_misses_are_not_enough(tmp_path):
-    spec = tmp_path / "s.yaml"
-    spec.write_text(OTHERS)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, OTHERS)
     assert "relax those requirements to it" not in refused.output
     line = re.search(r"no single requirement binds alone: .*relax jointly (.*)", refused.output)
     assert line, refused.output
@@ -172,10 +172,7 @@ def test_joint_advice_moves_the_other_requirements_where_the_misses_are_not_enou
 
 
 def test_relaxing_jointly_to_the_advised_values_designs(tmp_path):
-    spec = tmp_path / "s.yaml"
-    spec.write_text(JOINT)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, JOINT)
     line = re.search(r"no single requirement binds alone: .*relax jointly (.*)", refused.output)
     assert line, refused.output
     values = _advised(line.group(1))
@@ -232,10 +229,7 @@ def test_a_frequency_tolerance_no_family_pair_holds_names_the_value_that_designs
     # hold +/-3 % in 95 % of builds even centred. The refusal used to stop there ("allow a
     # tighter family or plan a trim", no value); it now says what the pair holds at the
     # yield, works on from that tolerance, and names what binds next with it
-    spec = tmp_path / "s.yaml"
-    spec.write_text(HOLD)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, HOLD)
     held = re.search(r"frequency\.tolerance binds: even centred on the target, .* hold \+/-3 % in about (\d+) % of "
                      r"builds and \+/-([\d.]+) % in 95 %", refused.output)
     assert held, refused.output
@@ -305,10 +299,7 @@ def test_a_load_refusal_states_the_resistance_with_what_binds_next(tmp_path):
     r_need = 5 * math.sqrt(2) * 0.95 / (0.6 * strongest)
     step = 10 ** (math.floor(math.log10(r_need)) - 1)
     r_advised = math.ceil(r_need / step) * step
-    spec = tmp_path / "s.yaml"
-    spec.write_text(LOAD)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, LOAD)
     assert f"a load.resistance under {r_advised:g} Ω cannot design" in refused.output, refused.output
     assert "raise load.resistance" not in refused.output   # the bound alone does not design
     ra = _advice_reader()
@@ -344,10 +335,7 @@ def test_parts_that_cannot_oscillate_are_answered_with_the_families_that_would(t
     # only "no allowed design oscillates". It now names the families a run with the
     # restricted kinds opened uses, and what binds with them allowed; every piece of
     # advice, applied with those families added, designs.
-    spec = tmp_path / "s.yaml"
-    spec.write_text(SHUT)
-    refused = _design(spec)
-    assert refused.exit_code == 1, refused.output
+    refused = _refused(tmp_path, SHUT)
     assert "no allowed design oscillates" in refused.output
     named = re.search(r"with famil(?:y|ies) ([a-z0-9., -]+) allowed", refused.output)
     assert named, refused.output

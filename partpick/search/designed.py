@@ -31,7 +31,8 @@ from dataclasses import replace
 import numpy as np
 
 from partpick.search.candidates import Candidate, on_shelf
-from partpick.search.enumerate import SIMPSON, m_sigma, r_limits
+from partpick.search.enumerate import SIMPSON
+from partpick.search.problem import m_sigma, r_limits
 from partpick.search.estimate import below_share, frequency_share, phi
 from partpick.circuits.jfet_design import THD_AIM
 from partpick.search.tables import K_BIN, STAGE_RATIO

@@ -29,17 +29,17 @@ import numpy as np
 
 from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner, prepare
-from partpick.circuits.options import nearest, sigma, values_of
-from partpick.derating import bias_r_max, package_limit
+from partpick.circuits.options import nearest, values_of
+from partpick.derating import package_limit
 from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.kernels import best_rows, first_of_groups
 from partpick.search.prices import PriceBook
-from partpick.search.problem import REF_T, Problem
+from partpick.search.problem import Problem, m_sigma, r_limits
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
 
-__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "m_sigma", "r_limits", "SIMPSON"]
+__all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "SIMPSON"]
 
 M_GRID = np.geomspace(0.003, 0.2, 16)   # gain excesses (nepers) the feedback resistors are chosen for
 RD_GRID = 24             # series resistor values per limiter, log-spaced from the family
@@ -584,28 +584,6 @@ class Searcher:
 
 
 _KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
-
-
-def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
-    """Standard deviation of the gain excess over builds (nepers): the gain network's
-    ratio (two resistors of the family, each with the topology's sensitivity of ln gain),
-    the arms' required gain, the op-amp's gain-bandwidth spread acting on its loss
-    (nepers; spread a fraction, 3 sigma), and the two gain resistors drifting apart over
-    temperature (uniform)."""
-    sens = problem.topology.gain_sensitivity(gain)
-    s_g = sens * math.sqrt(2) * sigma(gf)
-    s_op = np.asarray(loss) * np.asarray(gbw_spread) / 3
-    dt = max(abs(problem.temps_k[0] - REF_T), abs(problem.temps_k[2] - REF_T))
-    s_t = sens * 2 * gf.tempco_per_k * dt / math.sqrt(3)
-    return np.sqrt(s_g ** 2 + np.asarray(sigma_lnk) ** 2 + s_op ** 2 + s_t ** 2)
-
-
-def r_limits(op, derating) -> tuple[float, float]:
-    """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance
-    (a planning rule of the search: the loop analysis judges the loading), and up to
-    the value at which its bias current drops the derating rule bias_drop, which check
-    judges (:func:`partpick.derating.bias_r_max`)."""
-    return max(20 * op.output_resistance_ohm, 1.0), bias_r_max(op, derating)
 
 
 # per-row op-amp figures for the vectorised scoring

@@ -14,6 +14,8 @@ import math
 from dataclasses import dataclass, field
 from statistics import NormalDist
 
+import numpy as np
+
 from partpick.catalog import Catalog, OpAmp
 from partpick.circuits import CONTROLS, TOPOLOGIES, Conditions, linear
 from partpick.circuits.options import (
@@ -22,10 +24,11 @@ from partpick.circuits.options import (
     resistor_families,
     sigma,
 )
+from partpick.derating import bias_r_max
 from partpick.physics.opamp import swing_limits
 from partpick.spec import Spec
 
-__all__ = ["Problem", "OpInfo", "build_problem", "NORMAL"]
+__all__ = ["Problem", "OpInfo", "build_problem", "NORMAL", "m_sigma", "r_limits"]
 
 NORMAL = NormalDist()
 REF_T = 298.15
@@ -175,3 +178,25 @@ def build_problem(spec: Spec, catalog: Catalog, stock=None) -> Problem:
                    spec.amplitude.tolerance_frac, spec.max_thd_frac, y, z, (t.min_k, t.nominal_k, t.max_k),
                    spec.derating.thd_share * spec.max_thd_frac, spec.derating.output_current, tuple(dropped),
                    tuple(notes), designed, choice == "auto")
+
+
+def m_sigma(problem: Problem, gf, gain: np.ndarray, sigma_lnk, loss, gbw_spread) -> np.ndarray:
+    """Standard deviation of the gain excess over builds (nepers): the gain network's
+    ratio (two resistors of the family, each with the topology's sensitivity of ln gain),
+    the arms' required gain, the op-amp's gain-bandwidth spread acting on its loss
+    (nepers; spread a fraction, 3 sigma), and the two gain resistors drifting apart over
+    temperature (uniform)."""
+    sens = problem.topology.gain_sensitivity(gain)
+    s_g = sens * math.sqrt(2) * sigma(gf)
+    s_op = np.asarray(loss) * np.asarray(gbw_spread) / 3
+    dt = max(abs(problem.temps_k[0] - REF_T), abs(problem.temps_k[2] - REF_T))
+    s_t = sens * 2 * gf.tempco_per_k * dt / math.sqrt(3)
+    return np.sqrt(s_g ** 2 + np.asarray(sigma_lnk) ** 2 + s_op ** 2 + s_t ** 2)
+
+
+def r_limits(op, derating) -> tuple[float, float]:
+    """Arm resistors the op-amp tolerates, ohm: above 20 times its output resistance
+    (a planning rule of the search: the loop analysis judges the loading), and up to
+    the value at which its bias current drops the derating rule bias_drop, which check
+    judges (:func:`partpick.derating.bias_r_max`)."""
+    return max(20 * op.output_resistance_ohm, 1.0), bias_r_max(op, derating)
