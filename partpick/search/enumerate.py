@@ -312,7 +312,7 @@ class Searcher:
         # the arm set depends only on the op-amp and the amplitude-side row, which the stage
         # kinds and families of one op-amp mostly share (3.6 rows to a distinct pair on two
         # requirements): looked up once per distinct pair
-        op_i = np.unique(np.array([id(g[0]) for g in groups]), return_inverse=True)[1].reshape(-1)[grp]
+        op_i = _op_index(groups, grp)
         _, first, back = np.unique(op_i * amp["m"].size + arow, return_index=True, return_inverse=True)
         q_bin, q_target = kbin[first], target[first]
         found = []
@@ -365,7 +365,7 @@ class Searcher:
         _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
         # ... and the shares of the yield the stage does not enter (frequency, startup, THD)
         # once per distinct (amplitude row, arm set, op-amp)
-        op_i = np.unique(np.array([id(g[0]) for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
+        op_i = _op_index(groups, g_row)
         _, u2, back2 = np.unique(key * (int(op_i.max()) + 1) + op_i, return_index=True, return_inverse=True)
         back2 = back2.reshape(-1)
         ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]),
@@ -584,6 +584,11 @@ class Searcher:
 
 
 _KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
+
+
+def _op_index(groups, g_row: np.ndarray) -> np.ndarray:
+    """Each row's op-amp as a small integer (g_row: each row's group)."""
+    return np.unique(np.array([id(g[0]) for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
 
 
 # per-row op-amp figures for the vectorised scoring
