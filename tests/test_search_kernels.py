@@ -312,3 +312,18 @@ def test_stage_tables_from_the_cache_are_the_tables_made(demo_catalog, tmp_path,
         want = sorted((a, b) for a, b in itertools.product(vals, vals) if lo <= expr(a, b) <= hi)
         assert sorted(zip(ra.tolist(), rb.tolist())) == want
         assert gains.tolist() == [expr(a, b) for a, b in zip(ra.tolist(), rb.tolist())]
+
+
+def test_a_damaged_stage_table_entry_is_made_again(demo_catalog, tmp_path, monkeypatch):
+    # the cache is only an optimisation: an entry whose indices point past the family's
+    # values (damaged, or written for other values) gives the table made afresh, not an error
+    from partpick.search.tables import stage_table
+
+    monkeypatch.setenv("PARTPICK_CACHE", str(tmp_path))
+    fam = demo_catalog.find("resistors", "tk-5")
+    made = stage_table("gain", fam, 0j)
+    (entry,) = (tmp_path / "stage-table").glob("*.npz")
+    np.savez(entry, a=np.array([60000], np.uint16), b=np.array([0], np.uint16))
+    again = stage_table("gain", fam, 0j)
+    for x, y in zip(made, again):
+        assert x.tobytes() == y.tobytes()

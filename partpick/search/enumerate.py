@@ -314,6 +314,7 @@ class Searcher:
         # requirements): looked up once per distinct pair
         op_i = _op_index(groups, grp)
         _, first, back = np.unique(op_i * amp["m"].size + arow, return_index=True, return_inverse=True)
+        back = back.reshape(-1)
         q_bin, q_target = kbin[first], target[first]
         found = []
         for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
@@ -322,7 +323,7 @@ class Searcher:
             miss = arm < 0
             if miss.any():
                 arm[miss] = index.nearest(q_bin[miss], q_target[miss])
-            arm = arm[back.reshape(-1)]
+            arm = arm[back]
             sel = np.flatnonzero(arm >= 0)
             found.append((pi, sel, arm[sel]))
         if not found or not sum(x[1].size for x in found):

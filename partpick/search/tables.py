@@ -198,7 +198,9 @@ def stage_table(kind: str, rfam, load_y: complex, shelf=None) -> tuple[np.ndarra
     cached = (kind != "attenuator" or load_y == 0) and vals.size <= np.iinfo(np.uint16).max
     key = content_key("stage-table-1", kind, vals.tolist()) if cached else None
     got = load_arrays("stage-table", key) if key is not None else None
-    if got is not None and set(got) == {"a", "b"}:
+    # (a damaged entry, or one not of these values, is made again: the cache is only an optimisation)
+    if (got is not None and set(got) == {"a", "b"} and got["a"].shape == got["b"].shape
+            and all(x.size == 0 or int(x.max()) < vals.size for x in got.values())):
         ra, rb = vals[got["a"]], vals[got["b"]]
         return _stage_gain(kind, ra, rb, load_y), ra, rb
     ia, ib = (a.ravel() for a in np.meshgrid(np.arange(vals.size), np.arange(vals.size), indexing="ij"))
