@@ -20,7 +20,7 @@ from functools import partial
 from partpick import units
 from partpick.bom import Bom, BomLine, part_data
 from partpick.catalog import Catalog
-from partpick.circuits import balance, build_loop, check_spec, fitting_topologies, linear, periphery, slots_for
+from partpick.circuits import check_spec, fitting_topologies, periphery, settled, slots_for
 from partpick.circuits.options import sigma
 from partpick.errors import InfeasibleError
 from partpick.pricing import Pricer, bom_cost
@@ -485,10 +485,7 @@ def _nominal(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, fixed
     bom = candidate_bom(c, spec, problem, fixed)
     circuit = bom.to_circuit(catalog)
     cond = operating_conditions(spec)["nominal"]
-    loop = build_loop(circuit, cond)
-    lin = linear(circuit, cond, loop)
-    hb = balance(circuit, cond, lin, loop=loop)
-    return circuit, hb
+    return circuit, settled(circuit, cond)[2]
 
 
 def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searcher: Searcher, fixed) -> Candidate:

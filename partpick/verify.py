@@ -18,7 +18,7 @@ import numpy as np
 
 from partpick import units
 from partpick.circuits import (Circuit, Conditions, balance, build_loop, build_netlist, linear, log_sensitivities,
-                               margin_fn, periphery, rest_conductance)
+                               margin_fn, periphery, rest_conductance, settled)
 from partpick.derating import bias_r_max, package_limit
 from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
@@ -141,13 +141,11 @@ def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = No
     balance starts this one's Newton iteration (the answer is the same, only sooner);
     ``transient``: False, or a callable (a budget) that says no before a run, raises
     NeedsTransient where a transient run would be needed."""
-    loop = build_loop(c, cond)
-    lin = linear(c, cond, loop)
+    loop, lin, hb = settled(c, cond, near.balance if near is not None else None)
     lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
-    hb = balance(c, cond, lin, loop=loop, start=near.balance if near is not None else None)
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
     if not transient or (callable(transient) and not transient()):
