@@ -204,19 +204,54 @@ def _draw(rng, n: int, normal: bool) -> np.ndarray:
 def draw_builds(model: Model, spec: Spec, n: int, rng) -> dict:
     """n builds: temperature (K), supply (V), each part's value at that temperature
     (ohm, F) and the op-amp's GBW over its nominal."""
-    t = rng.uniform(spec.temperature.min_k, spec.temperature.max_k, n)
-    vs = rng.uniform(spec.supply.min_v, spec.supply.max_v, n)
+    flags = tuple((model.normal[role], model.band[role][0] > 0) for role in model.values)
+    t, vs, raw, g = _raw_draws(rng, n, (spec.temperature.min_k, spec.temperature.max_k),
+                               (spec.supply.min_v, spec.supply.max_v), flags)
     dt = t - T_REF
     v = {}
-    for role, nominal in model.values.items():
-        x = nominal * (1 + model.tol[role] * _draw(rng, n, model.normal[role]))
+    for (role, nominal), (d, u_tc, u_band) in zip(model.values.items(), raw):
+        x = nominal * (1 + model.tol[role] * d)
         tc_nom, tc_spread = model.tempco[role]
         b, half = model.band[role]
-        drift = (tc_nom + tc_spread * rng.uniform(-1, 1, n)) * dt
+        drift = (tc_nom + tc_spread * u_tc) * dt
         if b > 0:
-            drift = drift + b * np.clip(np.abs(dt) / half, 0, 1) * rng.uniform(-1, 1, n)
+            drift = drift + b * np.clip(np.abs(dt) / half, 0, 1) * u_band
         v[role] = x * (1 + drift)
-    return {"t": t, "vs": vs, "v": v, "gbw": 1 + model.gbw_spread * _draw(rng, n, True)}
+    return {"t": t, "vs": vs, "v": v, "gbw": 1 + model.gbw_spread * g}
+
+
+_RAW: dict = {}   # _raw_draws: the draws by the generator's state and what they are drawn for
+_RAW_KEPT = 6     # (about 5 MB each at 20,000 builds of ten parts)
+
+
+def _raw_draws(rng, n: int, t_range: tuple, v_range: tuple, flags: tuple) -> tuple:
+    """The draws draw_builds scales, in its order: temperature (K) and supply (V)
+    uniform over their ranges; per part (flags: whether its tolerance is normal,
+    whether it has a temperature band) its tolerance draw in [-1, 1] (_draw), its
+    tempco draw and its band draw (uniform in [-1, 1]; None without a band); the GBW
+    draw. They depend only on the generator's state and these arguments, which every
+    candidate of one run shares (one seed): kept per process and replayed, the
+    generator left in the state drawing them leaves it in (the same numbers to the last
+    bit, drawn once). Read-only: the caller builds new arrays from them."""
+    key = (repr(rng.bit_generator.state), n, t_range, v_range, flags)
+    if key in _RAW:
+        draws, after = _RAW[key]
+        rng.bit_generator.state = after
+        return draws
+    t = rng.uniform(*t_range, n)
+    vs = rng.uniform(*v_range, n)
+    raw = []
+    for normal, banded in flags:
+        d = _draw(rng, n, normal)
+        u_tc = rng.uniform(-1, 1, n)
+        raw.append((d, u_tc, rng.uniform(-1, 1, n) if banded else None))
+    draws = (t, vs, tuple(raw), _draw(rng, n, True))
+    for a in (t, vs, draws[3], *(x for r in raw for x in r if x is not None)):
+        a.flags.writeable = False
+    if len(_RAW) >= _RAW_KEPT:
+        del _RAW[next(iter(_RAW))]
+    _RAW[key] = (draws, rng.bit_generator.state)
+    return draws
 
 
 def frequency_and_startup(model: Model, b: dict) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

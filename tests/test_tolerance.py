@@ -95,6 +95,32 @@ def test_seeded_runs_repeat(demo_catalog):
     assert a.yield_frac == b.yield_frac and np.array_equal(a.freq_hz, b.freq_hz)
 
 
+def test_replayed_draws_are_the_generators(demo_catalog):
+    # the builds' random draws are kept per process and replayed (tolerance._raw_draws):
+    # what a replay gives, and the state it leaves the generator in, must be what the
+    # seeded generator itself draws (numpy.random.Generator: one seed, one stream)
+    from partpick import tolerance
+
+    spec = _spec(tmin=-20, tmax=70)
+    banded, _ = _model(demo_catalog, _bom("tk-5", "x7r-10", 22e3), spec)     # a class-2 band: one draw more
+    plain, _ = _model(demo_catalog, _bom("mf-1", "c0g-1", 22e3), spec)
+    tolerance._RAW.clear()
+    fresh = []
+    for model in (banded, plain):
+        rng = np.random.default_rng(11)
+        fresh.append((tolerance.draw_builds(model, spec, 3000, rng), rng.random()))
+    assert len(tolerance._RAW) == 2
+    for model, (b, after) in zip((banded, plain), fresh):
+        rng = np.random.default_rng(11)
+        again = tolerance.draw_builds(model, spec, 3000, rng)
+        assert rng.random() == after
+        assert all(np.array_equal(again[k], b[k]) for k in ("t", "vs", "gbw"))
+        assert all(np.array_equal(again["v"][r], b["v"][r]) for r in b["v"])
+    # the two models' parts are drawn from one stream in turn: a band's draw moves the rest
+    assert not np.array_equal(fresh[0][0]["gbw"], fresh[1][0]["gbw"])
+    assert len(tolerance._RAW) == 2
+
+
 def test_gain_2_2_is_too_close_to_threshold_and_3_3_with_diodes_is_safe(demo_catalog):
     # Bench fact of the trade (common practice, no published source): Rf/Rg = 2.2 on
     # equal arms (6.7 % above the threshold) is too close for 2-5 % parts; Rf/Rg = 3.3
