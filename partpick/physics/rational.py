@@ -16,6 +16,8 @@ __all__ = ["Rational", "const", "parallel", "polyval", "poly_sum2"]
 
 
 def _trim(c: np.ndarray) -> np.ndarray:
+    if c.size and c[-1] != 0:
+        return c    # (nothing to trim: the usual case, without a search for the last non-zero)
     nz = np.flatnonzero(c)
     return c[: nz[-1] + 1] if nz.size else c[:1] * 0
 
@@ -33,7 +35,10 @@ def polyval(c: np.ndarray, p: np.ndarray | complex) -> np.ndarray:
     """sum c[k] p^k, through the Vandermonde matrix (one vector operation, which beats
     Horner's loop for the low degrees and short vectors used here)."""
     p = np.asarray(p, dtype=complex)
-    return np.power.outer(p, np.arange(c.size)) @ c
+    return np.power.outer(p, _POWERS[c.size] if c.size < len(_POWERS) else np.arange(c.size)) @ c
+
+
+_POWERS = tuple(np.arange(k) for k in range(24))   # polyval's exponents (made once, not per call)
 
 
 @dataclass(frozen=True, slots=True)
