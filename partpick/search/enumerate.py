@@ -292,11 +292,10 @@ class Searcher:
 
     def configurations(self, lim, gf, r_gnd: float) -> "Batch | None":
         """The best estimated design of every configuration with this limiter, gain
-        family and the fixed resistor r_gnd (ohm): every op-amp, arm family pair, stage kind and stage
-        family at once. Each
-        amplitude-side choice is matched with the cheapest arm set of its K bin landing
-        within the frequency resolution of target (or the nearest one) and evaluated
-        again exactly at that arm set's K: one evaluation over all rows."""
+        family and the fixed resistor r_gnd (ohm): every op-amp, arm family pair, stage
+        kind and stage family at once. Each amplitude-side choice is matched with the
+        cheapest arm set of its K bin landing within the frequency resolution of target
+        (or the nearest one) and evaluated again exactly at that arm set's K."""
         amp = self._amp_side(lim, gf, r_gnd)
         p = self.problem
         groups, parts = [], []
@@ -357,18 +356,19 @@ class Searcher:
         k = np.exp(ln_k + op["loss"])
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
-        # the limiter's figures once per distinct (amplitude row, arm set, op-amp loss): the
-        # stage kinds and families of one op-amp mostly pick the same rows
-        # (each row's op-amp loss as an index among the groups' few: np.unique over the
-        # groups, not over every row)
+        # the shares of the yield the stage does not enter (frequency, startup, THD) once per
+        # distinct (amplitude row, arm set, op-amp), and the limiter's figures once per distinct
+        # (amplitude row, arm set, op-amp loss), found among those (an op-amp has one loss: a sort
+        # of the few, not of every row): the stage kinds and families of one op-amp mostly pick
+        # the same rows (each row's loss an index among the groups' few)
         loss_i = np.unique(np.array([g[0].loss for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
         key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
-        _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
-        # ... and the shares of the yield the stage does not enter (frequency, startup, THD)
-        # once per distinct (amplitude row, arm set, op-amp)
         op_i = _op_index(groups, g_row)
         _, u2, back2 = np.unique(key * (int(op_i.max()) + 1) + op_i, return_index=True, return_inverse=True)
         back2 = back2.reshape(-1)
+        _, first, back = np.unique(key[u2] * (int(loss_i.max()) + 1) + loss_i[u2], return_index=True,
+                                   return_inverse=True)
+        u, back = u2[first], back.reshape(-1)[back2]
         ev = planner.evaluate(topo.port_conductance(r_gnd, r_fb[u], k[u]),
                               topo.port_conductance_slope(r_gnd, r_fb[u], k[u]), topo.osc_per_port_k(k[u]), m[u],
                               ird[u], thd_scale=topo.thd_transfer(k[u], vals[u], all_outputs=self.all_outputs))
