@@ -11,6 +11,7 @@
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -327,3 +328,37 @@ def test_a_damaged_stage_table_entry_is_made_again(demo_catalog, tmp_path, monke
     again = stage_table("gain", fam, 0j)
     for x, y in zip(made, again):
         assert x.tobytes() == y.tobytes()
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 400))
+def test_a_stage_pick_in_the_wanted_gains_order_is_the_pick_without_it(seed, n):
+    """StageTable.pick given the wanted gains' ascending order (non-finite as 0, as the
+    search passes it) answers as without it, and both against a scan: the pair with Ra
+    + Rb nearest STAGE_LEVEL (the first such) among those within STAGE_RES of the wanted
+    gain, else the nearest gain."""
+    from partpick.search.tables import STAGE_LEVEL, STAGE_RES
+
+    table = _divider_table()
+    rng = np.random.default_rng(seed)
+    want = rng.uniform(table.ln_g[0] - 0.1, table.ln_g[-1] + 0.1, n)
+    want[rng.random(n) < 0.05] = np.nan
+    order = np.argsort(np.where(np.isfinite(want), want, 0.0), kind="stable")
+    got = table.pick(want, order)
+    assert got.tolist() == table.pick(want).tolist()
+    level = np.abs(np.log((table.ra + table.rb) / STAGE_LEVEL))
+    for w, j in zip(np.where(np.isfinite(want), want, 0.0)[:40], got[:40]):
+        close = np.flatnonzero(np.abs(table.ln_g - w) <= STAGE_RES)
+        if close.size:
+            assert level[j] == level[close].min() and abs(table.ln_g[j] - w) <= STAGE_RES
+        else:
+            assert abs(table.ln_g[j] - w) == np.abs(table.ln_g - w).min()
+
+
+@functools.cache
+def _divider_table():
+    """The buffered attenuator's stage table of the demo tk-5 family (made once)."""
+    from partpick.catalog import load_catalog
+    from partpick.search.tables import StageTable
+    from tests.conftest import CATALOGS
+
+    return StageTable("buffered-attenuator", load_catalog(CATALOGS).find("resistors", "tk-5"), 0j)

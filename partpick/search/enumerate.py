@@ -11,14 +11,13 @@ feedback resistor of the gain family that puts the gain excess where the loop ca
 it, every series resistor Rd of a log grid of the family, and the stage pair whose
 ratio is nearest the one that centres the amplitude over temperature.
 
-The amplitude side (Rf, Rd, stage) depends on the arms only through their required
-gain K, so it is scored once per (op-amp, limiter, gain family, level) on a fixed grid of K
-bins (0.4 % wide); each bin's best choices are then matched with the cheapest arm set
-of that bin whose frequency, with the op-amp's and the limiter's pull, lands within the
-frequency resolution of the target (a range-minimum query over the arm sets sorted by
-frequency), and the match is evaluated again exactly at that arm set's own K. Scores
-are estimates (:mod:`partpick.search.estimate` for the yield; the limiter's surface for
-amplitude, THD and pull); verification decides.
+The amplitude side (Rf, Rd, stage) depends on the arms only through their required gain
+K, so it is scored once per (op-amp, limiter, gain family, level) on a fixed grid of K bins
+(0.4 % wide); each bin's best choices are then matched with the cheapest arm set of that
+bin whose frequency, with the op-amp's and the limiter's pull, lands within the frequency
+resolution of the target (a range-minimum query over the arm sets sorted by frequency),
+and evaluated again exactly at that arm set's own K. Scores are estimates
+(:mod:`partpick.search.estimate`; the limiter's surface); verification decides.
 """
 
 from __future__ import annotations
@@ -224,23 +223,20 @@ class Searcher:
         return self._amp_side(lim, gf, r_gnd)["planner"].choices
 
     def _stage_of(self, lim, gf, r_gnd, kind, sf):
-        """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter, gain
-        family and level, with the row's amplitude margin to its tolerance at the worst
-        temperature (ln; None without a stage of this kind and family), cached for this
-        spec's load and amplitude (once per distinct rows and stage table: families of one
-        series share both, and this searcher holds them, so their ids stay theirs)."""
+        """The stage (ratio, Ra, Rb) of every amplitude-side row of a limiter, gain family
+        and level, with the row's amplitude margin to its tolerance at the worst temperature
+        (ln; None without a stage of this kind and family), cached once per distinct rows and
+        stage table (families of one series share both; this searcher holds them)."""
         amp = self._amp_side(lim, gf, r_gnd)
         key = (id(amp), kind, id(self.stage_tables.get((kind, sf.id))))
         if key not in self._stages:
-            vo = amp["vo"]
-            res = self._stage(kind, sf, vo)
+            res = self._stage(kind, sf, amp)
             if res is not None:
                 # the amplitude's margin to its tolerance at the worst temperature (ln), the
                 # same for every op-amp (only its spread, which divides it, is the op-amp's)
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    dev = np.min(math.log1p(self.problem.tol_a) - np.abs(np.log(vo * res[0] / self.problem.amp_v)),
-                                 axis=0)
-                res = (*res, dev)
+                    dev = np.log(amp["vo"] * res[0] / self.problem.amp_v)
+                    res = (*res, np.min(math.log1p(self.problem.tol_a) - np.abs(dev), axis=0))
             self._stages[key] = res
         return self._stages[key]
 
@@ -547,17 +543,21 @@ class Searcher:
             return None
         return float(table.ra[j]), float(table.rb[j])
 
-    def _stage(self, kind, sf, vo):
+    def _stage(self, kind, sf, amp):
         """The stage ratio (and resistors) per amplitude-side choice: 1 without a pair,
         else the family pair (_StageTable.pick) for the gain that centres the load
-        amplitude over temperature (the geometric mean of the ends)."""
+        amplitude over temperature (the geometric mean of the ends; the wanted gains in
+        ascending order once per amplitude side, for every table it is matched with)."""
         if kind not in STAGE_RATIO:
             return np.asarray(1.0), np.asarray(0.0), np.asarray(0.0)
         table = self.stage_tables.get((kind, sf.id))
         if table is None or len(table) == 0:
             return None
-        with np.errstate(invalid="ignore", divide="ignore"):
-            pick = table.pick(np.log(self.problem.amp_v / np.sqrt(vo[0] * vo[2])))
+        if (id(amp), "want") not in self._stages:
+            with np.errstate(invalid="ignore", divide="ignore"):
+                want = np.log(self.problem.amp_v / np.sqrt(amp["vo"][0] * amp["vo"][2]))
+            self._stages[id(amp), "want"] = (want, np.argsort(np.where(np.isfinite(want), want, 0.0), kind="stable"))
+        pick = table.pick(*self._stages[id(amp), "want"])
         return table.gains[pick], table.ra[pick], table.rb[pick]
 
     def _net_admittance(self, vals, r_fb, r_gnd) -> np.ndarray:

@@ -111,15 +111,24 @@ class StageTable:
     def __len__(self) -> int:
         return self.gains.size
 
-    def pick(self, want: np.ndarray) -> np.ndarray:
-        """Index of the pair for each wanted ln gain."""
+    def pick(self, want: np.ndarray, order: np.ndarray | None = None) -> np.ndarray:
+        """Index of the pair for each wanted ln gain; ``order``: the wanted gains'
+        ascending order (non-finite ones as 0), where the caller has it: the binary
+        searches then each start where the last ended, and the range-minimum queries
+        read the table in order (the same answers, sooner on tables of 10^5 pairs)."""
         ln_g = self.ln_g
         w = np.where(np.isfinite(want), want, 0.0)
+        w = w if order is None else w[order]
         j = np.clip(np.searchsorted(ln_g, w), 1, ln_g.size - 1)
         near = np.where(np.abs(ln_g[j - 1] - w) <= np.abs(ln_g[j] - w), j - 1, j)
         best = self._level.argmin(np.searchsorted(ln_g, w - STAGE_RES, side="left"),
                                   np.searchsorted(ln_g, w + STAGE_RES, side="right"))
-        return np.where(best >= 0, best, near)
+        got = np.where(best >= 0, best, near)
+        if order is None:
+            return got
+        out = np.empty_like(got)
+        out[order] = got
+        return out
 
 
 class ArmIndex:
