@@ -35,17 +35,19 @@ def best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
     chosen = np.zeros(work.shape, bool)
     if bins.size == 0:
         return chosen
+    n = bins.size
     starts = np.flatnonzero(np.r_[True, bins[1:] != bins[:-1]])
-    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, bins.size]))
+    seg = np.repeat(np.arange(starts.size), np.diff(np.r_[starts, n]))
+    rows, lines = work.reshape(-1, n), chosen.reshape(-1, n)
+    back = n - np.arange(n)      # larger for an earlier row: the first hit of a bin is its largest
     for _ in range(keep):
-        top = np.maximum.reduceat(work, starts, axis=-1)
-        hit = (work == top[..., seg]) & np.isfinite(work)
-        # the first hit of each bin: the hits counted from the bin's start
-        count = np.cumsum(hit, axis=-1)
-        before = np.concatenate([np.zeros(count.shape[:-1] + (1,), count.dtype), count[..., starts[1:] - 1]], axis=-1)
-        first = hit & (count - before[..., seg] == 1)
-        if not first.any():
+        top = np.maximum.reduceat(rows, starts, axis=-1)
+        hit = (rows == top[:, seg]) & np.isfinite(rows)
+        first = np.maximum.reduceat(np.where(hit, back, 0), starts, axis=-1)
+        line, _ = np.nonzero(first)
+        if line.size == 0:
             break
-        chosen |= first
-        work[first] = -np.inf
+        col = n - first[first > 0]
+        lines[line, col] = True
+        rows[line, col] = -np.inf
     return chosen
