@@ -434,11 +434,12 @@ class Planner:
         """_coords of the choices ci (indices into choices) with conductances g (S) at rg."""
         return _coords(None, g, rg, tuple(x[ci] for x in self._r_axes[rg]))
 
-    def _lookup(self, ci, g, vo: bool, thd: bool, pull: bool):
+    def _lookup(self, ci, g, vo: bool, thd: bool, pull: bool, at=None):
         """What Surface.lookup gives at the choices ci (indices into choices) and
-        conductances g (S), only the fields asked for (None for the others)."""
+        conductances g (S), only the fields asked for (None for the others); ``at``:
+        their _at at the network's level, where the caller holds it."""
         rd = self.choices[ci]
-        at = self._at(ci, g, self.rg)
+        at = self._at(ci, g, self.rg) if at is None else at
         out_vo = out_thd = out_pull = None
         if vo:
             q = np.asarray(g, float) * np.asarray(rd, float)
@@ -494,7 +495,8 @@ class Planner:
             scale = np.asarray(osc_per_port, float) / self.osc_ref
             t_scale = thd_scale
         with np.errstate(invalid="ignore", divide="ignore"):
-            vo, thd, pull_g = self._lookup(ci, g, True, True, True)
+            at = self._at(ci, g, self.rg)
+            vo, thd, pull_g = self._lookup(ci, g, True, True, True, at)
             pull = self._lookup(ci, g_ref, False, False, True)[2]
             pull = np.where(np.isfinite(pull), pull, pull_g)   # the reference's excess off the table
             dm = 0.002
@@ -504,7 +506,7 @@ class Planner:
             # the output at another temperature: scaled by the ratio of the branch's
             # describing-function amplitudes there and at 25 degC (the table, in the
             # branch's own units: rd and g as they are)
-            at = self._at(ci, g, self.level)
+            at = at if self.level == self.rg else self._at(ci, g, self.level)   # (the same where they are)
             for i, t in enumerate(self.temps_k):
                 ratio = 1.0 if t == REF_T else np.exp(_bilinear(self._df_shift[i], at))
                 out[f"vo{i}"] = vo * scale * ratio
