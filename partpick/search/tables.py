@@ -68,21 +68,24 @@ class RangeMin:
         # places), so that a batch of queries reads them in one gather, whatever levels
         # its ranges need
         self.levels = np.arange(cost.size, dtype=np.int32)[None, :]
+        self._top = np.asarray(cost, float)   # the smallest costs of the top level's ranges
 
     def _grow(self, j: int) -> None:
         """Make the levels up to j: level k the position of the smallest cost in
-        [i, i + 2**k) for each i."""
+        [i, i + 2**k) for each i (the first of equals), from the level below's positions
+        and smallest costs, read as two shifted slices (no gather of the costs)."""
         have = self.levels.shape[0]
         if have > j:
             return
-        n, cost = self.cost.size, self.cost
+        n, top = self.cost.size, self._top
         levels = np.zeros((j + 1, n), np.int32)
         levels[:have] = self.levels
         for k in range(have, j + 1):
             prev, half, m = levels[k - 1], 1 << (k - 1), n - (1 << k) + 1
-            a, b = prev[:m], prev[half: half + m]
-            levels[k, :m] = np.where(cost[a] <= cost[b], a, b)
-        self.levels = levels
+            left = top[:m] <= top[half: half + m]
+            levels[k, :m] = np.where(left, prev[:m], prev[half: half + m])
+            top = np.where(left, top[:m], top[half: half + m])
+        self.levels, self._top = levels, top
 
     def argmin(self, a: np.ndarray, z: np.ndarray) -> np.ndarray:
         """Position of the cheapest entry of each range [a, z); -1 where it is empty."""
