@@ -84,14 +84,15 @@ class WienBridge:
         """The small-signal equations at the control's port (see :meth:`_feedback_loop`
         and :meth:`_ground_loop`)."""
         w = w_ref or 2 * math.pi * c.f0_hz
-        beta, yx = self._network(c, w)
+        net = self._network(c, w)    # (read again for the load's transfer: made once)
+        beta, yx = net
         y_out = periphery.output_admittance(c, cond, w)
         if y_out is not None:
             yx = yx + y_out
         make = self._ground_loop if c.control.port == "ground" else self._feedback_loop
-        return make(c, cond, w, beta, yx)
+        return make(c, cond, w, beta, yx, net)
 
-    def _feedback_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
+    def _feedback_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx, net) -> Loop:
         """The small-signal equations at the 'feedback' port (a branch across Rf): the
         op-amp's A0, GBW, optional second pole and output resistance, the load, the
         output stage's input and, on a single supply, the coupling capacitor. The bias
@@ -120,7 +121,7 @@ class WienBridge:
         d1 = (one + yx.scale(ro)).scale(rg) + k
         cv_i = yx * g1 + yf                          # output current per Vf
         ci_i = yx.scale(rg) + one                    # ... per I
-        tl = self._to_load(c, cond, w)
+        tl = self._to_load(c, cond, w, net)
         probes = (
             ("osc", g1, const(rg)),
             ("load", tl * g1, tl.scale(rg)),
@@ -129,7 +130,7 @@ class WienBridge:
         )
         return Loop(w, alpha, gamma, d0, d1, probes, (AmpProbe("U1A", c.opamp, "U1A.x", "U1A.iout"),))
 
-    def _ground_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx) -> Loop:
+    def _ground_loop(self, c: Circuit, cond: Conditions, w: float, beta, yx, net) -> Loop:
         """The small-signal equations at the 'ground' port (a branch across Rg, from the
         inverting input to the reference; its current raises the gain).
 
@@ -158,7 +159,7 @@ class WienBridge:
         # a current J drawn from the output adds Ro J to X = Vo + Ro Iout: eta = Ro
         cv_i = yx.scale(g1) + const(yg)              # output current per Vn
         ci_i = yx.scale(rf) + one                    # ... per I
-        tl = self._to_load(c, cond, w)
+        tl = self._to_load(c, cond, w, net)
         probes = (
             ("osc", const(g1), const(rf)),
             ("load", tl.scale(g1), tl.scale(rf)),
@@ -171,13 +172,14 @@ class WienBridge:
         """(beta = Zp / (Zs + Zp), the network's input admittance 1 / (Zs + Zp)) in p = s / w."""
         zs = const(c.value("rs")) + periphery.impedance_c(c.value("cs"), w)
         zp = parallel(const(c.value("rp")), periphery.impedance_c(c.value("cp"), w))
-        return zp / (zs + zp), (zs + zp).inv()
+        total = zs + zp
+        return zp / total, total.inv()
 
-    def _to_load(self, c: Circuit, cond: Conditions, w: float):
+    def _to_load(self, c: Circuit, cond: Conditions, w: float, net=None):
         """Transfer from the output to the load, V/V: the output stage's and what the
         reference carries there (periphery.reference_ripple), from the network's current
         into it (1 / (Zs + Zp)) and the gain network's (Vn / Rg, with Vn = beta Vo)."""
-        beta, y_in = self._network(c, w)
+        beta, y_in = net if net is not None else self._network(c, w)
         y_net = y_in + beta.scale(1.0 / c.value("rg"))
         return periphery.to_load(c, cond, w) + periphery.reference_ripple(c, cond, w, y_net)
 
