@@ -11,6 +11,7 @@ remove; the amplitude drifts with the forward voltage.
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -83,8 +84,11 @@ class DiodeLimiter:
         return self.amplitude_spread_of(c.part("limiter"), temp_k)
 
     @staticmethod
+    @functools.lru_cache(maxsize=256)
     def amplitude_spread_of(lim, temp_k: float) -> float:
-        """The same for a limiter part, relative (3 sigma)."""
+        """The same for a limiter part, relative (3 sigma). (Kept per part and
+        temperature: the search reads it for every amplitude side and candidate, and each
+        is a junction solve.)"""
         if lim.vf_spread_v <= 0:
             return 0.0
         return lim.vf_spread_v / max(forward_voltage(lim, KNEE_A, temp_k), 1e-3)
