@@ -349,21 +349,17 @@ DF_T = np.arange(213.15, 443.16, 10.0)   # K: the temperatures the describing-fu
 
 
 @functools.lru_cache(maxsize=64)
-@functools.lru_cache(maxsize=64)
 def df_table(lim, rg: float = REF_RG) -> np.ndarray:
     """ln of the describing-function amplitude (df_amplitude) of the pair behind
     rd = R_GRID x rg asked for g = X_GRID / rg (rg: a level of LEVELS, ohm), at every
     temperature of DF_T: array (DF_T, R_GRID, X_GRID); NaN where the branch cannot
-    supply g. Shipped for the demo parts and cached by content like the surface (and
-    read once per process: every amplitude side of the part reads it; read-only)."""
+    supply g. Shipped for the demo parts and cached by content like the surface."""
     key = _df_key(lim, rg)
     arrays = load_arrays("limiter-df", key)
     if arrays is None or "ln_a" not in arrays:
         arrays = {"ln_a": compute_df(lim, rg)}
         store_arrays("limiter-df", key, arrays)
-    table = arrays["ln_a"]
-    table.flags.writeable = False
-    return table
+    return arrays["ln_a"]
 
 
 def compute_df(lim, rg: float = REF_RG) -> np.ndarray:
