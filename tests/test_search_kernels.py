@@ -19,7 +19,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from partpick.search.candidates import YIELD_STEP, Candidate
-from partpick.search.kernels import best_rows, first_of_groups
+from partpick.search.kernels import best_rows, cheapest_of_groups, first_of_groups
 from partpick.search.pool import Pool
 
 
@@ -362,3 +362,48 @@ def _divider_table():
     from tests.conftest import CATALOGS
 
     return StageTable("buffered-attenuator", load_catalog(CATALOGS).find("resistors", "tk-5"), 0j)
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 400), st.integers(1, 12))
+def test_the_cheapest_of_groups_by_a_bound_is_the_first_of_groups_by_the_whole_value(seed, n, groups):
+    """kernels.cheapest_of_groups (the whole cost computed only for rows whose bound, the
+    arm set's cost, is within the slack of their group's cheapest) gives the rows
+    first_of_groups gives with the whole cost of every row (ties common: values in cents),
+    and computes the whole cost of fewer rows where the bounds spread."""
+    rng = np.random.default_rng(seed)
+    g = rng.integers(0, groups, n)
+    bound = rng.integers(0, 60, n) / 100.0
+    slack = 0.15
+    extra = rng.integers(0, 16, n) / 100.0                    # what the other slots add, at most the slack
+    whole = bound + extra + (g % 3) * 0.5                     # plus a constant of the group
+    tie = rng.integers(0, 3, n).astype(float)
+    asked = []
+
+    def exact(at):
+        asked.append(at.size)
+        return whole[at]
+
+    got = cheapest_of_groups(g, bound, slack, exact, tie)
+    assert sorted(got.tolist()) == sorted(first_of_groups(g, (whole, tie)).tolist())
+    assert asked[0] <= n
+
+
+@given(st.integers(0, 2**31 - 1), st.integers(1, 200))
+def test_a_stage_pair_sharing_a_value_is_the_nearest_such_pair_within_resolution(seed, n):
+    """StageTable.sharing (a ranking by cost looks for a stage pair that reuses Rg's value,
+    one BOM line less): against a scan, the pair with Ra or Rb equal to the value whose
+    gain is nearest the wanted one, where it lies within STAGE_RES; -1 elsewhere."""
+    from partpick.search.tables import STAGE_RES
+
+    table = _divider_table()
+    rng = np.random.default_rng(seed)
+    value = float(rng.choice(np.unique(table.rb)))
+    want = rng.uniform(table.ln_g[0] - 0.1, table.ln_g[-1] + 0.1, n)
+    got = table.sharing(want, value)
+    holds = np.flatnonzero((table.ra == value) | (table.rb == value))
+    for w, j in zip(want, got):
+        d = np.abs(table.ln_g[holds] - w)
+        if d.min() <= STAGE_RES:
+            assert j in holds and abs(table.ln_g[j] - w) == d.min()
+        else:
+            assert j == -1

@@ -32,8 +32,9 @@ from partpick.circuits.options import nearest, values_of
 from partpick.derating import package_limit
 from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
+from partpick.search.drive import KIND, net_admittance, osc_admittance
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
-from partpick.search.kernels import best_rows, first_of_groups
+from partpick.search.kernels import best_rows, cheapest_of_groups, first_of_groups
 from partpick.search.prices import PriceBook
 from partpick.search.problem import Problem, m_sigma, r_limits
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
@@ -75,6 +76,7 @@ class Searcher:
         self._ch: dict = {}
         self._stages: dict = {}
         self._sk = None
+        self._dear = None
         # one table per value list (families of one series share it), and the load read only
         # by the kind whose gain it changes
         jobs = {(k, f.id): (("stage", k, values_of(f, problem.shelf), y_load if k == "attenuator" else None),
@@ -228,9 +230,10 @@ class Searcher:
         (ln; None without a stage of this kind and family), cached once per distinct rows and
         stage table (families of one series share both; this searcher holds them)."""
         amp = self._amp_side(lim, gf, r_gnd)
-        key = (id(amp), kind, id(self.stage_tables.get((kind, sf.id))))
+        share = amp["r_gnd"] if self.cheapest and sf.id == gf.id else None
+        key = (id(amp), kind, id(self.stage_tables.get((kind, sf.id))), share)
         if key not in self._stages:
-            res = self._stage(kind, sf, amp)
+            res = self._stage(kind, sf, amp, share)
             if res is not None:
                 # the amplitude's margin to its tolerance at the worst temperature (ln), the
                 # same for every op-amp (only its spread, which divides it, is the op-amp's)
@@ -239,6 +242,15 @@ class Searcher:
                     res = (*res, np.min(math.log1p(self.problem.tol_a) - np.abs(dev), axis=0))
             self._stages[key] = res
         return self._stages[key]
+
+    def _dearest(self) -> float:
+        """The dearest unit and line price together of any allowed resistor family's
+        value (USD): what one resistor slot outside the arms adds to a row's cost at most."""
+        if self._dear is None:
+            p = self.problem
+            self._dear = max((float(np.max(self.price.units(f.id, v) + self.price.lines(f.id, v)))
+                              for f in p.r_families if (v := np.array(values_of(f, p.shelf))).size), default=0.0)
+        return self._dear
 
     def _typical_sk(self) -> float:
         """The spread of the arms' required gain (ln) of a typical family pair: the median
@@ -278,6 +290,8 @@ class Searcher:
                 z_amp = np.stack([np.broadcast_to(res[3], m.shape) for *_, res in stages]) / s_a
                 score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
             chosen = best_rows(amp["bin"], score)       # (every stage kind and family at once)
+            if self.cheapest:
+                chosen |= best_rows(amp["bin"], np.where(amp["ird"] == 0, score, -np.inf), keep=1)
             for (kind, sf, res), pick in zip(stages, chosen):
                 rows = np.flatnonzero(pick)
                 if rows.size:
@@ -373,12 +387,12 @@ class Searcher:
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
         buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
-        y_net = self._net_admittance(vals[u], r_fb[u], r_gnd)[back]
-        i_osc = vo.max(axis=0) * self._osc_admittance(y_net, kinds, ra, rb)
+        y_net = net_admittance(self.f_t, vals[u], r_fb[u], r_gnd)[back]
+        i_osc = vo.max(axis=0) * osc_admittance(y_net, kinds, ra, rb, self.y_load)
         # what the buffer channel drives: the load and a gain stage's own feedback divider,
         # as verification counts it (periphery.stage_load_admittance)
         with np.errstate(invalid="ignore", divide="ignore"):
-            y_stage = self.y_load + np.where(kinds == _KIND["gain"], 1 / (ra + rb), 0.0)
+            y_stage = self.y_load + np.where(kinds == KIND["gain"], 1 / (ra + rb), 0.0)
         i_load = np.where(buffered, load.max(axis=0) * np.abs(y_stage), 0.0)
         ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain[u2], sig_k[u2], op["loss"][u2], op["gbw_spread"][u2])[back2]
@@ -440,8 +454,13 @@ class Searcher:
             i = idx[first_of_groups(config, keys)]      # the best row of each configuration
             # ranked by cost first: beside it, its cheapest row estimated to pass (the best
             # may be a yield tier up at dearer arms, and a cheaper row of the tier below pass)
+            # (by its whole cost: the arm sets' cost bounds it, within what the other slots add)
             if self.cheapest and (promising := y[idx] >= p.y_min).any():
-                i = np.union1d(i, idx[promising][first_of_groups(config[promising], keys[1:])])
+                rows = idx[promising]
+                slack = (len(slots(rows[:1])[0]) - vals.shape[1]) * self._dearest()
+                i = np.union1d(i, rows[cheapest_of_groups(config[promising], keys[1][promising], slack,
+                                                          lambda at: self.price.row_costs(*slots(rows[at]), lim.id),
+                                                          keys[2][promising])])
         else:
             # building from the shelf alone: a row must find every part in the quantity
             # its boards need (a value in three slots needs three a board): the rows in
@@ -543,7 +562,7 @@ class Searcher:
             return None
         return float(table.ra[j]), float(table.rb[j])
 
-    def _stage(self, kind, sf, amp):
+    def _stage(self, kind, sf, amp, share=None):
         """The stage ratio (and resistors) per amplitude-side choice: 1 without a pair,
         else the family pair (_StageTable.pick) for the gain that centres the load
         amplitude over temperature (the geometric mean of the ends; the wanted gains in
@@ -558,33 +577,10 @@ class Searcher:
                 want = np.log(self.problem.amp_v / np.sqrt(amp["vo"][0] * amp["vo"][2]))
             self._stages[id(amp), "want"] = (want, np.argsort(np.where(np.isfinite(want), want, 0.0), kind="stable"))
         pick = table.pick(*self._stages[id(amp), "want"])
+        if share is not None:
+            alt = table.sharing(self._stages[id(amp), "want"][0], share)
+            pick = np.where(alt >= 0, alt, pick)
         return table.gains[pick], table.ra[pick], table.rb[pick]
-
-    def _net_admittance(self, vals, r_fb, r_gnd) -> np.ndarray:
-        """What the oscillator op-amp drives of the frequency network and the gain network
-        at the target frequency (complex, S) for rows of arm values and Rf (ohm)."""
-        w = 2 * math.pi * self.f_t
-        z_arm = (vals[:, 0] + 1 / (1j * w * vals[:, 1])) + 1 / (1 / vals[:, 2] + 1j * w * vals[:, 3])
-        return 1 / z_arm + 1 / (r_fb + r_gnd)
-
-    def _osc_admittance(self, y, kinds, ra, rb) -> np.ndarray:
-        """Magnitude of what the oscillator op-amp drives at the target frequency, S: the
-        networks (y, :meth:`_net_admittance`) and, without a buffer, the stage and the
-        load (kinds: index of each row's stage kind in periphery.STAGE_KINDS)."""
-        extra = np.zeros(y.shape, complex)      # (a buffer's stage and load: on the buffer)
-        kinds, ra, rb = (np.broadcast_to(x, y.shape) for x in (kinds, ra, rb))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            # complex: a capacitive load behind the attenuator's shunt leg can carry most
-            # of the current (100 nF at 50 kHz is 32 ohm)
-            extra[kinds == _KIND["none"]] = self.y_load
-            at = kinds == _KIND["attenuator"]
-            extra[at] = 1 / (ra[at] + 1 / (1 / rb[at] + self.y_load))
-            at = kinds == _KIND["buffered-attenuator"]
-            extra[at] = 1 / (ra[at] + rb[at]) + 0j
-        return np.abs(y + extra)
-
-
-_KIND = {k: i for i, k in enumerate(periphery.STAGE_KINDS)}   # a stage kind's index in STAGE_KINDS
 
 
 def _op_index(groups, g_row: np.ndarray) -> np.ndarray:

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["first_of_groups", "best_rows"]
+__all__ = ["first_of_groups", "best_rows", "cheapest_of_groups"]
 
 
 def first_of_groups(groups: np.ndarray, keys: tuple[np.ndarray, ...]) -> np.ndarray:
@@ -51,3 +51,18 @@ def best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
         lines[line, col] = True
         rows[line, col] = -np.inf
     return chosen
+
+
+def cheapest_of_groups(groups: np.ndarray, bound: np.ndarray, slack: float, exact, tie: np.ndarray) -> np.ndarray:
+    """The rows first_of_groups(groups, (exact(every row), tie)) gives, where exact
+    (a function of row positions) is dear and, for every row, bound <= exact - c <=
+    bound + slack with c a constant of the row's group: a row whose bound exceeds its
+    group's smallest by more than slack has an exact value over that row's, so it cannot
+    be the smallest, and exact is computed only for the others (in order: the first of
+    equals is the same)."""
+    if groups.size == 0:
+        return np.zeros(0, np.intp)
+    lo = np.full(int(groups.max()) + 1, np.inf)
+    np.minimum.at(lo, groups, bound)
+    near = np.flatnonzero(bound <= lo[groups] + slack + 1e-9)    # (1e-9: the sums' rounding)
+    return near[first_of_groups(groups[near], (exact(near), tie[near]))]

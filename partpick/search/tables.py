@@ -134,6 +134,22 @@ class StageTable:
         return out
 
 
+    def sharing(self, want: np.ndarray, value: float) -> np.ndarray:
+        """Index of the pair with Ra or Rb equal to value (ohm) whose gain is nearest each
+        wanted ln gain, where it lies within STAGE_RES of it (equal for the amplitude);
+        -1 elsewhere."""
+        sel = np.flatnonzero((self.ra == value) | (self.rb == value))
+        out = np.full(np.shape(want), -1)
+        if sel.size == 0:
+            return out
+        g = self.ln_g[sel]
+        w = np.where(np.isfinite(want), want, np.inf)
+        j = np.searchsorted(g, w)
+        lo, hi = np.clip(j - 1, 0, g.size - 1), np.clip(j, 0, g.size - 1)
+        near = np.where(np.abs(g[lo] - w) <= np.abs(g[hi] - w), lo, hi)
+        return np.where(np.abs(g[near] - w) <= STAGE_RES, sel[near], -1)
+
+
 class ArmIndex:
     """The arm sets of one family pair, grouped by K bin and sorted by frequency within
     each bin, with the cheapest set in any frequency range of a bin (RangeMin)."""
