@@ -133,7 +133,6 @@ class StageTable:
         out[order] = got
         return out
 
-
     def sharing(self, want: np.ndarray, value: float) -> np.ndarray:
         """Index of the pair with Ra or Rb equal to value (ohm) whose gain is nearest each
         wanted ln gain, where it lies within STAGE_RES of it (equal for the amplitude);
