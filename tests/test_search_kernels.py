@@ -6,7 +6,10 @@
   once) against a plain loop over each group and bin;
 - ``Pool.peek`` (the verification's look-ahead) against the pool without it: the
   candidates next() gives and the figures rest() reports are the same with or without
-  looks in between.
+  looks in between;
+- the yield bound that spares the search's full scoring of rows no candidate can come
+  from, against the scoring of every row: the pool's candidates are the same, in the
+  same order.
 """
 
 from __future__ import annotations
@@ -15,6 +18,7 @@ import functools
 from dataclasses import dataclass, replace
 
 import numpy as np
+import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
@@ -207,9 +211,9 @@ def test_a_batch_names_each_rows_kind_as_its_candidate_does(demo_catalog):
     spec = Spec.from_yaml(SPECS / "audio-tone-1k.yaml")
     problem = build_problem(spec, demo_catalog)
     searcher, _ = _searcher(spec, demo_catalog, None, problem)
-    lim, gf = problem.limiters[0], problem.r_families[0]
-    b = searcher.configurations(lim, gf, searcher.levels(gf)[0])
-    assert len(b) > 10
+    # (the first limiter, gain family and level with rows the pool may verify)
+    b = next(b for lim in problem.limiters for gf in problem.r_families for r in searcher.levels(gf)
+             if (b := searcher.configurations(lim, gf, r)) is not None and len(b) > 10)
     assert b.kinds() == [b.candidate(i).kind() for i in range(len(b))]
     assert len(set(b.kinds())) > 1
 
@@ -407,3 +411,69 @@ def test_a_stage_pair_sharing_a_value_is_the_nearest_such_pair_within_resolution
             assert j in holds and abs(table.ln_g[j] - w) == d.min()
         else:
             assert j == -1
+
+
+@pytest.mark.parametrize("name", ["seismic-cal-20hz.yaml", "audio-tone-1k.yaml", "resolver-exciter.yaml"])
+def test_the_rows_the_yield_bound_leaves_unscored_change_no_candidate(demo_catalog, monkeypatch, name):
+    # Searcher._score bounds each row's estimated yield (startup, frequency and amplitude
+    # shares, each at its most) before the limiter's figures and the drive are worked out,
+    # and _rows drops what is under Searcher.least_y: the pool built from those batches
+    # must hold the same candidates, in the same order, as the pool built from every row
+    # scored in full (least_y below any yield)
+    from partpick.pipeline import _searcher
+    from partpick.search.enumerate import Searcher
+    from partpick.search.pool import hopeless
+    from partpick.search.problem import build_problem
+    from partpick.spec import Spec
+    from tests.conftest import SPECS
+
+    spec = Spec.from_yaml(SPECS / name)
+    problem = build_problem(spec, demo_catalog)
+    searcher, _ = _searcher(spec, demo_catalog, None, problem)
+    combos = [(lim, gf, r) for lim in problem.limiters for gf in problem.r_families for r in searcher.levels(gf)]
+    scored = []   # rows scored in full, per call
+    rows = Searcher._rows
+    monkeypatch.setattr(Searcher, "_rows", lambda self, *a: scored.append(a[4].size) or rows(self, *a))
+    bounded = [searcher.configurations(*c) for c in combos]
+    n_bounded = sum(scored)
+    scored.clear()
+    monkeypatch.setattr(searcher, "least_y", -1.0)
+    full = [searcher.configurations(*c) for c in combos]
+    assert n_bounded < 0.7 * sum(scored)   # (the bound leaves rows out: else this proves nothing)
+    floor = hopeless(spec.yield_min_frac)
+    pools = [Pool([b for b in batches if b is not None], hopeless=floor) for batches in (bounded, full)]
+    assert pools[0].size == pools[1].size > 0
+    for name_ in ("keys", "figures"):
+        for x, z in zip(getattr(pools[0], name_), getattr(pools[1], name_)):
+            assert np.array_equal(x, z)
+    made = [[pool.batches[pool.src[i]].candidate(pool.row[i]) for i in range(pool.size)] for pool in pools]
+    assert [(c.signature, c.values, c.yield_est, c.cost) for c in made[0]] == \
+        [(c.signature, c.values, c.yield_est, c.cost) for c in made[1]]
+
+
+def test_the_amplitude_slope_alone_is_the_full_evaluations(demo_catalog):
+    # Planner.amplitude_slope gives evaluate's dln_vo without the rest, for the bound above:
+    # the same numbers, NaN where evaluate has NaN
+    from partpick.pipeline import _searcher
+    from partpick.search.problem import build_problem
+    from partpick.spec import Spec
+    from tests.conftest import SPECS
+
+    spec = Spec.from_yaml(SPECS / "audio-tone-1k.yaml")
+    problem = build_problem(spec, demo_catalog)
+    searcher, _ = _searcher(spec, demo_catalog, None, problem)
+    topo = problem.topology
+    checked = 0
+    for lim in problem.limiters:
+        gf = problem.r_families[0]
+        amp = searcher._amp_side(lim, gf, searcher.levels(gf)[0])
+        rng = np.random.default_rng(7)
+        k = np.exp(np.log(3.0) + rng.uniform(-0.02, 0.02, amp["m"].size))   # near the rows' own K
+        g, dg = topo.port_conductance(amp["r_gnd"], amp["r_fb"], k), topo.port_conductance_slope(amp["r_gnd"],
+                                                                                                 amp["r_fb"], k)
+        m = np.log(amp["gain"] / k)
+        full = amp["planner"].evaluate(g, dg, topo.osc_per_port_k(k), m, amp["ird"])["dln_vo"]
+        alone = amp["planner"].amplitude_slope(g, dg, amp["ird"])
+        assert np.array_equal(full, alone, equal_nan=True)
+        checked += int(np.isfinite(full).sum())
+    assert checked > 100

@@ -56,6 +56,7 @@ LEVELS = (1e3, 3.3e3, 10e3)   # ohm: the impedance levels (Rg) tabulated, a half
 # n Vt ln(1.05), about 2.5 mV of some 500 mV, across it
 AT_LEVEL = 0.05
 REF_T = 298.15         # K
+_DM = 0.002          # nepers: the step of the gain excess the slopes (dln_vo, dthd) are taken over
 F_SLICES = (200.0, 1e3, 3e3, 10e3, 30e3, 100e3, 300e3)   # Hz: the frequencies the surface is solved at
 _R0 = 2e-3             # r axis offset, so r = 0 sits on the log axis
 # V, the describing function's amplitude grid: 40 a decade (ln a is interpolated
@@ -454,6 +455,15 @@ class Planner:
             out_pull = sum(w * _bilinear(t[2], at) for w, *t in self._tables)
         return out_vo, out_thd, out_pull
 
+    def amplitude_slope(self, g_s: np.ndarray, dg_dm: np.ndarray, choice) -> np.ndarray:
+        """evaluate's dln_vo alone (d ln vo / d m, one choice index per row), the same
+        numbers: for a bound before the rest is worked out."""
+        ci = np.broadcast_to(np.asarray(choice), np.shape(g_s))
+        g = np.asarray(g_s, float)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            vo = self._lookup(ci, g, True, False, False)[0]
+            return np.log(self._lookup(ci, g + dg_dm * _DM, True, False, False)[0] / vo) / _DM
+
     def thd(self, g_s: np.ndarray, thd_scale=1.0) -> np.ndarray:
         """THD (fraction) of every Rd choice, array (n rows, n choices), for rows of
         needed conductance g_s (S) and thd_scale (see evaluate): one lookup, for a
@@ -499,7 +509,7 @@ class Planner:
             vo, thd, pull_g = self._lookup(ci, g, True, True, True, at)
             pull = self._lookup(ci, g_ref, False, False, True)[2]
             pull = np.where(np.isfinite(pull), pull, pull_g)   # the reference's excess off the table
-            dm = 0.002
+            dm = _DM
             vo2, thd2, _ = self._lookup(ci, g + dg_dm * dm, True, True, False)
             thd, thd2 = thd * t_scale, thd2 * t_scale
             out = {"thd": thd, "pull": pull, "dln_vo": np.log(vo2 / vo) / dm, "dthd": (thd2 - thd) / dm}

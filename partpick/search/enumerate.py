@@ -16,7 +16,8 @@ K, so it is scored once per (op-amp, limiter, gain family, level) on a fixed gri
 (0.4 % wide); each bin's best choices are then matched with the cheapest arm set of that
 bin whose frequency, with the op-amp's and the limiter's pull, lands within the frequency
 resolution of the target (a range-minimum query over the arm sets sorted by frequency),
-and evaluated again exactly at that arm set's own K. Scores are estimates
+and evaluated again exactly at that arm set's own K, where a bound of its estimated yield
+says it may be verified (Searcher._score). Scores are estimates
 (:mod:`partpick.search.estimate`; the limiter's surface); verification decides.
 """
 
@@ -30,13 +31,15 @@ from partpick.circuits import periphery
 from partpick.circuits.limiter_surface import Planner, prepare
 from partpick.circuits.options import nearest, values_of
 from partpick.derating import package_limit
-from partpick.physics.opamp import class_b_loss, linear_peak_v, power_factor
+from partpick.physics.opamp import linear_peak_v
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
-from partpick.search.drive import KIND, net_admittance, osc_admittance
+from partpick.search.drive import BUFFERED, within_drive
 from partpick.search.estimate import below_share, frequency_share, phi, window_share
 from partpick.search.kernels import best_rows, cheapest_of_groups, first_of_groups
+from partpick.search.pool import hopeless
 from partpick.search.prices import PriceBook
 from partpick.search.problem import Problem, m_sigma, r_limits
+from partpick.search.simulate import simulated
 from partpick.search.tables import K_BIN, STAGE_RATIO, ArmIndex, StageTable, memo, memo_all
 
 __all__ = ["Candidate", "Batch", "PriceBook", "Searcher", "STAGE_RATIO", "SIMPSON"]
@@ -64,6 +67,9 @@ class Searcher:
         self.price = price
         self.kinds = kinds
         self.cheapest = cheapest   # (cost first: each configuration's cheapest row estimated to pass, too)
+        # the least estimated yield a row needs to be any configuration's candidate: a tier
+        # (two for rounding) under the least the pool verifies (pool.hopeless)
+        self.least_y = hopeless(problem.y_min) - 2 * YIELD_STEP
         spec = problem.spec
         self.f_t = spec.frequency.target_hz
         # the load's admittance at the target: its magnitude sets the current, its phase the
@@ -76,6 +82,7 @@ class Searcher:
         self._ch: dict = {}
         self._stages: dict = {}
         self._sk = None
+        self._fc = None
         self._dear = None
         # one table per value list (families of one series share it), and the load read only
         # by the kind whose gain it changes
@@ -357,8 +364,46 @@ class Searcher:
 
     def _score(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, arm, vals, ln_k, ln_f0, sig_k,
                sig_f, drift, arm_cost, op) -> "Batch | None":
-        """Estimated figures of every matched row, and the best row of each
-        configuration (group x arm family pair) with its exact cost."""
+        """Estimated figures of the matched rows, and the best row of each configuration
+        (group x arm family pair) with its exact cost, of the rows whose estimated yield
+        may reach ``least_y``: bounded first by the product of the startup share, the
+        family pair's frequency share and the amplitude share with the row's own spreads,
+        both centred (a normal spread puts the most within a window centred on it), and
+        the THD share at 1."""
+        p = self.problem
+        topo, r_gnd = p.topology, amp["r_gnd"]
+        r_fb = amp["r_fb"][arow]
+        k = np.exp(ln_k + op["loss"])
+        gain = topo.gain(topo.gain_values(r_gnd, r_fb))
+        m = np.log(gain / k)
+        # (the slope once per distinct amplitude row, arm set and op-amp loss, as below)
+        loss_i = np.unique(np.array([g[0].loss for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
+        key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
+        _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
+        s_m = m_sigma(p, gf, gain[u], sig_k[u], op["loss"][u], op["gbw_spread"][u])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(
+                r_gnd, r_fb[u], k[u]), amp["ird"][arow[u]])
+            s_a = np.sqrt((slope * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + p.amp_sigma ** 2)
+            bound = (phi(m[u] / s_m) * self._centred()[pair_i[u]]
+                     * window_share(0.0, s_a, math.log1p(p.tol_a)))
+        # (phi's own error, 1.5e-7 a call, with room)
+        keep = np.flatnonzero((bound >= self.least_y - 1e-5)[back.reshape(-1)])
+        if keep.size == 0:
+            return None
+        return self._rows(lim, gf, amp, groups, g_row[keep], kinds[keep], arow[keep], ratio[keep], ra[keep],
+                          rb[keep], pair_i[keep], arm[keep], vals[keep], ln_k[keep], ln_f0[keep], sig_k[keep],
+                          sig_f[keep], drift[keep], arm_cost[keep], {name: x[keep] for name, x in op.items()})
+
+    def _centred(self) -> np.ndarray:
+        """Each arm family pair's frequency share centred on the target (its most)."""
+        if self._fc is None:
+            self._fc = frequency_share(np.zeros(len(self.pairs)), np.array([pr[2].sigma_lnf for pr in self.pairs]),
+                                       np.array([pr[4] for pr in self.pairs]), self.problem.tol_f)
+        return self._fc
+
+    def _rows(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, arm, vals, ln_k, ln_f0, sig_k,
+              sig_f, drift, arm_cost, op) -> "Batch | None":
         p = self.problem
         topo = p.topology
         r_gnd, planner, vf_rel = amp["r_gnd"], amp["planner"], amp["vf_rel"]
@@ -386,29 +431,11 @@ class Searcher:
         vo = np.stack([ev[f"vo{i}"] for i in range(3)])
         err = ln_f0 + op["pull"] + ev["pull"] - p.ln_f
         load = vo * ratio
-        buffered = np.isin(kinds, [periphery.STAGE_KINDS.index(x) for x in periphery.BUFFERED])
-        y_net = net_admittance(self.f_t, vals[u], r_fb[u], r_gnd)[back]
-        i_osc = vo.max(axis=0) * osc_admittance(y_net, kinds, ra, rb, self.y_load)
-        # what the buffer channel drives: the load and a gain stage's own feedback divider,
-        # as verification counts it (periphery.stage_load_admittance)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            y_stage = self.y_load + np.where(kinds == KIND["gain"], 1 / (ra + rb), 0.0)
-        i_load = np.where(buffered, load.max(axis=0) * np.abs(y_stage), 0.0)
-        ilim = p.current_share * op["current"]
         s_m = m_sigma(p, gf, gain[u2], sig_k[u2], op["loss"][u2], op["gbw_spread"][u2])[back2]
+        rr = vals[:, [0, 2]]
         with np.errstate(invalid="ignore", divide="ignore"):
-            # the hottest package, as verification counts it: every channel's quiescent
-            # power, and the output stages of the channels in use (one per package when a
-            # buffer needs a second channel the package lacks)
-            span = p.spec.supply.span_max_v
-            osc_w = class_b_loss(span / 2, vo.max(axis=0), i_osc)
-            buf_w = np.where(buffered, class_b_loss(span / 2, load.max(axis=0), i_load, power_factor(y_stage)), 0.0)
-            watts = span * op["iq"] * op["channels"] + np.where(op["channels"] >= 1 + buffered, osc_w + buf_w,
-                                                                 np.maximum(osc_w, buf_w))
-            rr = vals[:, [0, 2]]
-            ok = ((m > 0) & (ev["thd"] <= p.thd_aim) & (i_osc <= ilim) & (i_load <= ilim)
-                  & (rr.max(axis=1) <= op["r_max"]) & (rr.min(axis=1) >= op["r_min"])
-                  & (vo.max(axis=0) <= op["swing"]) & (watts <= op["limit_w"]))
+            ok = ((m > 0) & (ev["thd"] <= p.thd_aim) & (rr.max(axis=1) <= op["r_max"])
+                  & (rr.min(axis=1) >= op["r_min"]) & (vo.max(axis=0) <= op["swing"]))
             # the yield estimate of the rows within those limits (the others are not kept)
             s = np.flatnonzero(ok)
             s_a = np.sqrt((ev["dln_vo"][s] * s_m[s]) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
@@ -418,6 +445,15 @@ class Searcher:
             y[s] = core[back2[s]] * sum(w * window_share(np.log(load[i, s] / p.amp_v), s_a, math.log1p(p.tol_a))
                                         for i, w in enumerate(SIMPSON))
             ok &= np.isfinite(y) & (y > 0)
+        # a row under least_y is never a configuration's candidate (a row that is has a tier
+        # above it, or the pool leaves its configuration out): what it drives is not worked out
+        s = np.flatnonzero(ok & (y >= self.least_y))
+        ok[:] = False
+        if s.size == 0:
+            return None
+        ok[s] = within_drive(self.f_t, vals[s], r_fb[s], r_gnd, kinds[s], ra[s], rb[s], vo[:, s], load[:, s],
+                             self.y_load, {name: x[s] for name, x in op.items()}, p.current_share,
+                             p.spec.supply.span_max_v)
         idx = np.flatnonzero(ok)
         if idx.size == 0:
             return None
@@ -448,7 +484,7 @@ class Searcher:
             columns.append((self.price.code(gf.id), planner.choices[ird[rows]]))
             sf_code = g_sf[gr]
             columns += [(sf_code, np.where(ratio_stage, ra[rows], 0.0)), (sf_code, np.where(ratio_stage, rb[rows], 0.0))]
-            return columns, g_op[gr], -(-(topo.channels + buffered[rows].astype(int)) // g_chans[gr])
+            return columns, g_op[gr], -(-(topo.channels + np.isin(kinds[rows], BUFFERED).astype(int)) // g_chans[gr])
 
         if p.shelf is None:
             i = idx[first_of_groups(config, keys)]      # the best row of each configuration
@@ -477,41 +513,8 @@ class Searcher:
                      cost)
 
     def simulate(self, c: Candidate, samples: int = 4000) -> Candidate:
-        """The candidate with its yield estimated by the Monte Carlo model of
-        verification (:func:`partpick.tolerance.monte_carlo`) run on the search's own
-        figures: the same distributions and checks, only the physics estimated."""
-        from dataclasses import replace
-
-        from partpick.tolerance import Model, monte_carlo, variation
-
-        if c.simulated:
-            return c      # placed with its own control's figures (search/designed.py)
-
-        p = self.problem
-        topo = p.topology
-        op = next(o for o in p.ops if o.id == c.parts["opamp"])
-        values, tol, normal, tempco, band = variation(c.values, c.families, p.catalog)
-        m_ideal = float(topo.gain(values) / topo.required_gain(values)) - 1
-        m_lin = math.expm1(math.log1p(m_ideal) - op.loss)
-        temps = p.temps_k
-        dln = tuple(math.log(max(v, 1e-12) / max(c.load_v[1], 1e-12)) for v in c.load_v)
-        ln_load = math.log(max(c.load_v[1] * p.load_gain, 1e-12))   # (at the load: the search's is before coupling)
-        second = None
-        if topo.outputs:
-            # a second output: its amplitude and match from the topology's ideal ratio and what the
-            # op-amp does to the outputs on the topology's reference (their ratio, the phase error)
-            factor, phase = topo.reference_outputs(op.opamp, self.f_t)
-            ratio = float(topo.output_ratio(values)) * factor
-            second = (ratio, ratio, phase, c.thd, c.s_thd, ratio / factor)
-        model = Model(topo, values, tol, normal, tempco, band, m_lin, m_ideal, op.loss, c.pull, op.pull, 0.0, ln_load,
-                      c.s_amp, c.thd, c.s_thd, temps, dln, (0.0, 0.0, 0.0), c.osc_v / max(c.load_v[1] * p.load_gain, 1e-12),
-                      (op.opamp.headroom_high_v, op.opamp.headroom_low_v), op.opamp.gbw_spread_frac,
-                      p.control.amplitude_spread_of(self._limiter(c), temps[1]), second=second)
-        y = monte_carlo(model, p.spec, samples=samples, seed=1, stats=False).yield_frac
-        return replace(c, yield_est=y, simulated=True)
-
-    def _limiter(self, c: Candidate):
-        return next(lim for lim in self.problem.limiters if lim.id == c.parts["limiter"])
+        """The candidate placed by the Monte Carlo model of its yield (:func:`simulated`)."""
+        return simulated(self.problem, self.f_t, c, samples)
 
     # -- refinement with what exact physics measured --------------------------------------------
     def _pair(self, rfa_id: str, cfa_id: str):
