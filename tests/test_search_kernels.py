@@ -415,7 +415,7 @@ def test_a_stage_pair_sharing_a_value_is_the_nearest_such_pair_within_resolution
 
 @pytest.mark.parametrize("name", ["seismic-cal-20hz.yaml", "audio-tone-1k.yaml", "resolver-exciter.yaml"])
 def test_the_rows_the_yield_bound_leaves_unscored_change_no_candidate(demo_catalog, monkeypatch, name):
-    # Searcher._score bounds each row's estimated yield (startup, frequency and amplitude
+    # Searcher._bounded bounds each row's estimated yield (startup, frequency and amplitude
     # shares, each at its most) before the limiter's figures and the drive are worked out,
     # and _rows drops what is under Searcher.least_y: the pool built from those batches
     # must hold the same candidates, in the same order, as the pool built from every row

@@ -17,7 +17,7 @@ K, so it is scored once per (op-amp, limiter, gain family, level) on a fixed gri
 bin whose frequency, with the op-amp's and the limiter's pull, lands within the frequency
 resolution of the target (a range-minimum query over the arm sets sorted by frequency),
 and evaluated again exactly at that arm set's own K, where a bound of its estimated yield
-says it may be verified (Searcher._score). Scores are estimates
+says it may be verified (Searcher._bounded). Scores are estimates
 (:mod:`partpick.search.estimate`; the limiter's surface); verification decides.
 """
 
@@ -225,6 +225,7 @@ class Searcher:
                "m": m[cell], "ird": ird, "vo": vo[:, ok], "thd": ev["thd"][ok], "pull": ev["pull"][ok],
                "s_amp": ev["dln_vo"][ok], "s_thd": ev["dthd"][ok],
                "vf_rel": ctl.amplitude_spread_of(lim, p.temps_k[1])}
+        amp["vo_lo"], amp["vo_hi"] = amp["vo"].min(axis=0), amp["vo"].max(axis=0)   # (over temperature)
         return amp
 
     def rd_choices(self, lim, gf, r_gnd: float) -> np.ndarray:
@@ -245,8 +246,10 @@ class Searcher:
                 # the amplitude's margin to its tolerance at the worst temperature (ln), the
                 # same for every op-amp (only its spread, which divides it, is the op-amp's)
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    dev = np.log(amp["vo"] * res[0] / self.problem.amp_v)
-                    res = (*res, np.min(math.log1p(self.problem.tol_a) - np.abs(dev), axis=0))
+                    # (at the temperature of the lowest or the highest amplitude: the same numbers
+                    # as the least over the three, the steps each monotone in the amplitude)
+                    dev = [np.abs(np.log(amp[v] * res[0] / self.problem.amp_v)) for v in ("vo_lo", "vo_hi")]
+                    res = (*res, math.log1p(self.problem.tol_a) - np.maximum(*dev))
             self._stages[key] = res
         return self._stages[key]
 
@@ -279,14 +282,14 @@ class Searcher:
         if amp is None or amp["m"].size == 0:
             self._ch[key] = (amp, out)
             return amp, out
-        vo, thd, m = amp["vo"], amp["thd"], amp["m"]
+        thd, m = amp["thd"], amp["m"]
         osc_max = min(op.swing_v, linear_peak_v(op.opamp, self.f_t))
         s_m = m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
         with np.errstate(invalid="ignore", divide="ignore"):
             s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + self.problem.amp_sigma ** 2)
             # margins in standard deviations: the search's proxy for each share of the yield
             z_core = np.minimum(m / s_m, (p.thd_max - thd) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
-            z_core = np.where(vo.max(axis=0) <= osc_max, z_core, -np.inf)
+            z_core = np.where(amp["vo_hi"] <= osc_max, z_core, -np.inf)
         shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
         cheapest = min(p.r_families, key=lambda f: f.price_unit)
         stages = [(kind, sf, res) for kind in self.kinds
@@ -334,6 +337,8 @@ class Searcher:
         q_bin, q_target = kbin[first], target[first]
         found = []
         for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
+            if self._centred()[pi] < self.least_y - 1e-5:
+                continue   # (no row of the pair can reach least_y: _bounded)
             res = max(table.sigma_lnf, 2e-4)
             arm = index.cheapest(q_bin, q_target - res, q_target + res)
             miss = arm < 0
@@ -347,40 +352,44 @@ class Searcher:
         pair_i = np.concatenate([np.full(x[1].size, x[0]) for x in found])
         row = np.concatenate([x[1] for x in found])
         arm = np.concatenate([x[2] for x in found])
-
-        def per_arm(attr):
-            return np.concatenate([getattr(self.pairs[pi][2], attr)[a] for pi, _, a in found])
-
-        vals, ln_k, ln_f0, sig_k = per_arm("values"), per_arm("ln_k"), per_arm("ln_f0"), per_arm("sigma_lnk")
-        arm_cost = np.concatenate([self.pairs[pi][3].cost[self.pairs[pi][3].rank[a]] for pi, _, a in found])
+        ln_k, sig_k = (np.concatenate([getattr(self.pairs[pi][2], attr)[a] for pi, _, a in found])
+                       for attr in ("ln_k", "sigma_lnk"))
+        g_row, a_row = grp[row], arow[row]
+        op = {name: np.array([f(g[0]) for g in groups]) for name, f in self._op_fields.items()}   # (per group)
+        keep = self._bounded(gf, amp, groups, g_row, a_row, pair_i, arm, ln_k, sig_k, op)
+        if keep.size == 0:
+            return None
+        # the rest of each row kept read off its arm set (the rows are in their pairs' order)
+        row, pair_i, arm, g_row, a_row = row[keep], pair_i[keep], arm[keep], g_row[keep], a_row[keep]
+        at = np.searchsorted(pair_i, np.arange(len(self.pairs) + 1))
+        part = [(pr[2], pr[3], arm[at[i]:at[i + 1]]) for i, pr in enumerate(self.pairs) if at[i + 1] > at[i]]
+        vals, ln_f0 = (np.concatenate([getattr(t, attr)[a] for t, _, a in part]) for attr in ("values", "ln_f0"))
+        arm_cost = np.concatenate([x.cost[x.rank[a]] for _, x, a in part])
         sig_f = np.array([pr[2].sigma_lnf for pr in self.pairs])[pair_i]
         drift = np.array([pr[4] for pr in self.pairs])[pair_i]
-        g_row = grp[row]
-        ops = [g[0] for g in groups]
         kinds = np.array([periphery.STAGE_KINDS.index(g[1]) for g in groups])[g_row]
-        return self._score(lim, gf, amp, groups, g_row, kinds, arow[row], ratio[row], ra[row], rb[row],
-                           pair_i, arm, vals, ln_k, ln_f0, sig_k, sig_f, drift, arm_cost,
-                           {name: np.array([f(o) for o in ops])[g_row] for name, f in self._op_fields.items()})
+        return self._rows(lim, gf, amp, groups, g_row, kinds, a_row, ratio[row], ra[row], rb[row], pair_i, arm, vals,
+                          ln_k[keep], ln_f0, sig_k[keep], sig_f, drift, arm_cost,
+                          {name: x[g_row] for name, x in op.items()})
 
-    def _score(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, arm, vals, ln_k, ln_f0, sig_k,
-               sig_f, drift, arm_cost, op) -> "Batch | None":
-        """Estimated figures of the matched rows, and the best row of each configuration
-        (group x arm family pair) with its exact cost, of the rows whose estimated yield
-        may reach ``least_y``: bounded first by the product of the startup share, the
-        family pair's frequency share and the amplitude share with the row's own spreads,
-        both centred (a normal spread puts the most within a window centred on it), and
-        the THD share at 1."""
+    def _bounded(self, gf, amp, groups, g_row, arow, pair_i, arm, ln_k, sig_k, op) -> np.ndarray:
+        """The matched rows (indices) whose estimated yield may reach ``least_y``: bounded
+        by the product of the startup share, the family pair's frequency share and the
+        amplitude share with the row's own spreads, both centred (a normal spread puts the
+        most within a window centred on it), and the THD share at 1 (op: the op-amp
+        figures per group)."""
         p = self.problem
         topo, r_gnd = p.topology, amp["r_gnd"]
         r_fb = amp["r_fb"][arow]
-        k = np.exp(ln_k + op["loss"])
+        loss = op["loss"][g_row]
+        k = np.exp(ln_k + loss)
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
-        # (the slope once per distinct amplitude row, arm set and op-amp loss, as below)
-        loss_i = np.unique(np.array([g[0].loss for g in groups]), return_inverse=True)[1].reshape(-1)[g_row]
+        # (the slope once per distinct amplitude row, arm set and op-amp loss, as _rows does)
+        loss_i = np.unique(op["loss"], return_inverse=True)[1].reshape(-1)[g_row]
         key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
         _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
-        s_m = m_sigma(p, gf, gain[u], sig_k[u], op["loss"][u], op["gbw_spread"][u])
+        s_m = m_sigma(p, gf, gain[u], sig_k[u], loss[u], op["gbw_spread"][g_row[u]])
         with np.errstate(invalid="ignore", divide="ignore"):
             slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(
                 r_gnd, r_fb[u], k[u]), amp["ird"][arow[u]])
@@ -388,12 +397,7 @@ class Searcher:
             bound = (phi(m[u] / s_m) * self._centred()[pair_i[u]]
                      * window_share(0.0, s_a, math.log1p(p.tol_a)))
         # (phi's own error, 1.5e-7 a call, with room)
-        keep = np.flatnonzero((bound >= self.least_y - 1e-5)[back.reshape(-1)])
-        if keep.size == 0:
-            return None
-        return self._rows(lim, gf, amp, groups, g_row[keep], kinds[keep], arow[keep], ratio[keep], ra[keep],
-                          rb[keep], pair_i[keep], arm[keep], vals[keep], ln_k[keep], ln_f0[keep], sig_k[keep],
-                          sig_f[keep], drift[keep], arm_cost[keep], {name: x[keep] for name, x in op.items()})
+        return np.flatnonzero((bound >= self.least_y - 1e-5)[back.reshape(-1)])
 
     def _centred(self) -> np.ndarray:
         """Each arm family pair's frequency share centred on the target (its most)."""
