@@ -246,8 +246,7 @@ class Searcher:
                 # the amplitude's margin to its tolerance at the worst temperature (ln), the
                 # same for every op-amp (only its spread, which divides it, is the op-amp's)
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    # (at the temperature of the lowest or the highest amplitude: the same numbers
-                    # as the least over the three, the steps each monotone in the amplitude)
+                    # (the least over the temperatures is at an amplitude's extreme: each step is monotone)
                     dev = [np.abs(np.log(amp[v] * res[0] / self.problem.amp_v)) for v in ("vo_lo", "vo_hi")]
                     res = (*res, math.log1p(self.problem.tol_a) - np.maximum(*dev))
             self._stages[key] = res
@@ -378,10 +377,8 @@ class Searcher:
         amplitude share with the row's own spreads, both centred (a normal spread puts the
         most within a window centred on it), and the THD share at 1 (op: the op-amp
         figures per group)."""
-        p = self.problem
+        p, r_fb, loss = self.problem, amp["r_fb"][arow], op["loss"][g_row]
         topo, r_gnd = p.topology, amp["r_gnd"]
-        r_fb = amp["r_fb"][arow]
-        loss = op["loss"][g_row]
         k = np.exp(ln_k + loss)
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
@@ -394,8 +391,7 @@ class Searcher:
             slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(
                 r_gnd, r_fb[u], k[u]), amp["ird"][arow[u]])
             s_a = np.sqrt((slope * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + p.amp_sigma ** 2)
-            bound = (phi(m[u] / s_m) * self._centred()[pair_i[u]]
-                     * window_share(0.0, s_a, math.log1p(p.tol_a)))
+            bound = phi(m[u] / s_m) * self._centred()[pair_i[u]] * window_share(0.0, s_a, math.log1p(p.tol_a))
         # (phi's own error, 1.5e-7 a call, with room)
         return np.flatnonzero((bound >= self.least_y - 1e-5)[back.reshape(-1)])
 
