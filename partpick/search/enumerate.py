@@ -243,18 +243,16 @@ class Searcher:
         if key not in self._stages:
             res = self._stage(kind, sf, amp, share)
             if res is not None:
-                # the amplitude's margin to its tolerance at the worst temperature (ln), the
-                # same for every op-amp (only its spread, which divides it, is the op-amp's)
+                # the amplitude's margin to its tolerance at the worst temperature (ln), the same for every
+                # op-amp (its spread divides it), read at the amplitude's extremes (each step is monotone)
                 with np.errstate(invalid="ignore", divide="ignore"):
-                    # (the least over the temperatures is at an amplitude's extreme: each step is monotone)
                     dev = [np.abs(np.log(amp[v] * res[0] / self.problem.amp_v)) for v in ("vo_lo", "vo_hi")]
                     res = (*res, math.log1p(self.problem.tol_a) - np.maximum(*dev))
             self._stages[key] = res
         return self._stages[key]
 
     def _dearest(self) -> float:
-        """The dearest unit and line price together of any allowed resistor family's
-        value (USD): what one resistor slot outside the arms adds to a row's cost at most."""
+        """The dearest unit and line price of any allowed resistor value (USD): the most a slot adds."""
         if self._dear is None:
             p = self.problem
             self._dear = max((float(np.max(self.price.units(f.id, v) + self.price.lines(f.id, v)))
@@ -262,52 +260,54 @@ class Searcher:
         return self._dear
 
     def _typical_sk(self) -> float:
-        """The spread of the arms' required gain (ln) of a typical family pair: the median
-        over the pairs of each one's smallest."""
+        """The arms' required-gain spread (ln) of a typical family pair (the median of each pair's least)."""
         if self._sk is None:
             self._sk = float(np.median([pr[2].sigma_lnk.min() for pr in self.pairs]))
         return self._sk
 
     def _choices(self, op, lim, gf, r_gnd):
         """The amplitude side's best rows per K bin for each stage kind and stage
-        family, for one op-amp (cached): (kind, stage family, rows, the arms' K bins,
-        stage ratio, Ra, Rb)."""
+        family, for one op-amp (made for every op-amp at once, and cached): (kind, stage
+        family, rows, the arms' K bins, stage ratio, Ra, Rb)."""
         key = (op.id, lim.id, gf.id, r_gnd)
-        if key in self._ch:
-            return self._ch[key]
-        p = self.problem
+        if key not in self._ch:
+            self._choose(lim, gf, r_gnd)
+        return self._ch[key]
+
+    def _choose(self, lim, gf, r_gnd) -> None:
+        p, ops = self.problem, self.problem.ops
         amp = self._amp_side(lim, gf, r_gnd)
-        out = []
-        if amp is None or amp["m"].size == 0:
-            self._ch[key] = (amp, out)
-            return amp, out
-        thd, m = amp["thd"], amp["m"]
-        osc_max = min(op.swing_v, linear_peak_v(op.opamp, self.f_t))
-        s_m = m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + self.problem.amp_sigma ** 2)
-            # margins in standard deviations: the search's proxy for each share of the yield
-            z_core = np.minimum(m / s_m, (p.thd_max - thd) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
-            z_core = np.where(amp["vo_hi"] <= osc_max, z_core, -np.inf)
-        shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
+        out = {op.id: [] for op in ops}
         cheapest = min(p.r_families, key=lambda f: f.price_unit)
-        stages = [(kind, sf, res) for kind in self.kinds
-                  for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values()))
-                  if (res := self._stage_of(lim, gf, r_gnd, kind, sf)) is not None]
+        stages = [] if amp is None or amp["m"].size == 0 else [
+            (kind, sf, res) for kind in self.kinds
+            for sf in ((gf,) if kind not in STAGE_RATIO else tuple({gf.id: gf, cheapest.id: cheapest}.values()))
+            if (res := self._stage_of(lim, gf, r_gnd, kind, sf)) is not None]
         if stages:
+            m = amp["m"]
+            osc_max = np.array([min(op.swing_v, linear_peak_v(op.opamp, self.f_t)) for op in ops])[:, None]
+            s_m = np.stack([m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
+                            for op in ops])
             with np.errstate(invalid="ignore", divide="ignore"):
-                z_amp = np.stack([np.broadcast_to(res[3], m.shape) for *_, res in stages]) / s_a
-                score = np.where(np.isfinite(z_amp), np.minimum(z_core, z_amp), -np.inf)
-            chosen = best_rows(amp["bin"], score)       # (every stage kind and family at once)
+                s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + self.problem.amp_sigma ** 2)
+                # margins in standard deviations: the search's proxy for each share of the yield
+                z_core = np.minimum(m / s_m, (p.thd_max - amp["thd"]) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
+                z_core = np.where(amp["vo_hi"] <= osc_max, z_core, -np.inf)
+                z_amp = np.stack([np.broadcast_to(res[3], m.shape) for *_, res in stages])[None] / s_a[:, None]
+                score = np.where(np.isfinite(z_amp), np.minimum(z_core[:, None], z_amp), -np.inf)
+            # (every op-amp, stage kind and family at once: each a line of its own)
+            chosen = best_rows(amp["bin"], score.reshape(-1, m.size))
             if self.cheapest:
-                chosen |= best_rows(amp["bin"], np.where(amp["ird"] == 0, score, -np.inf), keep=1)
-            for (kind, sf, res), pick in zip(stages, chosen):
-                rows = np.flatnonzero(pick)
-                if rows.size:
-                    ratio, ra, rb = (np.broadcast_to(x, m.shape)[rows] for x in res[:3])
-                    out.append((kind, sf, rows, amp["bin"][rows] - shift, ratio, ra, rb))
-        self._ch[key] = (amp, out)
-        return amp, out
+                chosen |= best_rows(amp["bin"], np.where(amp["ird"] == 0, score.reshape(-1, m.size), -np.inf), keep=1)
+            chosen = chosen.reshape(score.shape)
+            for op, picks in zip(ops, chosen):
+                shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
+                for (kind, sf, res), pick in zip(stages, picks):
+                    rows = np.flatnonzero(pick)
+                    if rows.size:
+                        ratio, ra, rb = (np.broadcast_to(x, m.shape)[rows] for x in res[:3])
+                        out[op.id].append((kind, sf, rows, amp["bin"][rows] - shift, ratio, ra, rb))
+        self._ch.update({(op.id, lim.id, gf.id, r_gnd): (amp, out[op.id]) for op in ops})
 
     def configurations(self, lim, gf, r_gnd: float) -> "Batch | None":
         """The best estimated design of every configuration with this limiter, gain
