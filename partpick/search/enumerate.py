@@ -334,7 +334,7 @@ class Searcher:
         _, first, back = np.unique(op_i * amp["m"].size + arow, return_index=True, return_inverse=True)
         back = back.reshape(-1)
         q_bin, q_target = kbin[first], target[first]
-        found = []
+        found = []   # (pair, the arm set of each distinct pair of op-amp and row)
         for pi, (rfa, cfa, table, index, drift, best_f) in enumerate(self.pairs):
             if self._centred()[pi] < self.least_y - 1e-5:
                 continue   # (no row of the pair can reach least_y: _bounded)
@@ -343,57 +343,58 @@ class Searcher:
             miss = arm < 0
             if miss.any():
                 arm[miss] = index.nearest(q_bin[miss], q_target[miss])
-            arm = arm[back]
-            sel = np.flatnonzero(arm >= 0)
-            found.append((pi, sel, arm[sel]))
-        if not found or not sum(x[1].size for x in found):
+            found.append((pi, arm, np.flatnonzero(arm >= 0)))
+        if not sum(x[2].size for x in found):
             return None
-        pair_i = np.concatenate([np.full(x[1].size, x[0]) for x in found])
-        row = np.concatenate([x[1] for x in found])
-        arm = np.concatenate([x[2] for x in found])
-        ln_k, sig_k = (np.concatenate([getattr(self.pairs[pi][2], attr)[a] for pi, _, a in found])
-                       for attr in ("ln_k", "sigma_lnk"))
-        g_row, a_row = grp[row], arow[row]
+        # each distinct pair's yield bounded at each arm set (its rows share the op-amp, the
+        # row and the arm set: the rows' bounds), and the rows of those kept, in pair order
         op = {name: np.array([f(g[0]) for g in groups]) for name, f in self._op_fields.items()}   # (per group)
-        keep = self._bounded(gf, amp, groups, g_row, a_row, pair_i, arm, ln_k, sig_k, op)
-        if keep.size == 0:
+        ln_k, sig_k = (np.concatenate([getattr(self.pairs[pi][2], attr)[a[q]] for pi, a, q in found])
+                       for attr in ("ln_k", "sigma_lnk"))
+        q_all = np.concatenate([q for *_, q in found])
+        keep = self._bounded(gf, amp, grp[first[q_all]], arow[first[q_all]],
+                             np.concatenate([np.full(q.size, pi) for pi, _, q in found]), ln_k, sig_k, op)
+        ends, picked = np.cumsum([0] + [q.size for *_, q in found]), []
+        for (pi, a, q), lo, hi in zip(found, ends[:-1], ends[1:]):
+            kept = np.zeros(first.size, bool)
+            kept[q[keep[lo:hi]]] = True
+            if (sel := np.flatnonzero(kept[back])).size:
+                picked.append((pi, sel, a[back[sel]]))
+        if not picked:
             return None
-        # the rest of each row kept read off its arm set (the rows are in their pairs' order)
-        row, pair_i, arm, g_row, a_row = row[keep], pair_i[keep], arm[keep], g_row[keep], a_row[keep]
-        at = np.searchsorted(pair_i, np.arange(len(self.pairs) + 1))
-        part = [(pr[2], pr[3], arm[at[i]:at[i + 1]]) for i, pr in enumerate(self.pairs) if at[i + 1] > at[i]]
-        vals, ln_f0 = (np.concatenate([getattr(t, attr)[a] for t, _, a in part]) for attr in ("values", "ln_f0"))
+        pair_i = np.concatenate([np.full(x[1].size, x[0]) for x in picked])
+        row = np.concatenate([x[1] for x in picked])
+        arm = np.concatenate([x[2] for x in picked])
+        g_row, a_row = grp[row], arow[row]
+        part = [(self.pairs[pi][2], self.pairs[pi][3], a) for pi, _, a in picked]
+        vals, ln_k, ln_f0, sig_k = (np.concatenate([getattr(t, attr)[a] for t, _, a in part])
+                                    for attr in ("values", "ln_k", "ln_f0", "sigma_lnk"))
         arm_cost = np.concatenate([x.cost[x.rank[a]] for _, x, a in part])
         sig_f = np.array([pr[2].sigma_lnf for pr in self.pairs])[pair_i]
         drift = np.array([pr[4] for pr in self.pairs])[pair_i]
         kinds = np.array([periphery.STAGE_KINDS.index(g[1]) for g in groups])[g_row]
         return self._rows(lim, gf, amp, groups, g_row, kinds, a_row, ratio[row], ra[row], rb[row], pair_i, arm, vals,
-                          ln_k[keep], ln_f0, sig_k[keep], sig_f, drift, arm_cost,
-                          {name: x[g_row] for name, x in op.items()})
+                          ln_k, ln_f0, sig_k, sig_f, drift, arm_cost, {name: x[g_row] for name, x in op.items()})
 
-    def _bounded(self, gf, amp, groups, g_row, arow, pair_i, arm, ln_k, sig_k, op) -> np.ndarray:
-        """The matched rows (indices) whose estimated yield may reach ``least_y``: bounded
-        by the product of the startup share, the family pair's frequency share and the
-        amplitude share with the row's own spreads, both centred (a normal spread puts the
-        most within a window centred on it), and the THD share at 1 (op: the op-amp
-        figures per group)."""
-        p, r_fb, loss = self.problem, amp["r_fb"][arow], op["loss"][g_row]
+    def _bounded(self, gf, amp, group, arow, pair_i, ln_k, sig_k, op) -> np.ndarray:
+        """Whether each amplitude-side row (arow: its index; group: its group's; op: the
+        op-amp figures per group) matched with an arm set (ln K and its spread) of pair
+        pair_i may reach ``least_y``: its estimated yield bounded by the product of the
+        startup share, the pair's frequency share and the amplitude share with the row's
+        own spreads, both centred (a normal spread puts the most within a window centred
+        on it), and the THD share at 1."""
+        p, r_fb, loss = self.problem, amp["r_fb"][arow], op["loss"][group]
         topo, r_gnd = p.topology, amp["r_gnd"]
         k = np.exp(ln_k + loss)
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
-        # (the slope once per distinct amplitude row, arm set and op-amp loss, as _rows does)
-        loss_i = np.unique(op["loss"], return_inverse=True)[1].reshape(-1)[g_row]
-        key = (arow.astype(np.int64) * len(self.pairs) + pair_i) * (int(arm.max()) + 1) + arm
-        _, u, back = np.unique(key * (int(loss_i.max()) + 1) + loss_i, return_index=True, return_inverse=True)
-        s_m = m_sigma(p, gf, gain[u], sig_k[u], loss[u], op["gbw_spread"][g_row[u]])
+        s_m = m_sigma(p, gf, gain, sig_k, loss, op["gbw_spread"][group])
         with np.errstate(invalid="ignore", divide="ignore"):
-            slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb[u], k[u]), topo.port_conductance_slope(
-                r_gnd, r_fb[u], k[u]), amp["ird"][arow[u]])
+            slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb, k),
+                                                   topo.port_conductance_slope(r_gnd, r_fb, k), amp["ird"][arow])
             s_a = np.sqrt((slope * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + p.amp_sigma ** 2)
-            bound = phi(m[u] / s_m) * self._centred()[pair_i[u]] * window_share(0.0, s_a, math.log1p(p.tol_a))
-        # (phi's own error, 1.5e-7 a call, with room)
-        return np.flatnonzero((bound >= self.least_y - 1e-5)[back.reshape(-1)])
+            bound = phi(m / s_m) * self._centred()[pair_i] * window_share(0.0, s_a, math.log1p(p.tol_a))
+        return bound >= self.least_y - 1e-5   # (phi's own error, 1.5e-7 a call, with room)
 
     def _centred(self) -> np.ndarray:
         """Each arm family pair's frequency share centred on the target (its most)."""
