@@ -362,9 +362,8 @@ class Searcher:
                 picked.append((pi, sel, a[back[sel]]))
         if not picked:
             return None
-        pair_i = np.concatenate([np.full(x[1].size, x[0]) for x in picked])
-        row = np.concatenate([x[1] for x in picked])
-        arm = np.concatenate([x[2] for x in picked])
+        pair_i, row, arm = (np.concatenate([np.full(x[1].size, x[0]) for x in picked]),
+                            np.concatenate([x[1] for x in picked]), np.concatenate([x[2] for x in picked]))
         g_row, a_row = grp[row], arow[row]
         part = [(self.pairs[pi][2], self.pairs[pi][3], a) for pi, _, a in picked]
         vals, ln_k, ln_f0, sig_k = (np.concatenate([getattr(t, attr)[a] for t, _, a in part])
@@ -383,9 +382,8 @@ class Searcher:
         startup share, the pair's frequency share and the amplitude share with the row's
         own spreads, both centred (a normal spread puts the most within a window centred
         on it), and the THD share at 1."""
-        p, r_fb, loss = self.problem, amp["r_fb"][arow], op["loss"][group]
-        topo, r_gnd = p.topology, amp["r_gnd"]
-        k = np.exp(ln_k + loss)
+        p, r_fb, loss, r_gnd = self.problem, amp["r_fb"][arow], op["loss"][group], amp["r_gnd"]
+        topo, k = p.topology, np.exp(ln_k + loss)
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / k)
         s_m = m_sigma(p, gf, gain, sig_k, loss, op["gbw_spread"][group])
@@ -405,6 +403,8 @@ class Searcher:
 
     def _rows(self, lim, gf, amp, groups, g_row, kinds, arow, ratio, ra, rb, pair_i, arm, vals, ln_k, ln_f0, sig_k,
               sig_f, drift, arm_cost, op) -> "Batch | None":
+        """Estimated figures of the rows kept (_bounded), and the best row of each
+        configuration (group x arm family pair) with its exact cost."""
         p = self.problem
         topo = p.topology
         r_gnd, planner, vf_rel = amp["r_gnd"], amp["planner"], amp["vf_rel"]
