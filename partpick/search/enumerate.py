@@ -300,13 +300,12 @@ class Searcher:
             if self.cheapest:
                 chosen |= best_rows(amp["bin"], np.where(amp["ird"] == 0, score.reshape(-1, m.size), -np.inf), keep=1)
             chosen = chosen.reshape(score.shape)
+            full = [[np.broadcast_to(x, m.shape) for x in res[:3]] for *_, res in stages]   # (ratio, Ra, Rb)
             for op, picks in zip(ops, chosen):
                 shift = int(round(op.loss / K_BIN))         # K_eff bins to the arms' K bins
-                for (kind, sf, res), pick in zip(stages, picks):
-                    rows = np.flatnonzero(pick)
-                    if rows.size:
-                        ratio, ra, rb = (np.broadcast_to(x, m.shape)[rows] for x in res[:3])
-                        out[op.id].append((kind, sf, rows, amp["bin"][rows] - shift, ratio, ra, rb))
+                for (kind, sf, _), stage, pick in zip(stages, full, picks):
+                    if (rows := np.flatnonzero(pick)).size:
+                        out[op.id].append((kind, sf, rows, amp["bin"][rows] - shift, *(x[rows] for x in stage)))
         self._ch.update({(op.id, lim.id, gf.id, r_gnd): (amp, out[op.id]) for op in ops})
 
     def configurations(self, lim, gf, r_gnd: float) -> "Batch | None":

@@ -42,8 +42,10 @@ def best_rows(bins: np.ndarray, score: np.ndarray, keep: int = 2) -> np.ndarray:
     back = n - np.arange(n)      # larger for an earlier row: the first hit of a bin is its largest
     for _ in range(keep):
         top = np.maximum.reduceat(rows, starts, axis=-1)
-        hit = (rows == top[:, seg]) & np.isfinite(rows)
-        first = np.maximum.reduceat(np.where(hit, back, 0), starts, axis=-1)
+        # (rows hold no NaN and no +inf: a hit where the top is finite is finite, and a bin
+        # whose top is -inf has nothing to choose)
+        first = np.maximum.reduceat(np.where(rows == top[:, seg], back, 0), starts, axis=-1)
+        first[top == -np.inf] = 0
         line, _ = np.nonzero(first)
         if line.size == 0:
             break
