@@ -34,7 +34,7 @@ from partpick.derating import package_limit
 from partpick.physics.opamp import linear_peak_v
 from partpick.search.candidates import YIELD_STEP, Batch, Candidate
 from partpick.search.drive import BUFFERED, within_drive
-from partpick.search.estimate import below_share, frequency_share, phi, window_share
+from partpick.search.estimate import amplitude_sd, below_share, frequency_share, phi, window_share
 from partpick.search.kernels import best_rows, cheapest_of_groups, first_of_groups
 from partpick.search.pool import hopeless
 from partpick.search.prices import PriceBook
@@ -289,7 +289,7 @@ class Searcher:
             s_m = np.stack([m_sigma(p, gf, amp["gain"], self._typical_sk(), op.loss, op.opamp.gbw_spread_frac)
                             for op in ops])
             with np.errstate(invalid="ignore", divide="ignore"):
-                s_a = np.sqrt((amp["s_amp"] * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + self.problem.amp_sigma ** 2)
+                s_a = amplitude_sd(amp["s_amp"], s_m, amp["vf_rel"], self.problem.amp_sigma)
                 # margins in standard deviations: the search's proxy for each share of the yield
                 z_core = np.minimum(m / s_m, (p.thd_max - amp["thd"]) / np.maximum(np.abs(amp["s_thd"]) * s_m, 1e-12))
                 z_core = np.where(amp["vo_hi"] <= osc_max, z_core, -np.inf)
@@ -389,7 +389,7 @@ class Searcher:
         with np.errstate(invalid="ignore", divide="ignore"):
             slope = amp["planner"].amplitude_slope(topo.port_conductance(r_gnd, r_fb, k),
                                                    topo.port_conductance_slope(r_gnd, r_fb, k), amp["ird"][arow])
-            s_a = np.sqrt((slope * s_m) ** 2 + (amp["vf_rel"] / 3) ** 2 + p.amp_sigma ** 2)
+            s_a = amplitude_sd(slope, s_m, amp["vf_rel"], p.amp_sigma)
             bound = phi(m / s_m) * self._centred()[pair_i] * window_share(0.0, s_a, math.log1p(p.tol_a))
         return bound >= self.least_y - 1e-5   # (phi's own error, 1.5e-7 a call, with room)
 
@@ -438,7 +438,7 @@ class Searcher:
                   & (rr.min(axis=1) >= op["r_min"]) & (vo.max(axis=0) <= op["swing"]))
             # the yield estimate of the rows within those limits (the others are not kept)
             s = np.flatnonzero(ok)
-            s_a = np.sqrt((ev["dln_vo"][s] * s_m[s]) ** 2 + (vf_rel / 3) ** 2 + p.amp_sigma ** 2)
+            s_a = amplitude_sd(ev["dln_vo"][s], s_m[s], vf_rel, p.amp_sigma)
             y = np.zeros(m.shape)
             core = (frequency_share(err[u2], sig_f[u2], drift[u2], p.tol_f) * phi(m[u2] / s_m[u2])
                     * below_share(ev["thd"][u2], np.abs(ev["dthd"][u2]) * s_m[u2], p.thd_max))

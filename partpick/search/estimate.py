@@ -17,7 +17,7 @@ import math
 
 import numpy as np
 
-__all__ = ["phi", "window_share", "below_share", "frequency_share", "frequency_tolerance"]
+__all__ = ["phi", "window_share", "below_share", "frequency_share", "frequency_tolerance", "amplitude_sd"]
 
 _SQRT2 = math.sqrt(2.0)
 
@@ -60,6 +60,15 @@ def window_share(mean: np.ndarray, sd: np.ndarray, half_width: np.ndarray | floa
 def below_share(mean: np.ndarray, sd: np.ndarray, limit: np.ndarray | float) -> np.ndarray:
     """P(mean + N(0, sd^2) <= limit)."""
     return phi((limit - mean) / np.maximum(sd, 1e-12))
+
+
+def amplitude_sd(slope: np.ndarray, s_m: np.ndarray, vf_rel: float, other: float) -> np.ndarray:
+    """Spread (ln, one standard deviation) of the load amplitude over builds: the
+    amplitude's slope in the gain excess (d ln A / d m) times the gain excess's spread
+    s_m (nepers), the limiter's own part-to-part spread vf_rel (a fraction, taken as 3
+    standard deviations) and the spread of the parts after it, other (ln), independent
+    (their root sum of squares, JCGM 100 first-order propagation)."""
+    return np.sqrt((slope * s_m) ** 2 + (vf_rel / 3) ** 2 + other ** 2)
 
 
 def frequency_share(err: np.ndarray, sigma_lnf: np.ndarray | float, drift: float, tol: float) -> np.ndarray:
