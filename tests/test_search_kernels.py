@@ -173,15 +173,15 @@ def test_factorize_equals_numpys_unique_with_inverse(seed, n, with_zero):
 
 @given(st.integers(0, 2**31 - 1), st.integers(1, 3000))
 def test_range_minimum_is_the_first_smallest_of_each_range(seed, n):
-    """tables.RangeMin (a sparse table whose levels are made as queries need them)
-    against a scan of each range: the position of the first smallest cost, -1 for an
-    empty range; queries of short ranges first, then long ones (the levels grow)."""
+    """tables.RangeMin (blocks of 32 with running minima, a sparse table over the
+    blocks) against a scan of each range: the position of the first smallest cost, -1
+    for an empty range; ranges within a block, over a few blocks and over the whole."""
     from partpick.search.tables import RangeMin
 
     rng = np.random.default_rng(seed)
     cost = rng.integers(0, 20, n).astype(float)      # (ties are common)
     rm = RangeMin(cost)
-    for span in (4, n):
+    for span in (4, 40, 100, n):
         a = rng.integers(0, n, 100)
         z = np.minimum(a + rng.integers(0, span + 1, 100), n)
         want = [a_ + int(np.argmin(cost[a_:z_])) if z_ > a_ else -1 for a_, z_ in zip(a, z)]

@@ -28,7 +28,10 @@ class NetTable:
     (ln of the required gain); sigma_lnk (standard deviation of ln k from the parts'
     tolerances); unit_cost (sum of unit prices); sorted by ln_f0. families gives each
     role's family id; sigma_lnf is the relative standard deviation of f0 from the
-    tolerances (the same for every row: JCGM 100 first-order propagation)."""
+    tolerances (the same for every row: JCGM 100 first-order propagation). Where the
+    topology gives them, lists holds each role's value list and index each value's place
+    in it (values[:, j] == lists[j][index[:, j]]): a column is then priced by pricing its
+    few distinct values."""
 
     roles: tuple[str, ...]
     families: tuple[str, ...]
@@ -38,6 +41,8 @@ class NetTable:
     sigma_lnk: np.ndarray
     unit_cost: np.ndarray
     sigma_lnf: float
+    lists: tuple | None = None
+    index: np.ndarray | None = None
 
     def __len__(self) -> int:
         return self.ln_f0.size

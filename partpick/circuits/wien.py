@@ -274,10 +274,11 @@ class WienBridge:
         ki = np.repeat(np.arange(lr.size), counts)
         offs = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts)
         ci_ = order[np.repeat(lo, counts) + offs]
-        vals = np.column_stack([r[rs_i[ki]], c[cs_i[ci_]], r[rp_i[ki]], c[cp_i[ci_]]])
+        index = np.column_stack([rs_i[ki], cs_i[ci_], rp_i[ki], cp_i[ci_]])
         ln_f0 = -math.log(2 * math.pi) - 0.5 * (lr[ki] + lc[ci_])
         srt = np.argsort(ln_f0, kind="stable")
-        vals, ln_f0 = vals[srt], ln_f0[srt]
+        index, ln_f0 = index[srt], ln_f0[srt]
+        vals = np.column_stack([r[index[:, 0]], c[index[:, 1]], r[index[:, 2]], c[index[:, 3]]])
         rs, cs, rp, cp = vals.T
         k = 1 + rs / rp + cp / cs
         u_r, u_c = sigma(rf), sigma(cf)
@@ -285,7 +286,8 @@ class WienBridge:
         price_c = np.interp(np.log(c), np.log(c), [cf.unit_price(x) for x in c])
         cost = 2 * rf.price_unit + np.interp(np.log(cs), np.log(c), price_c) + np.interp(np.log(cp), np.log(c), price_c)
         return NetTable(roles, (rf.id, cf.id, rf.id, cf.id), vals, ln_f0, np.log(k), sigma_lnk, cost,
-                        0.5 * math.sqrt(2 * u_r ** 2 + 2 * u_c ** 2))
+                        0.5 * math.sqrt(2 * u_r ** 2 + 2 * u_c ** 2), (r, c, r, c),
+                        index.astype(np.int32))
 
     def reach_hz(self, rf, cf, shelf=None) -> tuple[float, float]:
         """The lowest and highest textbook frequency equal arms of the two families

@@ -75,15 +75,12 @@ class Searcher:
         # the load's admittance at the target: its magnitude sets the current, its phase the
         # power the load takes (as verification reads it)
         y_load = self.y_load = spec.load.admittance_s(self.f_t) if problem.drive_y is None else problem.drive_y
-        self._amp: dict = {}
+        self._amp, self._levels = {}, {}
         # THD counts at every output the topology has only when the spec loads them all (a
         # second output without a load_cosine is not used)
         self.all_outputs = spec.load_cosine is not None
-        self._ch: dict = {}
-        self._stages: dict = {}
-        self._sk = None
-        self._fc = None
-        self._dear = None
+        self._ch, self._stages = {}, {}
+        self._sk = self._fc = self._dear = None
         # one table per value list (families of one series share it), and the load read only
         # by the kind whose gain it changes
         jobs = {(k, f.id): (("stage", k, values_of(f, problem.shelf), y_load if k == "attenuator" else None),
@@ -166,10 +163,11 @@ class Searcher:
 
     def levels(self, gf) -> list[float]:
         """The gain network's fixed resistors (Rg, ohm) searched with gain family gf: the
-        family's (shelf's) value nearest each of the topology's impedance levels."""
-        p = self.problem
-        gvals = np.array(values_of(gf, p.shelf))
-        return sorted({nearest(gvals, lv) for lv in p.topology.gain_levels}) if gvals.size else []
+        family's (shelf's) value nearest each of the topology's impedance levels (found once)."""
+        if gf.id not in self._levels:
+            v, p = np.array(values_of(gf, self.problem.shelf)), self.problem
+            self._levels[gf.id] = sorted({nearest(v, lv) for lv in p.topology.gain_levels}) if v.size else []
+        return list(self._levels[gf.id])
 
     def _amp_side(self, lim, gf, r_gnd: float):
         """The amplitude side of one limiter and gain family with the fixed resistor r_gnd (ohm) on the

@@ -12,7 +12,6 @@ import numpy as np
 
 from partpick.cache import content_key, load_arrays, store_arrays
 from partpick.circuits.options import values_of
-from partpick.search.prices import factorize
 
 __all__ = ["K_BIN", "K_GRID", "STAGE_RATIO", "RangeMin", "ArmIndex", "StageTable", "stage_table", "memo", "memo_all"]
 
@@ -55,37 +54,53 @@ def memo_all(jobs) -> None:
 
 
 class RangeMin:
-    """Index of the smallest cost in any range [a, z) of an array, by a sparse table
-    (range-minimum query: Bender and Farach-Colton, LATIN 2000), vectorised over
-    queries."""
+    """Position of the smallest cost (the first of equals) in any range [a, z) of an
+    array, vectorised over queries: the array cut into blocks of BLOCK, each position's
+    smallest to the end and from the start of its block (running minima), and a sparse
+    table over the blocks' smallest (range-minimum query: Bender and Farach-Colton,
+    LATIN 2000). A range within one block is read off the block itself. Made in a few
+    passes over the array (a sparse table over every position is log2 n passes, which
+    the search's stage tables of 10^5 pairs spent a fifth of its time on, made again in
+    each worker)."""
+
+    BLOCK = 32
 
     def __init__(self, cost: np.ndarray) -> None:
+        cost = np.asarray(cost, float)
         self.cost = cost
-        # int32 positions: the table's levels are its memory (log2 n rows of n), and no
-        # table comes near 2**31 rows; a level is made when a query first needs it (the
-        # search's ranges are short: most tables never need their upper levels). The
-        # levels are the rows of one array (row k valid in its first n - 2**k + 1
-        # places), so that a batch of queries reads them in one gather, whatever levels
-        # its ranges need
-        self.levels = np.arange(cost.size, dtype=np.int32)[None, :]
-        self._top = np.asarray(cost, float)   # the smallest costs of the top level's ranges
-
-    def _grow(self, j: int) -> None:
-        """Make the levels up to j: level k the position of the smallest cost in
-        [i, i + 2**k) for each i (the first of equals), from the level below's positions
-        and smallest costs, read as two shifted slices (no gather of the costs)."""
-        have = self.levels.shape[0]
-        if have > j:
-            return
-        n, top = self.cost.size, self._top
-        levels = np.zeros((j + 1, n), np.int32)
-        levels[:have] = self.levels
-        for k in range(have, j + 1):
-            prev, half, m = levels[k - 1], 1 << (k - 1), n - (1 << k) + 1
+        b = self.BLOCK
+        nb = max(-(-cost.size // b), 1)
+        pad = np.full(nb * b, np.inf)
+        pad[:cost.size] = cost
+        self._pad = pad
+        blk = pad.reshape(nb, b)
+        at = np.arange(nb * b).reshape(nb, b)
+        # from the block's start: a position takes over where its cost is smaller than all before it
+        run = np.minimum.accumulate(blk, axis=1)
+        new = np.ones(blk.shape, bool)
+        new[:, 1:] = blk[:, 1:] < run[:, :-1]
+        self._pre = np.maximum.accumulate(np.where(new, at, -1), axis=1).ravel()
+        # to the block's end, scanned backwards: a position takes over where its cost is no
+        # larger than all after it (so the first of equals stays)
+        back, at_b = blk[:, ::-1], at[:, ::-1]
+        run = np.minimum.accumulate(back, axis=1)
+        new[:, 1:] = back[:, 1:] <= run[:, :-1]
+        self._suf = np.minimum.accumulate(np.where(new, at_b, nb * b), axis=1)[:, ::-1].ravel()
+        # the sparse table over the blocks' smallest: level k the block position of the
+        # smallest in [i, i + 2**k) blocks (the first of equals)
+        pos = self._pre[b - 1::b]
+        top = pad[pos]
+        levels = [pos]
+        k = 1
+        while (1 << k) <= nb:
+            half, m = 1 << (k - 1), nb - (1 << k) + 1
             left = top[:m] <= top[half: half + m]
-            levels[k, :m] = np.where(left, prev[:m], prev[half: half + m])
+            levels.append(np.where(left, levels[-1][:m], levels[-1][half: half + m]))
             top = np.where(left, top[:m], top[half: half + m])
-        self.levels, self._top = levels, top
+            k += 1
+        self._levels = np.zeros((len(levels), nb), np.int64)
+        for k, lv in enumerate(levels):
+            self._levels[k, :lv.size] = lv
 
     def argmin(self, a: np.ndarray, z: np.ndarray) -> np.ndarray:
         """Position of the cheapest entry of each range [a, z); -1 where it is empty."""
@@ -93,11 +108,39 @@ class RangeMin:
         ok = z > a
         if not ok.any():
             return out
-        a, z = a[ok], z[ok]
-        j = np.floor(np.log2(z - a)).astype(np.intp)
-        self._grow(int(j.max()))
-        x, y = self.levels[j, a], self.levels[j, z - np.left_shift(1, j)]
-        out[ok] = np.where(self.cost[x] <= self.cost[y], x, y)
+        b, pad = self.BLOCK, self._pad
+        a, last = a[ok], z[ok] - 1
+        ba, bz = a // b, last // b
+        # a range over blocks: the rest of the first block, the whole blocks between (if
+        # any) and the start of the last, the first of equals kept (they lie left to right)
+        best = self._suf[a]
+        x = self._pre[last]
+        lo, hi = ba + 1, bz            # whole blocks [lo, hi)
+        mid = hi > lo
+        if mid.any():
+            l_, h_ = lo[mid], hi[mid]
+            j = np.floor(np.log2(h_ - l_)).astype(np.intp)
+            p, q = self._levels[j, l_], self._levels[j, h_ - np.left_shift(1, j)]
+            y = np.where(pad[p] <= pad[q], p, q)
+            best[mid] = np.where(pad[y] < pad[best[mid]], y, best[mid])
+        best = np.where(pad[x] < pad[best], x, best)
+        # a range within one block: the smallest to the block's end where it lies in the
+        # range (then it is the range's), else the smallest from the block's start where
+        # that does, else read off the block (the first smallest; a range of infinite
+        # costs only, its first position)
+        one = np.flatnonzero(ba == bz)
+        if one.size:
+            s_, p_ = self._suf[a[one]], self._pre[last[one]]
+            best[one] = np.where(s_ <= last[one], s_, p_)
+            one = one[(s_ > last[one]) & (p_ < a[one])]
+        if one.size:
+            cols = np.arange(b)
+            start, off_a, off_z = ba[one] * b, (a[one] % b)[:, None], (last[one] % b)[:, None]
+            c = np.where((cols >= off_a) & (cols <= off_z), pad[start[:, None] + cols], np.inf)
+            got = np.argmin(c, axis=1)
+            got = np.where((got >= off_a[:, 0]) & (got <= off_z[:, 0]), got, off_a[:, 0])
+            best[one] = start + got
+        out[ok] = best
         return out
 
 
@@ -157,21 +200,29 @@ class ArmIndex:
         self.table = table
         n = len(table)
         self.bins = np.round(table.ln_k / K_BIN).astype(np.int32)
-        order = np.lexsort((table.ln_f0, self.bins)).astype(np.int32)
+        if n and np.all(table.ln_f0[1:] >= table.ln_f0[:-1]) and np.ptp(self.bins) < 2 ** 15:
+            # (the table is sorted by ln f0: a stable sort by bin alone is the same order,
+            # and a radix sort of 16-bit bins)
+            order = np.argsort((self.bins - self.bins.min()).astype(np.int16), kind="stable").astype(np.int32)
+        else:
+            order = np.lexsort((table.ln_f0, self.bins)).astype(np.int32)
         self.order = order
         self.rank = np.empty_like(order)       # table row -> position in the sorted order
         self.rank[order] = np.arange(n)
         self.sbins = self.bins[order]
         self.sf = table.ln_f0[order]
         vals = table.values[order]
-        # each column's unit price, and the two arms' line prices (columns 0-3), looked up
-        # once per distinct value
-        unit, line = [], []
-        for i, fam in enumerate(table.families):
-            uniq, inv = factorize(vals[:, i])
-            unit.append(price.units(fam, uniq)[inv])
-            if i < 4:
-                line.append(price.lines(fam, uniq)[inv])
+        # each column's unit price, and the two arms' line prices (columns 0-3): of its
+        # value list's few values where the table has one
+        index = table.index[order] if table.index is not None else None
+
+        def priced(how, i):
+            if index is None:
+                return how(table.families[i], vals[:, i])
+            return how(table.families[i], table.lists[i])[index[:, i]]
+
+        unit = [priced(price.units, i) for i in range(len(table.families))]
+        line = [priced(price.lines, i) for i in range(4)]
         # one line per distinct value (a value used twice shares its line); a stocked
         # value's line costs nothing
         lr = line[0] + np.where(vals[:, 0] == vals[:, 2], 0.0, line[2])
