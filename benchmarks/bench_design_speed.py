@@ -11,7 +11,9 @@ amplitude control, which no allowed design reaches (the README's refusal example
 the JFET control allowed it designs), so the why-not work is in the figure.
 
 The first run of a spec may fill the user's cache folder (tables keyed by content); the
-median of RUNS shows the warm figure, the `first` column the cold one.
+median of RUNS shows the warm figure, the `first` column the cold one. The children run
+with their bytecode written and read back, as an installed package's is (the environment's
+PYTHONDONTWRITEBYTECODE is dropped for them).
 
 ``--feasible stored`` times instead the coverage benchmark's stored feasible requirements
 (tests/data/coverage: each with an oracle BOM that passed ``partpick check`` and ngspice
@@ -46,10 +48,16 @@ def _partpick() -> list[str]:
     return [str(script)] if script.exists() else [sys.executable, "-m", "partpick"]
 
 
+# timed as an installed package runs: its bytecode compiled once (pip compiles it at install)
+# and read back, not compiled again in every process as a sandbox that sets
+# PYTHONDONTWRITEBYTECODE would have it (about 0.1 s of every run here; bench_coverage.py alike)
+_ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+
+
 def run_once(argv: list[str], timeout_s: float) -> tuple[float, int, float]:
     """(wall seconds, exit code, peak RSS in MiB) of one child process."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT)
+    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT, env=_ENV)
     deadline = t0 + timeout_s
     while True:
         pid, status, usage = os.wait4(proc.pid, os.WNOHANG)
