@@ -9,6 +9,7 @@ validation (:func:`check_spec`) and the BOM roles (:func:`all_slots`) come from 
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 from partpick.circuits import clipping, diode_limiter, jfet_agc, periphery, quadrature, wien
 from partpick.circuits.base import (STAGES, SUPPLY_KINDS, Circuit, Conditions, Core, Slot, Values)
@@ -20,7 +21,7 @@ from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
            "topology", "control", "all_slots", "fitting_topologies", "slots_for", "control_for_roles", "check_spec",
-           "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "settled", "designators", "log_sensitivities", "margin_fn",
+           "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "small_signal", "settled", "designators", "log_sensitivities", "margin_fn",
            "rest_conductance"]
 
 TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
@@ -192,24 +193,46 @@ def balance(c: Circuit, cond: Conditions, lin: LinearResult, *, loop: Loop | Non
 
 
 _SETTLED: dict = {}   # settled(): the nominal point of a candidate is analysed when it is refined and verified
+_SMALL: dict = {}     # small_signal(): a supply corner's loop is the nominal point's where no plug-in reads the supply
+
+
+def _kept(memo: dict, key, make):
+    """memo[key], made once (None: not kept); a memo of a few hundred circuits at most."""
+    if key is not None and key in memo:
+        return memo[key]
+    got = make()
+    if key is not None:
+        if len(memo) > 256:
+            memo.clear()
+        memo[key] = got
+    return got
+
+
+def small_signal(c: Circuit, cond: Conditions) -> tuple:
+    """(loop, linear result) of ``c`` at ``cond``; where neither the topology's loop nor
+    the control's branch at rest reads the supply (their ``reads_supply``; undeclared
+    counts as reading it), kept per process under the point less its supply: the
+    supply corners of verification are the nominal point's loop, only the op-amp's
+    swing, which the balance judges at the corner's rails, differs."""
+    free = not (getattr(c.topology, "reads_supply", True) or getattr(c.control, "reads_supply", True))
+
+    def make():
+        loop = build_loop(c, cond)
+        return loop, linear(c, cond, loop)
+
+    return _kept(_SMALL, (c, replace(cond, supply_v=0.0)) if free else None, make)
 
 
 def settled(c: Circuit, cond: Conditions, start: BalanceResult | None = None) -> tuple:
-    """(loop, linear result, settled oscillation) of ``c`` at ``cond``: build_loop, linear
-    and balance (None where it does not start); without a ``start``, kept per process (a
+    """(loop, linear result, settled oscillation) of ``c`` at ``cond``: small_signal and
+    balance (None where it does not start); without a ``start``, kept per process (a
     candidate's nominal point is analysed again when it is verified, unchanged by the
     refinement in a quarter of the candidates: measured on four requirements)."""
-    key = (c, cond) if start is None else None
-    if key is not None and key in _SETTLED:
-        return _SETTLED[key]
-    loop = build_loop(c, cond)
-    lin = linear(c, cond, loop)
-    got = (loop, lin, balance(c, cond, lin, loop=loop, start=start))
-    if key is not None:
-        if len(_SETTLED) > 256:
-            _SETTLED.clear()
-        _SETTLED[key] = got
-    return got
+    def make():
+        loop, lin = small_signal(c, cond)
+        return loop, lin, balance(c, cond, lin, loop=loop, start=start)
+
+    return _kept(_SETTLED, (c, cond) if start is None else None, make)
 
 
 def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, float]:

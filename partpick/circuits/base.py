@@ -182,7 +182,10 @@ class Topology(Protocol):
     and output_phase_rad (each further output's word in messages and its intended phase
     lead over the first, rad), input_note (how its op-amp inputs swing, for the
     common-mode check's note), gain_levels (the impedance levels, Rg in ohm, the
-    search puts the gain network at: the control's surrogate tables hold them).
+    search puts the gain network at: the control's surrogate tables hold them),
+    reads_supply (whether its loop depends on the supply voltage; where neither it nor
+    the control's branch does, a supply corner's loop is the nominal point's: a test
+    builds both).
 
     Search hooks (:mod:`partpick.search.enumerate`): ``network_table`` (every
     frequency-setting network of a family pair in a frequency window, as a
@@ -242,8 +245,9 @@ class Topology(Protocol):
 class AmplitudeControl(Protocol):
     """An amplitude-control plug-in (one module under ``partpick/circuits``; see
     DEVELOPERS.md, "Adding an amplitude control"). Attributes: name (the word in BOMs
-    and specs), slots, port (the topology port it sits at). Its search surrogate is its
-    own business: the diode limiter's is :mod:`partpick.circuits.limiter_surface`.
+    and specs), slots, port (the topology port it sits at), reads_supply (whether its
+    branch at rest depends on the supply voltage). Its search surrogate is its own
+    business: the diode limiter's is :mod:`partpick.circuits.limiter_surface`.
     """
 
     name: str

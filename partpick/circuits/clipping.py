@@ -22,6 +22,7 @@ class Clipping:
     slots = ()
     port = "feedback"
     slow = False
+    reads_supply = False
 
     def branch(self, c: Circuit, temp_k: float, cond=None) -> Branch:
         return Branch(None)

@@ -42,6 +42,7 @@ class DiodeLimiter:
     port = "feedback"
     series_role = "rd"      # the resistor in series with the pair (the search's Rd)
     slow = False            # sets the amplitude within a few cycles of reaching it
+    reads_supply = False    # the pair at rest is the same on any supply
 
     def branch(self, c: Circuit, temp_k: float, cond=None) -> Branch:
         """The pair (tabulated i(v) and charge q(v) at temp_k, K), behind Rd."""

@@ -151,6 +151,7 @@ class JfetAgc:
     slots = SLOTS
     port = "ground"
     slow = True         # settles over many cycles: its own dynamics say how long
+    reads_supply = True     # its rest state (the gate's bias) follows the supply
     supplies = ("dual",)   # the gate swings below the source: its design rule plans a dual supply
 
     def op_channels(self, roles) -> int:
