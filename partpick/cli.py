@@ -19,7 +19,7 @@ from partpick import __version__
 from partpick import inputs as opt
 from partpick.catalog import KINDS, default_catalog_dir, load_catalog
 from partpick.errors import PartpickError, failure, one_line
-from partpick.fileio import exit_on_signals
+from partpick.fileio import as_program, exit_on_signals
 from partpick.inputs import catalog_for, load_inputs as _inputs
 from partpick.starter import STARTER_SPEC
 
@@ -54,7 +54,10 @@ class _Group(click.Group):
     """click, with its usage errors as one line (``error: ... (see 'partpick x --help')``,
     exit 2), and SIGTERM and SIGHUP cleaned up after like Ctrl-C."""
 
-    def main(self, *args, **kwargs):
+    def main(self, *args, **kwargs):   # (the program, unless a caller passes its own arguments: tests)
+        return as_program(lambda: self._main(*args, **kwargs), not args and "args" not in kwargs)
+
+    def _main(self, *args, **kwargs):
         kwargs.pop("standalone_mode", None)
         exit_on_signals()
         try:
@@ -66,6 +69,7 @@ class _Group(click.Group):
         except click.ClickException as exc:
             ctx = getattr(exc, "ctx", None)
             _fail(exc.format_message() + (f" (see '{ctx.command_path} --help')" if ctx else ""), exc.exit_code)
+
 
 
 _PATH = click.Path(path_type=Path, readable=False)  # partpick reads and says why not itself

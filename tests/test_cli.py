@@ -36,6 +36,23 @@ def test_import_is_light():
     assert out.stdout.strip() == "False"
 
 
+def test_the_program_ends_with_its_output_whole_and_its_exit_codes(tmp_path):
+    # as the program, the process ends without the interpreter's teardown (fileio.leave):
+    # what it printed and wrote must all be there, the exit codes those of SystemExit
+    def program(*args):
+        return subprocess.run([sys.executable, "-m", "partpick", *map(str, args)], capture_output=True, text=True,
+                              timeout=300, stdin=subprocess.DEVNULL)
+
+    done = program("design", SPECS / "seismic-cal-20hz.yaml", "-n", "3", "--format", "json", "--out", tmp_path / "o")
+    assert done.returncode == 0, done.stderr
+    assert len(json.loads(done.stdout)["candidates"]) == 3   # (the whole document, to its last byte)
+    assert len(list((tmp_path / "o").glob("*.yaml"))) == 3 and "wrote 3 BOM file(s)" in done.stderr
+    missing = program("spec", "check", tmp_path / "none.yaml", "--catalog", CATALOGS)
+    assert missing.returncode == 2 and missing.stderr.startswith("error:") and missing.stdout == ""
+    version = program("--version")
+    assert version.returncode == 0 and version.stdout.strip() == f"partpick, version {__version__}"
+
+
 def test_catalog_list():
     result = run("catalog", "list", "--catalog", str(CATALOGS))
     assert result.exit_code == 0, result.output

@@ -21,7 +21,8 @@ from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor
 
 __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "Values", "STAGES", "SUPPLY_KINDS",
            "topology", "control", "all_slots", "fitting_topologies", "slots_for", "control_for_roles", "check_spec",
-           "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "small_signal", "settled", "designators", "log_sensitivities", "margin_fn",
+           "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "small_signal", "settled",
+           "designators", "log_sensitivities", "margin_fn",
            "rest_conductance"]
 
 TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
