@@ -12,6 +12,7 @@ from __future__ import annotations
 import csv
 import difflib
 import math
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator
@@ -92,7 +93,18 @@ def read_yaml(path: str | Path, error_cls: type[InputError] = InputError) -> Nod
 
 
 def parse_yaml(text: str, source: str, error_cls: type[InputError] = InputError) -> Node:
-    """Parse one YAML document; syntax errors, aliases and duplicate keys raise ``error_cls``."""
+    """Parse one YAML document; syntax errors, aliases and duplicate keys raise ``error_cls``.
+    Parsed by libyaml (PyYAML's C parser: a catalog in a tenth of the time) where it is
+    there and may read the text (_plain); any text it refuses, or whose tree is refused, is
+    parsed again by the Python parser, whose words every refusal keeps (the two build the
+    same tree from every YAML file of the project: a test)."""
+    if _C_LOADER is not None and _plain(text):
+        try:
+            root = yaml.compose(text, Loader=_C_LOADER)
+            if root is not None:
+                return _convert(root, source, error_cls, set(), 0, "")
+        except Exception:   # noqa: BLE001 (refused: the Python parser below says why, as it always has)
+            pass
     try:
         root = yaml.compose(text, Loader=yaml.SafeLoader)
     except yaml.MarkedYAMLError as exc:
@@ -112,6 +124,23 @@ def parse_yaml(text: str, source: str, error_cls: type[InputError] = InputError)
     if root is None:
         raise error_cls("is empty; expected a YAML mapping of fields", source=source, line=1)
     return _convert(root, source, error_cls, set(), 0, "")
+
+
+_C_LOADER = getattr(yaml, "CSafeLoader", None)   # (None where PyYAML was built without libyaml)
+
+
+def _plain(text: str) -> bool:
+    """Whether libyaml may read the text: it nests under 1,000 levels (a flow level takes a
+    bracket, a block level at least one more column: a bound on libyaml's recursion, far
+    inside the C stack), holds no character the Python reader refuses, and none of what
+    libyaml takes in places the Python parser refuses or places on other lines (tabs and
+    other line breaks, tags, anchors, aliases, complex keys, block scalars, directives,
+    document markers, reserved indicators: none is in a catalog partpick ships)."""
+    return (not _UNPLAIN.search(text) and not yaml.reader.Reader.NON_PRINTABLE.search(text)
+            and text.count("[") + text.count("{") + max(map(len, text.splitlines()), default=0) < 1000)
+
+
+_UNPLAIN = re.compile("[\t\r!&*?|>@`\x85\u2028\u2029]|^(?:%|---|\\.\\.\\.)", re.MULTILINE)
 
 
 def _too_deep(text: str) -> int | None:
