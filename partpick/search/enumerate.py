@@ -202,8 +202,9 @@ class Searcher:
         want = ke[:, None] * np.exp(M_GRID[None, :])                       # gains for the excess grid
         j = np.clip(np.searchsorted(g_all, want), 1, g_all.size - 1)
         j = np.where(np.abs(np.log(g_all[j - 1] / want)) <= np.abs(np.log(g_all[j] / want)), j - 1, j)
-        cells = np.unique(np.column_stack([np.repeat(np.arange(ke.size), M_GRID.size), j.ravel()]), axis=0)
-        kb, r_fb = cells[:, 0], gvals[cells[:, 1]]
+        # the distinct (bin, Rf) cells in (bin, Rf) order: one integer each (a row-wise unique sorts a record view)
+        cells = np.unique(np.repeat(np.arange(ke.size), M_GRID.size) * g_all.size + j.ravel())
+        kb, r_fb = cells // g_all.size, gvals[cells % g_all.size]
         gain = topo.gain(topo.gain_values(r_gnd, r_fb))
         m = np.log(gain / ke[kb])
         keep = (m >= M_RANGE[0]) & (m <= M_RANGE[1])
