@@ -71,7 +71,6 @@ class _Group(click.Group):
             _fail(exc.format_message() + (f" (see '{ctx.command_path} --help')" if ctx else ""), exc.exit_code)
 
 
-
 _PATH = click.Path(path_type=Path, readable=False)  # partpick reads and says why not itself
 _spec_argument = click.argument("spec_path", metavar="SPEC", type=_PATH)
 _bom_argument = click.argument("bom_path", metavar="BOM", type=_PATH)

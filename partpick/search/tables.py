@@ -58,10 +58,11 @@ class RangeMin:
     array, vectorised over queries: the array cut into blocks of BLOCK, each position's
     smallest to the end and from the start of its block (running minima), and a sparse
     table over the blocks' smallest (range-minimum query: Bender and Farach-Colton,
-    LATIN 2000). A range within one block is read off the block itself. Made in a few
-    passes over the array (a sparse table over every position is log2 n passes, which
-    the search's stage tables of 10^5 pairs spent a fifth of its time on, made again in
-    each worker)."""
+    LATIN 2000); a range within one block is read off those running minima where one
+    lies in it, else off the block itself. Made in a few passes over the array when the
+    table is made (a sparse table over every position is log2 n passes, which a search
+    of stage tables of 10^5 pairs spent a tenth of its CPU on, grown again in each
+    worker)."""
 
     BLOCK = 32
 
