@@ -68,7 +68,6 @@ class RangeMin:
 
     def __init__(self, cost: np.ndarray) -> None:
         cost = np.asarray(cost, float)
-        self.cost = cost
         b = self.BLOCK
         nb = max(-(-cost.size // b), 1)
         pad = np.full(nb * b, np.inf)
