@@ -12,7 +12,7 @@ from partpick.physics import transient
 from partpick.physics.netlist import Capacitor, Kick, Netlist, Resistor, VSource
 from partpick.physics.junction import limiter_table
 from partpick.physics.transient import operating_point, simulate
-from partpick.physics.waveform import analyse, settle_time
+from partpick.physics.waveform import ENVELOPE_SETTLED, SETTLE_BLOCK, EnvelopeWatch, analyse, settle_time
 from partpick.circuits import Conditions, build_netlist
 from partpick.circuits.wien import circuit as WienCircuit
 
@@ -283,3 +283,18 @@ def test_growing_envelope_never_ends_a_run_early(demo_catalog):
     res = simulate(slow, cycles=40, settled=1e-4, tail_cycles=0)
     assert not res.meta["settled_early"] and len(res.t_s) == 40 * 200 + 1
     assert simulate(fast, cycles=40, settled=1e-4, tail_cycles=0).meta["settled_early"]
+
+
+@pytest.mark.parametrize("ratio", [0.55, 0.7, 0.77, 0.83, 1.0, 1.5])
+def test_a_steady_sine_off_the_hinted_frequency_settles(ratio):
+    """A sine of constant amplitude has a constant envelope (by definition), whatever its
+    frequency against the hint the cycles are counted in: the watch says so after its
+    two blocks. An oscillator can run well below the hint (a slewing op-amp: 0.83 of a
+    116 kHz design's); read over one hinted cycle, its extremes missed a peak now and
+    then and the run never ended early (0.55, 0.7, 0.77 and 0.83 never settled in 120
+    cycles)."""
+    ppc = 200
+    y = 12.0 + 2.4 * np.sin(2 * np.pi * ratio * np.arange(120 * ppc + 1) / ppc + 0.3)
+    watch = EnvelopeWatch(y, ppc, ENVELOPE_SETTLED)
+    at = next((c for c in range(1, 120) if watch.settled(c * ppc)), None)
+    assert at is not None and at <= 2 * SETTLE_BLOCK + 1

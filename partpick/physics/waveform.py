@@ -244,7 +244,12 @@ class EnvelopeWatch:
     neighbours, averaged over blocks of SETTLE_BLOCK cycles. A cycle's extreme
     jitters by about 2e-4 of the amplitude as the period drifts against the sample
     grid (measured on clipped and limited waveforms, whose peaks are not parabolas);
-    the block mean holds the envelope's drift and averages the jitter out."""
+    the block mean holds the envelope's drift and averages the jitter out. A cycle's
+    extremes are read over the two hinted cycles up to it: an oscillation may run well
+    below the hinted frequency (a slewing op-amp: a 116 kHz design at 0.83 of it), and a
+    window of one hinted cycle then misses a peak now and then (taking the sample at its
+    edge for one) in a pattern no two blocks share, so the run never ended early; two
+    hold a whole period of any oscillation down to half the hint."""
 
     def __init__(self, wave: np.ndarray, ppc: int, rel: float) -> None:
         self.wave, self.ppc, self.rel = wave, ppc, rel
@@ -264,7 +269,7 @@ class EnvelopeWatch:
         """Whether the mean amplitude and mean level of the last SETTLE_BLOCK cycles up
         to ``step`` (a cycle boundary: the samples up to it are recorded) agree with
         those of the block before within ``rel`` of the amplitude."""
-        y = self.wave[step - self.ppc: step + 1]
+        y = self.wave[max(step - 2 * self.ppc, 0): step + 1]
         hi, lo = self._peak(y, int(np.argmax(y))), self._peak(y, int(np.argmin(y)))
         self.amp.append(0.5 * (hi - lo))
         self.mid.append(0.5 * (hi + lo))
