@@ -20,15 +20,6 @@ __all__ = ["LOOK", "Ahead"]
 LOOK = 4   # candidates looked at per helper to find ones worth verifying ahead (each is simulated)
 
 
-def _never() -> bool:
-    """A helper's transient-run budget: none. A candidate that needs a run is verified
-    again here in its turn, with the command's budget and this process's predictions
-    (which spare a circuit predicted before its runs): what verifying one at a time
-    spends. (A helper that ran it would spend runs a one-at-a-time loop may not: the
-    predictions it would have cached are in another process.)"""
-    return False
-
-
 class Ahead:
     """The verification of one design command's candidates: ``job(c, transient)`` (a
     result, or None where a transient run was refused), in helpers when there is more
@@ -53,7 +44,11 @@ class Ahead:
             return self.job(c, transient)
         if self.helpers is None:
             try:   # forked at the first verification: after the search, with its tables
-                self.helpers = Helpers(lambda x: self.job(x, _never), spread())
+                # a helper makes no transient run: a candidate that needs one is verified
+                # again here in its turn, with the command's budget and this process's
+                # predictions (a helper that ran it would spend runs a one-at-a-time loop
+                # may not: the predictions it would have cached are in another process)
+                self.helpers = Helpers(lambda x: self.job(x, False), spread())
             except OSError:   # (no process to be had: verified here, one at a time)
                 self.alone = True
                 return self.job(c, transient)

@@ -40,6 +40,7 @@ from partpick.search.problem import Problem, build_problem
 from partpick.spec import AUTO_TOPOLOGY, Spec, check_parts
 from partpick.tolerance import with_yield
 from partpick.physics.harmonic import NeedsTransient
+from partpick.points import Runs, points
 from partpick.verify import operating_conditions, verify
 
 __all__ = ["Design", "design", "candidate_bom", "evaluate_bom", "netlist_text"]
@@ -60,23 +61,6 @@ REFUSAL_TRANSIENT = 0
 # verification budget: its harmonic balance was solved and failed, which for a JFET
 # control's slow loop costs about as much as verifying several limiter candidates
 SKIP_WEIGHT = 5
-
-
-@dataclass
-class _Work:
-    """The transient runs a command's verifications may still make (shared by the runs
-    of one command, so that the bound holds for the command, not per run), and the
-    candidates skipped since they ran out."""
-
-    left: int
-    skipped: int = 0
-
-    def take(self) -> bool:
-        """Whether one more run is allowed (then counted)."""
-        if self.left <= 0:
-            return False
-        self.left -= 1
-        return True
 
 
 @dataclass(frozen=True, slots=True)
@@ -131,7 +115,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem, by_cost: bo
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
            rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
-           nearest: int | None = 3, work: _Work | None = None, given=(), opened=()) -> Design:
+           nearest: int | None = 3, work: Runs | None = None, given=(), opened=()) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
@@ -154,7 +138,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     if spec.topology == AUTO_TOPOLOGY:
         return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
                             progress=progress, nearest=nearest,
-                            work=work if work is not None else _Work(MAX_TRANSIENT), given=given,   # one budget
+                            work=work if work is not None else Runs(MAX_TRANSIENT), given=given,   # one budget
                             opened=opened)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
@@ -180,7 +164,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         # the parts allowed cannot make the oscillator at all: the families that would, and
         # the why-not of the spec with them allowed
         wide = widened(spec, catalog, kinds, partial(_bare, catalog=catalog, stock=stock, seed=seed,
-                                                     work=_Work(REFUSAL_TRANSIENT)), as_user, early[0])
+                                                     work=Runs(REFUSAL_TRANSIENT)), as_user, early[0])
         if wide is not None:
             raise InfeasibleError("\n".join([early[0], *wide[0]]), tuple(dict.fromkeys(early[1] + wide[1])))
     swung = early is not None and early[1] == ("amplitude.target",)   # (no allowed op-amp swings it)
@@ -199,7 +183,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     timings["setup"] = t1 - t0
     verified: list[Ranked] = []
     budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
-    work = work if work is not None else _Work(MAX_TRANSIENT)
+    work = work if work is not None else Runs(MAX_TRANSIENT)
     searched, t_search = 0, 0.0
     held: set = set()   # the configurations verified to pass: one design each is shown
     tried: set = set()  # (signature, values) of every candidate verified
@@ -251,7 +235,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         return (d.signature not in held and d.signature != c.signature and _key(d) not in tried
                                 and d.yield_est >= pool.floor)
 
-                    r = ahead.verify(c, pool, searcher.simulate, next_taken, work.take)
+                    r = ahead.verify(c, pool, searcher.simulate, next_taken, work)
                     if r is None:
                         work.skipped += 1
                         attempts += SKIP_WEIGHT - 1
@@ -284,8 +268,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
         notes += (f"{work.skipped} candidates not verified: they needed transient runs (an op-amp out of its linear "
-                  f"range: swing, slew or current limited) after the {MAX_TRANSIENT} such runs a design "
-                  "allows",)
+                  f"range: swing, slew or current limited), more than were left of the {MAX_TRANSIENT} such runs a "
+                  "design allows",)
     return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
 
 
@@ -379,7 +363,7 @@ def _control_may_help(verified: list[Ranked], spec: Spec) -> bool:
     return False
 
 
-def _bare(s: Spec, keys=None, *, catalog: Catalog, stock, seed: int, work: _Work) -> list[Bom]:
+def _bare(s: Spec, keys=None, *, catalog: Catalog, stock, seed: int, work: Runs) -> list[Bom]:
     """The passing BOMs of a design run that only proposes (SAMPLES builds, a small
     verification budget, a bare refusal): what a refusal's analysis reads. A spec with
     every relaxable requirement at its loose value gets the design's whole budget: a
@@ -395,7 +379,7 @@ def _bare(s: Spec, keys=None, *, catalog: Catalog, stock, seed: int, work: _Work
 def _whole(s: Spec, opened, *, catalog: Catalog, stock, seed: int, samples: int, nearest: int) -> None:
     """Design s as the user's command would (its own builds and transient runs; a
     refusal raises), with what a refusal opened or moved (its why-not does no more)."""
-    design(s, catalog, stock=stock, results=1, samples=samples, seed=seed, nearest=nearest, work=_Work(MAX_TRANSIENT),
+    design(s, catalog, stock=stock, results=1, samples=samples, seed=seed, nearest=nearest, work=Runs(MAX_TRANSIENT),
            opened=opened)
 
 
@@ -408,7 +392,7 @@ def _refusal(spec: Spec, catalog: Catalog, stock, problem: Problem, searcher: Se
     seed, so that the relaxed spec's verification of the same BOM agrees with it (a
     yield just at its limit at 4,000 builds can miss it at 20,000). Where no allowed
     design oscillates, the families that would (:mod:`partpick.opening`)."""
-    work = _Work(REFUSAL_TRANSIENT)   # shared by every run of the analysis
+    work = Runs(REFUSAL_TRANSIENT)   # shared by every run of the analysis
     done: dict = {}   # the runs made, by (spec, ranking)
 
     def fresh(job) -> list[Bom]:
@@ -523,8 +507,8 @@ def _refined(c: Candidate, spec: Spec, catalog: Catalog, problem: Problem, searc
 
 def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem, samples: int, seed: int,
             fixed, transient=True) -> Ranked | None:
-    """The candidate verified; None when an operating point needs a transient run that
-    ``transient`` (as :func:`partpick.verify.predict` takes it) does not allow."""
+    """The candidate verified; None when its operating points need transient runs that
+    ``transient`` (as :func:`partpick.points.predict_points` takes it) does not allow."""
     try:
         r = evaluate_bom(candidate_bom(c, spec, problem, fixed), spec, catalog, stock, samples=samples, seed=seed,
                          transient=transient)
@@ -536,11 +520,11 @@ def _verify(c: Candidate, spec: Spec, catalog: Catalog, stock, problem: Problem,
 def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples: int = 20_000,
                  seed: int = 1, transient=True) -> Ranked:
     """Verify one BOM exactly (physics at every operating point, Monte Carlo yield) as a
-    ranked item (``transient`` as :func:`partpick.verify.predict` takes it: raise
+    ranked item (``transient`` as :func:`partpick.points.predict_points` takes it: raise
     NeedsTransient rather than simulate where it says no)."""
     circuit = bom.to_circuit(catalog)
     tol, tc, rating = part_data(bom, catalog)
-    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=_points(circuit, spec, transient))
+    v = verify(circuit, spec, tolerances=tol, tempcos=tc, ratings=rating, points=points(circuit, spec, transient))
     mc = wc = None
     if v.nominal.starts:
         v, mc, wc = with_yield(v, circuit, bom, catalog, spec, samples=samples, seed=seed)
@@ -551,26 +535,6 @@ def evaluate_bom(bom: Bom, spec: Spec, catalog: Catalog, stock=None, *, samples:
     # the worse of the loads the spec requires THD at (an unused output's is shown, not counted)
     thd = max((c.value for c in v.checks if c.name.startswith("THD at ") and c.high is not None), default=math.nan)
     return Ranked(bom, circuit, v, freq_err, amp_err, thd, cost, parts, 0.0, None, mc, wc)
-
-
-_POINTS: dict = {}   # predictions by (circuit, operating points): the why-not's runs judge one BOM often
-
-
-def _points(circuit, spec: Spec, transient=True) -> dict:
-    """The predictions at the spec's operating points (shared by specs that differ
-    only in their limits: the physics does not read them)."""
-    from partpick.verify import predict
-
-    conds = operating_conditions(spec)
-    key = (circuit, tuple(conds.items()))
-    if key not in _POINTS:
-        if len(_POINTS) > 256:
-            _POINTS.clear()
-        nominal = predict(circuit, conds["nominal"], transient=transient)
-        _POINTS[key] = {name: nominal if name == "nominal" else predict(circuit, cond, near=nominal,
-                                                                          transient=transient)
-                        for name, cond in conds.items()}
-    return dict(_POINTS[key])
 
 
 def netlist_text(bom: Bom, spec: Spec, catalog: Catalog, cycles: float | None = None) -> str:

@@ -135,20 +135,20 @@ class Verdict:
 
 
 def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None,
-            near: OperatingPoint | None = None, transient=True) -> OperatingPoint:
+            near: OperatingPoint | None = None, transient: bool = True, analysed=None) -> OperatingPoint:
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
     ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
     balance starts this one's Newton iteration (the answer is the same, only sooner);
-    ``transient``: False, or a callable (a budget) that says no before a run, raises
-    NeedsTransient where a transient run would be needed."""
-    loop, lin, hb = settled(c, cond, near.balance if near is not None else None)
+    ``analysed``: the point's (loop, linear result, balance) already found (``settled``);
+    ``transient`` False raises NeedsTransient where a transient run would be needed."""
+    loop, lin, hb = analysed or settled(c, cond, near.balance if near is not None else None)
     lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
     if hb is not None and hb.converged and hb.regime == "limiter":
         return _from_balance(cond, lin, hb, lo, hi)
-    if not transient or (callable(transient) and not transient()):
+    if not transient:
         raise NeedsTransient
     return _from_transient(c, cond, lin, loop, lo, hi, transient_cycles)
 

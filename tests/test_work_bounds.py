@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 
 import partpick.pipeline as pipeline
+import partpick.points as points
 from partpick.inputs import load_inputs
 from partpick.physics.junction import Junction
 from tests.conftest import CATALOGS, SPECS
@@ -62,32 +63,36 @@ def test_candidates_needing_transient_runs_are_skipped_once_the_budget_is_spent(
     assert any("candidates not verified: they needed transient runs" in x for x in d.notes), d.notes
 
 
-def test_the_transient_budget_counts_runs_not_candidates(monkeypatch):
-    """ord-027 again, one transient run allowed: its cheapest candidate needs one at
-    every operating point, so the budget is spent by its first and the candidate is
-    skipped at its second (a candidate used to run all its points once any budget was
-    left: five runs for a budget of one)."""
+def test_a_candidate_spends_transient_runs_only_when_the_budget_affords_all_it_needs(monkeypatch):
+    """ord-027 again: its cheapest candidate needs a transient run at each of its five
+    operating points. With one run allowed it spends none and is skipped (it used to
+    spend the one and be skipped at its second point, leaving nothing for a candidate the
+    one run would have verified), in this process and with the candidates verified ahead
+    in helper processes, which spend the budget in each candidate's turn; with five
+    allowed it is verified by its five runs (and fails: the follower still passes)."""
     from partpick.physics import transient
 
     runs = []
     real = transient.simulate
     monkeypatch.setattr(transient, "simulate", lambda *a, **k: runs.append(1) or real(*a, **k))
-    monkeypatch.setattr(pipeline, "MAX_TRANSIENT", 1)
     spec, cat, stock = load_inputs(COVERAGE / "ord-027.yaml", (str(CATALOGS),))
-    designs = []
-    # in this process (the runs counted here), then with the candidates verified ahead in
-    # helper processes, which spend the budget in each candidate's turn: the same result
-    for workers in ("1", "2"):
+    designs = {}
+    for budget, workers in ((1, "1"), (1, "2"), (5, "1")):
+        monkeypatch.setattr(pipeline, "MAX_TRANSIENT", budget)
         monkeypatch.setenv("PARTPICK_WORKERS", workers)
-        pipeline._POINTS.clear()   # (predictions an earlier run made would need no run)
-        designs.append(pipeline.design(spec, cat, stock=stock, results=1, rank_by=("cost",), samples=2000))
+        points._POINTS.clear()   # (predictions an earlier run made would need no run)
+        runs.clear()
+        designs[budget, workers] = d = pipeline.design(spec, cat, stock=stock, results=1, rank_by=("cost",),
+                                                       samples=2000)
+        assert d.ranked[0].verdict.passed
         if workers == "1":
-            assert len(runs) == 1
-    d = designs[0]
-    assert d.ranked[0].verdict.passed
-    assert any("after the 1 such runs a design allows" in x for x in d.notes), d.notes
-    assert [(r.bom, r.cost) for r in designs[1].ranked] == [(r.bom, r.cost) for r in d.ranked]
-    assert (designs[1].notes, designs[1].verified) == (d.notes, d.verified)
+            assert len(runs) == (0 if budget == 1 else 5)
+    d, ahead, five = designs[1, "1"], designs[1, "2"], designs[5, "1"]
+    assert any("more than were left of the 1 such runs a design allows" in x for x in d.notes), d.notes
+    assert (d.verified, five.verified) == (1, 2)
+    assert not any("candidates not verified" in x for x in five.notes), five.notes
+    assert [(r.bom, r.cost) for r in ahead.ranked] == [(r.bom, r.cost) for r in d.ranked]
+    assert (ahead.notes, ahead.verified) == (d.notes, d.verified)
 
 
 def test_a_refusal_analysed_over_processes_is_the_one_analysed_here(monkeypatch):
