@@ -12,6 +12,7 @@ enough."""
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from partpick.circuits import Circuit, settled
@@ -53,12 +54,17 @@ def predict_points(c: Circuit, conds: dict, runs: "bool | Runs" = True) -> dict[
     answer is the same, only sooner); ``runs``: True (any transient run), False (none) or
     a :class:`Runs` budget, from which the points' runs are all taken before the first;
     NeedsTransient where they are not allowed, with none spent."""
+    left = runs.left if isinstance(runs, Runs) else math.inf if runs else 0
     nominal = settled(c, conds["nominal"])
     start = None if needs_run(nominal) or not nominal[1].starts else nominal[2]
-    analysed = {name: nominal if name == "nominal" else settled(c, cond, start) for name, cond in conds.items()}
-    need = sum(needs_run(a) for a in analysed.values())
-    if need and not (runs.take(need) if isinstance(runs, Runs) else runs):
-        raise NeedsTransient
+    analysed, need = {}, 0
+    for name, cond in conds.items():   # (nominal first: the corners start from it)
+        analysed[name] = a = nominal if name == "nominal" else settled(c, cond, start)
+        need += needs_run(a)
+        if need > left:   # (known as soon as one more is needed than are left: a JFET's balance is dear)
+            raise NeedsTransient
+    if need and isinstance(runs, Runs):
+        runs.take(need)
     return {name: predict(c, conds[name], analysed=a) for name, a in analysed.items()}
 
 
