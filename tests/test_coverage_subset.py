@@ -40,7 +40,9 @@ DATA = Path(__file__).resolve().parent / "data" / "coverage"
 # through it (1.741 against 1.679, 0.889 against 0.864 USD: the amplitude side's rows were
 # chosen by margin alone, so a row without Rd was not matched, and a configuration's
 # cheapest row was chosen by its arm set's cost, not its whole cost, nor was a stage pair
-# sharing Rg's value and line looked for); cov-201 still is (DEARER)
+# sharing Rg's value and line looked for); cov-201 was dearer (1.034 against 0.993 USD) until the
+# refinement of a cost-first candidate kept its stage pair's share of Rg's value and line
+# (Searcher.restage re-picked the pair by the resistance level alone)
 REFUSED_DATA = DATA.parent / "coverage-refused"
 SPECS = sorted(p for d in (DATA, REFUSED_DATA) for p in d.glob("*.yaml") if not p.name.endswith(".bom.yaml"))
 WITH_BOM = [p for p in SPECS if p.with_suffix(".bom.yaml").exists()]
@@ -62,8 +64,6 @@ REFUSED: dict[str, str] = {
 DEARER: dict[str, str] = {
     # (ord-002, ord-005 and ord-052 were dearer through --rank-by cost until the certification judged
     # every candidate left and the pool came in cost order for a cost-first ranking)
-    "cov-201-bridge": "1.034 USD against 0.993: the oracle's buffered stage has Ra = 86.6 ohm, and a "
-                      "buffered stage's pairs start at 1 kohm (search/tables.stage_table)",
 }
 
 

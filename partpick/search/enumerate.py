@@ -559,7 +559,12 @@ class Searcher:
         if now.size == 0:
             return None
         # (amp_v is the target before any coupling capacitor: the measured load's over its loss)
-        j = int(table.pick(np.array([math.log(now[0] * self.problem.amp_v * self.problem.load_gain / load_peak_v)]))[0])
+        want = np.array([math.log(now[0] * self.problem.amp_v * self.problem.load_gain / load_peak_v)])
+        j = int(table.pick(want)[0])
+        if self.cheapest and c.families.get("rg") == c.signature[6]:
+            # (as the search chose it: a pair reusing Rg's value, one BOM line less, where one is as good)
+            alt = int(table.sharing(want, c.values["rg"])[0])
+            j = alt if alt >= 0 else j
         if (table.ra[j], table.rb[j]) == (ra, rb):
             return None
         return float(table.ra[j]), float(table.rb[j])
