@@ -43,6 +43,7 @@ class Candidate:
     simulated: bool = False     # yield_est comes from the Monte Carlo model, not the closed form
     control: str = ""           # the amplitude control's registry name ("": the problem's limiter control)
     freq_sigma: float = 0.0     # relative spread of the frequency from the arm families (0: not known)
+    r_gnd: float = 0.0          # the gain network's fixed resistor, ohm (0: not one of the search's levels)
 
     def key(self) -> tuple:
         """The search's own order: estimated yield to YIELD_STEP, then cost."""
@@ -116,7 +117,8 @@ class Batch:
         return Candidate(signature, values, families, parts, kind, float(self.err[i]),
                          tuple(float(x) for x in self.load[:, i]), float(self.osc[i]), float(self.thd[i]),
                          float(self.m[i]), float(self.y[i]), float(self.cost[i]), float(self.s_amp[i]),
-                         float(self.s_thd[i]), float(self.pull[i]), freq_sigma=s.problem.freq_sigma(rfa, cfa))
+                         float(self.s_thd[i]), float(self.pull[i]), freq_sigma=s.problem.freq_sigma(rfa, cfa),
+                         r_gnd=self.r_gnd)
 
 
 def on_shelf(c: Candidate, shelf, builds: int) -> bool:

@@ -550,7 +550,8 @@ class Searcher:
 
     def restage(self, c: Candidate, load_peak_v: float) -> tuple[float, float] | None:
         """The stage pair whose ratio brings the measured load amplitude (V peak) to the
-        target (_StageTable.pick); None when that is the present pair."""
+        target, chosen as the search chose it (StageTable.choose: for a cost-first ranking a
+        pair reusing Rg's value where one is as good); None when that is the present pair."""
         table = self.stage_tables.get((c.stage, c.signature[6]))
         if table is None or len(table) == 0 or load_peak_v <= 0:
             return None
@@ -559,12 +560,9 @@ class Searcher:
         if now.size == 0:
             return None
         # (amp_v is the target before any coupling capacitor: the measured load's over its loss)
-        want = np.array([math.log(now[0] * self.problem.amp_v * self.problem.load_gain / load_peak_v)])
-        j = int(table.pick(want)[0])
-        if self.cheapest and c.families.get("rg") == c.signature[6]:
-            # (as the search chose it: a pair reusing Rg's value, one BOM line less, where one is as good)
-            alt = int(table.sharing(want, c.values["rg"])[0])
-            j = alt if alt >= 0 else j
+        share = c.r_gnd if self.cheapest and c.r_gnd > 0 and c.signature[4] == c.signature[6] else None
+        j = int(table.choose(np.array([math.log(now[0] * self.problem.amp_v * self.problem.load_gain / load_peak_v)]),
+                             share)[0])
         if (table.ra[j], table.rb[j]) == (ra, rb):
             return None
         return float(table.ra[j]), float(table.rb[j])
@@ -583,10 +581,8 @@ class Searcher:
             with np.errstate(invalid="ignore", divide="ignore"):
                 want = np.log(self.problem.amp_v / np.sqrt(amp["vo"][0] * amp["vo"][2]))
             self._stages[id(amp), "want"] = (want, np.argsort(np.where(np.isfinite(want), want, 0.0), kind="stable"))
-        pick = table.pick(*self._stages[id(amp), "want"])
-        if share is not None:
-            alt = table.sharing(self._stages[id(amp), "want"][0], share)
-            pick = np.where(alt >= 0, alt, pick)
+        want, order = self._stages[id(amp), "want"]
+        pick = table.choose(want, share, order)
         return table.gains[pick], table.ra[pick], table.rb[pick]
 
 

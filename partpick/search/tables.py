@@ -176,6 +176,16 @@ class StageTable:
         out[order] = got
         return out
 
+    def choose(self, want: np.ndarray, share: float | None = None, order: np.ndarray | None = None) -> np.ndarray:
+        """Index of the pair for each wanted ln gain (pick, ``order`` as it takes it), a
+        pair reusing the value ``share`` (ohm: Rg's, one BOM line less) first where one is
+        as good (sharing)."""
+        got = self.pick(want, order)
+        if share is None:
+            return got
+        alt = self.sharing(want, share)
+        return np.where(alt >= 0, alt, got)
+
     def sharing(self, want: np.ndarray, value: float) -> np.ndarray:
         """Index of the pair with Ra or Rb equal to value (ohm) whose gain is nearest each
         wanted ln gain, where it lies within STAGE_RES of it (equal for the amplitude);
