@@ -351,17 +351,16 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     """Check ``c`` against every requirement of ``spec``.
 
     tolerances: role -> value tolerance (fraction); tempcos: role -> (nominal, spread)
-    tempco (1/K); ratings: role -> power rating (W). ``points`` reuses predictions
-    already made (by name, see :func:`operating_conditions`).
+    tempco (1/K); ratings: role -> power rating (W). ``points``: the predictions at
+    every operating point (by name, see :func:`operating_conditions`) already made, as
+    :func:`partpick.points.predict_points` makes them where they are not given.
     """
     tolerances, tempcos, ratings = tolerances or {}, tempcos or {}, ratings or {}
     conds = operating_conditions(spec)
-    pts = dict(points or {})
-    if "nominal" not in pts:
-        pts["nominal"] = predict(c, conds["nominal"])
-    for name, cond in conds.items():
-        if name not in pts:
-            pts[name] = predict(c, cond, near=pts["nominal"])
+    if points is None:
+        from partpick.points import predict_points   # (it builds on this module's predict)
+        points = predict_points(c, conds)
+    pts = dict(points)
     nom = pts["nominal"]
     checks: list[Check] = []
     cautions: list[str] = []
