@@ -61,7 +61,7 @@ CACHE = HERE / ".cache" / "coverage_oracle.json"
 CATALOGS = Path(os.environ.get("PARTPICK_CATALOGS", ROOT / "catalogs"))   # the oracle's and partpick's
 # bump when the oracle changes what it finds (2: looks for the cheapest pass; 3: a mid-rail
 # decoupling sized for Rg and the stage, not for the bias divider); labels carry theirs
-ORACLE_VERSION = 6   # 6: check counts the mid-rail node's ripple at the load; 5: arm resistors within the bias-drop rule check judges; 4: the op-amp's output current judged at the spec's derating share (as check now does)
+ORACLE_VERSION = 7   # 7: check reads a transient point's swing and slew at the op-amp's internal node, as harmonic balance does; 6: check counts the mid-rail node's ripple at the load; 5: arm resistors within the bias-drop rule check judges; 4: the op-amp's output current judged at the spec's derating share (as check now does)
 SPICE_THD_FACTOR = 1.5      # tests/test_ngspice_agreement.py's THD agreement factor
 MEASURED = re.compile(r"partpick measured: frequency (\S+) Hz, amplitude at the load (\S+) V peak")
 THD = re.compile(r"THD:\s*([\d.eE+-]+)\s*%")

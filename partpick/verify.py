@@ -184,9 +184,10 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
     currents = tuple(f"iout:{a.name}" for a in loop.amps)
+    internal = tuple(f"x:{a.name}" for a in loop.amps)
     try:
         res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
-                       record=("osc", "load", *loop.outputs, *currents), settled=ENVELOPE_SETTLED)
+                       record=("osc", "load", *loop.outputs, *internal, *currents), settled=ENVELOPE_SETTLED)
     except RuntimeError:   # no DC operating point to start from: not a circuit that runs here
         res = None
     osc, load = (res.stats("osc"), res.stats("load")) if res is not None else (None, None)
@@ -195,18 +196,19 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
                               0.0, 0.0, 0.0, "transient", "no startup")
     ref = cond.rails(c.supply_kind)[2]
     n = 20 * POINTS_PER_CYCLE  # the last 20 cycles, as the waveform analysis takes
-    t, vo = res.t_s[-n:], res.v["osc"][-n:] - ref
+    t = res.t_s[-n:]
     ios = [res.v[name][-n:] for name in currents]   # every channel's current counts
-    slew = float(np.max(np.abs(np.gradient(vo, t))))
+    xs = [res.v[name][-n:] - ref for name in internal]
+    # every channel's swing and slew at its node x, which the output clamp holds, as harmonic balance
+    # reads them (loop_figures): the pin sits inside the clamp by the drop across Ro, hiding clipping
+    x_min, x_max = min(float(x.min()) for x in xs), max(float(x.max()) for x in xs)
+    slew = max(float(np.max(np.abs(np.gradient(x, t)))) for x in xs)
     iout, iout_rms = max(float(np.max(np.abs(i))) for i in ios), max(float(np.sqrt(np.mean(i ** 2))) for i in ios)
     outs = {name: _output_point(st.peak_v, st.thd_frac, relative_fundamental(res.t_s, res.v["load"], res.v[name]))
             for name in loop.outputs if (st := res.stats(name)) is not None}
-    # Within 3 % of the span from a swing limit counts as clipping (the output sits a
-    # little inside the internal clamp by the drop across Ro).
-    regime = opamp_regime(c.opamp, float(vo.min()), float(vo.max()), slew, (lo, hi), near_v=0.03 * (hi - lo))
+    regime = opamp_regime(c.opamp, x_min, x_max, slew, (lo, hi), iout_peak_a=iout)
     return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
-                          float(vo.min()), float(vo.max()), lo, hi, slew, iout, iout_rms, "transient", regime,
-                          outputs=outs)
+                          x_min, x_max, lo, hi, slew, iout, iout_rms, "transient", regime, outputs=outs)
 
 
 def settling_of(c: Circuit, p: OperatingPoint, band_rel: tuple[float, float] | None = None,

@@ -151,3 +151,46 @@ def test_the_mid_rail_ripple_reaches_the_load_as_in_ngspice(demo_catalog):
     assert 0.095 < st.peak_v < 0.115
     ideal = predict(circuit.with_values(bias_c=1.0), cond)
     assert ideal.load_peak_v == pytest.approx(0.0572, rel=0.02)
+
+
+@pytest.mark.ngspice
+@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+def test_a_saturated_output_stage_is_clipping_as_in_ngspice(demo_catalog):
+    """Coverage requirement 64's brute-force BOM at its minimum supply (2.97 V): a
+    micropower op-amp (Ro 2 kohm) drives a 1.5 kohm divider and a 3.7 kohm gain network.
+    In ngspice its internal node x (the macro-model's clamp node, read inside the
+    subcircuit instance) sits on the clamp, the rails less the 20 mV headroom, while its
+    pin swings about 0.5 V peak, a volt inside them: the output stage saturates every
+    cycle. partpick's transient run says the same (x within 1 mV of the clamp, the pin's
+    amplitude within 3 % of ngspice's), and check fails the swing headroom at the minimum
+    supply as clipping (it passed while the run read the swing at the pin)."""
+    from partpick.bom import load_bom
+    from partpick.physics.netlist import OpAmpX
+    from partpick.pipeline import evaluate_bom
+    from partpick.spec import Spec
+    from partpick.verify import cycles_to_settle, operating_conditions
+    from tests.conftest import ROOT
+
+    data = ROOT / "tests" / "data"
+    spec = Spec.from_text((data / "clamped-micro-3v3.yaml").read_text())
+    bom = load_bom(data / "clamped-micro-3v3-bom.yaml", demo_catalog)
+    circuit = bom.to_circuit(demo_catalog)
+    cond = operating_conditions(spec)["supply min"]
+    point = predict(circuit, cond)
+    assert point.method == "transient" and point.regime == "swing"
+    lo, hi = point.swing_low_v, point.swing_high_v
+    assert 0 <= point.x_max_v - hi < 1e-3 and 0 <= lo - point.x_min_v < 1e-3
+    net = build_netlist(circuit, cond)
+    amp = next(el.name for el in net.elements if isinstance(el, OpAmpX) and el.out == net.probes["osc"])
+    t, v = run_ngspice(net, cycles=cycles_to_settle(circuit, point, point.osc_peak_v),
+                       probes=("osc", "load", f"x:{amp}"))
+    tail = t >= t[-1] - 20 / point.freq_hz
+    x = v[f"x:{amp}"][tail] - cond.rails(circuit.supply_kind)[2]
+    assert x.max() == pytest.approx(hi, abs=5e-3) and x.min() == pytest.approx(lo, abs=5e-3)
+    st = analyse(t, v["osc"])
+    assert st is not None and st.settled
+    assert st.peak_v == pytest.approx(point.osc_peak_v, rel=0.03)
+    assert st.peak_v < hi - 0.9                    # the pin a volt inside the clamp
+    r = evaluate_bom(bom, spec, demo_catalog, None)
+    head = next(ck for ck in r.verdict.checks if ck.name == "output swing headroom at minimum supply")
+    assert not head.passed and head.note == "clipping"

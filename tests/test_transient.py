@@ -298,3 +298,33 @@ def test_a_steady_sine_off_the_hinted_frequency_settles(ratio):
     watch = EnvelopeWatch(y, ppc, ENVELOPE_SETTLED)
     at = next((c for c in range(1, 120) if watch.settled(c * ppc)), None)
     assert at is not None and at <= 2 * SETTLE_BLOCK + 1
+
+
+def test_transient_reads_the_swing_where_harmonic_balance_does(demo_catalog):
+    """Both methods read an op-amp's swing and slew at its internal node x, the node its
+    output clamp holds (partpick.physics.opamp.loop_figures; the SPICE card's BCL line).
+    Coverage requirement 64's brute-force BOM at 50 degC, a point harmonic balance solves:
+    a micropower op-amp (Ro 2 kohm) drives a 1.5 kohm divider and a 3.7 kohm gain network,
+    so its pin swings about a third of x (the drop across Ro). A transient run gives
+    harmonic balance's x and slew to 1 % (the pin's own excursion, which the run reported
+    before, is 0.54 V against x's 1.56 V)."""
+    from partpick.bom import load_bom
+    from partpick.circuits import settled
+    from partpick.physics.opamp import swing_limits
+    from partpick.spec import Spec
+    from partpick.verify import _from_transient, operating_conditions, predict
+    from tests.conftest import ROOT
+
+    data = ROOT / "tests" / "data"
+    spec = Spec.from_text((data / "clamped-micro-3v3.yaml").read_text())
+    c = load_bom(data / "clamped-micro-3v3-bom.yaml", demo_catalog).to_circuit(demo_catalog)
+    cond = operating_conditions(spec)["temp max"]
+    hb = predict(c, cond)
+    assert hb.method == "harmonic balance" and hb.regime == "limiter"
+    loop, lin, _ = settled(c, cond)
+    tr = _from_transient(c, cond, lin, loop, *swing_limits(c.opamp, cond.rails(c.supply_kind)), None)
+    assert tr.regime == "limiter"
+    assert tr.x_max_v == pytest.approx(hb.x_max_v, rel=0.01) and tr.x_min_v == pytest.approx(hb.x_min_v, rel=0.01)
+    assert tr.slew_v_per_s == pytest.approx(hb.slew_v_per_s, rel=0.01)
+    assert tr.osc_peak_v == pytest.approx(hb.osc_peak_v, rel=0.01)
+    assert tr.osc_peak_v < 0.4 * tr.x_max_v        # the pin: a third of x

@@ -297,7 +297,8 @@ def to_spice(netlist: Netlist, *, cycles: float = 100, points_per_cycle: int = 2
     netlist.f_hint_hz (Hz), time step and maximum step 1/(f_hint points_per_cycle) s.
 
     ``probes`` are keys of netlist.probes whose nodes are written when ``data_file``
-    (a path) is given: a ``.control`` block then runs the analysis, writes one time
+    (a path) is given, or ``x:NAME`` for the internal node x of op-amp NAME (the node
+    its output clamp holds, inside the subcircuit instance): a ``.control`` block then runs the analysis, writes one time
     column (s) and one voltage column (V) per probe with ``wrdata`` and quits (batch
     use by :mod:`partpick.physics.ngspice`). Without data_file the text is a plain
     netlist for the user's own simulator session. ``uniform`` (data_file only) writes
@@ -347,7 +348,11 @@ def to_spice(netlist: Netlist, *, cycles: float = 100, points_per_cycle: int = 2
     ]
     if data_file is not None:
         nodes = []
+        amps = {el.name for el in netlist.elements if isinstance(el, OpAmpX)}
         for key in probes:
+            if key.startswith("x:") and key[2:] in amps:
+                nodes.append(f"v({_check_node(_designator('X', key[2:]))}.x)")
+                continue
             if key not in netlist.probes:
                 raise ValueError(f"unknown probe {key!r}; the netlist has {sorted(netlist.probes)}")
             nodes.append(f"v({_check_node(netlist.probes[key])})")

@@ -450,7 +450,8 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     """Integrate the netlist from its DC operating point for cycles / f_hint seconds.
 
     record: probe names of ``netlist.probes`` (or node names) whose voltages to keep,
-    and ``iout:NAME`` for the output current (A, into the output node) of op-amp NAME.
+    ``x:NAME`` for op-amp NAME's node x (V, the node its output clamp holds), ``iout:NAME``
+    for its output current (A, into the output node).
     Steps of h = 1 / (f_hint points_per_cycle); BDF2 with Newton at each step.
 
     settled: a fraction: the run ends ``tail_cycles`` after the first probe's envelope
@@ -465,10 +466,14 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     probe_idx: dict[str, int | None] = {}
     currents: list[tuple[str, tuple]] = []
     for name in record:
-        if name.startswith("iout:"):
-            if name[5:] not in sysm.op_names:
-                raise ValueError(f"transient: unknown op-amp {name[5:]!r}")
-            currents.append((name, sysm.ops[sysm.op_names[name[5:]]]))
+        kind, _, op_name = name.partition(":")
+        if kind in ("iout", "x") and op_name:
+            if op_name not in sysm.op_names:
+                raise ValueError(f"transient: unknown op-amp {op_name!r}")
+            if kind == "x":   # (a node of its own: recorded as the probes are)
+                probe_idx[name] = sysm.ops[sysm.op_names[op_name]][5]
+            else:
+                currents.append((name, sysm.ops[sysm.op_names[op_name]]))
             continue
         node = netlist.probes.get(name, name)
         if node == "0":
@@ -558,20 +563,18 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
         zp, zc, hp = advance(zp, zc, hp, t0, half, depth + 1)
         return advance(zp, zc, hp, t0 + half, half, depth + 1)
 
-    zc = _operating_point(sysm)
-    zp = None
-    hp: float | None = None
-    for name, k in probe_idx.items():
-        rec[name][0] = 0.0 if k is None else zc[k]
-    rec_items = [(rec[name], k) for name, k in probe_idx.items() if k is not None]
+    zc, zp, hp = _operating_point(sysm), None, None
+    rec_items = [(rec[name], k) for name, k in probe_idx.items() if k is not None]   # (ground's stay 0)
     # output current of an op-amp: ilim tanh((v_y - v_out) / (Ro ilim)), as stamped
     cur_items = [(rec[name], op[2], op[6], op[13], op[14]) for name, op in currents]
 
-    def record_currents(step: int, z: np.ndarray) -> None:
+    def keep(step: int, z: np.ndarray) -> None:
+        for arr, k in rec_items:
+            arr[step] = z[k]
         for arr, io, iy, k_out, ilim in cur_items:
             arr[step] = ilim * math.tanh(k_out * (z[iy] - z[io]))
 
-    record_currents(0, zc)
+    keep(0, zc)
     bps = [b for b in sysm.breakpoints if 0.0 <= b < t[-1]]
     snap = 1e-3 * h
     end, first = steps, probe_idx.get(record[0])   # (the probe the envelope is watched at: a node, not ground)
@@ -585,16 +588,12 @@ def simulate(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
         inner = [b for b in bps if t0 + snap < b < t1 - snap] if bps else []
         for b in inner:              # a source edge inside the step: step to it, restart
             zp, zc, hp = advance(zp, zc, hp, t0, b - t0, 0)
-            zp, hp = None, None
-            t0 = b
+            zp, hp, t0 = None, None, b
         # the regular step is exactly h (so its matrix is cached); t1 - t0 after a split
         zp, zc, hp = advance(zp, zc, hp, t0, t1 - t0 if inner else h, 0)
         if bps and any(abs(b - t1) <= snap for b in bps):
             zp, hp = None, None      # a source edge at the step end: restart with backward Euler
-        for arr, k in rec_items:
-            arr[step + 1] = zc[k]
-        if cur_items:
-            record_currents(step + 1, zc)
+        keep(step + 1, zc)
     t, rec = (t[:end + 1], {name: arr[:end + 1] for name, arr in rec.items()}) if end < steps else (t, rec)
     return TransientResult(t_s=t, v=rec, steps_split=stats["split"], newton_iterations=stats["iters"],
                            meta={"h_s": h, "steps": end, "unknowns": n, "settled_early": end < steps})
