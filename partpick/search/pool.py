@@ -86,6 +86,8 @@ class Pool:
         self.placed: list = []      # heap of (key, seq, simulated candidate)
         self._simulated: dict = {}  # (batch, row) -> its candidate simulated (by peek, or in turn)
         self._ranked: tuple = (None, None)   # (what was ranked, the n-th passing): see _nth
+        self._passing: list = []             # the passing ones of the first _scanned verified
+        self._scanned = 0
         self._freq_res = 0.0                 # the least frequency-error resolution of those passing
         # a candidate the caller leaves out whatever its yield (set by the caller, a
         # predicate): dropped as it comes up, before its Monte Carlo model is run
@@ -202,7 +204,13 @@ class Pool:
     def _nth(self, verified: list[Ranked], n: int, rank_by) -> Ranked | None:
         """The n-th best of the candidates verified that pass (None: fewer pass), ranked
         again only when more have passed (the list only grows)."""
-        passing = [r for r in verified if r.verdict.passed]
+        if len(verified) < self._scanned:   # (another list: read from the start)
+            self._passing, self._scanned = [], 0
+        # (the list only grows: a verdict's pass is read once, not at every candidate the pool
+        # weighs, 1,200 of them for 40 verified)
+        self._passing += [r for r in verified[self._scanned:] if r.verdict.passed]
+        self._scanned = len(verified)
+        passing = self._passing
         if self._ranked[0] != (len(passing), n, tuple(rank_by)):
             ranked = rank(passing, rank_by)
             self._ranked = ((len(passing), n, tuple(rank_by)), ranked[n - 1] if len(ranked) >= n else None)
