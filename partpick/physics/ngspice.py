@@ -40,10 +40,11 @@ def run_ngspice(netlist: Netlist, *, cycles: float, points_per_cycle: int = 200,
     Returns (time_s, {"osc": v_osc, "load": v_load, ...}): time in s, voltages in V at
     the netlist's probe nodes named in ``probes`` (default 'osc' and 'load'; 'load2',
     a second output's load, where the netlist has one; 'x:NAME', the internal node of
-    op-amp NAME that its output clamp holds: :func:`partpick.physics.spice.to_spice`). With ``uniform`` (default) the points lie
-    on the grid 0, dt, 2 dt, ... with dt = 1/(f_hint points_per_cycle) s (ngspice's
-    ``linearize``: linear interpolation of the accepted time points, which are at
-    most dt apart); otherwise ngspice's own, uneven time points are returned.
+    op-amp NAME that its output clamp holds: :func:`partpick.physics.spice.to_spice`).
+    With ``uniform`` (default) the points lie on the grid 0, dt, 2 dt, ... with dt =
+    1/(f_hint points_per_cycle) s (ngspice's ``linearize``: linear interpolation of the
+    accepted time points, which are at most dt apart); otherwise ngspice's own, uneven
+    time points are returned.
 
     Raises RuntimeError, with the tail of ngspice's output, when ngspice is missing,
     fails, exceeds timeout_s (s), stops before the end of the run or writes no data.

@@ -298,10 +298,10 @@ def to_spice(netlist: Netlist, *, cycles: float = 100, points_per_cycle: int = 2
 
     ``probes`` are keys of netlist.probes whose nodes are written when ``data_file``
     (a path) is given, or ``x:NAME`` for the internal node x of op-amp NAME (the node
-    its output clamp holds, inside the subcircuit instance): a ``.control`` block then runs the analysis, writes one time
-    column (s) and one voltage column (V) per probe with ``wrdata`` and quits (batch
-    use by :mod:`partpick.physics.ngspice`). Without data_file the text is a plain
-    netlist for the user's own simulator session. ``uniform`` (data_file only) writes
+    its output clamp holds, inside the subcircuit instance): a ``.control`` block then
+    runs the analysis, writes one time column (s) and one voltage column (V) per probe
+    with ``wrdata`` and quits (batch use by :mod:`partpick.physics.ngspice`). Without
+    data_file the text is a plain netlist for the user's own simulator session. ``uniform`` (data_file only) writes
     the data on the uniform grid of the time step (ngspice ``linearize``: linear
     interpolation of the accepted points, which lie at most one step apart) instead
     of at the simulator's own time points.
