@@ -23,7 +23,7 @@ from partpick.derating import bias_r_max, package_limit
 from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
 from partpick.physics.linear import LinearResult
-from partpick.physics.opamp import class_b_loss, power_factor, regime as opamp_regime, swing_limits
+from partpick.physics.opamp import class_b_loss, loop_figures, power_factor, swing_limits
 from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin",
@@ -194,19 +194,17 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     if osc is None or load is None:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "transient", "no startup")
-    ref = cond.rails(c.supply_kind)[2]
+    rails = cond.rails(c.supply_kind)
     n = 20 * POINTS_PER_CYCLE  # the last 20 cycles, as the waveform analysis takes
     t = res.t_s[-n:]
-    ios = [res.v[name][-n:] for name in currents]   # every channel's current counts
-    xs = [res.v[name][-n:] - ref for name in internal]
-    # every channel's swing and slew at its node x, which the output clamp holds, as harmonic balance
-    # reads them (loop_figures): the pin sits inside the clamp by the drop across Ro, hiding clipping
-    x_min, x_max = min(float(x.min()) for x in xs), max(float(x.max()) for x in xs)
-    slew = max(float(np.max(np.abs(np.gradient(x, t)))) for x in xs)
-    iout, iout_rms = max(float(np.max(np.abs(i))) for i in ios), max(float(np.sqrt(np.mean(i ** 2))) for i in ios)
+    # every channel's swing, slew and current by harmonic balance's rule (the swing at node x,
+    # which the output clamp holds: the pin sits inside it by the drop across Ro, hiding clipping)
+    series = {a.x: res.v[f"x:{a.name}"][-n:] - rails[2] for a in loop.amps}
+    series.update({a.iout: res.v[f"iout:{a.name}"][-n:] for a in loop.amps})
+    regime, (x_min, x_max, slew, iout, iout_rms) = loop_figures(loop.amps, rails, series.__getitem__,
+                                                                 lambda s: s, lambda s: np.gradient(s, t))
     outs = {name: _output_point(st.peak_v, st.thd_frac, relative_fundamental(res.t_s, res.v["load"], res.v[name]))
             for name in loop.outputs if (st := res.stats(name)) is not None}
-    regime = opamp_regime(c.opamp, x_min, x_max, slew, (lo, hi), iout_peak_a=iout)
     return OperatingPoint(cond, lin, True, osc.freq_hz, osc.peak_v, load.peak_v, osc.thd_frac, load.thd_frac,
                           x_min, x_max, lo, hi, slew, iout, iout_rms, "transient", regime, outputs=outs)
 
