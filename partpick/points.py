@@ -43,9 +43,9 @@ class Runs:
 def needs_run(analysed: tuple) -> bool:
     """Whether a point's (loop, linear result, balance) leaves its oscillation to a
     transient run: it starts, and no converged harmonic balance in the limiter's regime
-    holds there (as :func:`partpick.verify.predict` decides)."""
+    holds there (``BalanceResult.holds``, as :func:`partpick.verify.predict` decides)."""
     _, lin, hb = analysed
-    return lin.starts and not (hb is not None and hb.converged and hb.regime == "limiter")
+    return lin.starts and not (hb is not None and hb.holds)
 
 
 def predict_points(c: Circuit, conds: dict, runs: "bool | Runs" = True) -> dict[str, OperatingPoint]:

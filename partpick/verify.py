@@ -134,19 +134,18 @@ class Verdict:
         return tuple(c for c in self.checks if not c.is_info)
 
 
-def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None,
-            near: OperatingPoint | None = None, transient: bool = True, analysed=None) -> OperatingPoint:
+def predict(c: Circuit, cond: Conditions, *, transient_cycles: float | None = None, transient: bool = True,
+            analysed=None) -> OperatingPoint:
     """Predict the settled oscillation of ``c`` at ``cond`` (see module docstring);
-    ``near``: the same circuit's prediction at a neighbouring point, whose harmonic
-    balance starts this one's Newton iteration (the answer is the same, only sooner);
-    ``analysed``: the point's (loop, linear result, balance) already found (``settled``);
+    ``analysed``: the point's (loop, linear result, balance) already found (``settled``,
+    which may start the balance from a neighbouring point's: the same answer, sooner);
     ``transient`` False raises NeedsTransient where a transient run would be needed."""
-    loop, lin, hb = analysed or settled(c, cond, near.balance if near is not None else None)
+    loop, lin, hb = analysed or settled(c, cond)
     lo, hi = swing_limits(c.opamp, cond.rails(c.supply_kind))
     if not lin.starts:
         return OperatingPoint(cond, lin, False, math.nan, 0.0, 0.0, math.nan, math.nan, 0.0, 0.0, lo, hi,
                               0.0, 0.0, 0.0, "none", "no startup")
-    if hb is not None and hb.converged and hb.regime == "limiter":
+    if hb is not None and hb.holds:
         return _from_balance(cond, lin, hb, lo, hi)
     if not transient:
         raise NeedsTransient
@@ -183,11 +182,11 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
 
     net = build_netlist(c, cond)
     cycles = cycles or transient_cycles_for(lin, c.f0_hz)
-    currents = tuple(f"iout:{a.name}" for a in loop.amps)
-    internal = tuple(f"x:{a.name}" for a in loop.amps)
+    # every channel's node x and output current, under harmonic balance's probe names
+    probes = {**{a.x: f"x:{a.name}" for a in loop.amps}, **{a.iout: f"iout:{a.name}" for a in loop.amps}}
     try:
         res = simulate(net, cycles=cycles, points_per_cycle=POINTS_PER_CYCLE,
-                       record=("osc", "load", *loop.outputs, *internal, *currents), settled=ENVELOPE_SETTLED)
+                       record=("osc", "load", *loop.outputs, *probes.values()), settled=ENVELOPE_SETTLED)
     except RuntimeError:   # no DC operating point to start from: not a circuit that runs here
         res = None
     osc, load = (res.stats("osc"), res.stats("load")) if res is not None else (None, None)
@@ -199,8 +198,8 @@ def _from_transient(c, cond, lin, loop, lo, hi, cycles) -> OperatingPoint:
     t = res.t_s[-n:]
     # every channel's swing, slew and current by harmonic balance's rule (the swing at node x,
     # which the output clamp holds: the pin sits inside it by the drop across Ro, hiding clipping)
-    series = {a.x: res.v[f"x:{a.name}"][-n:] - rails[2] for a in loop.amps}
-    series.update({a.iout: res.v[f"iout:{a.name}"][-n:] for a in loop.amps})
+    xs = {a.x for a in loop.amps}
+    series = {p: res.v[name][-n:] - (rails[2] if p in xs else 0.0) for p, name in probes.items()}
     regime, (x_min, x_max, slew, iout, iout_rms) = loop_figures(loop.amps, rails, series.__getitem__,
                                                                  lambda s: s, lambda s: np.gradient(s, t))
     outs = {name: _output_point(st.peak_v, st.thd_frac, relative_fundamental(res.t_s, res.v["load"], res.v[name]))

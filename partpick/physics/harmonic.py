@@ -87,6 +87,12 @@ class BalanceResult:
     freq_per_cap_hz_f: float = math.nan  # d freq_hz / d C for a capacitance C added across the element, Hz/F
     outputs: dict = field(default_factory=dict, compare=False)  # further output -> harmonics 1..K (V)
 
+    @property
+    def holds(self) -> bool:
+        """Whether this answers for its point: converged, with the amplitude control in
+        charge (no op-amp out of its linear range); else a transient run does."""
+        return self.converged and self.regime == "limiter"
+
 
 def _thd(h: np.ndarray) -> float:
     """sqrt(sum |H_k|^2, k = 2..9) / |H_1| (IEC 60268-3 style THD, relative to the fundamental)."""
