@@ -122,7 +122,7 @@ def spread_model(c: Circuit, cond: Conditions) -> AgcSpread | None:
             cj = Circuit(c.topology, c.control, c.values, c.parts.replace(jfet=jfet.with_parameters(vto, beta)),
                          c.stage, c.supply_kind)
             _, lin, hb, _ = solved(cj, cond)
-            ok = hb is not None and hb.converged and hb.regime == "limiter"
+            ok = hb is not None and hb.holds
             ln_amp[i, j] = math.log(hb.osc_peak_v / a0) if ok else 0.0
             thd[i, j] = hb.osc_thd if ok else 1.0
             ln_m[i, j] = math.log1p(max(lin.margin, -0.999)) - m0

@@ -170,7 +170,7 @@ def _reference_balance(topology, lim, rd: float, x: float, control, f_hz: float,
     # (a warm start that fails is started again cold by _row, once)
     hb = harmonic_balance(loop, br, lin, cond.rails("dual"), kmax=11, start=start, escalate=1, cold_retry=False)
     # a solution that collapsed to (almost) nothing is the trivial one, not an oscillation
-    ok = hb is not None and hb.converged and hb.regime == "limiter" and hb.osc_peak_v > 1e-4
+    ok = hb is not None and hb.holds and hb.osc_peak_v > 1e-4
     return hb if ok else None
 
 
