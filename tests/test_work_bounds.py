@@ -89,8 +89,11 @@ def test_a_candidate_spends_transient_runs_only_when_the_budget_affords_all_it_n
             assert len(runs) == (0 if budget == 1 else 5)
     d, ahead, five = designs[1, "1"], designs[1, "2"], designs[5, "1"]
     assert any("more than were left of the 1 such runs a design allows" in x for x in d.notes), d.notes
-    assert (d.verified, five.verified) == (1, 2)
-    assert not any("candidates not verified" in x for x in five.notes), five.notes
+    # (after #1, -n 1 verifies towards the top ten as -n 10 does: pipeline._goals; on 6b2e0b5,
+    # before it, 1 and 2)
+    assert (d.verified, five.verified) == (4, 9)
+    # (with five runs the cheapest spends them all, asserted above; candidates verified after #1,
+    # towards the top ten, may then be skipped for want of runs, so five's notes may say so too)
     assert [(r.bom, r.cost) for r in ahead.ranked] == [(r.bom, r.cost) for r in d.ranked]
     assert (ahead.notes, ahead.verified) == (d.notes, d.verified)
 

@@ -56,7 +56,7 @@ class Pool:
     the Monte Carlo model of its yield before it is taken."""
 
     def __init__(self, batches, cost_first: bool = False, hopeless: float = 0.0, failures: dict | None = None,
-                 demoted: bool = False) -> None:
+                 demoted: bool = False, simulated: dict | None = None) -> None:
         self.batches = batches
         self.cost_first = cost_first
         self.demoted = demoted   # (the kinds' failures order the candidates: DEMOTE_AFTER)
@@ -84,7 +84,9 @@ class Pool:
         self.size = int(src.size)
         self.at = 0
         self.placed: list = []      # heap of (key, seq, simulated candidate)
-        self._simulated: dict = {}  # (batch, row) -> its candidate simulated (by peek, or in turn)
+        # (batch, row) -> its candidate simulated (by peek, or in turn; shared by the pools of
+        # the same batches given the same dict)
+        self._simulated: dict = simulated if simulated is not None else {}
         self._ranked: tuple = (None, None)   # (what was ranked, the n-th passing): see _nth
         self._passing: list = []             # the passing ones of the first _scanned verified
         self._scanned = 0
