@@ -24,19 +24,12 @@ from partpick.physics.envelope import START_V
 from partpick.physics.harmonic import BalanceResult, NeedsTransient, output_figures
 from partpick.physics.linear import LinearResult
 from partpick.physics.opamp import class_b_loss, loop_figures, power_factor, swing_limits
+from partpick.sensitivity import input_capacitance, limiter_capacitance
 from partpick.spec import Spec
 
 __all__ = ["OperatingPoint", "OutputPoint", "Check", "Verdict", "predict", "verify", "worst_case_margin",
            "clipping_supply", "operating_conditions", "transient_cycles_for", "make_check", "package_limit",
-           "TransientSummary", "transient_check", "nominal_spectrum", "CapSensitivity", "capacitance_sensitivity",
-           "CAP_UNCERTAINTY", "settling_of", "cycles_to_settle"]
-
-# How far a catalog's junction charge may be off, as a fraction of the capacitance the
-# control's element presents at its working amplitude: datasheets give typical capacitance
-# curves at best (no limits), the SPICE law is a fit, and plausible parameter sets for one
-# class of part differ by about this much (our assumption: common practice, no published source).
-CAP_UNCERTAINTY = 0.5
-
+           "TransientSummary", "transient_check", "nominal_spectrum", "settling_of", "cycles_to_settle"]
 
 @dataclass(frozen=True, slots=True)
 class OutputPoint:
@@ -297,53 +290,6 @@ def _tempco_drift(c: Circuit, tempcos: dict[str, tuple[float, float]], dt_k: flo
     return lo, hi
 
 
-@dataclass(frozen=True, slots=True)
-class CapSensitivity:
-    """How the settled frequency depends on the capacitance across the amplitude
-    control's element: hz_per_pf (Hz per pF added), frac_per_pf (the same relative to
-    the frequency, 1/pF), cap_eff_f (F, the capacitance the element presents to the
-    fundamental at its working amplitude, Re(Q1 / V1)), movement_frac (the relative
-    frequency change CAP_UNCERTAINTY of cap_eff_f would cause)."""
-
-    hz_per_pf: float
-    frac_per_pf: float
-    cap_eff_f: float
-    movement_frac: float
-
-
-def capacitance_sensitivity(p: OperatingPoint) -> CapSensitivity | None:
-    """The frequency's sensitivity to capacitance across the control's element at the
-    operating point ``p`` (from its harmonic balance:
-    :attr:`partpick.physics.harmonic.BalanceResult.freq_per_cap_hz_f`); None when no
-    harmonic balance solved it."""
-    if not (p.method == "harmonic balance" and math.isfinite(p.freq_per_cap_hz_f)):
-        return None
-    hz_per_pf = p.freq_per_cap_hz_f * 1e-12
-    frac = hz_per_pf / p.freq_hz
-    return CapSensitivity(hz_per_pf, frac, p.cap_eff_f, abs(frac) * CAP_UNCERTAINTY * p.cap_eff_f * 1e12)
-
-
-def _capacitance_check(spec: Spec, p: OperatingPoint) -> tuple[Check | None, str | None]:
-    """The information row on the limiter's capacitance and, when the frequency its
-    uncertainty could move exceeds a quarter of the frequency tolerance, a caution."""
-    sens = capacitance_sensitivity(p)
-    if sens is None:
-        return None, None
-    quarter = spec.frequency.tolerance_frac / 4
-    cap_pf = sens.cap_eff_f * 1e12
-    note = (f"{sens.frac_per_pf * 100:+.3g} %/pF; {cap_pf:.3g} pF at its amplitude, +/-{CAP_UNCERTAINTY:.0%} of "
-            f"it moves f by +/-{sens.movement_frac * 100:.3g} % (a quarter of the tolerance: {quarter * 100:.3g} %)")
-    row = Check("frequency per pF at the limiter", "frequency.tolerance", sens.hz_per_pf, None, None, "frequency",
-                True, math.inf, note)
-    if sens.movement_frac <= quarter:
-        return row, None
-    tol_pct = spec.frequency.tolerance_frac * 100
-    return row, (f"the limiter's capacitance sets the frequency: {sens.hz_per_pf:+.3g} Hz per pF, and an error of "
-                 f"{CAP_UNCERTAINTY:.0%} in the {cap_pf:.3g} pF it presents would move the frequency by "
-                 f"{sens.movement_frac * 100:.3g} %, more than a quarter of the {tol_pct:.3g} % tolerance: check the "
-                 "catalog's junction capacitance (CJO, VJ, M, TT) against the part's datasheet or a measurement")
-
-
 def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None,
            tempcos: dict[str, tuple[float, float]] | None = None, ratings: dict[str, float] | None = None,
            points: dict[str, OperatingPoint] | None = None) -> Verdict:
@@ -389,8 +335,11 @@ def verify(c: Circuit, spec: Spec, *, tolerances: dict[str, float] | None = None
     worst = max(worst_f, key=lambda x: abs(x / f.target_hz - 1) if math.isfinite(x) else math.inf)
     checks.append(make_check("frequency over temperature", "temperature", worst, f.min_hz, f.max_hz, "frequency",
                          "worst of the temperature ends with the parts' tempcos"))
-    row, caution = _capacitance_check(spec, nom)
-    checks, cautions = checks + [row] * (row is not None), cautions + [caution] * (caution is not None)
+    limiter = limiter_capacitance(spec, nom)
+    if limiter is not None:
+        checks.append(Check("frequency per pF at the limiter", "frequency.tolerance", limiter[0], None, None,
+                            "frequency", True, math.inf, limiter[1]))
+    cautions += [x for x in (limiter and limiter[2], input_capacitance(spec, c)) if x]
 
     # Amplitude at the load over supply and temperature.
     lo_a, hi_a = a.peak_v * (1 - a.tolerance_frac), a.peak_v * (1 + a.tolerance_frac)

@@ -24,7 +24,7 @@ LAYERS = [
     ("partpick.physics",),
     ("partpick.circuits",),
     ("partpick.search", "partpick.verify", "partpick.points", "partpick.tolerance", "partpick.bom", "partpick.pricing",
-     "partpick.rank"),
+     "partpick.rank", "partpick.sensitivity"),
     ("partpick.pipeline", "partpick.refusal", "partpick.relaxation", "partpick.opening", "partpick.swap",
      "partpick.tradeoff", "partpick.inputs"),
     ("partpick.export",),

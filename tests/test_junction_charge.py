@@ -261,7 +261,8 @@ def test_check_shows_the_sensitivity_and_cautions_when_it_matters(demo_catalog):
     """verify adds the information row, and a caution when CAP_UNCERTAINTY of the
     limiter's capacitance moves the frequency by more than a quarter of its tolerance."""
     from partpick.spec import Spec
-    from partpick.verify import CAP_UNCERTAINTY, verify
+    from partpick.sensitivity import CAP_UNCERTAINTY
+    from partpick.verify import verify
 
     c = _led_design(demo_catalog)
     spec_text = """name: t

@@ -23,7 +23,7 @@ __all__ = ["TOPOLOGIES", "CONTROLS", "Circuit", "Conditions", "Core", "Slot", "V
            "topology", "control", "all_slots", "fitting_topologies", "slots_for", "control_for_roles", "check_spec",
            "make_circuit", "build_netlist", "build_loop", "branch", "linear", "balance", "small_signal", "settled",
            "designators", "log_sensitivities", "margin_fn",
-           "rest_conductance"]
+           "rest_conductance", "input_cap_shift"]
 
 TOPOLOGIES = {t.name: t for t in (wien.TOPOLOGY, quadrature.TOPOLOGY)}
 CONTROLS = {c.name: c for c in (diode_limiter.CONTROL, jfet_agc.CONTROL, clipping.CONTROL)}
@@ -234,6 +234,17 @@ def settled(c: Circuit, cond: Conditions, start: BalanceResult | None = None) ->
         return loop, lin, balance(c, cond, lin, loop=loop, start=start)
 
     return _kept(_SETTLED, (c, cond) if start is None else None, make)
+
+
+def input_cap_shift(c: Circuit, cap_f: float) -> tuple[str, float] | None:
+    """(role, relative change of the textbook frequency) with cap_f (F) more across the
+    topology's ``input_cap_role``, the frequency-setting capacitor that an op-amp input
+    node shares (its input capacitance and the board's add to it); None for a topology
+    without one (op-amp inputs at virtual grounds)."""
+    role = getattr(c.topology, "input_cap_role", None)
+    if role is None or c.value(role) <= 0:
+        return None
+    return role, c.with_values(**{role: c.value(role) + cap_f}).f0_hz / c.f0_hz - 1
 
 
 def log_sensitivities(values, fn, roles=None, h: float = 1e-6) -> dict[str, float]:

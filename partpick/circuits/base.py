@@ -181,8 +181,11 @@ class Topology(Protocol):
     driving a load of its own: a quadrature oscillator's cosine 'load2'), output_labels
     and output_phase_rad (each further output's word in messages and its intended phase
     lead over the first, rad), input_note (how its op-amp inputs swing, for the
-    common-mode check's note), gain_levels (the impedance levels, Rg in ohm, the
-    search puts the gain network at: the control's surrogate tables hold them),
+    common-mode check's note), input_cap_role (the frequency-setting capacitor an op-amp
+    input's node shares, whose frequency that input's capacitance moves: a caution,
+    :mod:`partpick.sensitivity`; None where the inputs sit at virtual grounds),
+    gain_levels (the impedance levels, Rg in ohm, the search puts the gain network at:
+    the control's surrogate tables hold them),
     reads_supply (whether its loop depends on the supply voltage; where neither it nor
     the control's branch does, a supply corner's loop is the nominal point's: a test
     builds both).
@@ -213,6 +216,7 @@ class Topology(Protocol):
     output_labels: dict
     output_phase_rad: dict
     input_note: str
+    input_cap_role: str | None
     gain_levels: tuple[float, ...]
 
     def f0_hz(self, v: Mapping[str, np.ndarray]) -> np.ndarray:

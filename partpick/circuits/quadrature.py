@@ -81,6 +81,7 @@ class Quadrature:
     title = "quadrature oscillator"
     network_name = "integrators, inverter"
     input_note = "inputs at virtual grounds: the reference +/- Vpk f/GBW"
+    input_cap_role = None          # (a capacitance at a virtual ground carries almost no signal)
     reads_supply = False           # the loop: the integrators, the op-amps' small-signal model, the loads
     slots = SLOTS
     channels = 3

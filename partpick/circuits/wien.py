@@ -58,6 +58,7 @@ class WienBridge:
     output_labels: dict = {}
     output_phase_rad: dict = {}
     input_note = "inputs at the reference +/- Vpk/3"
+    input_cap_role = "cp"       # the non-inverting input's node: Rp || Cp to the reference
     reads_supply = False        # the loop: the network, the op-amp's small-signal model, the loads
 
     # -- equations, vectorised over builds (role -> array of values) ------------------------
