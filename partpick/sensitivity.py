@@ -14,8 +14,8 @@ from partpick import units
 from partpick.circuits import Circuit, input_cap_shift
 from partpick.spec import Spec
 
-__all__ = ["CAP_UNCERTAINTY", "NODE_CAP_F", "CapSensitivity", "capacitance_sensitivity", "limiter_capacitance",
-           "input_capacitance"]
+__all__ = ["CAP_UNCERTAINTY", "NODE_CAP_F", "CAUTION_SHARE", "CapSensitivity", "capacitance_sensitivity",
+           "limiter_capacitance", "input_capacitance"]
 
 # How far a catalog's junction charge may be off, as a fraction of the capacitance the
 # control's element presents at its working amplitude: datasheets give typical capacitance
@@ -27,6 +27,8 @@ CAP_UNCERTAINTY = 0.5
 # parts, from memory; its datasheet gives it) and the pad and trace of the node (1 to 2 pF:
 # common practice, no published source)
 NODE_CAP_F = 5e-12
+# the share of the frequency tolerance a movement of either may take before a caution says so
+CAUTION_SHARE = 0.25
 
 
 @dataclass(frozen=True, slots=True)
@@ -63,7 +65,7 @@ def limiter_capacitance(spec: Spec, p) -> tuple[float, str, str | None] | None:
     sens = capacitance_sensitivity(p)
     if sens is None:
         return None
-    quarter = spec.frequency.tolerance_frac / 4
+    quarter = spec.frequency.tolerance_frac * CAUTION_SHARE
     cap_pf = sens.cap_eff_f * 1e12
     note = (f"{sens.frac_per_pf * 100:+.3g} %/pF; {cap_pf:.3g} pF at its amplitude, +/-{CAP_UNCERTAINTY:.0%} of "
             f"it moves f by +/-{sens.movement_frac * 100:.3g} % (a quarter of the tolerance: {quarter * 100:.3g} %)")
@@ -83,7 +85,7 @@ def input_capacitance(spec: Spec, c: Circuit) -> str | None:
     by more than a quarter of the frequency tolerance; None elsewhere, and for a
     topology whose op-amp inputs sit at virtual grounds."""
     shifted = input_cap_shift(c, NODE_CAP_F)
-    if shifted is None or abs(shifted[1]) <= spec.frequency.tolerance_frac / 4:
+    if shifted is None or abs(shifted[1]) <= spec.frequency.tolerance_frac * CAUTION_SHARE:
         return None
     role, shift = shifted
     value = units.format_quantity(c.value(role), "capacitance")

@@ -241,7 +241,7 @@ def input_cap_shift(c: Circuit, cap_f: float) -> tuple[str, float] | None:
     topology's ``input_cap_role``, the frequency-setting capacitor that an op-amp input
     node shares (its input capacitance and the board's add to it); None for a topology
     without one (op-amp inputs at virtual grounds)."""
-    role = getattr(c.topology, "input_cap_role", None)
+    role = c.topology.input_cap_role
     if role is None or c.value(role) <= 0:
         return None
     return role, c.with_values(**{role: c.value(role) + cap_f}).f0_hz / c.f0_hz - 1
