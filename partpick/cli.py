@@ -231,6 +231,7 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--why-not", "why_not", type=click.IntRange(1, 50), default=None,
               help="On a refusal, show this many nearest designs (default 3).")
 @_samples_option
+@click.option("--budget", type=click.IntRange(1, 1000), default=None, help="Candidates verified at most (default 40).")
 @click.option("--plots", "plots_dir", type=_PATH, default=None,
               help="Write frequency and amplitude histograms of the top candidate as PNG (needs the plot extra).")
 @click.option("--report", "report_path", type=_PATH, default=None,
@@ -239,7 +240,7 @@ def netlist(bom_path, spec_path, catalog_paths, out, force, cycles) -> None:
 @click.option("--verbose", "-v", is_flag=True, help="Also the dropped parts and the time of each stage.")
 @_guarded
 def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, seed, explain, why_not,
-               samples, plots_dir, report_path, quiet, verbose):
+               samples, budget, plots_dir, report_path, quiet, verbose):
     """Search standard values for SPEC and print ranked, verified bills of materials."""
     from partpick.export import summary as out_
     from partpick.export.files import plan_design, write_design
@@ -255,7 +256,7 @@ def design_cmd(spec_path, catalog_paths, results, rank_by, fmt, out_dir, force, 
                         force=force)
     with progress_line(not quiet, f"verifying candidates (physics + {samples} Monte Carlo builds each)") as progress:
         d = design(spec, cat, stock=stock, results=results, seed=seed, rank_by=keys, samples=samples,
-                   progress=progress, nearest=why_not or 3)
+                   progress=progress, nearest=why_not or 3, budget=budget)
     notes = fmt != "text"  # side messages go to stderr when stdout carries data
     text = out_.design_output(d, spec, spec_path, cat, fmt, keys=keys, quiet=quiet, verbose=verbose, stock=stock)
     click.echo(coloured_verdicts(text) if fmt == "text" and colour_enabled() else text)

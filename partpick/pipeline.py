@@ -69,13 +69,17 @@ SHOWN = 10
 class Design:
     """Ranked, verified candidates (best first), the notes of the search (parts left
     out and why), how many configurations were searched and verified, and the time each
-    stage took (s)."""
+    stage took (s), and whether verification stopped before #1 was certified (``stopped``)."""
 
     ranked: tuple[Ranked, ...]
     notes: tuple[str, ...] = ()
     searched: int = 0
     verified: int = 0
     timings: dict = field(default_factory=dict, hash=False, compare=False)
+    # whether verification stopped at its budget (per order, ``budget``) before it had
+    # ruled out every candidate that could beat #1 by the search's estimates
+    stopped: bool = False
+    budget: int = 0
 
     @property
     def passing(self) -> tuple[Ranked, ...]:
@@ -117,7 +121,7 @@ def _searcher(spec: Spec, catalog: Catalog, stock, problem: Problem, by_cost: bo
 
 def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = None,
            rank_by: tuple[str, ...] | None = None, samples: int = 20_000, seed: int = 0, progress=None,
-           nearest: int | None = 3, work: Runs | None = None, given=(), opened=()) -> Design:
+           nearest: int | None = 3, work: Runs | None = None, given=(), opened=(), budget: int | None = None) -> Design:
     """Search, verify and rank candidates for ``spec`` from ``catalog`` (and the stock
     list the spec names, already loaded, when it names one).
 
@@ -130,7 +134,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     spec has had already, which the why-not states and keeps (a load resistance a
     refusal named); ``opened``: the families a refusal added to the spec's lists, or the
     target it moved (its why-not then opens and moves no more: :mod:`partpick.opening`).
-    ``progress(done, total)``: called as candidates are verified. ``topology: auto``: every topology
+    ``progress(done, total)``: called as candidates are verified. ``budget``: the candidates
+    verified at most per order (MAX_VERIFY). ``topology: auto``: every topology
     that fits the spec, ranked together (:func:`_design_auto`).
     """
     timings: dict[str, float] = {}
@@ -141,7 +146,7 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
         return _design_auto(spec, catalog, stock=stock, results=results, rank_by=rank_by, samples=samples, seed=seed,
                             progress=progress, nearest=nearest,
                             work=work if work is not None else Runs(MAX_TRANSIENT), given=given,   # one budget
-                            opened=opened)
+                            opened=opened, budget=budget)
     n = results or spec.results
     rank_by = rank_by or spec.rank_by
     problem = build_problem(spec, catalog, stock)
@@ -184,13 +189,14 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
     t1 = time.perf_counter()
     timings["setup"] = t1 - t0
     verified: list[Ranked] = []
-    budget = MAX_VERIFY if nearest is not None else BARE_VERIFY
+    budget = (budget or MAX_VERIFY) if nearest is not None else BARE_VERIFY
     work = work if work is not None else Runs(MAX_TRANSIENT)
     searched, t_search = 0, 0.0
     held: set = set()   # the configurations verified to pass: one design each is shown
     tried: set = set()  # (signature, values) of every candidate verified
     capped = False      # the last phase stopped on its budget
     failures: dict = {}  # failed verifications per kind of candidate (Pool.failed)
+    stopped: dict = {}   # phase -> whether its last order's run towards #1 stopped at the budget
 
     def job(c: Candidate, transient):
         return _verify(_refined(c, spec, catalog, problem, searcher, fixed), spec, catalog, stock, problem, samples,
@@ -258,6 +264,8 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
                         or not pool.may_enter(verified, replace(d, yield_est=1.0), goal, rank_by))   # (see below)
                     searched += pool.size if by_cost == cost_first(rank_by) and not demoted and goal == 1 else 0
                     attempts = towards(goal, pool, attempts)
+                    if goal == 1:
+                        stopped[i] = attempts >= budget
                 capped = attempts >= budget
                 if any(r.verdict.passed for r in verified[start:]) or not capped:
                     break
@@ -277,13 +285,11 @@ def design(spec: Spec, catalog: Catalog, *, stock=None, results: int | None = No
             raise InfeasibleError("no design meets the spec")
         raise InfeasibleError(*_refusal(spec, catalog, stock, problem, searcher, ranked, nearest, seed, samples,
                                         given, opened))
-    if len(verified) >= MAX_VERIFY:
-        notes += (f"verification stopped at {MAX_VERIFY} candidates",)
     if work.skipped:
         notes += (f"{work.skipped} candidates not verified: they needed transient runs (an op-amp out of its linear "
                   f"range: swing, slew or current limited), more than were left of the {MAX_TRANSIENT} such runs a "
                   "design allows",)
-    return Design(tuple(ranked[:n]), notes, searched, len(verified), timings)
+    return Design(tuple(ranked[:n]), notes, searched, len(verified), timings, any(stopped.values()), budget)
 
 
 def _goals(n: int) -> tuple[int, ...]:
@@ -355,7 +361,8 @@ def _design_auto(spec: Spec, catalog: Catalog, *, results, rank_by, nearest, **k
             timings[key] = timings.get(key, 0.0) + value
     ranked = rank([r for d in designs for r in d.ranked], rank_by)
     return Design(tuple(ranked[:n]), tuple(notes + [f"no design from the {w}" for w in why]),
-                  sum(d.searched for d in designs), sum(d.verified for d in designs), timings)
+                  sum(d.searched for d in designs), sum(d.verified for d in designs), timings,
+                  any(d.stopped for d in designs), max(d.budget for d in designs))
 
 
 def _reach(problem: Problem) -> tuple[float, float]:

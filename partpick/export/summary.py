@@ -114,7 +114,7 @@ def design_json(spec_path, d, topology: bool = False) -> str:
     return json.dumps({"spec": str(spec_path), "candidates": [
         {"rank": i, **summary(r), **({"topology": r.bom.topology} if topology else {}), "bom": _bom_json(r.bom)}
         for i, r in enumerate(d.ranked, 1)],
-        "timings_s": d.timings}, indent=2, default=lambda x: None)
+        "stopped_at_budget": d.stopped, "budget": d.budget, "timings_s": d.timings}, indent=2, default=lambda x: None)
 
 
 def design_csv(d) -> str:
@@ -160,6 +160,9 @@ def design_output(d, spec, spec_path, catalog, fmt: str, *, keys=None, quiet: bo
     lines = [f"{spec.name}: {len(d.passing)} of {len(d.ranked)} ranked candidates meet every requirement "
              f"(ranked by {', '.join(keys or spec.rank_by)})"]
     lines += [f"note: {n}" for n in default_notes(spec)]
+    if d.stopped:
+        lines.append(f"note: verification stopped at its budget of {d.budget} candidates before it had ruled out "
+                     "every candidate that could beat #1 by the search's estimates; a larger --budget verifies more")
     if not quiet:
         lines.append(design_table(d, catalog, spec, stock))
     if verbose:
